@@ -1,0 +1,89 @@
+package fit
+
+import (
+	"errors"
+	"testing"
+)
+
+// METHODS §5 / ILAC-G8:09/2019 §4.2: CMRR ≥ 85 dB with U = 1.5 dB:
+// 87 → pass; 86 → conditional pass; 84 → conditional fail; 83 → fail.
+func TestDecideILACG8(t *testing.T) {
+	cases := []struct {
+		v    float64
+		rule Rule
+		want State
+	}{
+		{87, RuleGuarded, StatePass},            // ILAC-G8 §4.2 via METHODS §5
+		{86, RuleGuarded, StateConditionalPass}, // ILAC-G8 §4.2 via METHODS §5
+		{84, RuleGuarded, StateConditionalFail}, // ILAC-G8 §4.2 via METHODS §5
+		{83, RuleGuarded, StateFail},            // ILAC-G8 §4.2 via METHODS §5
+		{86.5, RuleGuarded, StatePass},          // at AL = TL + w
+		{85, RuleGuarded, StateConditionalPass}, // at TL
+		{83.5, RuleGuarded, StateFail},          // at RL = TL − w
+		{87, RuleSimple, StatePass},             // ILAC-G8 §4.2 simple acceptance
+		{85, RuleSimple, StatePass},
+		{84.99, RuleSimple, StateFail},
+		{83, RuleSimple, StateFail},
+	}
+	for _, c := range cases {
+		d, err := Decide(c.v, 1.5, 85, c.rule)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if d.State != c.want {
+			t.Errorf("%v dB under %s: %s, want %s", c.v, c.rule, d.State, c.want)
+		}
+		if d.Rule != c.rule || d.LimitDB != 85 || d.JudgedDB != c.v {
+			t.Errorf("decision does not carry its rule: %+v", d)
+		}
+		if c.rule == RuleGuarded && (d.GuardBandDB != 1.5 || d.AcceptanceLimitDB != 86.5 || d.RejectionLimitDB != 83.5) {
+			t.Errorf("guard band not carried: %+v", d)
+		}
+		if c.rule == RuleSimple && d.GuardBandDB != 0 {
+			t.Errorf("simple rule with guard band: %+v", d)
+		}
+	}
+	if _, err := Decide(90, 1, 85, Rule("coin toss")); !errors.Is(err, ErrBadInput) {
+		t.Errorf("unknown rule: %v", err)
+	}
+	if _, err := Decide(90, -1, 85, RuleGuarded); !errors.Is(err, ErrBadInput) {
+		t.Errorf("negative U: %v", err)
+	}
+}
+
+func TestDecideRejection(t *testing.T) {
+	// Resolved, asymmetric: the acceptance side uses RatioDB − LowerDB.
+	r := Rejection{Resolved: true, RatioDB: 86, LowerDB: 84.9, UpperDB: 87.3, LowerBoundDB: 84.9, CoefficientVPerV: 5e-5}
+	d, err := DecideRejection(r, 85, RuleGuarded)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if d.State != StateConditionalPass || d.GuardBandDB < 1.09 || d.GuardBandDB > 1.11 || d.RejectGuardBandDB < 1.29 || d.RejectGuardBandDB > 1.31 {
+		t.Errorf("%+v", d)
+	}
+	// Unresolved: judged by the lower bound.
+	un := func(lb, kV float64) Rejection {
+		return Rejection{Resolved: false, LowerBoundDB: lb, CoefficientVPerV: kV}
+	}
+	cases := []struct {
+		r    Rejection
+		rule Rule
+		want State
+	}{
+		{un(130, 1e-8), RuleSimple, StatePass},
+		{un(130, 1e-8), RuleGuarded, StatePass},
+		{un(80, 1e-8), RuleSimple, StateFail},             // bound below the limit
+		{un(80, 1e-8), RuleGuarded, StateConditionalPass}, // estimate 160 dB ≥ TL, bound below
+		{un(80, 1e-4), RuleGuarded, StateConditionalFail}, // estimate 80 dB < TL
+		{un(80, 0), RuleGuarded, StateConditionalPass},    // exactly zero estimate
+	}
+	for i, c := range cases {
+		d, err := DecideRejection(c.r, 85, c.rule)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if d.State != c.want || !d.JudgedOnLowerBound || d.JudgedDB != c.r.LowerBoundDB || d.Rule != c.rule {
+			t.Errorf("case %d: %+v, want %s", i, d, c.want)
+		}
+	}
+}

@@ -1,0 +1,38 @@
+// Package fit turns readings into numbers a test engineer can sign: least
+// squares, input-referred rejection coefficients and ratios, GUM uncertainty
+// budgets, ILAC-G8 decisions, nulling-loop closure checks, nonlinearity,
+// lot and temperature statistics.
+//
+// It sits in the middle of the flow plan → procedure → readings → fit →
+// report: the procedure's analysis step hands it stimulus and meter volts,
+// the report prints what it returns. It imports no other nullbench package
+// and knows nothing of instruments.
+//
+// Conventions:
+//   - Every result is a named struct with units in the field names
+//     (VPerV, UVPerV, DB, Volts, Celsius). Coefficients are signed and input
+//     referred; ratios use their magnitude.
+//   - Mismatched slice lengths are programmer errors and panic; bad data
+//     (too few points, a singular design, a stimulus that did not move)
+//     return errors that can be tested with errors.Is (ErrTooFewPoints,
+//     ErrSingular, ErrZeroSpan, ErrBadInput).
+//
+// Standards and sources followed:
+//   - Least squares by Householder QR of a centred and scaled design
+//     (Golub & Van Loan, Matrix Computations, §5.3), checked against the
+//     NIST/ITL Statistical Reference Datasets for linear regression.
+//   - JCGM 100:2008 (GUM): Type A and B evaluations (4.2, 4.3), combined
+//     standard uncertainty (5.1.2), Welch–Satterthwaite (G.2b), coverage
+//     factor from Student's t (G.6.4); checked against GUM H.3.
+//   - JEDEC JESD99B k_CMR and k_SVR for CMRR and PSRR (ΔV_IC/ΔV_IO,
+//     ΔV_S/ΔV_IO); MIL-STD-883 Methods 4001/4003 nulling loop.
+//   - ILAC-G8:09/2019 §4.2 decision rules (simple and guarded acceptance).
+//   - EURACHEM/CITAC CG4 Appendix F for results not distinguishable from
+//     zero (one-sided bound).
+//   - One-sided normal tolerance factors from the non-central t
+//     distribution (Owen 1963), whose CDF is evaluated by the Poisson-mixture
+//     series of Lenth (1989, Applied Statistics AS 243) summed outward from
+//     the Poisson mode as in Benton & Krishnamoorthy (2003).
+//   - Outliers by Rosner's generalized ESD test (Technometrics 25, 1983),
+//     as given in the NIST/SEMATECH e-Handbook §1.3.5.17.3.
+package fit
