@@ -1,0 +1,61 @@
+// Package instrument talks to bench instruments over SCPI and presents
+// them to procedures as small role interfaces.
+//
+// # Layers
+//
+// From the wire up:
+//
+//   - Conn (conn.go, tcp.go, serial.go) moves bytes: it writes program
+//     messages and reads response messages up to their terminator, with a
+//     context on every call. Two transports: a raw TCP socket
+//     ("tcp://HOST[:PORT]", port 5025 by default, the LXI/IANA "scpi-raw"
+//     port) and a serial line ("serial:///dev/ttyUSB0?baud=115200") via
+//     go.bug.st/serial. ParseAddress reads both forms; Dial opens them.
+//   - Session (session.go) speaks IEEE 488.2 and SCPI on a Conn: queries,
+//     numeric and block responses, the error queue (SYSTem:ERRor?),
+//     *IDN?, *RST, *CLS, *OPC?, a per-exchange time-out, and recovery
+//     after a time-out (drain, then re-synchronise with *OPC?). Do groups
+//     exchanges that must not be interleaved ("INST:NSEL 2" then "VOLT 5").
+//   - Profile (profile.go, profiles/*.toml) describes one kind of
+//     instrument in TOML: command templates per role, terminator,
+//     time-out, settle time, and the accuracy figures the uncertainty
+//     budget needs. The built-in profiles use only SCPI-99 standard forms.
+//   - Drivers (driver.go) implement the roles of roles.go (Meter, Supply,
+//     Source, Switch, Chamber, Thermometer) from a Session and a Profile.
+//     A negative supply rail wired floating is programmed as a magnitude
+//     and read back with its sign; meter overloads come back as ±Inf with
+//     an error wrapping ErrOverload.
+//
+// Open (open.go) does the usual sequence for the application: parse the
+// address, resolve the profile, dial, identify, check the identity against
+// the profile, read stale errors. Probe (probe.go) reports what is at an
+// address. Only the application opens and closes instruments; procedures
+// receive roles. This package imports nothing of procedure, fit or report.
+//
+// Package instrumenttest plays back scripted SCPI exchanges as a Conn so
+// that driver tests read like a bench log.
+//
+// # Standards followed
+//
+//   - IEEE 488.2: common commands *IDN?, *RST, *CLS, *OPC? (§10);
+//     numeric response forms NR1/NR2/NR3; arbitrary block responses,
+//     definite "#<n><len><bytes>" and indefinite "#0<bytes>NL^END"
+//     (§8.7.9-10); the Standard Event Status Register bit each error
+//     class sets. Clause numbers are those of METHODS.md §3, which lists
+//     them among its values still to verify.
+//   - SCPI-99 (SCPI Consortium, 1999): command forms of Vol 2 (CONFigure,
+//     READ?, [SENSe:]VOLTage:DC:NPLCycles, SAMPle:COUNt, INSTrument:NSELect,
+//     [SOURce:]VOLTage, OUTPut, MEASure, ROUTe:CLOSe/OPEN, TEMPerature);
+//     the error queue reply <code>,"<text>[;<info>]" and the standard
+//     error numbers of Vol 2 §21.8 (StandardErrors); the special values
+//     9.9E37 (+INF, overload), -9.9E37 (-INF) and 9.91E37 (NaN).
+//   - LXI Consortium, "LXI Ports, Protocols, and Services": raw SCPI socket
+//     port 5025 ("scpi-raw").
+//   - On a raw socket there is no END signal: LF ends a message and an
+//     optional CR before it is dropped (common practice, no published
+//     source; METHODS.md §3).
+//
+// Numbers, codes and forms are collected with their sources in
+// /work/shared/METHODS.md §3; the bench contract shared with the simulated
+// bench (instrument/sim) is BENCH.md.
+package instrument

@@ -1,0 +1,692 @@
+package instrument
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"math"
+	"sync"
+	"time"
+)
+
+// Compile-time checks that the profile-driven drivers serve their roles.
+var (
+	_ Meter       = (*MeterDriver)(nil)
+	_ Supply      = (*SupplyDriver)(nil)
+	_ Source      = (*SourceDriver)(nil)
+	_ Switch      = (*SwitchDriver)(nil)
+	_ Chamber     = (*ChamberDriver)(nil)
+	_ Thermometer = (*ThermometerDriver)(nil)
+	_ Thermometer = (*ChamberDriver)(nil)
+	_ Identifier  = (*MeterDriver)(nil)
+	_ Identifier  = (*SupplyDriver)(nil)
+	_ Identifier  = (*SourceDriver)(nil)
+	_ Identifier  = (*SwitchDriver)(nil)
+	_ Identifier  = (*ChamberDriver)(nil)
+	_ Identifier  = (*ThermometerDriver)(nil)
+)
+
+// DriverOptions configure a profile-driven driver. The zero value sleeps
+// in real time for the profile's settle durations.
+type DriverOptions struct {
+	// Sleep waits d of bench time after set commands. The procedure
+	// passes its clock's Sleep so that a time-scaled bench settles in
+	// scaled time; tests pass a recorder. nil: a real sleep that ends
+	// early with ctx.
+	Sleep func(ctx context.Context, d time.Duration) error
+	// When OverrideSettle is set, Settle replaces the profile's settle
+	// duration for this driver (zero: no settling).
+	Settle         time.Duration
+	OverrideSettle bool
+}
+
+func (o DriverOptions) settle(ctx context.Context, profile time.Duration) error {
+	d := profile
+	if o.OverrideSettle {
+		d = o.Settle
+	}
+	if d <= 0 {
+		return nil
+	}
+	if o.Sleep != nil {
+		return o.Sleep(ctx, d)
+	}
+	t := time.NewTimer(d)
+	defer t.Stop()
+	select {
+	case <-t.C:
+		return nil
+	case <-ctx.Done():
+		return ctx.Err()
+	}
+}
+
+// driverBase holds what every driver has: the session, the profile, the
+// options and a label for messages ("psu channel 2").
+type driverBase struct {
+	s     *Session
+	p     *Profile
+	opts  DriverOptions
+	label string
+}
+
+// Identity is the *IDN? reply the session read (see Session.Identify), or
+// a note that the instrument was not identified.
+func (b *driverBase) Identity() string {
+	if id, ok := b.s.Identity(); ok {
+		return id.Raw
+	}
+	return fmt.Sprintf("%s (not identified; profile %s)", b.s.Name(), b.p.Name)
+}
+
+// Profile is the profile driving this instrument.
+func (b *driverBase) Profile() *Profile { return b.p }
+
+// Session is the session the driver talks through.
+func (b *driverBase) Session() *Session { return b.s }
+
+// errorf prefixes a driver-level error with the driver's label.
+func (b *driverBase) errorf(format string, args ...any) error {
+	return fmt.Errorf("%s: "+format, append([]any{b.label}, args...)...)
+}
+
+// wrap prefixes an error from the session with the role label; session
+// errors already name the instrument and the command.
+func (b *driverBase) wrap(err error) error {
+	if err == nil {
+		return nil
+	}
+	return fmt.Errorf("%s: %w", b.label, err)
+}
+
+func finite(v float64) bool { return !math.IsNaN(v) && !math.IsInf(v, 0) }
+
+func newBase(s *Session, p *Profile, role string, opts DriverOptions) (driverBase, error) {
+	if s == nil || p == nil {
+		return driverBase{}, fmt.Errorf("%s driver: nil session or profile", role)
+	}
+	if err := p.Validate(); err != nil {
+		return driverBase{}, fmt.Errorf("%s %s driver: %w", s.Name(), role, err)
+	}
+	return driverBase{s: s, p: p, opts: opts, label: s.Name() + " " + role}, nil
+}
+
+// ---- meter ----
+
+// MeterDriver is the Meter role driven by a profile's [meter] table.
+//
+// Overload: a reading of ±9.9E37 (SCPI ±INF) is returned as ±Inf together
+// with an error wrapping ErrOverload; 9.91E37 (SCPI NaN) as NaN with an
+// error wrapping ErrNotANumber. ReadN returns all readings in either case,
+// so a caller may keep the good ones.
+type MeterDriver struct {
+	driverBase
+	cmds *MeterCommands
+
+	mu         sync.Mutex
+	rangeVolts float64 // last configured; 0 before ConfigureDCVolts
+	nplc       float64
+}
+
+// NewMeter binds the Meter role to a session using p's [meter] table.
+func NewMeter(s *Session, p *Profile, opts DriverOptions) (*MeterDriver, error) {
+	b, err := newBase(s, p, "meter", opts)
+	if err != nil {
+		return nil, err
+	}
+	if p.Meter == nil {
+		return nil, fmt.Errorf("%s: profile %s (%s) has no [meter] table; it serves %v", b.label, p.Name, p.File, p.Roles())
+	}
+	return &MeterDriver{driverBase: b, cmds: p.Meter}, nil
+}
+
+// Accuracy is the meter's DC accuracy from the profile.
+func (m *MeterDriver) Accuracy() MeterAccuracy { return m.cmds.Accuracy }
+
+// RangeVolts is the range last configured (0 before ConfigureDCVolts).
+func (m *MeterDriver) RangeVolts() float64 {
+	m.mu.Lock()
+	defer m.mu.Unlock()
+	return m.rangeVolts
+}
+
+// ConfigureDCVolts selects DC volts on a fixed range and sets the
+// integration time.
+func (m *MeterDriver) ConfigureDCVolts(ctx context.Context, rangeVolts, nplc float64) error {
+	if !finite(rangeVolts) || rangeVolts <= 0 {
+		return m.errorf("range %v V: must be a positive number of volts", rangeVolts)
+	}
+	if !finite(nplc) || nplc <= 0 {
+		return m.errorf("integration time %v NPLC: must be a positive number of power-line cycles", nplc)
+	}
+	vals := map[string]string{PhRange: formatNumber(rangeVolts), PhNPLC: formatNumber(nplc), PhUnit: "V"}
+	conf, err := expandTemplate(m.cmds.Configure, vals)
+	if err != nil {
+		return m.wrap(err)
+	}
+	integ, err := expandTemplate(m.cmds.NPLC, vals)
+	if err != nil {
+		return m.wrap(err)
+	}
+	err = m.s.Do(ctx, func(tx *Tx) error {
+		if err := tx.Write(ctx, conf); err != nil {
+			return err
+		}
+		return tx.Write(ctx, integ)
+	})
+	if err != nil {
+		return m.wrap(err)
+	}
+	m.mu.Lock()
+	m.rangeVolts, m.nplc = rangeVolts, nplc
+	m.mu.Unlock()
+	return m.wrap(m.opts.settle(ctx, m.cmds.Settle))
+}
+
+// Read takes one reading in volts.
+func (m *MeterDriver) Read(ctx context.Context) (float64, error) {
+	v, err := m.ReadN(ctx, 1)
+	if len(v) == 1 {
+		return v[0], err
+	}
+	return 0, err
+}
+
+// assumedNPLC is used to size the time-out of a READ? before the meter was
+// configured: 10 PLC is a common power-on default (common practice, no
+// published source).
+const assumedNPLC = 10
+
+// ReadN sets the sample count (count template, e.g. SAMP:COUN n) and
+// triggers with the read template (READ?), in one transaction, and returns
+// the n readings in volts. The exchange may take the session time-out plus
+// twice n × NPLC × 20 ms (one power-line cycle at 50 Hz is 20 ms, METHODS.md
+// §7), unless ctx has an earlier deadline.
+func (m *MeterDriver) ReadN(ctx context.Context, n int) ([]float64, error) {
+	if n < 1 {
+		return nil, m.errorf("asked for %d readings; need at least 1", n)
+	}
+	m.mu.Lock()
+	nplc, rng := m.nplc, m.rangeVolts
+	m.mu.Unlock()
+	if nplc == 0 {
+		nplc = assumedNPLC
+	}
+	vals := map[string]string{PhCount: fmt.Sprint(n)}
+	countCmd, err := expandTemplate(m.cmds.Count, vals)
+	if err != nil {
+		return nil, m.wrap(err)
+	}
+	readCmd, err := expandTemplate(m.cmds.Read, vals)
+	if err != nil {
+		return nil, m.wrap(err)
+	}
+	integration := time.Duration(float64(n) * nplc * float64(20*time.Millisecond))
+	ctx = WithCallTimeout(ctx, m.s.Timeout()+2*integration)
+	var readings []float64
+	err = m.s.Do(ctx, func(tx *Tx) error {
+		if err := tx.Write(ctx, countCmd); err != nil {
+			return err
+		}
+		var err error
+		readings, err = tx.QueryFloats(ctx, readCmd)
+		return err
+	})
+	if err != nil {
+		return nil, m.wrap(err)
+	}
+	if len(readings) != n {
+		return nil, m.errorf("%q returned %d readings, asked for %d with %q", readCmd, len(readings), n, countCmd)
+	}
+	var over, nan int
+	for _, v := range readings {
+		switch {
+		case math.IsInf(v, 0):
+			over++
+		case math.IsNaN(v):
+			nan++
+		}
+	}
+	switch {
+	case over > 0:
+		return readings, m.errorf("%d of %d readings over range (range %g V; choose a larger range): %w", over, n, rng, ErrOverload)
+	case nan > 0:
+		return readings, m.errorf("%d of %d readings not a number: %w", nan, n, ErrNotANumber)
+	}
+	return readings, nil
+}
+
+// ---- channel drivers (supply, source) ----
+
+// channelBase runs channel commands: the select template (if any) and the
+// command, in one transaction, so no other caller's channel selection can
+// come between.
+type channelBase struct {
+	driverBase
+	channel string
+	sel     string
+}
+
+func newChannelBase(s *Session, p *Profile, role, channel, sel string, channels []string, tpls []string, opts DriverOptions) (channelBase, error) {
+	b, err := newBase(s, p, role+" channel "+channel, opts)
+	if err != nil {
+		return channelBase{}, err
+	}
+	if !validChannel(channel) {
+		return channelBase{}, b.errorf("channel %q: use letters, digits and ! only", channel)
+	}
+	if len(channels) > 0 && !contains(channels, channel) {
+		return channelBase{}, b.errorf("profile %s has channels %v; no channel %q", p.Name, channels, channel)
+	}
+	named := sel != ""
+	for _, t := range tpls {
+		if segs, err := parseTemplate(t, knownPlaceholders); err == nil && uses(segs, PhChannel) {
+			named = true
+		}
+	}
+	if !named && len(channels) == 0 && channel != "1" {
+		return channelBase{}, b.errorf("profile %s cannot select a channel (no select template, no {channel}); only channel 1 exists", p.Name)
+	}
+	return channelBase{driverBase: b, channel: channel, sel: sel}, nil
+}
+
+// Channel is the channel this driver is bound to.
+func (c *channelBase) Channel() string { return c.channel }
+
+func (c *channelBase) expand(tpl, value, unit string) (string, error) {
+	vals := map[string]string{PhChannel: c.channel}
+	if value != "" {
+		vals[PhValue] = value
+		vals[PhUnit] = unit
+	}
+	return expandTemplate(tpl, vals)
+}
+
+func (c *channelBase) set(ctx context.Context, tpl, value, unit string, settle time.Duration) error {
+	cmd, err := c.expand(tpl, value, unit)
+	if err != nil {
+		return c.wrap(err)
+	}
+	err = c.s.Do(ctx, func(tx *Tx) error {
+		if err := c.selectChannel(ctx, tx); err != nil {
+			return err
+		}
+		return tx.Write(ctx, cmd)
+	})
+	if err != nil {
+		return c.wrap(err)
+	}
+	return c.wrap(c.opts.settle(ctx, settle))
+}
+
+func (c *channelBase) read(ctx context.Context, tpl string) (float64, error) {
+	cmd, err := c.expand(tpl, "", "")
+	if err != nil {
+		return 0, c.wrap(err)
+	}
+	var v float64
+	err = c.s.Do(ctx, func(tx *Tx) error {
+		if err := c.selectChannel(ctx, tx); err != nil {
+			return err
+		}
+		var err error
+		v, err = tx.QueryFloat(ctx, cmd)
+		return err
+	})
+	if err != nil {
+		return 0, c.wrap(err)
+	}
+	if math.IsInf(v, 0) {
+		return v, c.errorf("%q: %w", cmd, ErrOverload)
+	}
+	if math.IsNaN(v) {
+		return v, c.errorf("%q: %w", cmd, ErrNotANumber)
+	}
+	return v, nil
+}
+
+func (c *channelBase) selectChannel(ctx context.Context, tx *Tx) error {
+	if c.sel == "" {
+		return nil
+	}
+	cmd, err := c.expand(c.sel, "", "")
+	if err != nil {
+		return err
+	}
+	return tx.Write(ctx, cmd)
+}
+
+func onOff(on bool) string {
+	if on {
+		return "ON"
+	}
+	return "OFF"
+}
+
+// SupplyDriver is one channel of a supply, driven by a profile's [supply]
+// table.
+//
+// A channel wired as a negative rail (negative = true: a floating output
+// with its + terminal on ground) is programmed with the magnitude —
+// SetVolts(-15) sends 15 — and read back with the sign restored; asking
+// it for a positive voltage is an error. ReadAmps returns the current as
+// the supply reports it (positive when the output sources current),
+// whichever way the channel is wired.
+type SupplyDriver struct {
+	channelBase
+	cmds     *SupplyCommands
+	negative bool
+}
+
+// NewSupply binds the Supply role to one channel of a supply.
+func NewSupply(s *Session, p *Profile, channel string, negative bool, opts DriverOptions) (*SupplyDriver, error) {
+	if p != nil && p.Supply == nil {
+		return nil, fmt.Errorf("%s supply: profile %s (%s) has no [supply] table; it serves %v", sessionName(s), p.Name, p.File, p.Roles())
+	}
+	role := "supply"
+	if negative {
+		role = "supply (negative rail)"
+	}
+	var c *SupplyCommands
+	var tpls []string
+	if p != nil {
+		c = p.Supply
+		tpls = []string{c.SetVolts, c.SetCurrentLimit, c.SetOutput, c.ReadVolts, c.ReadAmps}
+	}
+	b, err := newChannelBase(s, p, role, channel, selOf(c), chansOf(c), tpls, opts)
+	if err != nil {
+		return nil, err
+	}
+	return &SupplyDriver{channelBase: b, cmds: c, negative: negative}, nil
+}
+
+func selOf(c *SupplyCommands) string {
+	if c == nil {
+		return ""
+	}
+	return c.Select
+}
+
+func chansOf(c *SupplyCommands) []string {
+	if c == nil {
+		return nil
+	}
+	return c.Channels
+}
+
+func sessionName(s *Session) string {
+	if s == nil {
+		return "(no session)"
+	}
+	return s.Name()
+}
+
+// Negative reports whether the channel is wired as a negative rail.
+func (d *SupplyDriver) Negative() bool { return d.negative }
+
+// Accuracy is the supply's programming and read-back accuracy.
+func (d *SupplyDriver) Accuracy() SupplyAccuracy { return d.cmds.Accuracy }
+
+// SetVolts programs the rail voltage (negative for a negative rail).
+func (d *SupplyDriver) SetVolts(ctx context.Context, volts float64) error {
+	if !finite(volts) {
+		return d.errorf("voltage %v: not a number", volts)
+	}
+	mag := volts
+	switch {
+	case d.negative && volts > 0:
+		return d.errorf("refusing %+g V: this channel is wired as the negative rail (+ terminal on ground) and can only make 0 V or below", volts)
+	case d.negative:
+		mag = -volts
+	case volts < 0:
+		return d.errorf("refusing %g V: a supply channel programs a positive magnitude; for a negative rail wire the channel floating and bind it with negative = true", volts)
+	}
+	return d.set(ctx, d.cmds.SetVolts, formatNumber(mag), "V", d.cmds.Settle)
+}
+
+// SetCurrentLimit programs the current limit in amps (> 0).
+func (d *SupplyDriver) SetCurrentLimit(ctx context.Context, amps float64) error {
+	if !finite(amps) || amps <= 0 {
+		return d.errorf("current limit %v A: must be a positive number of amps", amps)
+	}
+	return d.set(ctx, d.cmds.SetCurrentLimit, formatNumber(amps), "A", d.cmds.Settle)
+}
+
+// SetOutput turns the channel's output on or off.
+func (d *SupplyDriver) SetOutput(ctx context.Context, on bool) error {
+	return d.set(ctx, d.cmds.SetOutput, onOff(on), "", d.cmds.Settle)
+}
+
+// ReadVolts reads the output voltage back, with the rail's sign.
+func (d *SupplyDriver) ReadVolts(ctx context.Context) (float64, error) {
+	v, err := d.read(ctx, d.cmds.ReadVolts)
+	if d.negative {
+		v = -v
+	}
+	return v, err
+}
+
+// ReadAmps reads the output current back, as the supply reports it.
+func (d *SupplyDriver) ReadAmps(ctx context.Context) (float64, error) {
+	return d.read(ctx, d.cmds.ReadAmps)
+}
+
+// SourceDriver is one channel of a DC voltage source, driven by a
+// profile's [source] table. Voltages of either sign are passed through.
+type SourceDriver struct {
+	channelBase
+	cmds *SourceCommands
+}
+
+// NewSource binds the Source role to one channel of a source.
+func NewSource(s *Session, p *Profile, channel string, opts DriverOptions) (*SourceDriver, error) {
+	if p != nil && p.Source == nil {
+		return nil, fmt.Errorf("%s source: profile %s (%s) has no [source] table; it serves %v", sessionName(s), p.Name, p.File, p.Roles())
+	}
+	var c *SourceCommands
+	var sel string
+	var chans, tpls []string
+	if p != nil {
+		c = p.Source
+		sel, chans = c.Select, c.Channels
+		tpls = []string{c.SetVolts, c.SetOutput, c.ReadVolts}
+	}
+	b, err := newChannelBase(s, p, "source", channel, sel, chans, tpls, opts)
+	if err != nil {
+		return nil, err
+	}
+	return &SourceDriver{channelBase: b, cmds: c}, nil
+}
+
+// Accuracy is the source's programming and read-back accuracy.
+func (d *SourceDriver) Accuracy() SupplyAccuracy { return d.cmds.Accuracy }
+
+// SetVolts programs the output voltage.
+func (d *SourceDriver) SetVolts(ctx context.Context, volts float64) error {
+	if !finite(volts) {
+		return d.errorf("voltage %v: not a number", volts)
+	}
+	return d.set(ctx, d.cmds.SetVolts, formatNumber(volts), "V", d.cmds.Settle)
+}
+
+// SetOutput turns the channel's output on or off.
+func (d *SourceDriver) SetOutput(ctx context.Context, on bool) error {
+	return d.set(ctx, d.cmds.SetOutput, onOff(on), "", d.cmds.Settle)
+}
+
+// ReadVolts reads the output voltage back.
+func (d *SourceDriver) ReadVolts(ctx context.Context) (float64, error) {
+	return d.read(ctx, d.cmds.ReadVolts)
+}
+
+// ---- switch ----
+
+// SwitchDriver is the Switch role driven by a profile's [switch] table.
+// When the profile has query_closed, Close and Open read the relay state
+// back and fail if it is not what was asked: which unit the meter sees
+// depends on it.
+type SwitchDriver struct {
+	driverBase
+	cmds *SwitchCommands
+}
+
+// ErrRelayState is wrapped when a relay does not report the state it was
+// switched to.
+var ErrRelayState = errors.New("relay did not take the state asked for")
+
+// NewSwitch binds the Switch role using p's [switch] table.
+func NewSwitch(s *Session, p *Profile, opts DriverOptions) (*SwitchDriver, error) {
+	b, err := newBase(s, p, "switch", opts)
+	if err != nil {
+		return nil, err
+	}
+	if p.Switch == nil {
+		return nil, fmt.Errorf("%s: profile %s (%s) has no [switch] table; it serves %v", b.label, p.Name, p.File, p.Roles())
+	}
+	return &SwitchDriver{driverBase: b, cmds: p.Switch}, nil
+}
+
+// Close closes one relay channel (for example "101").
+func (d *SwitchDriver) Close(ctx context.Context, channel string) error {
+	return d.move(ctx, d.cmds.Close, channel, true)
+}
+
+// Open opens one relay channel.
+func (d *SwitchDriver) Open(ctx context.Context, channel string) error {
+	return d.move(ctx, d.cmds.Open, channel, false)
+}
+
+// OpenAll opens every relay.
+func (d *SwitchDriver) OpenAll(ctx context.Context) error {
+	cmd, err := expandTemplate(d.cmds.OpenAll, nil)
+	if err != nil {
+		return d.wrap(err)
+	}
+	if err := d.s.Write(ctx, cmd); err != nil {
+		return d.wrap(err)
+	}
+	return d.wrap(d.opts.settle(ctx, d.cmds.Settle))
+}
+
+func (d *SwitchDriver) move(ctx context.Context, tpl, channel string, closed bool) error {
+	if !validChannel(channel) {
+		return d.errorf("channel %q: use letters, digits and ! only (one channel per call)", channel)
+	}
+	vals := map[string]string{PhChannel: channel}
+	cmd, err := expandTemplate(tpl, vals)
+	if err != nil {
+		return d.wrap(err)
+	}
+	var check string
+	if d.cmds.QueryClosed != "" {
+		if check, err = expandTemplate(d.cmds.QueryClosed, vals); err != nil {
+			return d.wrap(err)
+		}
+	}
+	err = d.s.Do(ctx, func(tx *Tx) error {
+		if err := tx.Write(ctx, cmd); err != nil {
+			return err
+		}
+		if check == "" {
+			return nil
+		}
+		v, err := tx.QueryFloat(ctx, check)
+		if err != nil {
+			return err
+		}
+		if got := v != 0; got != closed {
+			return fmt.Errorf("channel %s: after %q, %q answers %g: %w", channel, cmd, check, v, ErrRelayState)
+		}
+		return nil
+	})
+	if err != nil {
+		return d.wrap(err)
+	}
+	return d.wrap(d.opts.settle(ctx, d.cmds.Settle))
+}
+
+// ---- chamber and thermometer ----
+
+// ChamberDriver is the Chamber role (and its Thermometer) driven by a
+// profile's [chamber] table.
+type ChamberDriver struct {
+	driverBase
+	cmds *ChamberCommands
+}
+
+// NewChamber binds the Chamber role using p's [chamber] table.
+func NewChamber(s *Session, p *Profile, opts DriverOptions) (*ChamberDriver, error) {
+	b, err := newBase(s, p, "chamber", opts)
+	if err != nil {
+		return nil, err
+	}
+	if p.Chamber == nil {
+		return nil, fmt.Errorf("%s: profile %s (%s) has no [chamber] table; it serves %v", b.label, p.Name, p.File, p.Roles())
+	}
+	return &ChamberDriver{driverBase: b, cmds: p.Chamber}, nil
+}
+
+// AccuracyCelsius is the ± limit of the chamber's sensor (0 if not given).
+func (d *ChamberDriver) AccuracyCelsius() float64 { return d.cmds.AccuracyCelsius }
+
+// SetPointCelsius programs the chamber's set point.
+func (d *ChamberDriver) SetPointCelsius(ctx context.Context, celsius float64) error {
+	if !finite(celsius) {
+		return d.errorf("set point %v °C: not a number", celsius)
+	}
+	cmd, err := expandTemplate(d.cmds.SetPoint, map[string]string{PhValue: formatNumber(celsius), PhUnit: "CEL"})
+	if err != nil {
+		return d.wrap(err)
+	}
+	if err := d.s.Write(ctx, cmd); err != nil {
+		return d.wrap(err)
+	}
+	return d.wrap(d.opts.settle(ctx, d.cmds.Settle))
+}
+
+// ReadCelsius reads the chamber air temperature.
+func (d *ChamberDriver) ReadCelsius(ctx context.Context) (float64, error) {
+	return readCelsius(ctx, &d.driverBase, d.cmds.ReadCelsius)
+}
+
+func readCelsius(ctx context.Context, b *driverBase, tpl string) (float64, error) {
+	cmd, err := expandTemplate(tpl, nil)
+	if err != nil {
+		return 0, b.wrap(err)
+	}
+	v, err := b.s.QueryFloat(ctx, cmd)
+	if err != nil {
+		return 0, b.wrap(err)
+	}
+	if !finite(v) {
+		return v, b.errorf("%q answered %v: %w", cmd, v, ErrOverload)
+	}
+	return v, nil
+}
+
+// ThermometerDriver is the Thermometer role driven by a profile's
+// [thermometer] table.
+type ThermometerDriver struct {
+	driverBase
+	cmds *ThermometerCommands
+}
+
+// NewThermometer binds the Thermometer role using p's [thermometer] table.
+func NewThermometer(s *Session, p *Profile, opts DriverOptions) (*ThermometerDriver, error) {
+	b, err := newBase(s, p, "thermometer", opts)
+	if err != nil {
+		return nil, err
+	}
+	if p.Thermometer == nil {
+		return nil, fmt.Errorf("%s: profile %s (%s) has no [thermometer] table; it serves %v", b.label, p.Name, p.File, p.Roles())
+	}
+	return &ThermometerDriver{driverBase: b, cmds: p.Thermometer}, nil
+}
+
+// AccuracyCelsius is the ± limit of the sensor (0 if not given).
+func (d *ThermometerDriver) AccuracyCelsius() float64 { return d.cmds.AccuracyCelsius }
+
+// ReadCelsius reads the temperature.
+func (d *ThermometerDriver) ReadCelsius(ctx context.Context) (float64, error) {
+	return readCelsius(ctx, &d.driverBase, d.cmds.ReadCelsius)
+}
