@@ -1,5 +1,7 @@
 package procedure
 
+import "strconv"
+
 // Plan is a measurement plan as read from its TOML file. The schema is
 // nullbench's own; every key is documented in testdata/plans/*.toml and in
 // DEVELOPERS.md. Unknown keys are errors.
@@ -22,6 +24,11 @@ type Plan struct {
 	// Hash the SHA-256 of its bytes (hex), which ties journals to plans.
 	Source string `toml:"-"`
 	Hash   string `toml:"-"`
+
+	// keys locates each key of the source file (line numbers for error
+	// messages and the set of keys present, for defaults). Nil for plans
+	// built in code.
+	keys *keyIndex
 }
 
 // Campaign names the work for the report.
@@ -222,4 +229,166 @@ type SafetyOptions struct {
 	// RampStepVolts is the largest single step of any supply or source
 	// when ramping up or down (default 1 V, METHODS §6).
 	RampStepVolts float64 `toml:"ramp_step_volts"`
+}
+
+// Role names as written under [bench.roles].
+const (
+	RoleMeter       = "meter"
+	RoleSupplyPos   = "supply_pos"
+	RoleSupplyNeg   = "supply_neg"
+	RoleSourceCM    = "source_cm"
+	RoleSourceDiff  = "source_diff"
+	RoleSourceRef   = "source_ref"
+	RoleSwitch      = "switch"
+	RoleChamber     = "chamber"
+	RoleThermometer = "thermometer"
+)
+
+// RoleNames lists every role in the order of the [bench.roles] table.
+func RoleNames() []string {
+	return []string{RoleMeter, RoleSupplyPos, RoleSupplyNeg, RoleSourceCM,
+		RoleSourceDiff, RoleSourceRef, RoleSwitch, RoleChamber, RoleThermometer}
+}
+
+// Get returns the binding of the named role (zero when the role is unknown
+// or not bound).
+func (r *Roles) Get(role string) RoleBinding {
+	switch role {
+	case RoleMeter:
+		return r.Meter
+	case RoleSupplyPos:
+		return r.SupplyPos
+	case RoleSupplyNeg:
+		return r.SupplyNeg
+	case RoleSourceCM:
+		return r.SourceCM
+	case RoleSourceDiff:
+		return r.SourceDiff
+	case RoleSourceRef:
+		return r.SourceRef
+	case RoleSwitch:
+		return r.Switch
+	case RoleChamber:
+		return r.Chamber
+	case RoleThermometer:
+		return r.Thermometer
+	}
+	return RoleBinding{}
+}
+
+// Bound reports whether the role names an instrument.
+func (b RoleBinding) Bound() bool { return b.Instrument != "" }
+
+// PsrrWorst names the derived result "worst of psrr_pos and psrr_neg", which
+// limits may name although no test of that kind exists.
+const PsrrWorst = "psrr_worst"
+
+// Defaults applied to keys the plan leaves out. Every one is stated in the
+// example plans under testdata/plans/.
+const (
+	DefaultOrder    = OrderZigzag
+	DefaultRepeats  = 1
+	DefaultReadings = 5
+	// DefaultNPLC: 10 power-line cycles, where a 6½-digit meter's rms noise
+	// is about 1e-6 of range (METHODS §7, published DMM manuals).
+	DefaultNPLC       = 10.0
+	DefaultRangeVolts = 10.0
+	DefaultTimeScale  = 1.0
+	DefaultRule       = RuleGuarded
+	// DefaultRampStepVolts: the largest step of a supply or source while
+	// ramping (METHODS §6, "step ≤ 1 V with settling").
+	DefaultRampStepVolts = 1.0
+	DefaultDwellSeconds  = 2.0
+	// DefaultSettleVolts: two successive readings must agree within 50 µV at
+	// the meter, about 3.5 times the rms difference of two 10-NPLC readings
+	// on the 10 V range (1e-6 × range rms each, METHODS §7); common
+	// practice, no published source.
+	DefaultSettleVolts          = 50e-6
+	DefaultSettleTimeoutSeconds = 30.0
+	DefaultTemperatureMode      = TempNone
+	DefaultAmbientCelsius       = 25.0
+	DefaultSoakToleranceC       = 0.5
+	// DefaultSoakSeconds: 10 minutes, the low end of the 10–30 min thermal
+	// soak of METHODS §7 (common practice).
+	DefaultSoakSeconds        = 600.0
+	DefaultSoakTimeoutSeconds = 3600.0
+	// DefaultRampMaxCPerMinute: chamber slew used for the duration estimate
+	// and as the largest set-point change per minute (common practice).
+	DefaultRampMaxCPerMinute = 5.0
+	// DefaultInputBeyondRailVolts: the usual absolute maximum of an input
+	// beyond a rail before its ESD diodes conduct (METHODS §6, "typical
+	// abs. max rail ±0.3 V").
+	DefaultInputBeyondRailVolts = 0.3
+)
+
+// ApplyDefaults fills every unset (zero) field that has a default. Plans
+// read by ParsePlan get their defaults from the keys missing in the file
+// instead, so that an explicit 0 stays 0 and validation can refuse it.
+func (p *Plan) ApplyDefaults() {
+	p.applyDefaults(func(string) bool { return false })
+}
+
+// applyDefaults fills the defaults of keys for which present(key) is false
+// and whose field is zero. Keys are dotted paths as in error messages, with
+// 1-based [[test]] indexes: "test[2].nplc".
+func (p *Plan) applyDefaults(present func(key string) bool) {
+	setF := func(key string, v *float64, def float64) {
+		if !present(key) && *v == 0 {
+			*v = def
+		}
+	}
+	setI := func(key string, v *int, def int) {
+		if !present(key) && *v == 0 {
+			*v = def
+		}
+	}
+	setS := func(key string, v *string, def string) {
+		if !present(key) && *v == "" {
+			*v = def
+		}
+	}
+	setF("bench.time_scale", &p.Bench.TimeScale, DefaultTimeScale)
+	setS("decision.rule", &p.Decision.Rule, DefaultRule)
+	setF("safety.ramp_step_volts", &p.Safety.RampStepVolts, DefaultRampStepVolts)
+	setF("part.input_beyond_rail_volts", &p.Part.InputBeyondRailVolts, DefaultInputBeyondRailVolts)
+	if p.Fixture.Kind == FixtureBoard {
+		setS("fixture.common_mode", &p.Fixture.CommonMode, CMByInputDrive)
+	}
+	t := &p.Temperature
+	setS("temperature.mode", &t.Mode, DefaultTemperatureMode)
+	setF("temperature.ambient_c", &t.AmbientCelsius, DefaultAmbientCelsius)
+	setF("temperature.soak_tolerance_c", &t.SoakToleranceC, DefaultSoakToleranceC)
+	setF("temperature.soak_s", &t.SoakSeconds, DefaultSoakSeconds)
+	setF("temperature.soak_timeout_s", &t.SoakTimeoutSeconds, DefaultSoakTimeoutSeconds)
+	setF("temperature.ramp_max_c_per_min", &t.RampMaxCPerMinute, DefaultRampMaxCPerMinute)
+	for i := range p.Tests {
+		k := testKey(i)
+		x := &p.Tests[i]
+		setS(k+".order", &x.Order, DefaultOrder)
+		setI(k+".repeats", &x.Repeats, DefaultRepeats)
+		setI(k+".readings", &x.Readings, DefaultReadings)
+		setF(k+".nplc", &x.NPLC, DefaultNPLC)
+		setF(k+".range_volts", &x.RangeVolts, DefaultRangeVolts)
+		setF(k+".dwell_s", &x.DwellSeconds, DefaultDwellSeconds)
+		setF(k+".settle_volts", &x.SettleVolts, DefaultSettleVolts)
+		setF(k+".settle_timeout_s", &x.SettleTimeoutSeconds, DefaultSettleTimeoutSeconds)
+	}
+}
+
+// testKey is the key path of the i-th (0-based) [[test]] table in error
+// messages: "test[1]" is the first, counting as a reader counts.
+func testKey(i int) string { return "test[" + strconv.Itoa(i+1) + "]" }
+
+// unitKey is the key path of the i-th (0-based) [[unit]] table.
+func unitKey(i int) string { return "unit[" + strconv.Itoa(i+1) + "]" }
+
+// TemperaturePoints returns the temperatures the campaign visits in order:
+// the plan's points, or the single ambient temperature when it lists none.
+// The index into this list is the temperature index of journals and work
+// keys.
+func (p *Plan) TemperaturePoints() []float64 {
+	if len(p.Temperature.PointsCelsius) > 0 {
+		return append([]float64(nil), p.Temperature.PointsCelsius...)
+	}
+	return []float64{p.Temperature.AmbientCelsius}
 }

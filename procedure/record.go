@@ -12,6 +12,7 @@ type Reading struct {
 	Test          string    `json:"test"`            // test kind
 	Part          string    `json:"part,omitempty"`  // for boards: "diff" or "cm" sweep of board_cmrr
 	TemperatureC  float64   `json:"temperature_c"`   // NaN-free: ambient when not recorded
+	TempIndex     int       `json:"temp_index"`      // index into Plan.TemperaturePoints(), from 0 (work key for resume)
 	Repeat        int       `json:"repeat"`          // pass number, from 0
 	Step          int       `json:"step"`            // index in the ordered sequence, from 0
 	SetVolts      float64   `json:"set_volts"`       // stimulus as programmed
@@ -29,3 +30,9 @@ const (
 	FlagSettleTimeout = "settle-timeout"
 	FlagOverload      = "overload"
 )
+
+// KeyOf is the work key of the point a reading records: the journal's
+// reading records are what marks points done for resume.
+func KeyOf(r Reading) WorkKey {
+	return WorkKey{TempIndex: r.TempIndex, Unit: r.Unit, Test: r.Test, Repeat: r.Repeat, Part: r.Part, Step: r.Step}
+}

@@ -1,0 +1,293 @@
+package main
+
+import (
+	"fmt"
+	"math"
+	"time"
+
+	"nullbench/fit"
+	"nullbench/procedure"
+	"nullbench/report"
+)
+
+// campaignRecord is one measured plan: what the report needs beside the
+// analysis results.
+type campaignRecord struct {
+	Plan       *procedure.Plan
+	Readings   []procedure.Reading
+	Results    *procedure.Results
+	Identities []procedure.JournalIdentity
+	Started    time.Time
+	Finished   time.Time
+}
+
+const safetyNote = "Plans were checked before any instrument contact: supply span against the part's absolute maximum, " +
+	"common mode inside the input range with margin, current limits set, stimuli within the fixture's rating, no terminal above 60 V DC. " +
+	"Power-up: limits and voltages set with outputs off, supplies ramped on, then the input drive; power-down in reverse. " +
+	"See SAFETY.md; local codes and licensed practice take precedence."
+
+// toReport maps one or more measured plans into the report's flat model.
+// The first record names the campaign.
+func toReport(recs ...campaignRecord) *report.Campaign {
+	c := &report.Campaign{Generator: "nullbench " + version, SafetyNote: safetyNote}
+	for i, r := range recs {
+		p := r.Plan
+		if i == 0 {
+			c.Name, c.Operator, c.Lot, c.Notes = p.Campaign.Name, p.Campaign.Operator, p.Campaign.Lot, p.Campaign.Notes
+			c.Part = p.Part.Number
+			c.PlanFile, c.PlanHash = p.Source, "sha256:"+p.Hash
+			c.Fixture = fixtureInfo(p)
+			c.DecisionRule = ruleWords(r.Results)
+			c.Started, c.Finished = r.Started, r.Finished
+		} else {
+			c.Part += ", " + p.Part.Number
+			c.PlanFile += ", " + p.Source
+			c.PlanHash += ", sha256:" + p.Hash
+			if r.Finished.After(c.Finished) {
+				c.Finished = r.Finished
+			}
+			if c.Started.IsZero() || (!r.Started.IsZero() && r.Started.Before(c.Started)) {
+				c.Started = r.Started
+			}
+			if p.Fixture.Kind == procedure.FixtureBoard {
+				// The board's own gains and tolerances go in the Board sheet;
+				// keep its design figures for the summary too.
+				c.Fixture.BoardGain = p.Fixture.BoardGain
+				c.Fixture.ResistorTolerance = p.Fixture.ResistorTolerance
+				c.Fixture.OpAmpCMRRdB = p.Fixture.OpAmpCMRRdB
+			}
+		}
+		for _, id := range r.Identities {
+			c.Instruments = appendInstrument(c.Instruments, id)
+		}
+		for _, u := range p.Units {
+			c.Units = append(c.Units, report.UnitInfo{ID: u.ID, Channel: u.Channel, Notes: u.Notes})
+		}
+		addReadings(c, p, r.Readings)
+		if r.Results != nil {
+			addResults(c, r.Results)
+		}
+	}
+	return c
+}
+
+func appendInstrument(list []report.InstrumentInfo, id procedure.JournalIdentity) []report.InstrumentInfo {
+	for _, in := range list {
+		if in.Name == id.Instrument && in.Identity == id.IDN {
+			return list
+		}
+	}
+	return append(list, report.InstrumentInfo{Name: id.Instrument, Roles: id.Roles, Address: id.Address, Identity: id.IDN})
+}
+
+func fixtureInfo(p *procedure.Plan) report.FixtureInfo {
+	f := p.Fixture
+	return report.FixtureInfo{
+		Kind: f.Kind, CommonMode: f.CommonMode, Output: f.Output,
+		NoiseGain: f.NoiseGain, NoiseGainTolerance: f.NoiseGainTolerance, MaxStimulusVolts: f.MaxStimulusVolts,
+		BoardGain: f.BoardGain, ResistorTolerance: f.ResistorTolerance, OpAmpCMRRdB: f.OpAmpCMRRdB,
+	}
+}
+
+func ruleWords(res *procedure.Results) string {
+	if res == nil {
+		return ""
+	}
+	return fmt.Sprintf("%s; expanded uncertainties at %.0f %% coverage (GUM, k from Student's t at the Welch–Satterthwaite degrees of freedom)",
+		res.DecisionRule, 100*res.CoverageProbability)
+}
+
+// setPoint is the plan's nominal temperature of a reading: the report joins
+// readings, fits and results on it.
+func setPoint(p *procedure.Plan, idx int) float64 {
+	pts := p.TemperaturePoints()
+	if idx >= 0 && idx < len(pts) {
+		return pts[idx]
+	}
+	return p.Temperature.AmbientCelsius
+}
+
+func addReadings(c *report.Campaign, p *procedure.Plan, rs []procedure.Reading) {
+	for _, r := range rs {
+		measured := math.NaN()
+		if p.Temperature.Mode != procedure.TempNone && p.Temperature.Mode != "" {
+			measured = r.TemperatureC
+		}
+		c.Readings = append(c.Readings, report.Reading{
+			Time: r.Time, BenchSeconds: r.BenchSeconds, Unit: r.Unit, Test: r.Test, Sweep: r.Part,
+			TemperatureC: setPoint(p, r.TempIndex), MeasuredC: measured, Repeat: r.Repeat, Step: r.Step,
+			SetVolts: r.SetVolts, ReadVolts: r.ReadVolts, MeterVolts: r.MeterVolts, MeterSDVolts: r.MeterSDVolts,
+			N: r.N, SettleSeconds: r.SettleSeconds, Flags: r.Flags,
+		})
+	}
+}
+
+// condTemp is the nominal temperature of an analysis condition.
+func condTemp(res *procedure.Results, cond int) float64 {
+	if cond >= 0 && cond < len(res.Conditions) {
+		return res.Conditions[cond].SetPointC
+	}
+	return math.NaN()
+}
+
+func addResults(c *report.Campaign, res *procedure.Results) {
+	for _, r := range res.Ratios {
+		t := condTemp(res, r.Condition)
+		rj := r.Rejection
+		limit := math.NaN()
+		verdict := report.VerdictNotJudged
+		rule := ""
+		if r.Judged {
+			limit = r.Decision.LimitDB
+			verdict = string(r.Decision.State)
+			rule = string(r.Decision.Rule)
+		}
+		low, high := math.NaN(), math.NaN()
+		if rj.Resolved && rj.Asymmetric {
+			low, high = rj.RatioDB-rj.LowerDB, rj.UpperDB-rj.RatioDB
+		}
+		var flags []string
+		if r.NonlinearityChecked && r.Nonlinearity.QuadSignificant {
+			flags = append(flags, "curvature")
+		}
+		if r.NonlinearityChecked && r.Nonlinearity.SpanDependent {
+			flags = append(flags, "span-dependent")
+		}
+		if r.FlaggedPoints > 0 {
+			flags = append(flags, fmt.Sprintf("%d flagged points", r.FlaggedPoints))
+		}
+		if r.AOLCorrected {
+			flags = append(flags, "A_OL corrected")
+		}
+		c.Results = append(c.Results, report.Result{
+			Unit: r.Unit, Test: r.Name, TemperatureC: t,
+			CoefficientUVPerV: rj.CoefficientUVPerV, CoefficientUUVPerV: rj.StdUncUVPerV,
+			RatioDB: rj.RatioDB, ExpandedUDB: rj.ExpandedUDB, ExpandedUDBLow: low, ExpandedUDBHigh: high,
+			CoverageK: rj.CoverageK, DOFEffective: float64(rj.EffectiveDOF),
+			Resolved: rj.Resolved, LowerBoundDB: rj.LowerBoundDB,
+			LimitDB: limit, Verdict: verdict, Rule: rule, Flags: flags,
+		})
+		for _, b := range rj.Budget.Rows {
+			c.Budgets = append(c.Budgets, budgetRow(r.Unit, r.Name, t, b))
+		}
+		if r.Name == procedure.ResultCMRRUncorrected || r.Name == procedure.PsrrWorst || len(r.DerivedFrom) > 0 {
+			continue // derived results share the fit of the test they came from
+		}
+		c.Fits = append(c.Fits, fitRow(r.Unit, r.Name, "", t, r.Line, r.NoiseGain, r.Nonlinearity, r.NonlinearityChecked))
+	}
+	for _, b := range res.Boards {
+		t := condTemp(res, b.Condition)
+		if b.HasDiffGain {
+			c.Fits = append(c.Fits, fitRow(b.Unit, procedure.TestBoardCMRR, procedure.PartDiff, t, b.DiffLine, 1, fit.Nonlinearity{}, false))
+		}
+		if b.HasCMGain {
+			c.Fits = append(c.Fits, fitRow(b.Unit, procedure.TestBoardCMRR, procedure.PartCM, t, b.CMLine, 1, fit.Nonlinearity{}, false))
+		}
+		row := report.BoardRow{
+			Unit: b.Unit, TemperatureC: t,
+			DiffGain: b.DiffGain.Value, DiffGainU: b.DiffGain.StdUnc,
+			CommonModeGain: b.CMGain.Value, CommonModeGainU: b.CMGain.StdUnc,
+			CMRRdB: b.MeasuredDB, ExpandedUDB: b.ExpandedUDB,
+			ResistorLimitDB: nanUnless(b.HasResistorLimit, b.ResistorLimitDB),
+			CombinedLimitDB: nanUnless(b.HasCombinedLimit, b.CombinedLimitDB),
+		}
+		row.BelowWorstCase = b.HasCombinedLimit && b.HasCMRR && !b.MeasuredIsLowerBound && b.MeasuredDB < b.CombinedLimitDB
+		c.Boards = append(c.Boards, row)
+	}
+	for _, cl := range res.Closures {
+		if !cl.Formed {
+			continue
+		}
+		row := report.ClosureRow{
+			Unit: cl.Unit, TemperatureC: condTemp(res, cl.Condition),
+			ShiftUVPerV: cl.Closure.ShiftUVPerV, SumUVPerV: cl.Closure.SumUVPerV,
+			ClosureUVPerV: cl.Closure.ClosureUVPerV, ClosureU: cl.Closure.StdUncUVPerV, Mismatch: cl.Closure.Mismatch,
+			CMRRUncorrectedDB: math.NaN(), CMRRCorrectedDB: math.NaN(),
+		}
+		for _, r := range res.Ratios {
+			if r.Unit != cl.Unit || r.Condition != cl.Condition || !r.Rejection.Resolved {
+				continue
+			}
+			switch {
+			case r.Name == procedure.ResultCMRRUncorrected:
+				row.CMRRUncorrectedDB = r.Rejection.RatioDB
+			case r.Name == procedure.TestCMRR && r.AOLCorrected:
+				row.CMRRCorrectedDB = r.Rejection.RatioDB
+			case r.Name == procedure.TestCMRR && math.IsNaN(row.CMRRUncorrectedDB):
+				row.CMRRUncorrectedDB = r.Rejection.RatioDB
+			}
+		}
+		c.Closures = append(c.Closures, row)
+	}
+	for _, l := range res.Lot {
+		s := l.Stats
+		c.LotStats = append(c.LotStats, report.LotRow{
+			Test: l.Name, TemperatureC: condTemp(res, l.Condition), N: s.N, Unresolved: l.LowerBounds,
+			Mean: s.Mean, SD: s.SD, Min: s.Min, Median: s.Median, Max: s.Max,
+			LimitDB:          nanUnless(l.HasLimit, l.LimitDB),
+			Cpl:              nanUnless(l.HasLimit && s.CplDefined, s.Cpl),
+			ToleranceBoundDB: nanUnless(s.CplDefined, s.LowerToleranceBound),
+			Coverage:         s.Coverage, Confidence: s.Confidence,
+			Yield:    nanUnless(l.HasLimit, s.Yield),
+			Outliers: l.OutlierUnits,
+		})
+	}
+	rep := map[string]float64{}
+	for _, r := range res.Repeatability {
+		if r.HasRatioDB {
+			rep[r.Name] = r.RatioDB.SD
+		}
+	}
+	for _, tr := range res.Temperature {
+		repeat := math.NaN()
+		if v, ok := rep[tr.Name]; ok {
+			repeat = v
+		}
+		c.Temperature = append(c.Temperature, report.TempRow{
+			Unit: report.LotUnit, Test: tr.Name, SlopeDBPerC: tr.Fit.Common.SlopeDBPerC, SlopeU: tr.Fit.Common.SlopeStdErrDBPerC, RepeatabilityDB: repeat,
+		})
+		for _, u := range tr.Fit.PerUnit {
+			if !u.Fitted {
+				continue
+			}
+			c.Temperature = append(c.Temperature, report.TempRow{Unit: u.Unit, Test: tr.Name, SlopeDBPerC: u.SlopeDBPerC, SlopeU: u.SlopeStdErrDBPerC, RepeatabilityDB: math.NaN()})
+		}
+	}
+}
+
+func nanUnless(ok bool, v float64) float64 {
+	if ok {
+		return v
+	}
+	return math.NaN()
+}
+
+func budgetRow(unit, test string, t float64, b fit.BudgetRow) report.BudgetRow {
+	return report.BudgetRow{
+		Unit: unit, Test: test, TemperatureC: t, Component: b.Name, Kind: b.Kind, Distribution: b.Distribution,
+		Value: b.Value, ValueUnit: b.Unit, StdUncertainty: b.StdUncertainty, Sensitivity: b.Sensitivity,
+		Contribution: b.Contribution, DOF: float64(b.DOF),
+	}
+}
+
+func fitRow(unit, test, sweep string, t float64, l fit.LineFit, gain float64, nl fit.Nonlinearity, checked bool) report.FitRow {
+	row := report.FitRow{
+		Unit: unit, Test: test, Sweep: sweep, TemperatureC: t, N: l.N,
+		Intercept: l.Intercept.Value, SlopeVPerV: l.Slope.Value, SlopeU: l.Slope.StdErr,
+		ResidualSDVolts: l.ResidualSD, DOF: l.DOF,
+		MaxDeviationUV: math.NaN(),
+	}
+	if l.HasDrift {
+		row.DriftVPerS, row.DriftU = l.Drift.Value, l.Drift.StdErr
+	}
+	if l.HasQuad {
+		row.Quadratic, row.QuadraticU = l.Quad.Value, l.Quad.StdErr
+	}
+	if checked {
+		// Report the deviation at the meter, as the column says.
+		row.MaxDeviationUV = nl.MaxDeviationUV * gain
+		row.QuadraticSignificant = nl.QuadSignificant
+		row.SpanMismatch = nl.SpanDependent
+	}
+	return row
+}

@@ -1,0 +1,58 @@
+package main
+
+import (
+	"errors"
+
+	"github.com/spf13/cobra"
+
+	"nullbench/procedure"
+)
+
+type checkOptions struct {
+	Plan           string
+	AllowHazardous bool
+}
+
+func newCheckCmd(std streams) *cobra.Command {
+	var o checkOptions
+	cmd := &cobra.Command{
+		Use:   "check PLAN",
+		Short: "Validate a plan without touching an instrument and print its step table",
+		Long: `check reads and validates a plan, then prints for every test and level the
+stimulus, the resulting rails, the common-mode voltage and its margin to each
+rail, the highest voltage any terminal sees, and the estimated duration, then
+the power sequence and the safety verdict. It exits non-zero when the plan
+is invalid (2) or would be refused as unsafe (4).`,
+		Args: cobra.ExactArgs(1),
+		RunE: func(cmd *cobra.Command, args []string) error {
+			o.Plan = args[0]
+			return runCheck(std, o)
+		},
+	}
+	cmd.Flags().BoolVar(&o.AllowHazardous, "allow-hazardous", false, "judge the plan as if a hazardous-voltage run had been allowed and confirmed")
+	return cmd
+}
+
+func runCheck(std streams, o checkOptions) error {
+	p, err := procedure.LoadPlan(o.Plan)
+	if err != nil {
+		return withCode(exitUsage, err)
+	}
+	if err := procedure.WriteCheck(std.Out, p); err != nil {
+		return err
+	}
+	consent := procedure.HazardConsent{AllowOption: o.AllowHazardous, Interactive: o.AllowHazardous, Confirmed: o.AllowHazardous}
+	return safetyExit(procedure.CheckSafetyWith(p, consent))
+}
+
+// safetyExit maps a safety check's error to the exit code scripts expect.
+func safetyExit(err error) error {
+	if err == nil {
+		return nil
+	}
+	var se *procedure.SafetyError
+	if errors.As(err, &se) {
+		return withCode(exitSafety, err)
+	}
+	return withCode(exitUsage, err)
+}

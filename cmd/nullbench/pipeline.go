@@ -1,0 +1,290 @@
+package main
+
+import (
+	"bufio"
+	"context"
+	"errors"
+	"fmt"
+	"io"
+	"math"
+	"os"
+	"path/filepath"
+	"time"
+
+	"nullbench/instrument"
+	"nullbench/procedure"
+	"nullbench/report"
+)
+
+// outputOptions are the flags shared by run, resume, report and demo.
+type outputOptions struct {
+	Out      string // folder for the workbook, exports and journal
+	Plots    string // folder for PNG plots ("" = none)
+	JSON     bool   // one JSON object per result on standard output
+	NoCharts bool
+}
+
+// analysisInputs takes the instruments' accuracy from the profiles the plan
+// names, without contacting them, so that "report" gives the same budget as
+// the run that took the readings.
+func analysisInputs(p *procedure.Plan) (procedure.AnalysisInputs, error) {
+	in := procedure.AnalysisInputs{StimulusByRole: map[string]procedure.Accuracy{}}
+	for _, rb := range roleBindings(p) {
+		if rb.binding.Instrument == "" {
+			continue
+		}
+		spec, ok := p.Bench.Instruments[rb.binding.Instrument]
+		if !ok {
+			continue // validation reports it
+		}
+		prof, err := instrument.ResolveProfile(spec.Profile)
+		if err != nil {
+			return in, fmt.Errorf("plan %s, [bench.instrument.%s] profile: %w", p.Source, rb.binding.Instrument, err)
+		}
+		switch rb.role {
+		case "meter":
+			if prof.Meter != nil {
+				a := prof.Meter.Accuracy
+				in.Meter = procedure.Accuracy{GainPPM: a.GainPPM, OffsetVolts: a.OffsetPPMOfRange * 1e-6 * 10}
+			}
+		case "supply_pos", "supply_neg":
+			if prof.Supply != nil {
+				a := prof.Supply.Accuracy
+				in.StimulusByRole[rb.role] = procedure.Accuracy{GainPPM: a.ReadbackGainPPM, OffsetVolts: a.ReadbackOffsetVolts}
+			}
+		case "source_cm", "source_diff", "source_ref":
+			if prof.Source != nil {
+				a := prof.Source.Accuracy
+				in.StimulusByRole[rb.role] = procedure.Accuracy{GainPPM: a.ReadbackGainPPM, OffsetVolts: a.ReadbackOffsetVolts}
+			}
+		}
+	}
+	return in, nil
+}
+
+// analyse fits a plan's readings.
+func analyse(p *procedure.Plan, readings []procedure.Reading) (*procedure.Results, error) {
+	in, err := analysisInputs(p)
+	if err != nil {
+		return nil, withCode(exitUsage, err)
+	}
+	res, err := procedure.Analyze(p, readings, in)
+	if err != nil {
+		return nil, withCode(exitFailure, fmt.Errorf("analyse %s: %w", p.Source, err))
+	}
+	return res, nil
+}
+
+// writeOutputs writes the workbook, the CSV and JSON-lines exports and,
+// when asked, PNG plots, and returns the workbook's path.
+func writeOutputs(std streams, o outputOptions, c *report.Campaign) (string, error) {
+	if err := os.MkdirAll(o.Out, 0o755); err != nil {
+		return "", withCode(exitFailure, err)
+	}
+	book := filepath.Join(o.Out, "campaign.xlsx")
+	if err := report.WriteWorkbook(book, c, report.WorkbookOptions{NoCharts: o.NoCharts}); err != nil {
+		return "", withCode(exitFailure, fmt.Errorf("write the workbook %s: %w", book, err))
+	}
+	files := []struct {
+		name  string
+		write func(io.Writer) error
+	}{
+		{"results.csv", func(w io.Writer) error { return report.WriteResultsCSV(w, c.Results, report.CSVOptions{}) }},
+		{"readings.csv", func(w io.Writer) error { return report.WriteReadingsCSV(w, c.Readings, report.CSVOptions{}) }},
+		{"results.jsonl", func(w io.Writer) error { return report.WriteResultsJSONL(w, c.Results) }},
+		{"readings.jsonl", func(w io.Writer) error { return report.WriteReadingsJSONL(w, c.Readings) }},
+	}
+	for _, f := range files {
+		if err := writeFile(filepath.Join(o.Out, f.name), f.write); err != nil {
+			return "", withCode(exitFailure, err)
+		}
+	}
+	if o.Plots != "" {
+		if _, err := report.WritePlots(o.Plots, c); err != nil {
+			return "", withCode(exitFailure, fmt.Errorf("write plots into %s: %w", o.Plots, err))
+		}
+	}
+	if o.JSON {
+		if err := report.WriteResultsJSONL(std.Out, c.Results); err != nil {
+			return "", err
+		}
+	}
+	return book, nil
+}
+
+func writeFile(path string, write func(io.Writer) error) error {
+	f, err := os.Create(path)
+	if err != nil {
+		return err
+	}
+	bw := bufio.NewWriter(f)
+	if err := write(bw); err != nil {
+		f.Close()
+		return fmt.Errorf("write %s: %w", path, err)
+	}
+	if err := bw.Flush(); err != nil {
+		f.Close()
+		return err
+	}
+	return f.Close()
+}
+
+// consent asks for permission to run a hazardous plan. It returns an error
+// (exit code: safety) when the plan is hazardous and the operator has not
+// allowed it; it never asks without a terminal.
+func consent(std streams, p *procedure.Plan, allow bool) (procedure.HazardConsent, error) {
+	h := procedure.AssessHazard(p)
+	c := procedure.HazardConsent{AllowOption: allow, Interactive: std.IsTerm}
+	if !h.Hazardous {
+		return c, nil
+	}
+	if !allow {
+		return c, withCode(exitSafety, fmt.Errorf("plan %s takes a terminal to %.1f V (%s), above the %.0f V DC limit for extra-low voltage; "+
+			"see SAFETY.md, then run with --allow-hazardous from an interactive terminal", p.Source, h.MaxAcrossVolts, h.Where, procedure.HazardousVolts))
+	}
+	if !std.IsTerm {
+		return c, withCode(exitSafety, fmt.Errorf("plan %s is hazardous (%.1f V); it needs an interactive confirmation and there is no terminal", p.Source, h.MaxAcrossVolts))
+	}
+	fmt.Fprint(std.Err, procedure.HazardPrompt(h))
+	line, _ := bufio.NewReader(std.In).ReadString('\n')
+	c.Confirmed = procedure.HazardAnswerOK(line)
+	if !c.Confirmed {
+		return c, withCode(exitSafety, errors.New("hazardous plan not confirmed; nothing was switched on"))
+	}
+	return c, nil
+}
+
+// measure runs a plan (fresh, or continuing a journal) and returns what it
+// measured. It refuses unsafe plans before opening any connection. On a
+// failure mid-run the error says which step failed; the readings taken so
+// far are returned with it and are in the journal.
+type measureOptions struct {
+	Plan           *procedure.Plan
+	JournalPath    string
+	Resume         bool
+	AllowHazardous bool
+	Clock          procedure.Clock // nil: scaled wall clock from the plan
+	Log            io.Writer       // nil: none
+}
+
+func measure(ctx context.Context, std streams, o measureOptions) (campaignRecord, *procedure.Outcome, error) {
+	p := o.Plan
+	rec := campaignRecord{Plan: p, Started: time.Now().UTC()}
+	hc, err := consent(std, p, o.AllowHazardous)
+	if err != nil {
+		return rec, nil, err
+	}
+	if err := procedure.CheckSafetyWith(p, hc); err != nil {
+		return rec, nil, safetyExit(err)
+	}
+	if why := procedure.NeedsOperator(p); why != "" && !std.IsTerm {
+		return rec, nil, withCode(exitUsage, fmt.Errorf("plan %s needs an operator at a terminal (%s), and standard input is not a terminal", p.Source, why))
+	}
+	clock := o.Clock
+	if clock == nil {
+		clock = procedure.NewScaledClock(p.Bench.TimeScale)
+	}
+
+	header := procedure.JournalHeader{PlanHash: p.Hash, PlanPath: p.Source, ToolVersion: version, Started: rec.Started, TimeScale: p.Bench.TimeScale}
+	var (
+		jw     *procedure.JournalWriter
+		resume *procedure.JournalContents
+	)
+	if o.Resume {
+		jw, resume, err = procedure.ResumeJournal(o.JournalPath, p, header)
+		if resume != nil && resume.Truncated {
+			fmt.Fprintf(std.Err, "journal %s: line %d was cut short by the interruption and was dropped; that point is measured again\n", o.JournalPath, resume.TruncatedLine)
+		}
+		if resume != nil && !resume.Header.Started.IsZero() {
+			rec.Started = resume.Header.Started
+		}
+	} else {
+		jw, err = procedure.OpenJournal(o.JournalPath, header)
+	}
+	if err != nil {
+		return rec, nil, withCode(exitUsage, err)
+	}
+	defer jw.Close()
+
+	rig, closeBench, err := openBench(ctx, p, clock.Sleep)
+	if err != nil {
+		return rec, nil, withCode(exitInstrument, err)
+	}
+	defer closeBench()
+	rec.Identities = rig.Identities
+
+	var op procedure.Operator
+	if std.IsTerm {
+		op = newTermOperator(std.In, std.Err)
+	}
+	out, runErr := procedure.Run(ctx, p, rig, procedure.RunOptions{
+		Journal: jw, Resume: resume, Clock: clock, Operator: op,
+		Progress: newProgress(std.Err, std.IsTerm), Log: o.Log, Consent: hc,
+	})
+	rec.Finished = time.Now().UTC()
+	if out != nil {
+		rec.Readings = out.Readings
+	}
+	if runErr != nil {
+		var se *procedure.SafetyError
+		switch {
+		case errors.As(runErr, &se):
+			runErr = withCode(exitSafety, runErr)
+		case ctx.Err() != nil:
+			runErr = withCode(exitFailure, fmt.Errorf("interrupted; the bench was brought to its safe state and the journal %s keeps every reading: %w", o.JournalPath, runErr))
+		default:
+			runErr = withCode(exitInstrument, fmt.Errorf("%w\nthe bench was brought to its safe state; the journal %s keeps every reading (continue with: nullbench resume %s)", runErr, o.JournalPath, o.JournalPath))
+		}
+	}
+	return rec, out, runErr
+}
+
+// anyFailed says whether any judged result failed its limit.
+func anyFailed(c *report.Campaign) bool {
+	for _, r := range c.Results {
+		if k := report.VerdictClass(r.Verdict); k == report.KindFail || k == report.KindConditionalFail {
+			return true
+		}
+	}
+	return false
+}
+
+// printSummary writes the short summary a person reads after a campaign.
+func printSummary(w io.Writer, c *report.Campaign, book string) {
+	counts := map[report.VerdictKind]int{}
+	for _, r := range c.Results {
+		counts[report.VerdictClass(r.Verdict)]++
+	}
+	fmt.Fprintf(w, "\n%s — %s, lot %s\n", c.Name, c.Part, c.Lot)
+	fmt.Fprintf(w, "results: %d pass, %d conditional pass, %d conditional fail, %d fail, %d not judged\n",
+		counts[report.KindPass], counts[report.KindConditionalPass], counts[report.KindConditionalFail], counts[report.KindFail], counts[report.KindNotJudged])
+	worst := map[string]report.Result{}
+	var order []string
+	for _, r := range c.Results {
+		if r.Test == procedure.ResultCMRRUncorrected {
+			continue
+		}
+		cur, ok := worst[r.Test]
+		if !ok {
+			order = append(order, r.Test)
+		}
+		if !ok || r.ReportedDB() < cur.ReportedDB() {
+			worst[r.Test] = r
+		}
+	}
+	for _, t := range order {
+		r := worst[t]
+		mark := ""
+		if !r.Resolved {
+			mark = "≥ "
+		}
+		limit := ""
+		if !math.IsNaN(r.LimitDB) {
+			limit = fmt.Sprintf(" (limit %.1f dB: %s)", r.LimitDB, r.Verdict)
+		}
+		fmt.Fprintf(w, "  lowest %-16s %s%7.2f dB ± %.2f  unit %s at %.0f °C%s\n", t, mark, r.ReportedDB(), r.ExpandedUDB, r.Unit, r.TemperatureC, limit)
+	}
+	if book != "" {
+		fmt.Fprintf(w, "workbook: %s\n", book)
+	}
+}

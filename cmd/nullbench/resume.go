@@ -1,0 +1,70 @@
+package main
+
+import (
+	"context"
+	"path/filepath"
+
+	"github.com/spf13/cobra"
+
+	"nullbench/procedure"
+)
+
+type resumeOptions struct {
+	Journal        string
+	Plan           string
+	AllowHazardous bool
+	outputOptions
+}
+
+func newResumeCmd(std streams) *cobra.Command {
+	var o resumeOptions
+	cmd := &cobra.Command{
+		Use:   "resume JOURNAL",
+		Short: "Continue a stopped run from its journal without repeating finished points",
+		Long: `resume reads a journal left by an interrupted run, checks that it belongs
+to the plan (the plan named in the journal, or --plan), and continues the
+campaign: points already in the journal are not measured again. A torn last
+line (the run was killed while writing it) is reported and that point is
+measured again. The workbook is written beside the journal.`,
+		Args: cobra.ExactArgs(1),
+		RunE: func(cmd *cobra.Command, args []string) error {
+			o.Journal = args[0]
+			return runResume(cmd.Context(), std, o)
+		},
+	}
+	cmd.Flags().StringVar(&o.Plan, "plan", "", "the plan file (default: the path recorded in the journal)")
+	cmd.Flags().BoolVar(&o.AllowHazardous, "allow-hazardous", false, "allow a plan above 60 V DC (asks for confirmation at a terminal; see SAFETY.md)")
+	addOutputFlags(cmd, &o.outputOptions, "folder for the workbook and exports (default: the journal's folder)")
+	return cmd
+}
+
+// planForJournal loads the plan a journal belongs to and checks they match.
+func planForJournal(journal, plan string) (*procedure.Plan, *procedure.JournalContents, error) {
+	jc, err := procedure.ReadJournalFile(journal)
+	if err != nil {
+		return nil, nil, withCode(exitUsage, err)
+	}
+	if plan == "" {
+		plan = jc.Header.PlanPath
+	}
+	p, err := procedure.LoadPlan(plan)
+	if err != nil {
+		return nil, nil, withCode(exitUsage, err)
+	}
+	if err := procedure.CheckPlanMatch(p, jc); err != nil {
+		return nil, nil, withCode(exitUsage, err)
+	}
+	return p, jc, nil
+}
+
+func runResume(ctx context.Context, std streams, o resumeOptions) error {
+	p, _, err := planForJournal(o.Journal, o.Plan)
+	if err != nil {
+		return err
+	}
+	if o.Out == "" {
+		o.Out = filepath.Dir(o.Journal)
+	}
+	rec, _, runErr := measure(ctx, std, measureOptions{Plan: p, JournalPath: o.Journal, Resume: true, AllowHazardous: o.AllowHazardous})
+	return finish(std, o.outputOptions, runErr, rec)
+}

@@ -1,0 +1,167 @@
+package procedure
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"sort"
+	"time"
+
+	"nullbench/instrument"
+)
+
+// RigOptions adjust OpenRig.
+type RigOptions struct {
+	// Sleep is handed to the drivers for their settle waits after set
+	// commands: pass the run's Clock.Sleep so that a time-scaled bench
+	// settles in scaled time. nil sleeps in real time.
+	Sleep func(ctx context.Context, d time.Duration) error
+	// Open adjusts the connections (transport settings, identity check).
+	Open instrument.OpenOptions
+	// Timeout, when positive, replaces every profile's per-exchange
+	// time-out (a slow instrument, or a test that wants faults fast).
+	Timeout time.Duration
+}
+
+// OpenRig is a helper for cmd: it opens every instrument of the plan's
+// [bench] that some role uses (instrument.Open: dial, identify, check the
+// identity against the profile), binds each role to its profile-driven
+// driver on the named channel, and fills the identities and the accuracy
+// figures from the profiles. The returned close function closes every
+// connection; the caller owns it (the procedure never closes anything).
+// On an error every connection opened so far is closed again.
+func OpenRig(ctx context.Context, p *Plan, opt RigOptions) (*Rig, func() error, error) {
+	b := &p.Bench
+	roles := map[string][]string{} // instrument -> roles
+	for _, role := range RoleNames() {
+		if rb := b.Roles.Get(role); rb.Bound() {
+			roles[rb.Instrument] = append(roles[rb.Instrument], role)
+		}
+	}
+	names := make([]string, 0, len(roles))
+	for n := range roles {
+		names = append(names, n)
+	}
+	sort.Strings(names)
+
+	opened := map[string]*instrument.Instrument{}
+	closeAll := func() error {
+		var errs []error
+		for _, n := range names {
+			if in := opened[n]; in != nil {
+				if err := in.Close(); err != nil {
+					errs = append(errs, fmt.Errorf("instrument %s: close: %w", n, err))
+				}
+			}
+		}
+		return errors.Join(errs...)
+	}
+	fail := func(err error) (*Rig, func() error, error) {
+		_ = closeAll()
+		return nil, nil, err
+	}
+	rig := &Rig{StimulusByRole: map[string]Accuracy{}}
+	dopts := instrument.DriverOptions{Sleep: opt.Sleep}
+	for _, n := range names {
+		def, ok := b.Instruments[n]
+		if !ok {
+			return fail(fmt.Errorf("bench: role(s) %v name instrument %q, which [bench.instrument] does not define", roles[n], n))
+		}
+		addr, err := instrument.ParseAddress(def.Address)
+		if err != nil {
+			return fail(fmt.Errorf("bench.instrument.%s.address: %w", n, err))
+		}
+		prof, err := instrument.ResolveProfile(def.Profile)
+		if err != nil {
+			return fail(fmt.Errorf("bench.instrument.%s.profile: %w", n, err))
+		}
+		if opt.Timeout > 0 {
+			cp := *prof
+			cp.Timeout = opt.Timeout
+			prof = &cp
+		}
+		in, err := instrument.OpenWith(ctx, n, addr, prof, opt.Open)
+		if err != nil {
+			return fail(err)
+		}
+		opened[n] = in
+		rig.Identities = append(rig.Identities, JournalIdentity{Instrument: n, Roles: roles[n], Address: def.Address, IDN: in.Identity.Raw})
+		for _, role := range roles[n] {
+			if err := rig.bind(role, b.Roles.Get(role), in, dopts); err != nil {
+				return fail(fmt.Errorf("bench.roles.%s: %w", role, err))
+			}
+		}
+	}
+	return rig, closeAll, nil
+}
+
+// bind creates the driver of one role on an opened instrument.
+func (r *Rig) bind(role string, rb RoleBinding, in *instrument.Instrument, o instrument.DriverOptions) error {
+	s, prof := in.Session, in.Profile
+	readback := func(a instrument.SupplyAccuracy) Accuracy {
+		return Accuracy{GainPPM: a.ReadbackGainPPM, OffsetVolts: a.ReadbackOffsetVolts}
+	}
+	switch role {
+	case RoleMeter:
+		m, err := instrument.NewMeter(s, prof, o)
+		if err != nil {
+			return err
+		}
+		r.Meter = m
+		// The offset term is specified in ppm of range; taken on the 10 V
+		// range, the default of the plans (DefaultRangeVolts).
+		a := m.Accuracy()
+		r.MeterAccuracy = Accuracy{GainPPM: a.GainPPM, OffsetVolts: a.OffsetPPMOfRange * 1e-6 * DefaultRangeVolts}
+	case RoleSupplyPos, RoleSupplyNeg:
+		d, err := instrument.NewSupply(s, prof, rb.Channel, rb.Negative, o)
+		if err != nil {
+			return err
+		}
+		if role == RoleSupplyPos {
+			r.SupplyPos = d
+		} else {
+			r.SupplyNeg = d
+		}
+		r.StimulusByRole[role] = readback(d.Accuracy())
+	case RoleSourceCM, RoleSourceDiff, RoleSourceRef:
+		d, err := instrument.NewSource(s, prof, rb.Channel, o)
+		if err != nil {
+			return err
+		}
+		switch role {
+		case RoleSourceCM:
+			r.SourceCM = d
+		case RoleSourceDiff:
+			r.SourceDiff = d
+		default:
+			r.SourceRef = d
+		}
+		r.StimulusByRole[role] = readback(d.Accuracy())
+	case RoleSwitch:
+		d, err := instrument.NewSwitch(s, prof, o)
+		if err != nil {
+			return err
+		}
+		r.Switch = d
+	case RoleChamber:
+		d, err := instrument.NewChamber(s, prof, o)
+		if err != nil {
+			return err
+		}
+		r.Chamber = d
+	case RoleThermometer:
+		d, err := instrument.NewThermometer(s, prof, o)
+		if err != nil {
+			return err
+		}
+		r.Thermometer = d
+	default:
+		return fmt.Errorf("unknown role %q", role)
+	}
+	// The largest stimulus accuracy figures stand for roles not listed.
+	for _, a := range r.StimulusByRole {
+		r.StimulusAccuracy.GainPPM = max(r.StimulusAccuracy.GainPPM, a.GainPPM)
+		r.StimulusAccuracy.OffsetVolts = max(r.StimulusAccuracy.OffsetVolts, a.OffsetVolts)
+	}
+	return nil
+}

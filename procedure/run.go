@@ -1,0 +1,511 @@
+package procedure
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"io"
+	"math"
+	"strings"
+	"time"
+)
+
+// RunOptions configure Run. Every field may be left zero.
+type RunOptions struct {
+	// Journal receives the identities, every reading (flushed before the
+	// next step), the events and the end record. cmd opens it with
+	// OpenJournal, or ResumeJournal, and closes it after Run. Nil runs
+	// without a journal (dry runs, tests).
+	Journal *JournalWriter
+	// Resume is the contents of the journal being continued (from
+	// ResumeJournal); nil starts fresh. Points it holds are skipped
+	// exactly and their readings are returned in Outcome.Readings.
+	Resume *JournalContents
+	// Clock is the bench time base; nil means NewScaledClock with the
+	// plan's bench.time_scale.
+	Clock Clock
+	// Operator swaps units by hand and types temperatures. A plan that
+	// needs one (NeedsOperator) is refused when it is nil.
+	Operator Operator
+	// Progress receives progress; nil discards it.
+	Progress Progress
+	// Log receives one line per event and point, in words; nil discards.
+	Log io.Writer
+	// Consent is the operator's consent to a hazardous plan
+	// (CheckSafetyWith).
+	Consent HazardConsent
+	// Timing sets the sequencer's own waits; zero fields take defaults.
+	Timing Timing
+}
+
+// Timing holds the waits that are the sequencer's, not the plan's. The
+// bench-time ones run on the Clock; the safe-state ones are wall time,
+// because the safe state must finish even on a stalled clock.
+type Timing struct {
+	// RampDwell is waited after each ramp step of a supply or source
+	// (METHODS §6: "step ≤ 1 V with settling"). Default 50 ms.
+	RampDwell time.Duration
+	// RelaySettle is waited after closing a unit's switch channel: relay
+	// operate and bounce time, typically under 10 ms for reed and signal
+	// relays (common practice, no published source). Default 50 ms.
+	RelaySettle time.Duration
+	// SettleInterval separates the successive readings of the settling
+	// check. Default 1 s.
+	SettleInterval time.Duration
+	// SoakInterval separates the temperature readings while soaking.
+	// Default 10 s, at most a fifth of soak_s (but not under 1 s).
+	SoakInterval time.Duration
+	// ChamberTick is the period of the set-point steps of a chamber ramp:
+	// each step is ramp_max_c_per_min × ChamberTick. Default 30 s.
+	ChamberTick time.Duration
+	// SafeStateTimeout bounds, in wall time, the whole return to the safe
+	// state after a fault; SafeCallTimeout bounds each instrument call in
+	// it. Defaults 2 min and 10 s.
+	SafeStateTimeout, SafeCallTimeout time.Duration
+}
+
+func (t Timing) withDefaults() Timing {
+	def := func(v *time.Duration, d time.Duration) {
+		if *v <= 0 {
+			*v = d
+		}
+	}
+	def(&t.RampDwell, 50*time.Millisecond)
+	def(&t.RelaySettle, 50*time.Millisecond)
+	def(&t.SettleInterval, time.Second)
+	def(&t.SoakInterval, 10*time.Second)
+	def(&t.ChamberTick, 30*time.Second)
+	def(&t.SafeStateTimeout, 2*time.Minute)
+	def(&t.SafeCallTimeout, 10*time.Second)
+	return t
+}
+
+// Outcome is what a run measured, also when it stopped early.
+type Outcome struct {
+	// Readings holds every point of the campaign so far: those recovered
+	// from the journal (in journal order), then those of this run, in the
+	// order measured. KeyOf gives each one's work key.
+	Readings  []Reading
+	Recovered int // readings that came from the journal
+	Measured  int // readings taken by this run
+	Flagged   int // readings of this run carrying a flag
+	Total     int // points the plan asks for
+	Complete  bool
+	// BenchSeconds is the bench time when the run stopped.
+	BenchSeconds float64
+}
+
+// Run executes a plan on the bench: for each temperature (chamber set
+// point and soak, thermometer, or operator), each unit (switch channel or
+// hand swap) and each test, it powers the part up, steps the stimulus
+// through the ordered levels (OrderLevels) for every repeat, lets each point
+// settle, averages the meter and reads back the stimulus, journals the
+// reading, and powers the part down again.
+//
+// Before any instrument contact it re-runs CheckSafetyWith (with
+// opt.Consent), checks that the rig has every role the plan needs and that
+// an Operator is there when the plan needs one, and, when resuming, that
+// the journal belongs to this plan. A refusal returns (nil, err) and
+// touches nothing.
+//
+// On any failure — an instrument error, a lost connection, a time-out, a
+// soak time-out, or ctx cancelled (Ctrl-C) — Run brings the bench to the
+// safe state with a fresh context of its own deadline: every source ramped
+// to 0 V and switched off BEFORE the supplies ramp down and switch off,
+// the chamber set back to ambient, the switch opened; it carries on past
+// individual instrument errors and reports them. The failure and the safe
+// state are journalled, and the error is a *RunError naming the
+// temperature, unit, test, repeat, step and level, and the instrument
+// command that failed. The Outcome returned with it holds every reading
+// taken so far.
+func Run(ctx context.Context, p *Plan, rig *Rig, opt RunOptions) (*Outcome, error) {
+	if p == nil {
+		return nil, errors.New("run: no plan")
+	}
+	if err := CheckSafetyWith(p, opt.Consent); err != nil {
+		return nil, err
+	}
+	if err := rig.check(p); err != nil {
+		return nil, err
+	}
+	if why := NeedsOperator(p); why != "" && opt.Operator == nil {
+		return nil, fmt.Errorf("%s, but there is no operator to ask (run it from an interactive terminal)", why)
+	}
+	if opt.Resume != nil {
+		if err := CheckPlanMatch(p, opt.Resume); err != nil {
+			return nil, err
+		}
+	}
+	r := newRunner(p, rig, opt)
+	return r.run(ctx)
+}
+
+// RunError is a run stopped by a fault or an interruption: where it was,
+// what failed, and whether the bench reached its safe state.
+type RunError struct {
+	Stage        string  // what the runner was doing, e.g. "settle", "power up", "soak"
+	TempIndex    int     // index into Plan.TemperaturePoints; -1 before the first, or when the plan has no temperature points
+	TemperatureC float64 // the temperature point (set point or planned)
+	Unit         string  // "" before the first unit
+	TestIndex    int     // index into Plan.Tests, -1 outside a test
+	Test, Part   string
+	Repeat, Step int
+	LevelVolts   float64
+	AtStep       bool // Repeat, Step and LevelVolts are meaningful
+	// Err is the cause: the instrument's error (naming instrument and
+	// command), a soak time-out, or ctx's error on an interruption.
+	Err error
+	// Interrupted says the run's context was cancelled (Ctrl-C).
+	Interrupted bool
+	// SafeState is nil when the bench reached its safe state, else every
+	// problem met on the way (the bench needs a look by hand).
+	SafeState error
+}
+
+func (e *RunError) Error() string {
+	var b strings.Builder
+	if e.Interrupted {
+		b.WriteString("run interrupted")
+	} else {
+		b.WriteString("run stopped")
+	}
+	if loc := e.where(); loc != "" {
+		b.WriteString(" at ")
+		b.WriteString(loc)
+	}
+	if e.Stage != "" {
+		fmt.Fprintf(&b, " while %s", e.Stage)
+	}
+	fmt.Fprintf(&b, ": %v", e.Err)
+	if e.SafeState == nil {
+		b.WriteString("; the bench is in its safe state (sources at 0 V and off, supplies ramped down and off)")
+	} else {
+		fmt.Fprintf(&b, "; SAFE STATE NOT REACHED, check the bench by hand: %v", e.SafeState)
+	}
+	b.WriteString("; readings taken so far are kept (resume the journal to continue)")
+	return b.String()
+}
+
+func (e *RunError) where() string {
+	var parts []string
+	if e.TempIndex >= 0 {
+		parts = append(parts, fmt.Sprintf("temperature %d (%g °C)", e.TempIndex+1, e.TemperatureC))
+	}
+	if e.Unit != "" {
+		parts = append(parts, "unit "+e.Unit)
+	}
+	if e.TestIndex >= 0 {
+		s := fmt.Sprintf("test[%d] %s", e.TestIndex+1, e.Test)
+		if e.Part != "" {
+			s += "/" + e.Part
+		}
+		parts = append(parts, s)
+	}
+	if e.AtStep {
+		parts = append(parts, fmt.Sprintf("repeat %d, step %d (level %s)", e.Repeat+1, e.Step+1, fmtVolts(e.LevelVolts)))
+	}
+	return strings.Join(parts, ", ")
+}
+
+// Unwrap gives errors.Is/As both the cause and the safe-state problems.
+func (e *RunError) Unwrap() []error {
+	out := []error{e.Err}
+	if e.SafeState != nil {
+		out = append(out, e.SafeState)
+	}
+	return out
+}
+
+// Stages of a run, as RunError.Stage names them.
+const (
+	stagePowerUp     = "powering up"
+	stagePowerDown   = "powering down"
+	stageSelect      = "connecting the unit on the switch"
+	stageSwap        = "waiting for the operator to swap the unit"
+	stageTemperature = "setting the temperature"
+	stageSoak        = "soaking"
+	stageConfigure   = "configuring the meter"
+	stageLevel       = "setting the level"
+	stageSettle      = "waiting for the output to settle"
+	stageReadBack    = "reading back the stimulus"
+	stageMeasure     = "measuring"
+	stageReadTemp    = "reading the temperature"
+	stageJournal     = "writing the journal"
+	stageNominal     = "returning to the nominal rails"
+	stageAmbient     = "returning the chamber to ambient"
+	stageOpenSwitch  = "opening the switch"
+)
+
+// position is where the runner is, for errors and events.
+type position struct {
+	stage     string
+	tempIndex int
+	tempPoint float64
+	unit      string
+	test      int
+	kind      string
+	part      string
+	repeat    int
+	step      int
+	level     float64
+	atStep    bool
+}
+
+// runner carries one run's state.
+type runner struct {
+	p      *Plan
+	rig    *Rig
+	opt    RunOptions
+	timing Timing
+	clk    Clock
+	log    io.Writer
+	prog   Progress
+	jw     *JournalWriter
+	done   WorkSet
+	out    *Outcome
+	temps  []float64
+
+	state    BenchState      // as programmed (the last value each channel accepted)
+	srcSafe  map[string]bool // source role -> known at 0 V or off
+	powered  bool            // a supply output may be on
+	chamber  bool            // the chamber's set point was changed
+	at       position
+	tempC    float64 // temperature recorded with readings when not read per point
+	eta      etaEstimator
+	finished int // points done, recovered included
+}
+
+func newRunner(p *Plan, rig *Rig, opt RunOptions) *runner {
+	r := &runner{p: p, rig: rig, opt: opt, timing: opt.Timing.withDefaults(),
+		clk: opt.Clock, log: opt.Log, prog: opt.Progress, jw: opt.Journal,
+		out: &Outcome{}, temps: p.TemperaturePoints(), srcSafe: map[string]bool{}}
+	if r.clk == nil {
+		r.clk = NewScaledClock(p.Bench.TimeScale)
+	}
+	if r.log == nil {
+		r.log = io.Discard
+	}
+	if r.prog == nil {
+		r.prog = NopProgress{}
+	}
+	for _, role := range sourceRoles(p) {
+		r.srcSafe[role] = true // untouched: its output is as the operator left it; PowerUpOrder switches it off first
+	}
+	if c := opt.Resume; c != nil {
+		r.done = c.Done()
+		r.out.Readings = append(r.out.Readings, c.Readings...)
+		r.out.Recovered = len(c.Readings)
+		// Continue the bench-time axis of the journal: its last bench time
+		// plus the wall time since, in bench time. A drift term fitted
+		// across the break then sees one time axis.
+		var last Reading
+		for _, x := range c.Readings {
+			if x.BenchSeconds >= last.BenchSeconds {
+				last = x
+			}
+		}
+		if len(c.Readings) > 0 {
+			off := time.Duration(last.BenchSeconds * float64(time.Second))
+			if gap := time.Since(last.Time); gap > 0 && !last.Time.IsZero() {
+				off += time.Duration(float64(gap) * timeScale(p))
+			}
+			r.clk = offsetClock{Clock: r.clk, offset: off}
+		}
+	} else {
+		r.done = (&JournalContents{}).Done()
+	}
+	r.at = position{tempIndex: -1, test: -1}
+	return r
+}
+
+func timeScale(p *Plan) float64 {
+	if s := p.Bench.TimeScale; s > 0 && !math.IsInf(s, 0) {
+		return s
+	}
+	return 1
+}
+
+func (r *runner) run(ctx context.Context) (*Outcome, error) {
+	total, done := r.count()
+	r.out.Total = total
+	r.finished = done
+	r.prog.Begin(total, done)
+	defer r.prog.End()
+	if r.opt.Resume != nil {
+		r.logf("resuming: %d of %d points already in the journal", done, total)
+	}
+	err := r.journalIdentities()
+	if err == nil {
+		err = r.campaign(ctx)
+	}
+	if err == nil {
+		err = r.finish(ctx)
+	}
+	r.out.BenchSeconds = r.clk.Now().Seconds()
+	if err != nil {
+		return r.out, r.abort(ctx, err)
+	}
+	r.out.Complete = true
+	r.journalEnd(JournalEnd{Status: EndComplete})
+	r.logf("campaign complete: %d points measured, %d recovered, %d flagged", r.out.Measured, r.out.Recovered, r.out.Flagged)
+	return r.out, nil
+}
+
+// count returns the points the plan asks for and how many the journal
+// already holds.
+func (r *runner) count() (total, done int) {
+	for ti := range r.temps {
+		for _, u := range r.p.Units {
+			for i := range r.p.Tests {
+				steps := TestSteps(r.p, i)
+				for rep := 0; rep < r.p.Tests[i].Repeats; rep++ {
+					for _, st := range steps {
+						total++
+						if r.done.Has(st.Key(ti, u.ID, rep)) {
+							done++
+						}
+					}
+				}
+			}
+		}
+	}
+	return total, done
+}
+
+// unitFinished reports whether the journal holds every point of unit at
+// temperature ti; tempFinished the same for every unit.
+func (r *runner) unitFinished(ti int, unit string) bool {
+	for i := range r.p.Tests {
+		if !r.testFinished(ti, unit, i) {
+			return false
+		}
+	}
+	return true
+}
+
+func (r *runner) tempFinished(ti int) bool {
+	for _, u := range r.p.Units {
+		if !r.unitFinished(ti, u.ID) {
+			return false
+		}
+	}
+	return true
+}
+
+func (r *runner) testFinished(ti int, unit string, i int) bool {
+	steps := TestSteps(r.p, i)
+	for rep := 0; rep < r.p.Tests[i].Repeats; rep++ {
+		for _, st := range steps {
+			if !r.done.Has(st.Key(ti, unit, rep)) {
+				return false
+			}
+		}
+	}
+	return true
+}
+
+// campaign is the loop over temperatures, units and tests. The bench is
+// powered only while one unit is measured: units are switched or swapped
+// and the chamber ramps with the part unpowered.
+func (r *runner) campaign(ctx context.Context) error {
+	for ti, point := range r.temps {
+		if r.tempFinished(ti) {
+			continue
+		}
+		r.at = position{tempIndex: ti, tempPoint: point, test: -1}
+		if err := r.enterTemperature(ctx, ti, point); err != nil {
+			return err
+		}
+		for _, u := range r.p.Units {
+			if r.unitFinished(ti, u.ID) {
+				continue
+			}
+			r.at.unit, r.at.test, r.at.atStep = u.ID, -1, false
+			if err := r.connectUnit(ctx, ti, u); err != nil {
+				return err
+			}
+			if err := r.powerUp(ctx); err != nil {
+				return err
+			}
+			for i := range r.p.Tests {
+				if err := r.runTest(ctx, ti, u.ID, i); err != nil {
+					return err
+				}
+			}
+			r.at.test, r.at.atStep = -1, false
+			if err := r.powerDown(ctx); err != nil {
+				return err
+			}
+		}
+	}
+	return nil
+}
+
+// finish ends a complete campaign: the chamber back to ambient at the ramp
+// limit, the switch opened.
+func (r *runner) finish(ctx context.Context) error {
+	r.at.unit, r.at.test, r.at.atStep = "", -1, false
+	if r.chamber && r.p.Temperature.Mode == TempChamber {
+		r.at.stage = stageAmbient
+		amb := r.p.Temperature.AmbientCelsius
+		if err := r.rampChamber(ctx, amb); err != nil {
+			return err
+		}
+		r.event(JournalEvent{Type: EventTemperatureSet, TemperatureC: amb, Detail: "campaign over: chamber set back to ambient"})
+	}
+	if r.rig.Switch != nil && !handSwap(r.p) {
+		r.at.stage = stageOpenSwitch
+		if err := r.rig.Switch.OpenAll(ctx); err != nil {
+			return fmt.Errorf("switch: open all: %w", err)
+		}
+	}
+	return nil
+}
+
+// abort brings the bench to the safe state after err and returns the
+// RunError that tells the user what happened.
+func (r *runner) abort(ctx context.Context, err error) error {
+	at := r.at
+	e := &RunError{Stage: at.stage, TempIndex: at.tempIndex, TemperatureC: at.tempPoint, Unit: at.unit,
+		TestIndex: at.test, Test: at.kind, Part: at.part, Repeat: at.repeat, Step: at.step,
+		LevelVolts: at.level, AtStep: at.atStep, Err: err}
+	if at.test < 0 {
+		e.Test, e.Part = "", ""
+	}
+	if r.p.Temperature.Mode == TempNone {
+		e.TempIndex = -1 // one ambient pass: not worth naming
+	}
+	e.Interrupted = ctx.Err() != nil
+	if e.Interrupted && !errors.Is(err, ctx.Err()) {
+		e.Err = fmt.Errorf("%w (%v)", ctx.Err(), err)
+	}
+	reason := e.Error()
+	r.logf("STOP: %s", reason)
+	r.prog.Note("stopping: bringing the bench to its safe state")
+	r.event(JournalEvent{Type: EventAbort, Reason: fmt.Sprintf("%s: %v", at.stage, e.Err), Unit: at.unit,
+		TempIndex: max(at.tempIndex, 0), TemperatureC: at.tempPoint})
+	e.SafeState = r.safeState(ctx)
+	detail := "reached: sources at 0 V and off, then supplies ramped down and off"
+	if e.SafeState != nil {
+		detail = "NOT reached: " + e.SafeState.Error()
+	}
+	r.event(JournalEvent{Type: EventSafeState, Reason: "abort", Detail: detail, Unit: at.unit, TempIndex: max(at.tempIndex, 0)})
+	status := EndAborted
+	if e.Interrupted {
+		status = EndInterrupted
+	}
+	r.journalEnd(JournalEnd{Status: status, Reason: e.Error()})
+	r.prog.Note(e.Error())
+	return e
+}
+
+func (r *runner) logf(format string, args ...any) {
+	fmt.Fprintf(r.log, "[bench %9.2f s] %s\n", r.clk.Now().Seconds(), fmt.Sprintf(format, args...))
+}
+
+// note logs an event and shows it on the progress display.
+func (r *runner) note(format string, args ...any) {
+	msg := fmt.Sprintf(format, args...)
+	r.logf("%s", msg)
+	r.prog.Note(msg)
+}

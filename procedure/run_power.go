@@ -1,0 +1,288 @@
+package procedure
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"math"
+	"strings"
+)
+
+// powerUp runs PowerUpOrder: sources off at 0 V, current limits, supplies
+// on at 0 V and ramped to nominal, then the sources on at 0 V.
+func (r *runner) powerUp(ctx context.Context) error {
+	r.at.stage = stagePowerUp
+	r.note("unit %s: powering up (V+ %s, V- %s, current limit %g A)", r.at.unit,
+		fmtVolts(r.p.Part.NominalPosVolts), fmtVolts(r.p.Part.NominalNegVolts), r.p.Part.CurrentLimitAmps)
+	if err := r.execute(ctx, PowerUpOrder(r.p)); err != nil {
+		return err
+	}
+	r.event(JournalEvent{Type: EventPowerUp, Unit: r.at.unit, TempIndex: r.at.tempIndex, TemperatureC: r.at.tempPoint})
+	return nil
+}
+
+// powerDown runs PowerDownFrom the present state: sources ramped to 0 V
+// and off, then the rails ramped down and off.
+func (r *runner) powerDown(ctx context.Context) error {
+	r.at.stage = stagePowerDown
+	if err := r.execute(ctx, PowerDownFrom(r.p, r.state)); err != nil {
+		return err
+	}
+	r.powered = false
+	r.event(JournalEvent{Type: EventPowerDown, Unit: r.at.unit, TempIndex: r.at.tempIndex, TemperatureC: r.at.tempPoint})
+	r.note("unit %s: powered down", r.at.unit)
+	return nil
+}
+
+// moveTo ramps the bench from its present state to s (Transition checks
+// every intermediate state against the plan's absolute maxima).
+func (r *runner) moveTo(ctx context.Context, s BenchState) error {
+	acts, err := Transition(r.p, r.state, s)
+	if err != nil {
+		return err
+	}
+	return r.execute(ctx, acts)
+}
+
+// execute carries out actions in order, waiting Timing.RampDwell after each
+// voltage change. It stops at the first error.
+func (r *runner) execute(ctx context.Context, acts []PowerAction) error {
+	for _, a := range acts {
+		if err := r.do(ctx, a); err != nil {
+			return err
+		}
+		if a.Op == PowerSetVolts {
+			if err := r.clk.Sleep(ctx, r.timing.RampDwell); err != nil {
+				return err
+			}
+		}
+	}
+	return nil
+}
+
+// do sends one action to its role and tracks the programmed state. The
+// error names the role and the action; the driver's error inside names the
+// instrument and its command.
+func (r *runner) do(ctx context.Context, a PowerAction) error {
+	if err := ctx.Err(); err != nil {
+		return err
+	}
+	isSource := a.Role == RoleSourceCM || a.Role == RoleSourceDiff || a.Role == RoleSourceRef
+	if isSource && a.Op == PowerSetVolts && a.Volts != 0 {
+		// From the moment it is attempted, the source may drive a
+		// non-zero voltage until it is set to 0 V or switched off.
+		r.srcSafe[a.Role] = false
+	}
+	if !isSource && a.Op == PowerOutputOn {
+		r.powered = true
+	}
+	var err error
+	switch a.Role {
+	case RoleSupplyPos, RoleSupplyNeg:
+		s := r.supply(a.Role)
+		if s == nil {
+			return fmt.Errorf("%s: not on this bench", a.Role)
+		}
+		switch a.Op {
+		case PowerCurrentLimit:
+			err = s.SetCurrentLimit(ctx, a.Amps)
+		case PowerSetVolts:
+			err = s.SetVolts(ctx, a.Volts)
+		case PowerOutputOn, PowerOutputOff:
+			err = s.SetOutput(ctx, a.Op == PowerOutputOn)
+		default:
+			err = fmt.Errorf("unknown power operation %q", a.Op)
+		}
+	case RoleSourceCM, RoleSourceDiff, RoleSourceRef:
+		s := r.source(a.Role)
+		if s == nil {
+			return fmt.Errorf("%s: not on this bench", a.Role)
+		}
+		switch a.Op {
+		case PowerSetVolts:
+			err = s.SetVolts(ctx, a.Volts)
+		case PowerOutputOn, PowerOutputOff:
+			err = s.SetOutput(ctx, a.Op == PowerOutputOn)
+		default:
+			err = fmt.Errorf("%s: a source has no %s", a.Role, a.Op)
+		}
+	default:
+		err = fmt.Errorf("unknown role %q in a power action", a.Role)
+	}
+	if err != nil {
+		return fmt.Errorf("%s: %w", a, err)
+	}
+	r.state = ApplyAction(r.state, a)
+	if isSource && (a.Op == PowerOutputOff || (a.Op == PowerSetVolts && a.Volts == 0)) {
+		r.srcSafe[a.Role] = true
+	}
+	return nil
+}
+
+// safeState brings the bench to its safe state after a fault, with a
+// fresh context (the run's may be cancelled) bounded by
+// Timing.SafeStateTimeout, each call by Timing.SafeCallTimeout:
+//
+//  1. every bound source ramped to 0 V and switched off (PowerDownFrom);
+//  2. only when every source is known at 0 V or off: both rails ramped
+//     down (the span shrinking at every step) and switched off. A source
+//     that could not be brought to 0 V or switched off would otherwise
+//     drive an input beyond the rails of an unpowered part (latch-up,
+//     JESD78; METHODS §6), so then the supplies are left on and the error
+//     says so;
+//  3. the chamber set back to ambient (set point at once: the campaign is
+//     over, the chamber's own controller ramps);
+//  4. the switch opened, when the part is unpowered.
+//
+// A role that fails is not ramped further, but its output-off is still
+// tried; the other roles carry on. It returns nil when every step worked,
+// else every problem met.
+func (r *runner) safeState(runCtx context.Context) error {
+	ctx, cancel := context.WithTimeout(context.WithoutCancel(runCtx), r.timing.SafeStateTimeout)
+	defer cancel()
+	var errs []error
+	failed := map[string]bool{}
+	call := func(a PowerAction) {
+		if failed[a.Role] && a.Op == PowerSetVolts {
+			return
+		}
+		cctx, ccancel := context.WithTimeout(ctx, r.timing.SafeCallTimeout)
+		err := r.do(cctx, a)
+		ccancel()
+		if err != nil {
+			failed[a.Role] = true
+			errs = append(errs, err)
+			return
+		}
+		if a.Op == PowerSetVolts {
+			// The dwell between ramp steps runs on the fresh context; a
+			// failed sleep (deadline) only shortens the ramp.
+			_ = r.clk.Sleep(ctx, r.timing.RampDwell)
+		}
+	}
+	acts := PowerDownFrom(r.p, r.state)
+	i := 0
+	for ; i < len(acts) && isSourceRole(acts[i].Role); i++ {
+		call(acts[i])
+	}
+	var live []string
+	for _, role := range sourceRoles(r.p) {
+		if !r.srcSafe[role] {
+			live = append(live, fmt.Sprintf("%s (last set to %s)", role, fmtVolts(sourceVolts(r.state, role))))
+		}
+	}
+	suppliesDown := false
+	if len(live) > 0 {
+		errs = append(errs, fmt.Errorf("could not bring %s to 0 V or off: the supplies are LEFT ON at V+ %s, V- %s so that no input sits beyond the rails of an unpowered part; switch that source off by hand, then the supplies",
+			strings.Join(live, ", "), fmtVolts(r.state.PosVolts), fmtVolts(r.state.NegVolts)))
+	} else {
+		nerr := len(errs)
+		for ; i < len(acts); i++ {
+			call(acts[i])
+		}
+		suppliesDown = len(errs) == nerr
+		if suppliesDown {
+			r.powered = false
+		}
+	}
+	if r.chamber && r.rig.Chamber != nil {
+		amb := r.p.Temperature.AmbientCelsius
+		cctx, ccancel := context.WithTimeout(ctx, r.timing.SafeCallTimeout)
+		if err := r.rig.Chamber.SetPointCelsius(cctx, amb); err != nil {
+			errs = append(errs, fmt.Errorf("chamber: set point %g °C (ambient): %w", amb, err))
+		} else {
+			r.event(JournalEvent{Type: EventTemperatureSet, TemperatureC: amb, Detail: "safe state: chamber set back to ambient"})
+		}
+		ccancel()
+	}
+	if suppliesDown && r.rig.Switch != nil && !handSwap(r.p) {
+		cctx, ccancel := context.WithTimeout(ctx, r.timing.SafeCallTimeout)
+		if err := r.rig.Switch.OpenAll(cctx); err != nil {
+			errs = append(errs, fmt.Errorf("switch: open all: %w", err))
+		}
+		ccancel()
+	}
+	return errors.Join(errs...)
+}
+
+func isSourceRole(role string) bool {
+	return role == RoleSourceCM || role == RoleSourceDiff || role == RoleSourceRef
+}
+
+// supply and source map role names to the rig's roles; a nil interface
+// value comes back for a role the rig lacks.
+func (r *runner) supply(role string) interface {
+	SetVolts(context.Context, float64) error
+	SetCurrentLimit(context.Context, float64) error
+	SetOutput(context.Context, bool) error
+	ReadVolts(context.Context) (float64, error)
+} {
+	switch role {
+	case RoleSupplyPos:
+		if r.rig.SupplyPos != nil {
+			return r.rig.SupplyPos
+		}
+	case RoleSupplyNeg:
+		if r.rig.SupplyNeg != nil {
+			return r.rig.SupplyNeg
+		}
+	}
+	return nil
+}
+
+func (r *runner) source(role string) interface {
+	SetVolts(context.Context, float64) error
+	SetOutput(context.Context, bool) error
+	ReadVolts(context.Context) (float64, error)
+} {
+	switch role {
+	case RoleSourceCM:
+		if r.rig.SourceCM != nil {
+			return r.rig.SourceCM
+		}
+	case RoleSourceDiff:
+		if r.rig.SourceDiff != nil {
+			return r.rig.SourceDiff
+		}
+	case RoleSourceRef:
+		if r.rig.SourceRef != nil {
+			return r.rig.SourceRef
+		}
+	}
+	return nil
+}
+
+// stimulusRoles returns the roles whose voltage a test's level moves, with
+// the volts each moves per volt of level (from StateAt, so the run agrees
+// with the safety check on what a level means).
+func stimulusRoles(p *Plan, t *Test, part string) []roleSlope {
+	s0, s1 := StateAt(p, t, part, 0), StateAt(p, t, part, 1)
+	var out []roleSlope
+	add := func(role string, a, b float64) {
+		if d := b - a; math.Abs(d) > 1e-12 {
+			out = append(out, roleSlope{role: role, slope: d})
+		}
+	}
+	add(RoleSupplyPos, s0.PosVolts, s1.PosVolts)
+	add(RoleSupplyNeg, s0.NegVolts, s1.NegVolts)
+	add(RoleSourceCM, s0.CMVolts, s1.CMVolts)
+	add(RoleSourceDiff, s0.DiffVolts, s1.DiffVolts)
+	add(RoleSourceRef, s0.RefVolts, s1.RefVolts)
+	return out
+}
+
+type roleSlope struct {
+	role  string
+	slope float64 // volts of the role per volt of level
+}
+
+// roleVolts is the programmed voltage of a role in s.
+func roleVolts(s BenchState, role string) float64 {
+	switch role {
+	case RoleSupplyPos:
+		return s.PosVolts
+	case RoleSupplyNeg:
+		return s.NegVolts
+	}
+	return sourceVolts(s, role)
+}
