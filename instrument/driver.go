@@ -126,6 +126,11 @@ type MeterDriver struct {
 	mu         sync.Mutex
 	rangeVolts float64 // last configured; 0 before ConfigureDCVolts
 	nplc       float64
+	// count is the sample count last sent and acknowledged (0: unknown).
+	// ReadN skips re-sending it: on a time-scaled bench most of a point's
+	// time is exchanges. Configure forgets it, since CONFigure resets the
+	// sample count to 1 on many meters.
+	count int
 }
 
 // NewMeter binds the Meter role to a session using p's [meter] table.
@@ -178,7 +183,7 @@ func (m *MeterDriver) ConfigureDCVolts(ctx context.Context, rangeVolts, nplc flo
 		return m.wrap(err)
 	}
 	m.mu.Lock()
-	m.rangeVolts, m.nplc = rangeVolts, nplc
+	m.rangeVolts, m.nplc, m.count = rangeVolts, nplc, 0
 	m.mu.Unlock()
 	return m.wrap(m.opts.settle(ctx, m.cmds.Settle))
 }
@@ -207,7 +212,7 @@ func (m *MeterDriver) ReadN(ctx context.Context, n int) ([]float64, error) {
 		return nil, m.errorf("asked for %d readings; need at least 1", n)
 	}
 	m.mu.Lock()
-	nplc, rng := m.nplc, m.rangeVolts
+	nplc, rng, sentCount := m.nplc, m.rangeVolts, m.count
 	m.mu.Unlock()
 	if nplc == 0 {
 		nplc = assumedNPLC
@@ -225,13 +230,22 @@ func (m *MeterDriver) ReadN(ctx context.Context, n int) ([]float64, error) {
 	ctx = WithCallTimeout(ctx, m.s.Timeout()+2*integration)
 	var readings []float64
 	err = m.s.Do(ctx, func(tx *Tx) error {
-		if err := tx.Write(ctx, countCmd); err != nil {
-			return err
+		if sentCount != n {
+			if err := tx.Write(ctx, countCmd); err != nil {
+				return err
+			}
 		}
 		var err error
 		readings, err = tx.QueryFloats(ctx, readCmd)
 		return err
 	})
+	m.mu.Lock()
+	if err != nil {
+		m.count = 0 // the instrument's state is no longer known
+	} else {
+		m.count = n
+	}
+	m.mu.Unlock()
 	if err != nil {
 		return nil, m.wrap(err)
 	}
