@@ -234,9 +234,9 @@ func TestTransitionSourcesAroundRails(t *testing.T) {
 func TestTransitionRefusesUnsafeTarget(t *testing.T) {
 	p := loadExamplePlan(t, "lot")
 	to := NominalState(p)
-	to.PosVolts = 35 // span 50 V > 44 V
+	to.PosVolts = 35 // span 50 V > 36 V
 	acts, err := Transition(p, NominalState(p), to)
-	if err == nil || acts != nil || !strings.Contains(err.Error(), "exceeds the part's absolute maximum 44 V") {
+	if err == nil || acts != nil || !strings.Contains(err.Error(), "exceeds the part's absolute maximum 36 V") {
 		t.Fatalf("got %v, %v", acts, err)
 	}
 	to = NominalState(p)

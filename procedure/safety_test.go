@@ -105,9 +105,9 @@ func TestCheckSafetyUnsafePlans(t *testing.T) {
 		contains []string
 	}{
 		{"unsafe_overspan", "test[1].levels", "levels = [0.0, 7.0, 14.0, 20.0]",
-			// V+ = 15 + 20 = 35 V, span 35 + 15 = 50 V > 44 V; the safe
-			// maximum is 44 - 30 = 14 V, the minimum 2.5 - 15 = -12.5 V.
-			[]string{"psrr_pos level +20 V", "span 50 V exceeds", "44 V", "within -12.5 V … +14 V"}},
+			// V+ = 15 + 20 = 35 V, span 35 + 15 = 50 V > 36 V; the safe
+			// maximum is 36 - 30 = 6 V, the minimum 2.5 - 15 = -12.5 V.
+			[]string{"psrr_pos level +20 V", "span 50 V exceeds", "36 V", "within -12.5 V … +6 V"}},
 		{"unsafe_cm_range", "test[1].levels", "levels = [-14.0, -7.0, 0.0, 7.0, 14.0]",
 			// Level +14: V+ = 15 - 14 = +1 V, 1 V above the grounded inputs;
 			// needs 2 + 0.5 V, so |level| ≤ 15 - 2.5 = 12.5 V.
@@ -313,12 +313,12 @@ func TestSafeLevelsAgreeWithChecks(t *testing.T) {
 			}
 		}
 	}
-	// Worked by hand for the lot plan (±15 V, span ≤ 44 V, 2 V + 0.5 V
-	// headroom, max stimulus 12 V): psrr_pos d ≤ 44 - 30 = 14 and
-	// d ≥ 2.5 - 15 = -12.5; psrr_sym: span 30 + d ≤ 44 and 15 + d/2 ≥ 2.5
-	// give -25 … 14; aol |r| ≤ 12 (stimulus).
+	// Worked by hand for the lot plan (±15 V, span ≤ 36 V, 2 V + 0.5 V
+	// headroom, max stimulus 12 V): psrr_pos d ≤ 36 - 30 = 6 and
+	// d ≥ 2.5 - 15 = -12.5; psrr_sym: span 30 + d ≤ 36 and 15 + d/2 ≥ 2.5
+	// give -25 … 6; aol |r| ≤ 12 (stimulus).
 	p := loadExamplePlan(t, "lot")
-	want := map[int][2]float64{0: {-12.5, 12.5}, 1: {-12.5, 14}, 2: {-12.5, 14}, 3: {-25, 14}, 4: {-12, 12}}
+	want := map[int][2]float64{0: {-12.5, 12.5}, 1: {-12.5, 6}, 2: {-12.5, 6}, 3: {-25, 6}, 4: {-12, 12}}
 	for i, w := range want {
 		lo, hi, _ := SafeLevels(p, &p.Tests[i], "")
 		if math.Abs(lo-w[0]) > 1e-9 || math.Abs(hi-w[1]) > 1e-9 {
