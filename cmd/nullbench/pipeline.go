@@ -9,6 +9,7 @@ import (
 	"math"
 	"os"
 	"path/filepath"
+	"strings"
 	"time"
 
 	"nullbench/instrument"
@@ -258,6 +259,33 @@ func printSummary(w io.Writer, c *report.Campaign, book string) {
 	fmt.Fprintf(w, "\n%s — %s, lot %s\n", c.Name, c.Part, c.Lot)
 	fmt.Fprintf(w, "results: %d pass, %d conditional pass, %d conditional fail, %d fail, %d not judged\n",
 		counts[report.KindPass], counts[report.KindConditionalPass], counts[report.KindConditionalFail], counts[report.KindFail], counts[report.KindNotJudged])
+	// Units by their most severe verdict (ILAC-G8 zones, worst first).
+	unitKind := map[string]report.VerdictKind{}
+	var units []string
+	for _, r := range c.Results {
+		k := report.VerdictClass(r.Verdict)
+		if k == report.KindNotJudged || k == report.KindOther || r.Test == procedure.ResultCMRRUncorrected {
+			continue
+		}
+		cur, ok := unitKind[r.Unit]
+		if !ok {
+			units = append(units, r.Unit)
+		}
+		if !ok || k > cur {
+			unitKind[r.Unit] = k
+		}
+	}
+	byKind := map[report.VerdictKind][]string{}
+	for _, u := range units {
+		byKind[unitKind[u]] = append(byKind[unitKind[u]], u)
+	}
+	fmt.Fprintf(w, "units:   %d pass, %d conditional pass, %d conditional fail, %d fail\n",
+		len(byKind[report.KindPass]), len(byKind[report.KindConditionalPass]), len(byKind[report.KindConditionalFail]), len(byKind[report.KindFail]))
+	for _, k := range []report.VerdictKind{report.KindFail, report.KindConditionalFail, report.KindConditionalPass} {
+		if len(byKind[k]) > 0 {
+			fmt.Fprintf(w, "  %s: %s\n", k.Label(), strings.Join(byKind[k], " "))
+		}
+	}
 	worst := map[string]report.Result{}
 	var order []string
 	for _, r := range c.Results {
