@@ -1,3 +1,7 @@
+// OpenRig is a test helper: the tool itself opens instruments only in
+// cmd/nullbench, and procedures get roles. The tests that run against the
+// simulated bench use it to build a Rig from a plan.
+
 package procedure
 
 import (
