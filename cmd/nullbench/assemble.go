@@ -170,10 +170,18 @@ func addResults(c *report.Campaign, res *procedure.Results) {
 		for _, b := range rj.Budget.Rows {
 			c.Budgets = append(c.Budgets, budgetRow(r.Unit, r.Name, t, b))
 		}
-		if r.Name == procedure.ResultCMRRUncorrected || r.Name == procedure.PsrrWorst || len(r.DerivedFrom) > 0 {
-			continue // derived results share the fit of the test they came from
+		// One fit row per measured sweep, under the test kind that measured
+		// it: the supply-shift sweep's fit is the uncorrected cmrr's (the
+		// corrected cmrr and psrr_worst are derived from other results), and
+		// a board's two sweeps come from its board row below.
+		test := r.Name
+		switch {
+		case r.Name == procedure.ResultCMRRUncorrected:
+			test = procedure.TestCMRR
+		case r.Name == procedure.PsrrWorst, r.Name == procedure.TestBoardCMRR, len(r.DerivedFrom) > 0:
+			continue
 		}
-		c.Fits = append(c.Fits, fitRow(r.Unit, r.Name, "", t, r.Line, r.NoiseGain, r.Nonlinearity, r.NonlinearityChecked))
+		c.Fits = append(c.Fits, fitRow(r.Unit, test, "", t, r.Line, r.NoiseGain, r.Nonlinearity, r.NonlinearityChecked))
 	}
 	for _, b := range res.Boards {
 		t := condTemp(res, b.Condition)
