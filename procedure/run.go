@@ -42,15 +42,17 @@ type RunOptions struct {
 // bench-time ones run on the Clock; the safe-state ones are wall time,
 // because the safe state must finish even on a stalled clock.
 type Timing struct {
-	// RampDwell is waited after each ramp step of a supply or source
-	// (METHODS §6: "step ≤ 1 V with settling"). Default 50 ms.
+	// RampDwell is the least bench time from sending each ramp step of a
+	// supply or source to the next action (METHODS §6: "step ≤ 1 V with
+	// settling"); the time the driver spends on the step (its profile's
+	// settle wait, the exchange) counts towards it. Default 50 ms.
 	RampDwell time.Duration
 	// RelaySettle is waited after closing a unit's switch channel: relay
 	// operate and bounce time, typically under 10 ms for reed and signal
 	// relays (common practice, no published source). Default 50 ms.
 	RelaySettle time.Duration
-	// SettleInterval separates the successive readings of the settling
-	// check. Default 1 s.
+	// SettleInterval separates the starts of the successive readings of
+	// the settling check. Default 1 s.
 	SettleInterval time.Duration
 	// SoakInterval separates the temperature readings while soaking.
 	// Default 10 s, at most a fifth of soak_s (but not under 1 s).

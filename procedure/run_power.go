@@ -44,16 +44,23 @@ func (r *runner) moveTo(ctx context.Context, s BenchState) error {
 	return r.execute(ctx, acts)
 }
 
-// execute carries out actions in order, waiting Timing.RampDwell after each
-// voltage change. It stops at the first error.
+// execute carries out actions in order. After each voltage change it lets
+// at least Timing.RampDwell of bench time pass from the moment the change
+// was sent before the next action: the time the driver already spent (its
+// profile's settle wait, the exchange itself) counts towards it, so the
+// dwell is a minimum, not an extra wait on top of the driver's. It stops
+// at the first error.
 func (r *runner) execute(ctx context.Context, acts []PowerAction) error {
 	for _, a := range acts {
+		sent := r.clk.Now()
 		if err := r.do(ctx, a); err != nil {
 			return err
 		}
 		if a.Op == PowerSetVolts {
-			if err := r.clk.Sleep(ctx, r.timing.RampDwell); err != nil {
-				return err
+			if rest := r.timing.RampDwell - (r.clk.Now() - sent); rest > 0 {
+				if err := r.clk.Sleep(ctx, rest); err != nil {
+					return err
+				}
 			}
 		}
 	}

@@ -68,8 +68,9 @@ func uninterrupted(t *testing.T, p *Plan, dir string) (map[WorkKey]bool, string)
 	// Every reading is in the journal, fsynced, before the next point: at
 	// the k-th averaging the file holds k-1 readings.
 	nread, flushErr := 0, error(nil)
+	var spot measurementSpotter
 	fb.onCall = func(c fakeCall) {
-		if c.Op != "read-n" || flushErr != nil {
+		if !spot.measurement(c) || flushErr != nil {
 			return
 		}
 		nread++
@@ -152,11 +153,12 @@ func TestRunResumeAfterAbortGivesTheSamePoints(t *testing.T) {
 			ctx, cancel := context.WithCancel(context.Background())
 			defer cancel()
 			if how == "fault" {
-				fb.fault = failNth(RoleMeter, "read-n", k, errLost, true)
+				fb.fault = failNthMeterRead(true, k, errLost, true)
 			} else {
 				n := 0
+				var spot measurementSpotter
 				fb.onCall = func(c fakeCall) {
-					if c.Op == "read-n" {
+					if spot.measurement(c) {
 						if n++; n == k {
 							cancel() // Ctrl-C during the averaging: it is not journalled
 						}
@@ -284,8 +286,9 @@ func TestRunStopsWhenTheJournalFails(t *testing.T) {
 	}
 	fb := newFakeBench(p)
 	n := 0
+	var spot measurementSpotter
 	fb.onCall = func(c fakeCall) {
-		if c.Op == "read-n" {
+		if spot.measurement(c) {
 			if n++; n == 5 {
 				w.Close() // the disk goes away
 			}

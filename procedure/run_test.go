@@ -217,8 +217,9 @@ func TestRunLevelsReachThePart(t *testing.T) {
 				p.Units = p.Units[:1]
 				fb := newFakeBench(p)
 				var seen [][5]float64
+				var spot measurementSpotter
 				fb.onCall = func(c fakeCall) {
-					if c.Op == "read-n" {
+					if spot.measurement(c) {
 						pos, neg, cm, diff, ref := fb.terminals()
 						seen = append(seen, [5]float64{pos, neg, cm, diff, ref})
 					}
@@ -292,8 +293,9 @@ func TestRunBoardSweeps(t *testing.T) {
 	p := boardPlan()
 	fb := newFakeBench(p)
 	var seen [][5]float64
+	var spot measurementSpotter
 	fb.onCall = func(c fakeCall) {
-		if c.Op == "read-n" {
+		if spot.measurement(c) {
 			pos, neg, cm, diff, ref := fb.terminals()
 			seen = append(seen, [5]float64{pos, neg, cm, diff, ref})
 		}
@@ -496,6 +498,46 @@ func TestRunRefusesUnsafePlanBeforeContact(t *testing.T) {
 	})
 }
 
+// measurementSpotter tells the meter's measurement reads from its settling
+// reads in the fake's call log. Both are read-n calls (the settling check
+// averages as many readings per trigger as the measurement), and the runner
+// reads the stimulus back between the last settling read and the
+// measurement, so a measurement is the first read-n after a read-volts.
+type measurementSpotter struct{ afterReadBack bool }
+
+// measurement reports whether c is a measurement read; feed it every call
+// in order.
+func (s *measurementSpotter) measurement(c fakeCall) bool {
+	switch c.Op {
+	case "read-volts":
+		s.afterReadBack = true
+	case "read-n":
+		was := s.afterReadBack
+		s.afterReadBack = false
+		return was
+	}
+	return false
+}
+
+// failNthMeterRead is failNth for the meter's nth measurement read
+// (measurement true) or its nth settling read (false).
+func failNthMeterRead(measurement bool, nth int, err error, sticky bool) func(fakeCall) error {
+	var spot measurementSpotter
+	seen, dead := 0, false
+	return func(c fakeCall) error {
+		if dead && c.Role == RoleMeter {
+			return fmt.Errorf("%s: %w", c, err)
+		}
+		if spot.measurement(c) == measurement && c.Op == "read-n" {
+			if seen++; seen == nth {
+				dead = sticky
+				return fmt.Errorf("%s: %w", c, err)
+			}
+		}
+		return nil
+	}
+}
+
 // lastReadCall is the number of the last call that read something.
 func lastReadCall(fb *fakeBench) int {
 	n := 0
@@ -573,7 +615,7 @@ func TestRunFaultBringsBenchToSafeState(t *testing.T) {
 		safeOK      bool   // the safe state is reached without errors
 	}{
 		{name: "meter error mid-test", plan: testPlan,
-			fault: func() func(fakeCall) error { return failNth(RoleMeter, "read-n", 14, scpiErr, false) },
+			fault: func() func(fakeCall) error { return failNthMeterRead(true, 14, scpiErr, false) },
 			is:    scpiErr, stage: stageMeasure, unit: "U01", test: TestPSRRPos, supplies: "down", safeOK: true},
 		{name: "supply time-out once", plan: testPlan,
 			fault: func() func(fakeCall) error {
@@ -586,13 +628,14 @@ func TestRunFaultBringsBenchToSafeState(t *testing.T) {
 			},
 			is: instrument.ErrTimeout, stage: stageLevel, unit: "U01", supplies: "dead", safeOK: false},
 		{name: "meter connection lost", plan: testPlan,
-			fault: func() func(fakeCall) error { return failNth(RoleMeter, "read", 30, errLost, true) },
+			fault: func() func(fakeCall) error { return failNthMeterRead(false, 30, errLost, true) },
 			is:    instrument.ErrClosed, stage: stageSettle, unit: "U01", supplies: "down", safeOK: true},
 		{name: "ctrl-c while settling", plan: testPlan,
 			cancel: func() func(c fakeCall) bool {
 				n := 0
+				var spot measurementSpotter
 				return func(c fakeCall) bool {
-					if c.Role == RoleMeter && c.Op == "read" {
+					if !spot.measurement(c) && c.Op == "read-n" {
 						n++
 					}
 					return n == 25
@@ -617,7 +660,7 @@ func TestRunFaultBringsBenchToSafeState(t *testing.T) {
 			p.Tests[0].Order = OrderAscending
 			return p
 		},
-			// read-n 4 is at +5 V: the source dies before it is read back
+			// point 4 is at +5 V: the source dies before it is read back
 			fault: func() func(fakeCall) error { return failNth(RoleSourceCM, "read-volts", 4, errLost, true) },
 			is:    instrument.ErrClosed, stage: stageReadBack, unit: "U01", test: TestCMRR, supplies: "left", safeOK: false},
 		{name: "chamber soak time-out", plan: func() *Plan {
@@ -819,6 +862,134 @@ func TestRunErrorMessage(t *testing.T) {
 		"while waiting for the output to settle", "READ?", "safe state"} {
 		if !strings.Contains(got, want) {
 			t.Errorf("message lacks %q:\n%s", want, got)
+		}
+	}
+}
+
+// TestRunRampDwellIsAMinimum: Timing.RampDwell is the least bench time
+// from sending a ramp step to the next action, with the time the driver
+// itself took counted (the fake takes 1 ms per set command), not a wait on
+// top of it.
+func TestRunRampDwellIsAMinimum(t *testing.T) {
+	for _, tc := range []struct {
+		dwell, wantGap time.Duration
+	}{
+		{50 * time.Millisecond, 50 * time.Millisecond}, // 1 ms call + 49 ms wait
+		{500 * time.Microsecond, 1 * time.Millisecond}, // the call alone is longer: no wait
+		{3 * time.Millisecond, 3 * time.Millisecond},   // 1 ms call + 2 ms wait
+		{0, 50 * time.Millisecond /* default 50 ms */}, // zero takes the default
+	} {
+		t.Run(tc.dwell.String(), func(t *testing.T) {
+			p := testPlan()
+			p.Tests = []Test{p.Tests[1]} // psrr_pos: V+ alone ramps in 1 V steps
+			p.Units = p.Units[:1]
+			fb := newFakeBench(p)
+			if _, err := runFake(context.Background(), t, p, fb, RunOptions{Timing: Timing{RampDwell: tc.dwell}}); err != nil {
+				t.Fatal(err)
+			}
+			calls := fb.callsSnapshot()
+			gaps := 0
+			for i := 1; i < len(calls); i++ {
+				a, b := calls[i-1], calls[i]
+				if a.Op != "set-volts" || b.Op != "set-volts" || a.Role != b.Role {
+					continue
+				}
+				gaps++
+				if g := b.At - a.At; g != tc.wantGap {
+					t.Errorf("calls %d→%d (%s, %s): %v apart, want %v", a.N, b.N, a, b, g, tc.wantGap)
+				}
+			}
+			if gaps < 10 {
+				t.Fatalf("only %d successive ramp steps seen", gaps)
+			}
+		})
+	}
+}
+
+// TestRunSettlingReadsAverage: the settling check reads as many values per
+// trigger as the measurement (so the meter's sample count never changes
+// within a test), takes at least two such reads per point, and the
+// measurement comes after the stimulus read-back.
+func TestRunSettlingReadsAverage(t *testing.T) {
+	p := testPlan()
+	p.Units = p.Units[:1]
+	for i := range p.Tests {
+		p.Tests[i].Readings = 3 + i
+	}
+	fb := newFakeBench(p)
+	out, err := runFake(context.Background(), t, p, fb, RunOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	var spot measurementSpotter
+	settles, measurements := 0, 0
+	test := -1
+	for _, c := range fb.callsSnapshot() {
+		if c.Role == RoleMeter && c.Op == "configure" {
+			test++
+		}
+		meas := spot.measurement(c)
+		if c.Role != RoleMeter || !strings.HasPrefix(c.Op, "read") {
+			continue
+		}
+		if c.Op != "read-n" {
+			t.Fatalf("call %d: %s; every meter read should be a read-n", c.N, c)
+		}
+		if want := float64(p.Tests[test].Readings); c.Arg != want {
+			t.Errorf("call %d (%s, test %s): %g readings per trigger, want %g", c.N, c, p.Tests[test].Kind, c.Arg, want)
+		}
+		if meas {
+			measurements++
+		} else {
+			settles++
+		}
+	}
+	if measurements != len(out.Readings) || settles < 2*measurements {
+		t.Errorf("%d measurement reads and %d settling reads for %d readings", measurements, settles, len(out.Readings))
+	}
+	for _, r := range out.Readings {
+		if want := p.Tests[testIndex(p, r.Test)].Readings; r.N != want {
+			t.Errorf("%s step %d: n = %d, want %d", r.Test, r.Step, r.N, want)
+		}
+	}
+}
+
+func testIndex(p *Plan, kind string) int {
+	for i := range p.Tests {
+		if p.Tests[i].Kind == kind {
+			return i
+		}
+	}
+	return -1
+}
+
+// TestRunSettleTimeoutNeedsAComparison: a settling read that takes longer
+// than the whole settle_timeout_s (a stalled exchange, or the wall-clock
+// latency of a fast time-scaled bench) does not flag the point unsettled:
+// the time-out only ends the wait after two readings failed to agree.
+func TestRunSettleTimeoutNeedsAComparison(t *testing.T) {
+	p := testPlan()
+	p.Tests = []Test{p.Tests[4]} // aol
+	p.Units = p.Units[:1]
+	fb := newFakeBench(p)
+	var spot measurementSpotter
+	stalled := 0
+	fb.onCall = func(c fakeCall) {
+		if !spot.measurement(c) && c.Op == "read-n" && stalled < 3 {
+			stalled++
+			fb.clk.Advance(time.Duration(p.Tests[0].SettleTimeoutSeconds+5) * time.Second)
+		}
+	}
+	out, err := runFake(context.Background(), t, p, fb, RunOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if stalled != 3 {
+		t.Fatalf("stalled %d settling reads", stalled)
+	}
+	for _, r := range out.Readings {
+		if slices.Contains(r.Flags, FlagSettleTimeout) {
+			t.Errorf("step %d flagged %v after a stalled read (settle %.1f s)", r.Step, r.Flags, r.SettleSeconds)
 		}
 	}
 }

@@ -1,7 +1,9 @@
 package main
 
 import (
+	"context"
 	"errors"
+	"fmt"
 
 	"github.com/spf13/cobra"
 
@@ -13,7 +15,7 @@ type checkOptions struct {
 	AllowHazardous bool
 }
 
-func newCheckCmd(std streams) *cobra.Command {
+func newCheckCmd(std streams, run func(context.Context, streams, checkOptions) error) *cobra.Command {
 	var o checkOptions
 	cmd := &cobra.Command{
 		Use:   "check PLAN",
@@ -26,7 +28,7 @@ is invalid (2) or would be refused as unsafe (4).`,
 		Args: cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			o.Plan = args[0]
-			return runCheck(std, o)
+			return failed(run(cmd.Context(), std, o))
 		},
 	}
 	cmd.Flags().BoolVar(&o.AllowHazardous, "allow-hazardous", false, "judge the plan as if a hazardous-voltage run had been allowed and confirmed")
@@ -42,7 +44,18 @@ func runCheck(std streams, o checkOptions) error {
 		return err
 	}
 	consent := procedure.HazardConsent{AllowOption: o.AllowHazardous, Interactive: o.AllowHazardous, Confirmed: o.AllowHazardous}
-	return safetyExit(procedure.CheckSafetyWith(p, consent))
+	err = procedure.CheckSafetyWith(p, consent)
+	if h := procedure.AssessHazard(p); o.AllowHazardous && h.Hazardous {
+		// The step table above judges without consent and says REFUSED
+		// for the hazard; say what the exit status judges.
+		verdict := "the plan is safe apart from that"
+		if err != nil {
+			verdict = "the plan is still refused for its other problems"
+		}
+		fmt.Fprintf(std.Out, "consent   --allow-hazardous: the %.0f V hazard is accepted for this judgement and %s; "+
+			"run still refuses it without an interactive terminal and a typed confirmation\n", h.MaxAcrossVolts, verdict)
+	}
+	return safetyExit(err)
 }
 
 // safetyExit maps a safety check's error to the exit code scripts expect.

@@ -30,7 +30,7 @@ type demoOptions struct {
 	outputOptions
 }
 
-func newDemoCmd(std streams) *cobra.Command {
+func newDemoCmd(std streams, run func(context.Context, streams, demoOptions) error) *cobra.Command {
 	var o demoOptions
 	cmd := &cobra.Command{
 		Use:   "demo",
@@ -47,12 +47,12 @@ results against a truth of your own; "nullbench sim --dut FILE --truth"
 prints what the simulation holds.`,
 		Args: cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, args []string) error {
-			return runDemo(cmd.Context(), std, o)
+			return failed(run(cmd.Context(), std, o))
 		},
 	}
 	addOutputFlags(cmd, &o.outputOptions, "folder for everything the demo writes (default: a new folder under the current one)")
 	cmd.Flags().StringVar(&o.DUT, "dut", "", "DUT file (TOML) describing the simulated parts; default: the built-in demo lot")
-	cmd.Flags().Float64Var(&o.TimeScale, "time-scale", 2000, "run the simulated bench and the plan's waits this many times faster than real time")
+	cmd.Flags().Float64Var(&o.TimeScale, "time-scale", 10000, "run the simulated bench and the plan's waits this many times faster than real time")
 	cmd.Flags().Int64Var(&o.Seed, "seed", 0, "seed of the simulated instruments' errors and noise (0: the DUT file's)")
 	return cmd
 }

@@ -1,6 +1,7 @@
 package main
 
 import (
+	"context"
 	"encoding/json"
 	"fmt"
 	"io"
@@ -23,7 +24,7 @@ type fitOptions struct {
 	JSON     bool
 }
 
-func newFitCmd(std streams) *cobra.Command {
+func newFitCmd(std streams, run func(context.Context, streams, fitOptions) error) *cobra.Command {
 	var o fitOptions
 	cmd := &cobra.Command{
 		Use:   "fit FILE.csv",
@@ -39,7 +40,7 @@ the offset directly).`,
 		Args: cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			o.File = args[0]
-			return runFit(std, o)
+			return failed(run(cmd.Context(), std, o))
 		},
 	}
 	f := cmd.Flags()

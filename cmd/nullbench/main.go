@@ -62,12 +62,28 @@ func run() int {
 	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt, syscall.SIGTERM)
 	defer stop()
 	std := streams{In: os.Stdin, Out: os.Stdout, Err: os.Stderr, IsTerm: isTerminal(os.Stdin) && isTerminal(os.Stderr)}
+	return execute(ctx, std, os.Args[1:])
+}
+
+// execute runs the command line args (without the program name) with the
+// given streams and returns the exit status; an error is printed on std.Err.
+func execute(ctx context.Context, std streams, args []string) int {
 	root := newRootCmd(std)
-	err := root.ExecuteContext(ctx)
+	if args == nil {
+		args = []string{} // nil would make cobra read os.Args
+	}
+	root.SetArgs(args)
+	return exitStatus(std.Err, root.ExecuteContext(ctx))
+}
+
+// exitStatus prints err and maps it to an exit code: the code an exitError
+// carries, else exitUsage (cobra's own errors: unknown command or flag,
+// bad flag value, wrong number of arguments, missing required flag).
+func exitStatus(w io.Writer, err error) int {
 	if err == nil {
 		return exitOK
 	}
-	fmt.Fprintln(os.Stderr, "nullbench:", err)
+	fmt.Fprintln(w, "nullbench:", err)
 	var ee *exitError
 	if errors.As(err, &ee) {
 		return ee.code
@@ -75,7 +91,47 @@ func run() int {
 	return exitUsage
 }
 
-func newRootCmd(std streams) *cobra.Command {
+// failed marks an error returned by a verb that carries no exit code as a
+// plain failure (exitFailure): only cobra's parsing errors, which never reach
+// a verb, default to exitUsage.
+func failed(err error) error {
+	var ee *exitError
+	if err == nil || errors.As(err, &ee) {
+		return err
+	}
+	return withCode(exitFailure, err)
+}
+
+// verbs are the functions the commands call with their parsed options.
+// newRootCmd wires the real ones; tests substitute recorders to see how a
+// command line is parsed.
+type verbs struct {
+	demo   func(context.Context, streams, demoOptions) error
+	sim    func(context.Context, streams, simOptions) error
+	probe  func(context.Context, streams, probeOptions) error
+	check  func(context.Context, streams, checkOptions) error
+	run    func(context.Context, streams, runOptions) error
+	resume func(context.Context, streams, resumeOptions) error
+	report func(context.Context, streams, reportOptions) error
+	fit    func(context.Context, streams, fitOptions) error
+}
+
+func defaultVerbs() verbs {
+	return verbs{
+		demo:   runDemo,
+		sim:    runSim,
+		probe:  runProbe,
+		check:  func(_ context.Context, std streams, o checkOptions) error { return runCheck(std, o) },
+		run:    runRun,
+		resume: runResume,
+		report: func(_ context.Context, std streams, o reportOptions) error { return runReport(std, o) },
+		fit:    func(_ context.Context, std streams, o fitOptions) error { return runFit(std, o) },
+	}
+}
+
+func newRootCmd(std streams) *cobra.Command { return newRootCmdWith(std, defaultVerbs()) }
+
+func newRootCmdWith(std streams, v verbs) *cobra.Command {
 	root := &cobra.Command{
 		Use:   "nullbench",
 		Short: "Measure CMRR and PSRR of op-amps and amplifier boards on SCPI bench instruments",
@@ -94,14 +150,14 @@ Start with "nullbench demo": it runs a whole campaign on a simulated bench.`,
 	root.SetOut(std.Out)
 	root.SetErr(std.Err)
 	root.AddCommand(
-		newDemoCmd(std),
-		newSimCmd(std),
-		newProbeCmd(std),
-		newCheckCmd(std),
-		newRunCmd(std),
-		newResumeCmd(std),
-		newReportCmd(std),
-		newFitCmd(std),
+		newDemoCmd(std, v.demo),
+		newSimCmd(std, v.sim),
+		newProbeCmd(std, v.probe),
+		newCheckCmd(std, v.check),
+		newRunCmd(std, v.run),
+		newResumeCmd(std, v.resume),
+		newReportCmd(std, v.report),
+		newFitCmd(std, v.fit),
 	)
 	return root
 }

@@ -186,7 +186,13 @@ func measure(ctx context.Context, std streams, o measureOptions) (campaignRecord
 		clock = procedure.NewScaledClock(p.Bench.TimeScale)
 	}
 
-	header := procedure.JournalHeader{PlanHash: p.Hash, PlanPath: p.Source, ToolVersion: version, Started: rec.Started, TimeScale: p.Bench.TimeScale}
+	// The journal records the plan's absolute path: resume and report
+	// find it there whatever folder they are started from.
+	planPath := p.Source
+	if abs, err := filepath.Abs(planPath); err == nil {
+		planPath = abs
+	}
+	header := procedure.JournalHeader{PlanHash: p.Hash, PlanPath: planPath, ToolVersion: version, Started: rec.Started, TimeScale: p.Bench.TimeScale}
 	var (
 		jw     *procedure.JournalWriter
 		resume *procedure.JournalContents
@@ -200,6 +206,10 @@ func measure(ctx context.Context, std streams, o measureOptions) (campaignRecord
 			rec.Started = resume.Header.Started
 		}
 	} else {
+		// The folder is made only now, after the plan passed every check.
+		if err := os.MkdirAll(filepath.Dir(o.JournalPath), 0o755); err != nil {
+			return rec, nil, withCode(exitFailure, err)
+		}
 		jw, err = procedure.OpenJournal(o.JournalPath, header)
 	}
 	if err != nil {
@@ -231,10 +241,12 @@ func measure(ctx context.Context, std streams, o measureOptions) (campaignRecord
 		switch {
 		case errors.As(runErr, &se):
 			runErr = withCode(exitSafety, runErr)
+		// The runner's error says whether the bench reached its safe state
+		// (procedure.RunError); never claim it here.
 		case ctx.Err() != nil:
-			runErr = withCode(exitFailure, fmt.Errorf("interrupted; the bench was brought to its safe state and the journal %s keeps every reading: %w", o.JournalPath, runErr))
+			runErr = withCode(exitFailure, fmt.Errorf("%w\nthe journal %s keeps every reading (continue with: nullbench resume %s)", runErr, o.JournalPath, o.JournalPath))
 		default:
-			runErr = withCode(exitInstrument, fmt.Errorf("%w\nthe bench was brought to its safe state; the journal %s keeps every reading (continue with: nullbench resume %s)", runErr, o.JournalPath, o.JournalPath))
+			runErr = withCode(exitInstrument, fmt.Errorf("%w\nthe journal %s keeps every reading (continue with: nullbench resume %s)", runErr, o.JournalPath, o.JournalPath))
 		}
 	}
 	return rec, out, runErr

@@ -17,7 +17,7 @@ type probeOptions struct {
 	Timeout  time.Duration
 }
 
-func newProbeCmd(std streams) *cobra.Command {
+func newProbeCmd(std streams, run func(context.Context, streams, probeOptions) error) *cobra.Command {
 	var o probeOptions
 	cmd := &cobra.Command{
 		Use:   "probe ADDRESS",
@@ -32,7 +32,7 @@ Addresses:
 		Args: cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			o.Address = args[0]
-			return runProbe(cmd.Context(), std, o)
+			return failed(run(cmd.Context(), std, o))
 		},
 	}
 	cmd.Flags().StringSliceVar(&o.Profiles, "profile", nil, "profile file(s) to try before the built-in ones")
@@ -42,6 +42,12 @@ Addresses:
 }
 
 func runProbe(ctx context.Context, std streams, o probeOptions) error {
+	if o.Rounds < 1 {
+		return withCode(exitUsage, fmt.Errorf("--rounds must be at least 1, not %d", o.Rounds))
+	}
+	if o.Timeout <= 0 {
+		return withCode(exitUsage, fmt.Errorf("--timeout must be positive, not %s", o.Timeout))
+	}
 	if _, err := instrument.ParseAddress(o.Address); err != nil {
 		return withCode(exitUsage, err)
 	}
@@ -56,8 +62,12 @@ func runProbe(ctx context.Context, std streams, o probeOptions) error {
 	ctx, cancel := context.WithTimeout(ctx, o.Timeout)
 	defer cancel()
 	rep, err := instrument.Probe(ctx, o.Address, extra, o.Rounds)
-	if werr := rep.Write(std.Out); werr != nil {
-		return werr
+	// A report is worth printing once the instrument answered; before that
+	// the error alone says what went wrong (refused, no such port, ...).
+	if err == nil || rep.Identity.Raw != "" {
+		if werr := rep.Write(std.Out); werr != nil {
+			return werr
+		}
 	}
 	if err != nil {
 		return withCode(exitInstrument, fmt.Errorf("probe %s: %w", o.Address, err))

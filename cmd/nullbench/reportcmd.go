@@ -1,6 +1,7 @@
 package main
 
 import (
+	"context"
 	"fmt"
 	"path/filepath"
 
@@ -13,7 +14,7 @@ type reportOptions struct {
 	outputOptions
 }
 
-func newReportCmd(std streams) *cobra.Command {
+func newReportCmd(std streams, run func(context.Context, streams, reportOptions) error) *cobra.Command {
 	var o reportOptions
 	cmd := &cobra.Command{
 		Use:   "report JOURNAL [JOURNAL...]",
@@ -25,7 +26,7 @@ contacted. A truncated last line is tolerated and reported.`,
 		Args: cobra.MinimumNArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			o.Journals = args
-			return runReport(std, o)
+			return failed(run(cmd.Context(), std, o))
 		},
 	}
 	cmd.Flags().StringVar(&o.Plan, "plan", "", "the plan file, when there is one journal (default: the path recorded in the journal)")

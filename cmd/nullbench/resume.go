@@ -2,6 +2,7 @@ package main
 
 import (
 	"context"
+	"fmt"
 	"path/filepath"
 
 	"github.com/spf13/cobra"
@@ -16,7 +17,7 @@ type resumeOptions struct {
 	outputOptions
 }
 
-func newResumeCmd(std streams) *cobra.Command {
+func newResumeCmd(std streams, run func(context.Context, streams, resumeOptions) error) *cobra.Command {
 	var o resumeOptions
 	cmd := &cobra.Command{
 		Use:   "resume JOURNAL",
@@ -29,7 +30,7 @@ measured again. The workbook is written beside the journal.`,
 		Args: cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			o.Journal = args[0]
-			return runResume(cmd.Context(), std, o)
+			return failed(run(cmd.Context(), std, o))
 		},
 	}
 	cmd.Flags().StringVar(&o.Plan, "plan", "", "the plan file (default: the path recorded in the journal)")
@@ -44,11 +45,15 @@ func planForJournal(journal, plan string) (*procedure.Plan, *procedure.JournalCo
 	if err != nil {
 		return nil, nil, withCode(exitUsage, err)
 	}
-	if plan == "" {
+	recorded := plan == ""
+	if recorded {
 		plan = jc.Header.PlanPath
 	}
 	p, err := procedure.LoadPlan(plan)
 	if err != nil {
+		if recorded {
+			err = fmt.Errorf("%w\n(%s is the plan recorded in the journal %s; if it has moved, give its path with --plan)", err, plan, journal)
+		}
 		return nil, nil, withCode(exitUsage, err)
 	}
 	if err := procedure.CheckPlanMatch(p, jc); err != nil {

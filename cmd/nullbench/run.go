@@ -3,7 +3,6 @@ package main
 import (
 	"context"
 	"fmt"
-	"os"
 	"path/filepath"
 	"strings"
 	"time"
@@ -27,7 +26,7 @@ func addOutputFlags(cmd *cobra.Command, o *outputOptions, outHelp string) {
 	f.BoolVar(&o.NoCharts, "no-charts", false, "leave the charts out of the workbook")
 }
 
-func newRunCmd(std streams) *cobra.Command {
+func newRunCmd(std streams, run func(context.Context, streams, runOptions) error) *cobra.Command {
 	var o runOptions
 	cmd := &cobra.Command{
 		Use:   "run PLAN",
@@ -43,7 +42,7 @@ Exit status: 0 all judged results pass, 5 some result failed its limit,
 		Args: cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			o.Plan = args[0]
-			return runRun(cmd.Context(), std, o)
+			return failed(run(cmd.Context(), std, o))
 		},
 	}
 	addOutputFlags(cmd, &o.outputOptions, "folder for the journal, workbook and exports (default: a new folder named after the plan)")
@@ -63,9 +62,6 @@ func runRun(ctx context.Context, std streams, o runOptions) error {
 	}
 	if o.Out == "" {
 		o.Out = defaultOutDir(o.Plan)
-	}
-	if err := os.MkdirAll(o.Out, 0o755); err != nil {
-		return withCode(exitFailure, err)
 	}
 	rec, _, runErr := measure(ctx, std, measureOptions{
 		Plan: p, JournalPath: filepath.Join(o.Out, "journal.jsonl"), AllowHazardous: o.AllowHazardous,

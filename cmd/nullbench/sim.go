@@ -5,11 +5,19 @@ import (
 	"encoding/json"
 	"fmt"
 	"os"
+	"slices"
+	"strings"
 
 	"github.com/spf13/cobra"
 
 	"nullbench/instrument/sim"
 )
+
+// simInstrumentNames are the instruments of the simulated bench, any of
+// which --serial may put on a pseudo-terminal.
+func simInstrumentNames() []string {
+	return []string{sim.NameDMM, sim.NameSupply, sim.NameSource, sim.NameSwitch, sim.NameChamber}
+}
 
 type simOptions struct {
 	Port      int
@@ -22,7 +30,7 @@ type simOptions struct {
 	Seed      int64
 }
 
-func newSimCmd(std streams) *cobra.Command {
+func newSimCmd(std streams, run func(context.Context, streams, simOptions) error) *cobra.Command {
 	var o simOptions
 	cmd := &cobra.Command{
 		Use:   "sim",
@@ -38,7 +46,7 @@ Point "nullbench probe" or a plan's bench section at those addresses;
 unless --listen names another address.`,
 		Args: cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, args []string) error {
-			return runSim(cmd.Context(), std, o)
+			return failed(run(cmd.Context(), std, o))
 		},
 	}
 	f := cmd.Flags()
@@ -50,7 +58,7 @@ unless --listen names another address.`,
 	f.BoolVar(&o.Truth, "truth", false, "print each unit's true values as JSON lines and exit")
 	f.Float64Var(&o.TimeScale, "time-scale", 1, "run the bench this many times faster than real time (plans must say the same time_scale)")
 	f.Int64Var(&o.Seed, "seed", 0, "seed of the instruments' errors and noise (0: the DUT file's seed)")
-	_ = cmd.RegisterFlagCompletionFunc("serial", cobra.FixedCompletions([]string{"dmm", "psu", "src", "mux", "chamber"}, cobra.ShellCompDirectiveNoFileComp))
+	_ = cmd.RegisterFlagCompletionFunc("serial", cobra.FixedCompletions(simInstrumentNames(), cobra.ShellCompDirectiveNoFileComp))
 	return cmd
 }
 
@@ -72,6 +80,12 @@ func runSim(ctx context.Context, std streams, o simOptions) error {
 	}
 	if o.TimeScale <= 0 {
 		return withCode(exitUsage, fmt.Errorf("--time-scale must be positive, not %g", o.TimeScale))
+	}
+	if o.Port < 0 || o.Port > 65535-4 {
+		return withCode(exitUsage, fmt.Errorf("--port %d: give 0 for free ports, or the first of five consecutive ports (1 … 65531)", o.Port))
+	}
+	if o.Serial != "" && !slices.Contains(simInstrumentNames(), o.Serial) {
+		return withCode(exitUsage, fmt.Errorf("--serial %q: name one of the bench's instruments: %s", o.Serial, strings.Join(simInstrumentNames(), ", ")))
 	}
 	bench, err := sim.New(sim.Config{DUT: dut, TimeScale: o.TimeScale, Seed: o.Seed})
 	if err != nil {

@@ -140,10 +140,18 @@ func rangeFor(v float64) int {
 
 // measure takes n readings back to back. Reading k integrates over
 // [t0 + kT, t0 + (k+1)T] of bench time, T = NPLC/50 s: the deterministic
-// input is sampled M times across the window as the bench advances (so
-// tails are averaged as a real integrating converter would), the noise is
-// the exact window mean of each noise process, and the reply waits until
-// the window has passed (in scaled wall time).
+// input is sampled M times across each window (so tails are averaged as a
+// real integrating converter would), the noise is the exact window mean of
+// each noise process, and the reply waits until the last window has passed
+// (in scaled wall time).
+//
+// The wait is one sleep to the end of the last window, after which the
+// model is advanced through the sample times in order: the same physics as
+// sleeping to every sample time, without n·M separate sleeps (on a
+// time-scaled bench each tiny sleep costs the wall clock's timer
+// granularity, far more than its scaled length). A command from another
+// connection that changes the model during the integration is seen from
+// the moment it was executed, for the samples not yet taken then.
 func (d *dmm) measure(ctx context.Context, s dmmSettings, n int) ([]float64, error) {
 	b := d.b
 	T := s.nplc / powerLineHz
@@ -151,35 +159,31 @@ func (d *dmm) measure(ctx context.Context, s dmmSettings, n int) ([]float64, err
 	m := int(math.Ceil(T / 0.01))
 	m = max(1, min(m, 20))
 	start := b.clock.Now()
+	if err := sleepUntil(ctx, b.clock, start.Add(time.Duration(n)*Tdur)); err != nil {
+		return nil, err
+	}
 	out := make([]float64, 0, n)
+	autoIdx := -1
+	b.mu.Lock()
 	for k := 0; k < n; k++ {
 		w0 := start.Add(time.Duration(k) * Tdur)
 		w1 := w0.Add(Tdur)
 		ri := s.rangeIdx
 		var acc float64
 		for j := 1; j <= m; j++ {
-			if err := sleepUntil(ctx, b.clock, w0.Add(time.Duration(j)*Tdur/time.Duration(m))); err != nil {
-				return nil, err
-			}
-			b.mu.Lock()
-			b.m.advance(b.benchSeconds())
+			b.m.advance(b.secondsAt(w0.Add(time.Duration(j) * Tdur / time.Duration(m))))
 			v := b.m.meterDeterministic()
-			b.mu.Unlock()
 			if j == 1 && s.auto {
 				ri = rangeFor(v)
-				d.mm.Lock()
-				d.autoIdx = ri
-				d.mm.Unlock()
+				autoIdx = ri
 			}
 			acc += v
 		}
 		r := dmmRanges[ri]
 		t0, t1 := b.secondsAt(w0), b.secondsAt(w1)
-		b.mu.Lock()
 		v := acc/float64(m) + b.m.meterNoise(t0, t1)
 		v += dmmNoiseRel[s.nplc] * r * d.rng.NormFloat64()
 		v += r * d.floor.windowMean(d.rng, t0, t1)
-		b.mu.Unlock()
 		if math.Abs(v) > dmmOverloadFactor*r {
 			out = append(out, math.Copysign(math.Inf(1), v))
 			continue
@@ -187,6 +191,12 @@ func (d *dmm) measure(ctx context.Context, s dmmSettings, n int) ([]float64, err
 		v = v*(1+d.gain[ri]) + d.offset[ri]
 		res := 0.1 * dmmNoiseRel[s.nplc] * r
 		out = append(out, math.Round(v/res)*res)
+	}
+	b.mu.Unlock()
+	if autoIdx >= 0 {
+		d.mm.Lock()
+		d.autoIdx = autoIdx
+		d.mm.Unlock()
 	}
 	return out, nil
 }

@@ -1,0 +1,121 @@
+package main
+
+import (
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+
+	"github.com/xuri/excelize/v2"
+
+	"nullbench/report"
+)
+
+// cliDemoDUT is a small invented lot for the demo: one HX-4107 whose CMRR
+// (94 dB) is below the demo plan's 100 dB limit, and one HB-220 board.
+const cliDemoDUT = `# cmd demo test: invented parts (Harrowgate Analog Test demo data)
+seed = 77
+
+[part]
+number = "HX-4107"
+
+[lot]
+id = "L-DEMO-T"
+fixture = "nulling_loop"
+noise_gain = 1000.0
+
+[[unit]]
+id = "U01"
+cmrr_db = 94.0
+psrr_pos_db = 118.0
+psrr_neg_db = 108.0
+
+[[board]]
+id = "B01"
+number = "HB-220"
+gain = 10.0
+resistor_tolerance = 0.001
+resistor_errors = [0.0006, -0.0004, -0.0007, 0.0003]
+
+[board.opamp]
+cmrr_db = 110.0
+psrr_pos_db = 112.0
+psrr_neg_db = 108.0
+`
+
+// The demo with a DUT file of two units: its plans, journals, workbook and
+// JSON lines; a failing part is part of the demo's story (exit 0); report
+// rebuilds the same results from the two journals.
+func TestDemoWithSmallDUT(t *testing.T) {
+	dir := t.TempDir()
+	dut := cliWriteFile(t, dir, "dut.toml", cliDemoDUT)
+	out := filepath.Join(dir, "demo")
+	// 10000× real time: the lot's three chamber temperatures and the board
+	// take a few seconds.
+	args := []string{"demo", "--dut", dut, "--out", out, "--json", "--no-charts", "--time-scale", "10000"}
+	r := cliExec(t, args...)
+	cliWantCode(t, r, exitOK, args...)
+	for _, f := range []string{"lot-plan.toml", "lot-journal.jsonl", "board-B01-plan.toml", "board-B01-journal.jsonl", "campaign.xlsx", "results.csv", "results.jsonl"} {
+		if _, err := os.Stat(filepath.Join(out, f)); err != nil {
+			t.Errorf("demo did not write %s: %v", f, err)
+		}
+	}
+	if !strings.Contains(r.err, "results: ") || !strings.Contains(r.err, "workbook: ") {
+		t.Errorf("no summary on stderr:\n%s", r.err)
+	}
+	lines := cliJSONLines(t, r.out)
+	count := map[string]int{}
+	verdicts := map[string]string{}
+	for _, m := range lines {
+		for _, k := range cliResultKeys {
+			if _, ok := m[k]; !ok {
+				t.Errorf("result lacks %q: %v", k, m)
+			}
+		}
+		key := m["unit"].(string) + "/" + m["test"].(string)
+		count[key]++
+		if m["temperature_c"] == 25.0 {
+			verdicts[key] = m["verdict"].(string)
+		}
+	}
+	// The lot plan: three temperatures × (cmrr, its uncorrected value,
+	// psrr_pos, psrr_neg, psrr_worst, psrr_sym, aol); the board: one
+	// temperature × three tests.
+	want := map[string]int{}
+	for _, test := range []string{"cmrr", "cmrr_uncorrected", "psrr_pos", "psrr_neg", "psrr_worst", "psrr_sym", "aol"} {
+		want["U01/"+test] = 3
+	}
+	for _, test := range []string{"board_cmrr", "board_psrr_pos", "board_psrr_neg"} {
+		want["B01/"+test] = 1
+	}
+	for k, n := range want {
+		if count[k] != n {
+			t.Errorf("%s: %d results, want %d", k, count[k], n)
+		}
+	}
+	if len(lines) != 24 {
+		t.Errorf("%d results, want 24: %v", len(lines), count)
+	}
+	if verdicts["U01/cmrr"] != "fail" || verdicts["U01/psrr_pos"] != "pass" || verdicts["B01/board_cmrr"] != "pass" {
+		t.Errorf("verdicts at 25 °C %v; want U01 cmrr fail (94 dB against 100), psrr_pos and the board pass", verdicts)
+	}
+
+	f, err := excelize.OpenFile(filepath.Join(out, "campaign.xlsx"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	rows, err := f.GetRows(report.SheetResults)
+	f.Close()
+	if err != nil || len(rows) != 1+len(lines) {
+		t.Errorf("sheet %s: %d rows (%v), want %d", report.SheetResults, len(rows), err, 1+len(lines))
+	}
+
+	// report from the two journals alone: the same results, the same
+	// exit status a run would give (5: a result failed its limit).
+	rargs := []string{"report", filepath.Join(out, "lot-journal.jsonl"), filepath.Join(out, "board-B01-journal.jsonl"), "--out", filepath.Join(dir, "again"), "--json", "--no-charts"}
+	rr := cliExec(t, rargs...)
+	cliWantCode(t, rr, exitOutOfLimits, rargs...)
+	if rr.out != r.out {
+		t.Errorf("report from the journals differs from the demo's results:\n%s\nwant:\n%s", rr.out, r.out)
+	}
+}
