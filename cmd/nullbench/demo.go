@@ -137,7 +137,14 @@ func writeDemoPlans(dir string, bench *sim.Bench, dut *sim.DUTFile, timeScale fl
 				return nil, fmt.Errorf("the demo needs one noise gain for the whole lot; units %s and %s differ", opamps[0].ID, u.ID)
 			}
 		}
-		text := strings.NewReplacer("{{LOT}}", dut.LotID, "{{NOISE_GAIN}}", num(gain)).Replace(demoLotPlan)
+		// Supply steps leave a self-heating tail with the die's time
+		// constant: wait 8 τ (see demo/lot.toml).
+		tau := part.DieTauSeconds
+		if tau <= 0 {
+			tau = 2
+		}
+		text := strings.NewReplacer("{{LOT}}", dut.LotID, "{{NOISE_GAIN}}", num(gain),
+			"{{SUPPLY_DWELL}}", num(8*tau)).Replace(demoLotPlan)
 		var b strings.Builder
 		b.WriteString(text)
 		fmt.Fprintf(&b, "\n[part]\nnumber = %q\nnominal_pos_volts = %s\nnominal_neg_volts = %s\nmax_supply_span_volts = %s\n"+
