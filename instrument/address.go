@@ -35,7 +35,8 @@ const (
 
 // addressExamples is appended to every address error so the user sees a
 // correct example of both forms.
-const addressExamples = `want tcp://HOST[:PORT] (port defaults to 5025), e.g. "tcp://192.168.1.50:5025", ` +
+// 192.0.2.0/24 is TEST-NET-1, reserved for documentation (RFC 5737).
+const addressExamples = `want tcp://HOST[:PORT] (port defaults to 5025), e.g. "tcp://192.0.2.50:5025", ` +
 	`or serial://DEVICE[?baud=N&bits=5..8&parity=none|odd|even|mark|space&stop=1|1.5|2], ` +
 	`e.g. "serial:///dev/ttyUSB0?baud=115200&bits=8&parity=none&stop=1"`
 

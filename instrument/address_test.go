@@ -22,7 +22,7 @@ func TestParseAddress(t *testing.T) {
 	}{
 		// 5025 is the LXI "scpi-raw" port (LXI Consortium, "LXI Ports,
 		// Protocols, and Services", METHODS.md §3).
-		{"tcp://192.168.1.50", tcp("192.168.1.50", 5025), "tcp://192.168.1.50:5025"},
+		{"tcp://192.0.2.50", tcp("192.0.2.50", 5025), "tcp://192.0.2.50:5025"},
 		{"tcp://127.0.0.1:40001", tcp("127.0.0.1", 40001), ""},
 		{"tcp://bench-dmm.local:9221", tcp("bench-dmm.local", 9221), ""},
 		{"TCP://host:1", tcp("host", 1), "tcp://host:1"},
@@ -62,7 +62,7 @@ func TestParseAddress(t *testing.T) {
 
 func TestParseAddressErrors(t *testing.T) {
 	bad := []string{
-		"", " tcp://a", "192.168.1.50", "tcp://", "tcp://:5025", "tcp://host:0", "tcp://host:65536", "tcp://host:x",
+		"", " tcp://a", "192.0.2.50", "tcp://", "tcp://:5025", "tcp://host:0", "tcp://host:65536", "tcp://host:x",
 		"tcp://host:+5", "tcp://host/path", "tcp://host?x=1", "tcp://::1", "udp://host", "serial://",
 		"serial:///", "serial://dev/ttyUSB0", "serial:///dev/ttyUSB0?baud=fast", "serial:///dev/ttyUSB0?baud=0",
 		"serial:///dev/ttyUSB0?bits=9", "serial:///dev/ttyUSB0?parity=yes", "serial:///dev/ttyUSB0?stop=3",
@@ -77,7 +77,7 @@ func TestParseAddressErrors(t *testing.T) {
 			continue
 		}
 		// Every error shows a correct example of both forms.
-		for _, ex := range []string{"tcp://192.168.1.50:5025", "serial:///dev/ttyUSB0?baud=115200&bits=8&parity=none&stop=1"} {
+		for _, ex := range []string{"tcp://192.0.2.50:5025", "serial:///dev/ttyUSB0?baud=115200&bits=8&parity=none&stop=1"} {
 			if !strings.Contains(err.Error(), ex) {
 				t.Errorf("error for %q lacks the example %q: %v", in, ex, err)
 			}
@@ -86,7 +86,7 @@ func TestParseAddressErrors(t *testing.T) {
 }
 
 func FuzzParseAddress(f *testing.F) {
-	for _, s := range []string{"tcp://192.168.1.50", "tcp://127.0.0.1:40001", "tcp://[::1]:5025",
+	for _, s := range []string{"tcp://192.0.2.50", "tcp://127.0.0.1:40001", "tcp://[::1]:5025",
 		"serial:///dev/ttyUSB0?baud=115200&bits=8&parity=none&stop=1", "serial://COM3", "serial:///dev/pts/5?baud=9600",
 		"udp://x", "tcp://host:99999", "serial:///dev/x?stop=1.5"} {
 		f.Add(s)
