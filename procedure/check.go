@@ -228,6 +228,10 @@ func WriteCheck(w io.Writer, p *Plan) error {
 	pf("part      %s: nominal %s / %s; max span %g V; common-mode headroom %g V (V+) / %g V (V-) + margin %g V; inputs ≤ %g V beyond a rail; current limit %g A\n",
 		pt.Number, fmtVolts(pt.NominalPosVolts), fmtVolts(pt.NominalNegVolts), pt.MaxSupplySpanVolts,
 		pt.CMHeadroomPosVolts, pt.CMHeadroomNegVolts, pt.CMMarginVolts, pt.InputBeyondRailVolts, pt.CurrentLimitAmps)
+	if pt.SupplyAmpsMin > 0 || pt.SupplyAmpsMax > 0 {
+		pf("presence  each rail must draw %g … %g mA after power-up (0: unchecked), or the run stops before measuring\n",
+			1e3*pt.SupplyAmpsMin, 1e3*pt.SupplyAmpsMax)
+	}
 	switch fx.Kind {
 	case FixtureBoard:
 		pf("fixture   board, gain %g, resistor tolerance %g; max stimulus %g V\n", fx.BoardGain, fx.ResistorTolerance, fx.MaxStimulusVolts)

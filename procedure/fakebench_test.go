@@ -52,6 +52,9 @@ type fakeBench struct {
 	lastChange time.Duration
 	// readback gain error of supplies and sources (read = set·(1+readGain))
 	readGain float64
+	// supplyAmps is what each supply reports drawing (nil: 2 mA, a part
+	// in the socket).
+	supplyAmps *float64
 
 	violations []string
 	maxSpan    float64 // the largest supply span seen
@@ -299,7 +302,11 @@ func (s *fakeSupply) ReadAmps(ctx context.Context) (float64, error) {
 	fb := s.fb
 	fb.mu.Lock()
 	defer fb.mu.Unlock()
-	return 0.002, fb.call(ctx, fakeCall{Role: s.role, Op: "read-amps"}, time.Millisecond)
+	amps := 0.002
+	if fb.supplyAmps != nil {
+		amps = *fb.supplyAmps
+	}
+	return amps, fb.call(ctx, fakeCall{Role: s.role, Op: "read-amps"}, time.Millisecond)
 }
 
 type fakeSource struct {

@@ -131,6 +131,16 @@ type Part struct {
 	// InputBeyondRailVolts is how far an input may go beyond a rail
 	// (absolute maximum; typically 0.3 V).
 	InputBeyondRailVolts float64 `toml:"input_beyond_rail_volts"`
+	// SupplyAmpsMin and SupplyAmpsMax bound the current each rail should
+	// draw once the part is powered at its nominal rails (its quiescent
+	// current and the fixture's load, from the datasheet). Outside them the
+	// run stops before measuring: below, no part is in the socket or a
+	// contact is open (an empty fixture shows no change at the output and
+	// would "pass" any rejection test as an unresolved lower bound);
+	// above, the part is damaged, latched up or mis-inserted. 0 leaves a
+	// bound unchecked.
+	SupplyAmpsMin float64 `toml:"supply_amps_min"`
+	SupplyAmpsMax float64 `toml:"supply_amps_max"`
 }
 
 // Limits are the minimum acceptable ratios in dB, by test kind (cmrr,

@@ -6,6 +6,8 @@ import (
 	"fmt"
 	"math"
 	"strings"
+
+	"nullbench/instrument"
 )
 
 // powerUp runs PowerUpOrder: sources off at 0 V, current limits, supplies
@@ -17,7 +19,44 @@ func (r *runner) powerUp(ctx context.Context) error {
 	if err := r.execute(ctx, PowerUpOrder(r.p)); err != nil {
 		return err
 	}
+	if err := r.checkSupplyCurrent(ctx); err != nil {
+		return err
+	}
 	r.event(JournalEvent{Type: EventPowerUp, Unit: r.at.unit, TempIndex: r.at.tempIndex, TemperatureC: r.at.tempPoint})
+	return nil
+}
+
+// checkSupplyCurrent reads each rail's current after power-up and stops
+// the run when it lies outside part.supply_amps_min … supply_amps_max: an
+// empty socket draws nothing (and its flat output would read as an
+// unresolved, "passing" rejection), a damaged or latched part draws too
+// much. Common practice, no published source.
+func (r *runner) checkSupplyCurrent(ctx context.Context) error {
+	lo, hi := r.p.Part.SupplyAmpsMin, r.p.Part.SupplyAmpsMax
+	if lo <= 0 && hi <= 0 {
+		return nil
+	}
+	for _, rail := range []struct {
+		name string
+		s    instrument.Supply
+	}{{"V+", r.rig.SupplyPos}, {"V-", r.rig.SupplyNeg}} {
+		if rail.s == nil {
+			continue
+		}
+		amps, err := rail.s.ReadAmps(ctx)
+		if err != nil {
+			return fmt.Errorf("read the %s supply current: %w", rail.name, err)
+		}
+		a := math.Abs(amps)
+		switch {
+		case lo > 0 && a < lo:
+			return fmt.Errorf("unit %s draws %.3g mA from %s, below part.supply_amps_min %.3g mA: is the part in the socket and its contacts closed?",
+				r.at.unit, 1e3*a, rail.name, 1e3*lo)
+		case hi > 0 && a > hi:
+			return fmt.Errorf("unit %s draws %.3g mA from %s, above part.supply_amps_max %.3g mA: the part may be damaged, latched up or inserted the wrong way",
+				r.at.unit, 1e3*a, rail.name, 1e3*hi)
+		}
+	}
 	return nil
 }
 

@@ -993,3 +993,49 @@ func TestRunSettleTimeoutNeedsAComparison(t *testing.T) {
 		}
 	}
 }
+
+// TestRunChecksSupplyCurrent: with a supply-current window in the plan an
+// empty socket (no current) or a part drawing too much stops the run at
+// power-up, before any reading, and the bench goes to its safe state; a
+// part inside the window is measured. An empty fixture must not reach the
+// fit, where its flat output would read as an unresolved, "passing"
+// rejection (common practice, no published source).
+func TestRunChecksSupplyCurrent(t *testing.T) {
+	for _, tc := range []struct {
+		name  string
+		amps  float64
+		want  string // "" = the run completes
+		reads int
+	}{
+		{"part in the socket", 0.002, "", -1},
+		{"empty socket", 0, "is the part in the socket", 0},
+		{"latched part", 0.045, "may be damaged, latched up", 0},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			p := testPlan()
+			p.Part.SupplyAmpsMin, p.Part.SupplyAmpsMax = 0.0005, 0.01
+			fb := newFakeBench(p)
+			amps := tc.amps
+			fb.supplyAmps = &amps
+			out, err := runFake(context.Background(), t, p, fb, RunOptions{})
+			noViolations(t, fb)
+			if tc.want == "" {
+				if err != nil || !out.Complete {
+					t.Fatalf("run: %v", err)
+				}
+				return
+			}
+			if err == nil || !strings.Contains(err.Error(), tc.want) || !strings.Contains(err.Error(), "U01") {
+				t.Fatalf("err = %v, want it to say %q about U01", err, tc.want)
+			}
+			if len(out.Readings) != tc.reads {
+				t.Errorf("%d readings taken, want %d", len(out.Readings), tc.reads)
+			}
+			for role, o := range fb.out {
+				if o.on || o.volts != 0 {
+					t.Errorf("%s left at %g V, on=%v", role, o.volts, o.on)
+				}
+			}
+		})
+	}
+}

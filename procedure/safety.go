@@ -418,6 +418,14 @@ func CheckSafetyWith(p *Plan, consent HazardConsent) error {
 		refuse("part.current_limit_amps", 0, "set current_limit_amps under [part], e.g. 0.05 (the part's supply current with margin)",
 			"no supply current limit (%g A): a fault would draw the supplies' full current", pt.CurrentLimitAmps)
 	}
+	if pt.SupplyAmpsMin < 0 || pt.SupplyAmpsMax < 0 || (pt.SupplyAmpsMax > 0 && pt.SupplyAmpsMin > pt.SupplyAmpsMax) {
+		refuse("part.supply_amps_min", 0, "give 0 ≤ supply_amps_min ≤ supply_amps_max (amps per rail), or leave them out",
+			"supply current window %g A … %g A is not a window", pt.SupplyAmpsMin, pt.SupplyAmpsMax)
+	}
+	if pt.CurrentLimitAmps > 0 && pt.SupplyAmpsMin >= pt.CurrentLimitAmps {
+		refuse("part.supply_amps_min", 0, "the expected supply current must lie below current_limit_amps",
+			"supply_amps_min %g A is not below the current limit %g A", pt.SupplyAmpsMin, pt.CurrentLimitAmps)
+	}
 	if pt.MaxSupplySpanVolts <= 0 {
 		refuse("part.max_supply_span_volts", 0, "copy the absolute maximum supply span (V+ - V-) from the part's datasheet",
 			"the part's absolute maximum supply span is not given")

@@ -338,3 +338,32 @@ func TestFmtVolts(t *testing.T) {
 		t.Errorf("fmtMag = %q", got)
 	}
 }
+
+// TestCheckSafetySupplyCurrentWindow: the presence window must be a window
+// and lie below the current limit, or the plan is refused on its key.
+func TestCheckSafetySupplyCurrentWindow(t *testing.T) {
+	for _, tc := range []struct {
+		name     string
+		min, max float64
+		refused  bool
+	}{
+		{"unchecked", 0, 0, false},
+		{"window", 0.0005, 0.01, false},
+		{"only a minimum", 0.0005, 0, false},
+		{"inverted", 0.01, 0.0005, true},
+		{"negative", -0.001, 0.01, true},
+		{"minimum at the current limit", 0.05, 0, true}, // lot.toml limits at 0.05 A
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			p := loadExamplePlan(t, "lot")
+			p.Part.SupplyAmpsMin, p.Part.SupplyAmpsMax = tc.min, tc.max
+			err := CheckSafety(p)
+			if got := err != nil; got != tc.refused {
+				t.Fatalf("refused = %v (%v), want %v", got, err, tc.refused)
+			}
+			if tc.refused && !strings.Contains(err.Error(), "part.supply_amps_min") {
+				t.Errorf("refusal does not name the key: %v", err)
+			}
+		})
+	}
+}

@@ -1,12 +1,8 @@
 package main
 
 import (
-	"bufio"
-	"context"
 	"fmt"
 	"io"
-	"strconv"
-	"strings"
 	"time"
 
 	"github.com/schollz/progressbar/v3"
@@ -89,62 +85,4 @@ func sweepName(pi procedure.PointInfo) string {
 		return pi.Test + "/" + pi.Part
 	}
 	return pi.Test
-}
-
-// termOperator asks the person at the terminal to swap units and to type
-// temperatures.
-type termOperator struct {
-	in  *bufio.Reader
-	out io.Writer
-}
-
-func newTermOperator(in io.Reader, out io.Writer) *termOperator {
-	return &termOperator{in: bufio.NewReader(in), out: out}
-}
-
-func (o *termOperator) ask(ctx context.Context, prompt string) (string, error) {
-	fmt.Fprint(o.out, prompt)
-	type answer struct {
-		s   string
-		err error
-	}
-	ch := make(chan answer, 1)
-	go func() {
-		s, err := o.in.ReadString('\n')
-		ch <- answer{strings.TrimSpace(s), err}
-	}()
-	select {
-	case <-ctx.Done():
-		return "", ctx.Err()
-	case a := <-ch:
-		if a.err != nil && a.s == "" {
-			return "", fmt.Errorf("no answer from the operator: %w", a.err)
-		}
-		return a.s, nil
-	}
-}
-
-func (o *termOperator) SwapUnit(ctx context.Context, next procedure.Unit) (string, error) {
-	fmt.Fprintf(o.out, "\nThe bench is powered down (inputs at 0 V, supplies off).\n")
-	fmt.Fprintf(o.out, "Remove the part in the fixture and insert unit %s.\n", next.ID)
-	return o.ask(ctx, fmt.Sprintf("Type the id read off the part and press Enter (Enter alone = %s): ", next.ID))
-}
-
-func (o *termOperator) Temperature(ctx context.Context, req procedure.TemperatureRequest) (float64, error) {
-	fmt.Fprintf(o.out, "\nTemperature pass %d of %d: bring the part to %.1f °C.\n", req.Index, req.Of, req.PointCelsius)
-	if !req.Typed {
-		_, err := o.ask(ctx, "Press Enter when it has soaked: ")
-		return req.PointCelsius, err
-	}
-	for {
-		s, err := o.ask(ctx, "Type the temperature read off the gauge, °C: ")
-		if err != nil {
-			return 0, err
-		}
-		v, perr := strconv.ParseFloat(strings.TrimSpace(s), 64)
-		if perr == nil {
-			return v, nil
-		}
-		fmt.Fprintf(o.out, "%q is not a number; type for example 24.8\n", s)
-	}
 }

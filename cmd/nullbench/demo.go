@@ -5,6 +5,7 @@ import (
 	_ "embed"
 	"errors"
 	"fmt"
+	"math"
 	"os"
 	"path/filepath"
 	"strconv"
@@ -147,10 +148,15 @@ func writeDemoPlans(dir string, bench *sim.Bench, dut *sim.DUTFile, timeScale fl
 			"{{SUPPLY_DWELL}}", num(8*tau)).Replace(demoLotPlan)
 		var b strings.Builder
 		b.WriteString(text)
+		// The datasheet's quiescent current, with a wide window: a part in
+		// the socket draws it, an empty socket nothing (checked at power-up).
+		iqMin, iqMax := part.QuiescentAmps/4, math.Min(5*part.QuiescentAmps, 0.015)
 		fmt.Fprintf(&b, "\n[part]\nnumber = %q\nnominal_pos_volts = %s\nnominal_neg_volts = %s\nmax_supply_span_volts = %s\n"+
-			"cm_headroom_pos_volts = %s\ncm_headroom_neg_volts = %s\ncm_margin_volts = 0.5\ncurrent_limit_amps = 0.02\ninput_beyond_rail_volts = %s\n",
+			"cm_headroom_pos_volts = %s\ncm_headroom_neg_volts = %s\ncm_margin_volts = 0.5\ncurrent_limit_amps = 0.02\ninput_beyond_rail_volts = %s\n"+
+			"supply_amps_min = %s\nsupply_amps_max = %s\n",
 			part.Number, num(part.NominalPosVolts), num(part.NominalNegVolts), num(part.MaxSupplySpanVolts),
-			num(part.CMHeadroomPosVolts), num(part.CMHeadroomNegVolts), num(part.InputBeyondRailVolts))
+			num(part.CMHeadroomPosVolts), num(part.CMHeadroomNegVolts), num(part.InputBeyondRailVolts),
+			num(iqMin), num(iqMax))
 		writeUnits(&b, opamps)
 		b.WriteString("\n" + section)
 		path := filepath.Join(dir, "lot-plan.toml")
@@ -169,6 +175,7 @@ func writeDemoPlans(dir string, bench *sim.Bench, dut *sim.DUTFile, timeScale fl
 			"{{OPAMP_CMRR_DB}}", num(spec.OpAmp.CMRRdB), "{{BOARD_NUMBER}}", spec.Number,
 			"{{MAX_SPAN}}", num(part.MaxSupplySpanVolts), "{{CM_HEAD_POS}}", num(part.CMHeadroomPosVolts),
 			"{{CM_HEAD_NEG}}", num(part.CMHeadroomNegVolts), "{{BEYOND_RAIL}}", num(part.InputBeyondRailVolts),
+			"{{IQ_MIN}}", num(part.QuiescentAmps/4), "{{IQ_MAX}}", num(math.Min(5*part.QuiescentAmps, 0.04)),
 		).Replace(demoBoardPlan)
 		var b strings.Builder
 		b.WriteString(text)

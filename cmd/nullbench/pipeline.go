@@ -226,7 +226,7 @@ func measure(ctx context.Context, std streams, o measureOptions) (campaignRecord
 
 	var op procedure.Operator
 	if std.IsTerm {
-		op = newTermOperator(std.In, std.Err)
+		op = &procedure.LineOperator{In: std.In, Out: std.Err}
 	}
 	out, runErr := procedure.Run(ctx, p, rig, procedure.RunOptions{
 		Journal: jw, Resume: resume, Clock: clock, Operator: op,
