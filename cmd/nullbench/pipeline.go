@@ -76,6 +76,13 @@ func analyse(p *procedure.Plan, readings []procedure.Reading) (*procedure.Result
 	return res, nil
 }
 
+// chartOptions draw every unit of a lot of up to chartUnits units in the
+// per-unit charts (the lowest ratios first when there are more): enough
+// for a screening lot, few enough that the lines stay readable.
+const chartUnits = 16
+
+func chartOptions() report.ChartOptions { return report.ChartOptions{MaxUnits: chartUnits} }
+
 // writeOutputs writes the workbook, the CSV and JSON-lines exports and,
 // when asked, PNG plots, and returns the workbook's path.
 func writeOutputs(std streams, o outputOptions, c *report.Campaign) (string, error) {
@@ -83,7 +90,7 @@ func writeOutputs(std streams, o outputOptions, c *report.Campaign) (string, err
 		return "", withCode(exitFailure, err)
 	}
 	book := filepath.Join(o.Out, "campaign.xlsx")
-	if err := report.WriteWorkbook(book, c, report.WorkbookOptions{NoCharts: o.NoCharts}); err != nil {
+	if err := report.WriteWorkbook(book, c, report.WorkbookOptions{NoCharts: o.NoCharts, Charts: chartOptions()}); err != nil {
 		return "", withCode(exitFailure, fmt.Errorf("write the workbook %s: %w", book, err))
 	}
 	files := []struct {
@@ -101,7 +108,7 @@ func writeOutputs(std streams, o outputOptions, c *report.Campaign) (string, err
 		}
 	}
 	if o.Plots != "" {
-		if _, err := report.WritePlots(o.Plots, c); err != nil {
+		if _, err := report.WritePlotsWith(o.Plots, c, chartOptions()); err != nil {
 			return "", withCode(exitFailure, fmt.Errorf("write plots into %s: %w", o.Plots, err))
 		}
 	}
