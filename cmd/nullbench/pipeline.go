@@ -171,8 +171,9 @@ type measureOptions struct {
 	JournalPath    string
 	Resume         bool
 	AllowHazardous bool
-	Clock          procedure.Clock // nil: scaled wall clock from the plan
-	Log            io.Writer       // nil: none
+	Clock          procedure.Clock    // nil: scaled wall clock from the plan
+	Log            io.Writer          // nil: none
+	Operator       procedure.Operator // nil: a LineOperator on the terminal, if there is one
 }
 
 func measure(ctx context.Context, std streams, o measureOptions) (campaignRecord, *procedure.Outcome, error) {
@@ -185,7 +186,7 @@ func measure(ctx context.Context, std streams, o measureOptions) (campaignRecord
 	if err := procedure.CheckSafetyWith(p, hc); err != nil {
 		return rec, nil, safetyExit(err)
 	}
-	if why := procedure.NeedsOperator(p); why != "" && !std.IsTerm {
+	if why := procedure.NeedsOperator(p); why != "" && !std.IsTerm && o.Operator == nil {
 		return rec, nil, withCode(exitUsage, fmt.Errorf("plan %s needs an operator at a terminal (%s), and standard input is not a terminal", p.Source, why))
 	}
 	clock := o.Clock
@@ -231,8 +232,8 @@ func measure(ctx context.Context, std streams, o measureOptions) (campaignRecord
 	defer closeBench()
 	rec.Identities = rig.Identities
 
-	var op procedure.Operator
-	if std.IsTerm {
+	op := o.Operator
+	if op == nil && std.IsTerm {
 		op = &procedure.LineOperator{In: std.In, Out: std.Err}
 	}
 	out, runErr := procedure.Run(ctx, p, rig, procedure.RunOptions{

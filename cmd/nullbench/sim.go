@@ -1,8 +1,10 @@
 package main
 
 import (
+	"bufio"
 	"context"
 	"encoding/json"
+	"errors"
 	"fmt"
 	"os"
 	"slices"
@@ -28,6 +30,7 @@ type simOptions struct {
 	Truth     bool
 	TimeScale float64
 	Seed      int64
+	Socket    bool // read the person's hand-socket lines on standard input
 }
 
 func newSimCmd(std streams, run func(context.Context, streams, simOptions) error) *cobra.Command {
@@ -43,7 +46,23 @@ It prints one line per instrument with its role and address.
 
 Point "nullbench probe" or a plan's bench section at those addresses;
 --bench-out writes a matching bench section. The bench binds loopback only
-unless --listen names another address.`,
+unless --listen names another address.
+
+--socket gives the bench a hand socket for plans whose units have no switch
+channels, and makes you the person at the bench: type these lines on the
+standard input of sim, each answered on standard output:
+
+  insert ID   put unit ID (an id of the DUT file) into the socket
+  remove      take the unit out of the socket
+  status      the unit in the socket and the voltages on its contacts
+  help        these words
+
+Run "nullbench run" with such a plan in another terminal; when it asks for
+the next unit, type "remove" and "insert ID" here, then confirm there. A
+unit in the socket is measured whenever no switch channel is closed. As on
+a real bench, a part inserted or removed while the socket is live (a supply
+on, or an input driven) is damaged for good; the run only ever asks with
+the bench powered down.`,
 		Args: cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, args []string) error {
 			return failed(run(cmd.Context(), std, o))
@@ -58,6 +77,7 @@ unless --listen names another address.`,
 	f.BoolVar(&o.Truth, "truth", false, "print each unit's true values as JSON lines and exit")
 	f.Float64Var(&o.TimeScale, "time-scale", 1, "run the bench this many times faster than real time (plans must say the same time_scale)")
 	f.Int64Var(&o.Seed, "seed", 0, "seed of the instruments' errors and noise (0: the DUT file's seed)")
+	f.BoolVar(&o.Socket, "socket", false, `add a hand socket for units swapped by hand, worked by typing "insert ID", "remove" or "status" on standard input`)
 	_ = cmd.RegisterFlagCompletionFunc("serial", cobra.FixedCompletions(simInstrumentNames(), cobra.ShellCompDirectiveNoFileComp))
 	return cmd
 }
@@ -114,6 +134,106 @@ func runSim(ctx context.Context, std streams, o simOptions) error {
 		fmt.Fprintf(std.Err, "bench section written to %s\n", o.BenchOut)
 	}
 	fmt.Fprintf(std.Err, "simulated bench running at %g× real time; Ctrl-C to stop\n", bench.TimeScale())
-	<-ctx.Done()
+	if !o.Socket {
+		<-ctx.Done()
+		return nil
+	}
+	fmt.Fprintf(std.Err, "hand socket: type insert ID, remove, status or help, one per line\n")
+	serveSocket(ctx, std, bench)
 	return nil
+}
+
+// socketHands is what the socket lines need of the bench: the hands and
+// eyes of the person at it (sim.Bench).
+type socketHands interface {
+	Insert(unitID string) error
+	Remove() error
+	SocketState() sim.SocketState
+}
+
+// serveSocket reads the person's lines from std.In and answers each on
+// std.Out until ctx ends. When standard input closes, the bench keeps
+// serving without a socket console until ctx ends.
+func serveSocket(ctx context.Context, std streams, b socketHands) {
+	lines := make(chan string)
+	go func() {
+		defer close(lines)
+		sc := bufio.NewScanner(std.In)
+		for sc.Scan() {
+			select {
+			case lines <- sc.Text():
+			case <-ctx.Done():
+				return
+			}
+		}
+	}()
+	for {
+		select {
+		case <-ctx.Done():
+			return
+		case line, ok := <-lines:
+			if !ok {
+				fmt.Fprintf(std.Err, "hand socket: standard input closed; the socket takes no more lines (the bench serves on; Ctrl-C to stop)\n")
+				lines = nil
+				continue
+			}
+			if reply := socketLine(b, line); reply != "" {
+				fmt.Fprintln(std.Out, reply)
+			}
+		}
+	}
+}
+
+// socketLine carries out one line typed at the hand socket and returns
+// what to print ("" for a blank line). Words are case-insensitive; ids are
+// as the DUT file spells them.
+func socketLine(b socketHands, line string) string {
+	f := strings.Fields(line)
+	if len(f) == 0 {
+		return ""
+	}
+	word := strings.ToLower(f[0])
+	switch {
+	case word == "insert" && len(f) == 2:
+		id := f[1]
+		err := b.Insert(id)
+		switch {
+		case errors.Is(err, sim.ErrLiveSocket):
+			st := b.SocketState()
+			return fmt.Sprintf("socket: %s inserted into a LIVE socket and DAMAGED (%s); power the bench down before swapping parts", id, st.Contacts)
+		case err != nil:
+			return "socket: refused: " + strings.TrimPrefix(err.Error(), "sim: ")
+		}
+		return fmt.Sprintf("socket: %s inserted", id)
+	case word == "insert":
+		return `socket: insert takes one unit id, e.g. "insert U01"`
+	case word == "remove" && len(f) == 1:
+		id := b.SocketState().Unit
+		err := b.Remove()
+		switch {
+		case errors.Is(err, sim.ErrLiveSocket):
+			st := b.SocketState()
+			return fmt.Sprintf("socket: %s pulled out of a LIVE socket and DAMAGED (%s); power the bench down before swapping parts", id, st.Contacts)
+		case err != nil:
+			return "socket: refused: " + strings.TrimPrefix(err.Error(), "sim: ")
+		}
+		return fmt.Sprintf("socket: %s removed; the socket is empty", id)
+	case word == "status" && len(f) == 1:
+		st := b.SocketState()
+		unit := "empty"
+		if st.Unit != "" {
+			unit = "holds " + st.Unit
+			if st.Damaged {
+				unit += " (DAMAGED: " + st.DamageReason + ")"
+			}
+		}
+		live := "dead: safe to swap"
+		if st.Live {
+			live = "LIVE: do not swap until the bench is powered down"
+		}
+		return fmt.Sprintf("socket: %s; contacts %s; %s", unit, st.Contacts, live)
+	case word == "help" || word == "?":
+		return `socket: type "insert ID" (put unit ID in the socket), "remove" (take it out) or "status"`
+	}
+	return fmt.Sprintf(`socket: %q not understood; type "insert ID", "remove", "status" or "help"`, strings.TrimSpace(line))
 }

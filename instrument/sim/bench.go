@@ -74,7 +74,8 @@ type Endpoint struct {
 // Bench is the simulated bench: five SCPI instruments around a physical
 // model of the parts. Create it with New, serve it with Start, stop it with
 // Close. Truth and Inspect are for tests and the `sim --truth` printout;
-// nothing they return is reachable over SCPI.
+// Insert, Remove, Socket and SocketState are the hands of the person at the
+// bench (socket.go); nothing they return or do is reachable over SCPI.
 type Bench struct {
 	cfg      Config
 	dut      *DUTFile
@@ -139,6 +140,7 @@ func New(cfg Config) (*Bench, error) {
 		chamber: chamberModel{setC: amb, airC: amb, tauS: chamberTauSeconds, rampCPerS: chamberRampCPerS, rng: rngFor(5)},
 		openRng: rngFor(6),
 	}
+	m.offMatrix, m.socketPath = map[*unit]bool{}, newSocketPath(seed)
 	psuRng, srcRng := rngFor(2), rngFor(3)
 	sup := newChannels(2, true, psuRng)
 	src := newChannels(3, false, srcRng)
@@ -533,6 +535,7 @@ type Snapshot struct {
 	Supply       []ChannelSnapshot
 	Source       []ChannelSnapshot
 	Closed       []int
+	Socket       string // id of the unit in the hand socket, "" when empty
 	Units        []UnitSnapshot
 }
 
@@ -550,7 +553,8 @@ type ChannelSnapshot struct {
 type UnitSnapshot struct {
 	ID                                        string
 	Channel                                   int
-	Connected                                 bool
+	Connected                                 bool // on the fixture buses: channel closed, or in the socket
+	InSocket                                  bool // in the hand socket (see Insert)
 	Damaged                                   bool
 	DamageReason                              string
 	DamagedAtSeconds                          float64 // bench time
@@ -577,6 +581,9 @@ func (b *Bench) Inspect() Snapshot {
 		s.Closed = append(s.Closed, ch)
 	}
 	sort.Ints(s.Closed)
+	if m.socket != nil {
+		s.Socket = m.socket.id
+	}
 	conn := map[*unit]bool{}
 	for _, u := range m.connected() {
 		conn[u] = true
@@ -585,7 +592,8 @@ func (b *Bench) Inspect() Snapshot {
 	for _, u := range m.units {
 		o := u.amp
 		us := UnitSnapshot{ID: u.id, Channel: u.channel, Connected: conn[u], Damaged: o.damaged,
-			DamageReason: o.damageReason, DamagedAtSeconds: o.damageAt, CaseC: o.caseC, DieC: o.caseC + o.dieRiseC}
+			DamageReason: o.damageReason, DamagedAtSeconds: o.damageAt, CaseC: o.caseC, DieC: o.caseC + o.dieRiseC,
+			InSocket: u == m.socket}
 		if conn[u] {
 			_, pins := u.meterAndPins(vp, vn, vcm, vd, vref, m.pathExtra(u))
 			us.VPosVolts, us.VNegVolts, us.VInVolts, us.VOutVolts = pins.vp, pins.vn, pins.vin, pins.vout

@@ -41,6 +41,23 @@
 // limits, relay thermal EMFs and settling tails, and a chamber with a lagged,
 // ramp-limited air temperature that the parts follow with their own lag.
 //
+// # Hand socket
+//
+// Plans whose units have no switch channels have them swapped by hand. The
+// bench has a hand socket for them, wired straight onto the fixture buses
+// in parallel with the relay matrix: with no channel closed, the unit in
+// the socket is the one measured, with the same physics as on its own
+// channel (a contact EMF like a relay path's, no relay tail). A closed
+// channel parallels its unit with the socket's (the meter sees the mean,
+// as with two closed channels). The person at the bench acts through Go
+// only, never over SCPI: Bench.Insert(id), Bench.Remove(), Bench.Socket()
+// and Bench.SocketState() (what the panels and a hand-held meter show).
+// A unit inserted or pulled out while any contact of the socket is farther
+// from 0 V than the part's input_beyond_rail_volts is damaged for good (a
+// hand makes the pins in no set order, so an input goes beyond a floating
+// rail; METHODS §6), and the call says so (ErrLiveSocket). `nullbench sim
+// --socket` puts these hands on the command's standard input.
+//
 // # Time
 //
 // All dynamics follow a Clock: bench time = N × wall time for a

@@ -131,22 +131,43 @@ type model struct {
 	paths  map[int]*relayPath // every channel ever closed
 	closed map[int]bool
 
+	// socket is the unit in the hand socket (nil when empty); socketPath
+	// its contacts' thermal EMF; offMatrix the units the person has taken
+	// out of their switch-matrix positions (see socket.go).
+	socket     *unit
+	socketPath *relayPath
+	offMatrix  map[*unit]bool
+
 	openOffsetVolts float64
 	openRng         *rand.Rand
 	openPink        pinkNoise
 }
 
-// connected returns the units whose switch channels are closed, in
-// channel order.
+// connected returns the units on the fixture buses: those whose switch
+// channels are closed (and that still sit in their matrix positions), in
+// channel order, then the unit in the hand socket, which is wired straight
+// onto the buses.
 func (m *model) connected() []*unit {
 	var out []*unit
 	for ch := range m.closed {
-		if u := m.byChan[ch]; u != nil {
+		if u := m.byChan[ch]; u != nil && !m.offMatrix[u] {
 			out = append(out, u)
 		}
 	}
 	sort.Slice(out, func(i, j int) bool { return out[i].channel < out[j].channel })
+	if m.socket != nil {
+		out = append(out, m.socket)
+	}
 	return out
+}
+
+// pathOf is the contact path in series with u's input: its relay path on
+// the matrix, or the socket's contacts.
+func (m *model) pathOf(u *unit) *relayPath {
+	if u == m.socket {
+		return m.socketPath
+	}
+	return m.paths[u.channel]
 }
 
 // rails returns the rail voltages at the units (V+, V−).
@@ -322,10 +343,11 @@ func (m *model) checkDamage(conn []*unit) {
 	}
 }
 
-// pathExtra is the voltage the closed relay path of u adds in series with
-// its input at the model's time, without the slow wander (see noise).
+// pathExtra is the voltage the closed relay path of u (or the hand
+// socket's contacts) adds in series with its input at the model's time,
+// without the slow wander (see noise).
 func (m *model) pathExtra(u *unit) float64 {
-	rp := m.paths[u.channel]
+	rp := m.pathOf(u)
 	if rp == nil {
 		return 0
 	}
@@ -354,8 +376,9 @@ func (m *model) meterDeterministic() float64 {
 }
 
 // meterNoise is the noise the meter input sees averaged over [t0, t1]: the
-// part's input noise times its noise gain, the relay path's slow EMF wander
-// times the path gain; an open input picks up more.
+// part's input noise times its noise gain, the relay path's (or socket
+// contacts') slow EMF wander times the path gain; an open input picks up
+// more.
 func (m *model) meterNoise(t0, t1 float64) float64 {
 	conn := m.connected()
 	if len(conn) == 0 {
@@ -365,7 +388,7 @@ func (m *model) meterNoise(t0, t1 float64) float64 {
 	for _, u := range conn {
 		g := u.rtiGain()
 		v := u.amp.noiseWindow(t0, t1)
-		if rp := m.paths[u.channel]; rp != nil {
+		if rp := m.pathOf(u); rp != nil {
 			v += rp.wander.windowMean(rp.rng, t0, t1)
 		}
 		s += g * v
