@@ -46,12 +46,13 @@ func TestWriteCheckGolden(t *testing.T) {
 
 // TestEstimateDurationLot works the lot plan's estimate out by hand:
 // one point = dwell 2 s + (5 readings + 2 settle readings) × 1 NPLC / 50 Hz
-// × 1.5 = 2 + 7 × 0.03 = 2.21 s; a zigzag pass of 5 levels is 10 points,
-// so each of the 5 tests takes 22.1 s and a unit 110.5 s at a temperature;
-// × 10 units × 3 temperatures = 3315 s. Chamber: 25 °C from ambient 25 °C
-// (0 s) + 300 s soak; to -40 °C: 65 °C at 5 °C/min = 780 s + 300 s; to
-// 85 °C: 125 °C = 1500 s + 300 s; 3180 s in all. Total 6495 s of bench
-// time, 32.475 s of wall time at time_scale 200.
+// × 1.5 = 2 + 7 × 0.03 = 2.21 s for cmrr and aol, and 16 + 0.21 = 16.21 s
+// for the three supply tests (dwell 16 s); a zigzag pass of 5 levels is
+// 10 points, so a unit takes 2 × 22.1 + 3 × 162.1 = 530.5 s at a
+// temperature; × 10 units × 3 temperatures = 15915 s. Chamber: 25 °C from
+// ambient 25 °C (0 s) + 300 s soak; to -40 °C: 65 °C at 5 °C/min = 780 s +
+// 300 s; to 85 °C: 125 °C = 1500 s + 300 s; 3180 s in all. Total 19095 s of
+// bench time, 95.475 s of wall time at time_scale 200.
 func TestEstimateDurationLot(t *testing.T) {
 	e := EstimateDuration(loadExamplePlan(t, "lot"))
 	near := func(name string, got, want float64) {
@@ -64,11 +65,11 @@ func TestEstimateDurationLot(t *testing.T) {
 	if e.Tests[0].Points != 10 {
 		t.Errorf("points per pass %d, want 10", e.Tests[0].Points)
 	}
-	near("unit", e.UnitSeconds, 110.5)
-	near("measure", e.MeasureSeconds, 3315)
+	near("unit", e.UnitSeconds, 530.5)
+	near("measure", e.MeasureSeconds, 15915)
 	near("soak", e.SoakSeconds, 3180)
-	near("total", e.TotalSeconds, 6495)
-	near("wall", e.WallSeconds, 32.475)
+	near("total", e.TotalSeconds, 19095)
+	near("wall", e.WallSeconds, 95.475)
 	if e.Units != 10 || e.Temperatures != 3 {
 		t.Errorf("units %d temperatures %d", e.Units, e.Temperatures)
 	}

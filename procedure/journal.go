@@ -42,6 +42,7 @@ const (
 	EventTemperatureSet = "temperature-set" // a chamber set point was sent
 	EventPowerUp        = "power-up"        // the power-up sequence finished
 	EventPowerDown      = "power-down"      // the power-down sequence finished
+	EventBenchOff       = "bench-off"       // every output switched off before the first unit
 )
 
 // End statuses (JournalEnd.Status).

@@ -338,6 +338,9 @@ func (r *runner) run(ctx context.Context) (*Outcome, error) {
 	}
 	err := r.journalIdentities()
 	if err == nil {
+		err = r.benchOff(ctx)
+	}
+	if err == nil {
 		err = r.campaign(ctx)
 	}
 	if err == nil {

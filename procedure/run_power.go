@@ -60,6 +60,86 @@ func (r *runner) checkSupplyCurrent(ctx context.Context) error {
 	return nil
 }
 
+// benchOff switches every output off before the campaign moves a relay or
+// asks for a part. The bench's state at the start is not known: a run
+// killed outright (kill -9, a crash, a power cut of the computer) leaves
+// the outputs as they were. Each source is read back, ramped to 0 V in
+// steps of at most safety.ramp_step_volts and switched off; then each
+// supply the same way. The part sees at worst its supplies ramped down
+// with its inputs at ground, never an input beyond the rails of an
+// unpowered part. An output that cannot be brought down stops the run
+// before anything else happens.
+func (r *runner) benchOff(ctx context.Context) error {
+	r.at.stage = stagePowerDown
+	type output interface {
+		SetVolts(context.Context, float64) error
+		SetOutput(context.Context, bool) error
+		ReadVolts(context.Context) (float64, error)
+	}
+	down := func(role string, o output, supply bool) error {
+		v, err := o.ReadVolts(ctx)
+		if err != nil {
+			return fmt.Errorf("%s: read back before the first unit: %w", role, err)
+		}
+		for _, step := range rampTo(v, 0, r.p.Safety.RampStepVolts) {
+			if err := o.SetVolts(ctx, step); err != nil {
+				return fmt.Errorf("%s: ramp to 0 V before the first unit: %w", role, err)
+			}
+			if err := r.clk.Sleep(ctx, r.timing.RampDwell); err != nil {
+				return err
+			}
+		}
+		if err := o.SetOutput(ctx, false); err != nil {
+			return fmt.Errorf("%s: switch off before the first unit: %w", role, err)
+		}
+		if supply {
+			// Programmed to 0 V too, so the next power-up starts there.
+			if err := o.SetVolts(ctx, 0); err != nil {
+				return fmt.Errorf("%s: set 0 V before the first unit: %w", role, err)
+			}
+		}
+		return nil
+	}
+	for _, role := range sourceRoles(r.p) {
+		if src := r.source(role); src != nil {
+			if err := down(role, src, false); err != nil {
+				return err
+			}
+			r.srcSafe[role] = true
+		}
+	}
+	for _, role := range []string{RoleSupplyPos, RoleSupplyNeg} {
+		if sup := r.supply(role); sup != nil {
+			if err := down(role, sup, true); err != nil {
+				return err
+			}
+		}
+	}
+	r.state = BenchState{}
+	r.powered = false
+	r.event(JournalEvent{Type: EventBenchOff, TempIndex: -1, Detail: "every output ramped to 0 V and switched off before the first unit"})
+	return nil
+}
+
+// rampTo lists the set points from v to target in steps of at most step
+// volts, ending exactly at target; nothing when v is already there (within
+// 1 mV, a supply's resolution).
+func rampTo(v, target, step float64) []float64 {
+	if step <= 0 {
+		step = DefaultRampStepVolts
+	}
+	d := target - v
+	if math.Abs(d) < 1e-3 {
+		return nil
+	}
+	n := int(math.Ceil(math.Abs(d)/step - 1e-9))
+	out := make([]float64, 0, n)
+	for i := 1; i < n; i++ {
+		out = append(out, v+d*float64(i)/float64(n))
+	}
+	return append(out, target)
+}
+
 // powerDown runs PowerDownFrom the present state: sources ramped to 0 V
 // and off, then the rails ramped down and off.
 func (r *runner) powerDown(ctx context.Context) error {

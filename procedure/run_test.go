@@ -511,6 +511,10 @@ func (s *measurementSpotter) measurement(c fakeCall) bool {
 	switch c.Op {
 	case "read-volts":
 		s.afterReadBack = true
+	case "set-volts", "output", "current-limit", "close", "open", "open-all":
+		// A read-back followed by a move is not a point's read-back (the
+		// bench is switched off at the start from read-back values).
+		s.afterReadBack = false
 	case "read-n":
 		was := s.afterReadBack
 		s.afterReadBack = false
@@ -661,7 +665,8 @@ func TestRunFaultBringsBenchToSafeState(t *testing.T) {
 			return p
 		},
 			// point 4 is at +5 V: the source dies before it is read back
-			fault: func() func(fakeCall) error { return failNth(RoleSourceCM, "read-volts", 4, errLost, true) },
+			// (read-back 5: the first is the check before the first unit)
+			fault: func() func(fakeCall) error { return failNth(RoleSourceCM, "read-volts", 5, errLost, true) },
 			is:    instrument.ErrClosed, stage: stageReadBack, unit: "U01", test: TestCMRR, supplies: "left", safeOK: false},
 		{name: "chamber soak time-out", plan: func() *Plan {
 			p := withChamber(testPlan(), 25, 60)
@@ -1037,5 +1042,41 @@ func TestRunChecksSupplyCurrent(t *testing.T) {
 				}
 			}
 		})
+	}
+}
+
+// TestRunSwitchesALiveBenchOffFirst: a bench left live by a run that was
+// killed outright (supplies on at their rails, a source driving the
+// inputs) is switched off — sources first, then supplies — before the
+// first relay moves or the first part is asked for (SAFETY.md: power
+// sequencing; common practice, no published source).
+func TestRunSwitchesALiveBenchOffFirst(t *testing.T) {
+	p := testPlan()
+	fb := newFakeBench(p)
+	fb.out[RoleSupplyPos] = &fakeOutput{volts: 15, on: true}
+	fb.out[RoleSupplyNeg] = &fakeOutput{volts: -15, on: true}
+	fb.out[RoleSourceCM] = &fakeOutput{volts: 2, on: true}
+	if _, err := runFake(context.Background(), t, p, fb, RunOptions{}); err != nil {
+		t.Fatal(err)
+	}
+	noViolations(t, fb)
+	calls := fb.callsSnapshot()
+	firstSwitch, lastSourceOff, firstSupplyOff := -1, -1, -1
+	for i, c := range calls {
+		switch {
+		case c.Role == RoleSwitch && firstSwitch < 0:
+			firstSwitch = i
+		case c.Op == "output" && !c.On && isSourceRole(c.Role) && firstSwitch < 0:
+			lastSourceOff = i
+		case c.Op == "output" && !c.On && (c.Role == RoleSupplyPos || c.Role == RoleSupplyNeg) && firstSupplyOff < 0:
+			firstSupplyOff = i
+		}
+	}
+	if firstSwitch < 0 || lastSourceOff < 0 || firstSupplyOff < 0 {
+		t.Fatalf("switch call %d, source off %d, supply off %d: missing", firstSwitch, lastSourceOff, firstSupplyOff)
+	}
+	if !(lastSourceOff < firstSupplyOff && firstSupplyOff < firstSwitch) {
+		t.Errorf("order: source off at call %d, first supply off at %d, first switch call at %d; want sources, then supplies, then the switch",
+			lastSourceOff, firstSupplyOff, firstSwitch)
 	}
 }

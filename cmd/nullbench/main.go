@@ -59,7 +59,13 @@ type streams struct {
 func main() { os.Exit(run()) }
 
 func run() int {
-	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt, syscall.SIGTERM)
+	// Ctrl-C, kill, and a closed terminal or ssh session (SIGHUP) all
+	// cancel the context, so a run brings the bench to its safe state.
+	// SIGPIPE is ignored: a closed output pipe (| tee, | head) then gives
+	// write errors, which the progress lines ignore, instead of killing the
+	// process with the supplies on.
+	signal.Ignore(syscall.SIGPIPE)
+	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt, syscall.SIGTERM, syscall.SIGHUP)
 	defer stop()
 	std := streams{In: os.Stdin, Out: os.Stdout, Err: os.Stderr, IsTerm: isTerminal(os.Stdin) && isTerminal(os.Stderr)}
 	return execute(ctx, std, os.Args[1:])

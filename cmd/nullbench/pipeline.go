@@ -140,7 +140,7 @@ func writeFile(path string, write func(io.Writer) error) error {
 // consent asks for permission to run a hazardous plan. It returns an error
 // (exit code: safety) when the plan is hazardous and the operator has not
 // allowed it; it never asks without a terminal.
-func consent(std streams, p *procedure.Plan, allow bool) (procedure.HazardConsent, error) {
+func consent(std streams, in *bufio.Reader, p *procedure.Plan, allow bool) (procedure.HazardConsent, error) {
 	h := procedure.AssessHazard(p)
 	c := procedure.HazardConsent{AllowOption: allow, Interactive: std.IsTerm}
 	if !h.Hazardous {
@@ -154,7 +154,7 @@ func consent(std streams, p *procedure.Plan, allow bool) (procedure.HazardConsen
 		return c, withCode(exitSafety, fmt.Errorf("plan %s is hazardous (%.1f V); it needs an interactive confirmation and there is no terminal", p.Source, h.MaxAcrossVolts))
 	}
 	fmt.Fprint(std.Err, procedure.HazardPrompt(h))
-	line, _ := bufio.NewReader(std.In).ReadString('\n')
+	line, _ := in.ReadString('\n')
 	c.Confirmed = procedure.HazardAnswerOK(line)
 	if !c.Confirmed {
 		return c, withCode(exitSafety, errors.New("hazardous plan not confirmed; nothing was switched on"))
@@ -179,7 +179,10 @@ type measureOptions struct {
 func measure(ctx context.Context, std streams, o measureOptions) (campaignRecord, *procedure.Outcome, error) {
 	p := o.Plan
 	rec := campaignRecord{Plan: p, Started: time.Now().UTC()}
-	hc, err := consent(std, p, o.AllowHazardous)
+	// One reader for the terminal, so nothing typed ahead of the hazard
+	// question is lost to the operator's prompts.
+	in := bufio.NewReader(std.In)
+	hc, err := consent(std, in, p, o.AllowHazardous)
 	if err != nil {
 		return rec, nil, err
 	}
@@ -234,7 +237,7 @@ func measure(ctx context.Context, std streams, o measureOptions) (campaignRecord
 
 	op := o.Operator
 	if op == nil && std.IsTerm {
-		op = &procedure.LineOperator{In: std.In, Out: std.Err}
+		op = &procedure.LineOperator{In: in, Out: std.Err}
 	}
 	out, runErr := procedure.Run(ctx, p, rig, procedure.RunOptions{
 		Journal: jw, Resume: resume, Clock: clock, Operator: op,
