@@ -52,6 +52,9 @@ type fakeBench struct {
 	lastChange time.Duration
 	// readback gain error of supplies and sources (read = set·(1+readGain))
 	readGain float64
+	// lateFault, when set, fails a set-volts call after the output has
+	// changed (a reply lost after the instrument acted).
+	lateFault func(fakeCall) error
 	// supplyAmps is what each supply reports drawing (nil: 2 mA, a part
 	// in the socket).
 	supplyAmps *float64
@@ -217,6 +220,10 @@ func (fb *fakeBench) setVolts(ctx context.Context, role string, v float64) error
 	}
 	o.volts = v
 	fb.check(fb.calls[len(fb.calls)-1])
+	if fb.lateFault != nil {
+		// The change took effect, then the reply was lost.
+		return fb.lateFault(c)
+	}
 	return nil
 }
 

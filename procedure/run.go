@@ -269,6 +269,10 @@ type runner struct {
 
 	state    BenchState      // as programmed (the last value each channel accepted)
 	srcSafe  map[string]bool // source role -> known at 0 V or off
+	// unsure holds the roles whose last set command failed: the instrument
+	// may have applied it all the same (a reply lost after the change), so
+	// the safe state reads them back before ramping down.
+	unsure map[string]bool
 	powered  bool            // a supply output may be on
 	chamber  bool            // the chamber's set point was changed
 	at       position
@@ -280,7 +284,7 @@ type runner struct {
 func newRunner(p *Plan, rig *Rig, opt RunOptions) *runner {
 	r := &runner{p: p, rig: rig, opt: opt, timing: opt.Timing.withDefaults(),
 		clk: opt.Clock, log: opt.Log, prog: opt.Progress, jw: opt.Journal,
-		out: &Outcome{}, temps: p.TemperaturePoints(), srcSafe: map[string]bool{}}
+		out: &Outcome{}, temps: p.TemperaturePoints(), srcSafe: map[string]bool{}, unsure: map[string]bool{}}
 	if r.clk == nil {
 		r.clk = NewScaledClock(p.Bench.TimeScale)
 	}

@@ -236,8 +236,12 @@ func (r *runner) do(ctx context.Context, a PowerAction) error {
 		err = fmt.Errorf("unknown role %q in a power action", a.Role)
 	}
 	if err != nil {
+		if a.Op == PowerSetVolts {
+			r.unsure[a.Role] = true
+		}
 		return fmt.Errorf("%s: %w", a, err)
 	}
+	delete(r.unsure, a.Role)
 	r.state = ApplyAction(r.state, a)
 	if isSource && (a.Op == PowerOutputOff || (a.Op == PowerSetVolts && a.Volts == 0)) {
 		r.srcSafe[a.Role] = true
@@ -284,6 +288,30 @@ func (r *runner) safeState(runCtx context.Context) error {
 			// The dwell between ramp steps runs on the fresh context; a
 			// failed sleep (deadline) only shortens the ramp.
 			_ = r.clk.Sleep(ctx, r.timing.RampDwell)
+		}
+	}
+	// A set command that failed may still have taken effect: start the
+	// ramp from what the output reads, so no step exceeds the ramp step.
+	for role := range r.unsure {
+		var o interface {
+			ReadVolts(context.Context) (float64, error)
+		}
+		if isSourceRole(role) {
+			if src := r.source(role); src != nil {
+				o = src
+			}
+		} else if sup := r.supply(role); sup != nil {
+			o = sup
+		}
+		if o == nil {
+			continue
+		}
+		cctx, ccancel := context.WithTimeout(ctx, r.timing.SafeCallTimeout)
+		v, err := o.ReadVolts(cctx)
+		ccancel()
+		if err == nil {
+			r.state = ApplyAction(r.state, PowerAction{Op: PowerSetVolts, Role: role, Volts: v})
+			delete(r.unsure, role)
 		}
 	}
 	acts := PowerDownFrom(r.p, r.state)

@@ -1080,3 +1080,42 @@ func TestRunSwitchesALiveBenchOffFirst(t *testing.T) {
 			lastSourceOff, firstSupplyOff, firstSwitch)
 	}
 }
+
+// TestRunSafeStateAfterALostReply: a supply applies a set command but its
+// reply is lost (the call times out). The safe state must ramp down from
+// where the output really is, read back, so that no step on the live rail
+// exceeds the plan's ramp step.
+func TestRunSafeStateAfterALostReply(t *testing.T) {
+	p := testPlan()
+	for _, tc := range p.Tests {
+		if tc.Kind == TestPSRRPos {
+			p.Tests = []Test{tc}
+			break
+		}
+	}
+	p.Tests[0].Levels = []float64{-4, -2, 0, 2, 4}
+	p.Units = p.Units[:1]
+	fb := newFakeBench(p)
+	n := 0
+	fb.lateFault = func(c fakeCall) error {
+		// V+ moving above nominal during the sweep (16, then 17 V for the
+		// +2 V level): the step up to 17 V takes effect, then the reply is
+		// lost, so the runner believes 16 V.
+		if c.Role == RoleSupplyPos && c.Arg > p.Part.NominalPosVolts {
+			if n++; n == 2 {
+				return fmt.Errorf("%s: %w", c, errLost)
+			}
+		}
+		return nil
+	}
+	_, err := runFake(context.Background(), t, p, fb, RunOptions{})
+	if err == nil {
+		t.Fatal("the run went on after a lost reply")
+	}
+	noViolations(t, fb)
+	for role, o := range fb.out {
+		if o.on || o.volts != 0 {
+			t.Errorf("%s left at %g V, on=%v", role, o.volts, o.on)
+		}
+	}
+}
