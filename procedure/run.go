@@ -267,14 +267,14 @@ type runner struct {
 	out    *Outcome
 	temps  []float64
 
-	state    BenchState      // as programmed (the last value each channel accepted)
-	srcSafe  map[string]bool // source role -> known at 0 V or off
+	state   BenchState      // as programmed (the last value each channel accepted)
+	srcSafe map[string]bool // source role -> known at 0 V or off
 	// unsure holds the roles whose last set command failed: the instrument
 	// may have applied it all the same (a reply lost after the change), so
 	// the safe state reads them back before ramping down.
-	unsure map[string]bool
-	powered  bool            // a supply output may be on
-	chamber  bool            // the chamber's set point was changed
+	unsure   map[string]bool
+	powered  bool // a supply output may be on
+	chamber  bool // the chamber's set point was changed
 	at       position
 	tempC    float64 // temperature recorded with readings when not read per point
 	eta      etaEstimator
