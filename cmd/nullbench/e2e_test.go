@@ -39,6 +39,26 @@ func (c e2eClock) Sleep(ctx context.Context, d time.Duration) error {
 	return c.c.Sleep(ctx, d)
 }
 
+// startVirtualBench serves the simulated bench of dut on loopback with a
+// virtual clock the test can share with the procedure (e2eClock); the
+// bench closes and the returned context ends when the test does, or after
+// timeout.
+func startVirtualBench(t *testing.T, dut *sim.DUTFile, timeout time.Duration) (context.Context, *sim.Bench, *sim.ManualClock) {
+	t.Helper()
+	clk := sim.NewManualClock()
+	bench, err := sim.New(sim.Config{DUT: dut, Clock: clk})
+	if err != nil {
+		t.Fatal(err)
+	}
+	t.Cleanup(func() { bench.Close() })
+	ctx, cancel := context.WithTimeout(context.Background(), timeout)
+	t.Cleanup(cancel)
+	if err := bench.Start(ctx, sim.ServeOptions{}); err != nil {
+		t.Fatal(err)
+	}
+	return ctx, bench, clk
+}
+
 // e2eUnit is one simulated op-amp: its true ratios (dB at 25 °C) and
 // optional extra DUT keys.
 type e2eUnit struct {
@@ -131,17 +151,7 @@ func runE2E(t *testing.T, dutTOML string, plan func(b *sim.Bench, demoPlan strin
 	if err != nil {
 		t.Fatalf("DUT file: %v", err)
 	}
-	clk := sim.NewManualClock()
-	bench, err := sim.New(sim.Config{DUT: dut, Clock: clk})
-	if err != nil {
-		t.Fatal(err)
-	}
-	t.Cleanup(func() { bench.Close() })
-	ctx, cancel := context.WithTimeout(context.Background(), 5*time.Minute)
-	t.Cleanup(cancel)
-	if err := bench.Start(ctx, sim.ServeOptions{}); err != nil {
-		t.Fatal(err)
-	}
+	ctx, bench, clk := startVirtualBench(t, dut, 5*time.Minute)
 	paths, err := writeDemoPlans(dir, bench, dut, 1)
 	if err != nil {
 		t.Fatal(err)

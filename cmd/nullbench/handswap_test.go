@@ -160,17 +160,7 @@ func runHandSwap(t *testing.T, units []e2eUnit, hands *benchHands) *handSwapRun 
 	if err != nil {
 		t.Fatal(err)
 	}
-	clk := sim.NewManualClock()
-	bench, err := sim.New(sim.Config{DUT: dut, Clock: clk})
-	if err != nil {
-		t.Fatal(err)
-	}
-	t.Cleanup(func() { bench.Close() })
-	ctx, cancel := context.WithTimeout(context.Background(), 2*time.Minute)
-	t.Cleanup(cancel)
-	if err := bench.Start(ctx, sim.ServeOptions{}); err != nil {
-		t.Fatal(err)
-	}
+	ctx, bench, clk := startVirtualBench(t, dut, 2*time.Minute)
 	hands.bench = bench
 	ids := make([]string, len(units))
 	for i, u := range units {
