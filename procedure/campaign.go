@@ -5,6 +5,9 @@ import (
 	"fmt"
 	"math"
 	"time"
+
+	"nullbench/procedure/journal"
+	"nullbench/procedure/plan"
 )
 
 // enterTemperature brings the campaign to temperature pass ti (point °C):
@@ -24,23 +27,23 @@ func (r *runner) enterTemperature(ctx context.Context, ti int, point float64) er
 	tp := &r.p.Temperature
 	r.tempC = point
 	switch tp.Mode {
-	case TempChamber:
+	case plan.TempChamber:
 		r.at.stage = stageTemperature
 		r.note("temperature %d of %d: chamber to %g °C (at most %g °C/min)", ti+1, len(r.temps), point, tp.RampMaxCPerMinute)
 		if err := r.rampChamber(ctx, point); err != nil {
 			return err
 		}
-		r.event(JournalEvent{Type: EventTemperatureSet, TempIndex: ti, TemperatureC: point, Detail: "set point reached; soaking"})
+		r.event(journal.Event{Type: journal.EventTemperatureSet, TempIndex: ti, TemperatureC: point, Detail: "set point reached; soaking"})
 		r.at.stage = stageSoak
 		return r.soak(ctx, ti, point)
-	case TempThermometer:
+	case plan.TempThermometer:
 		if len(tp.PointsCelsius) > 1 {
 			r.at.stage = stageTemperature
 			if _, err := r.opt.Operator.Temperature(ctx, TemperatureRequest{PointCelsius: point, Index: ti + 1, Of: len(r.temps)}); err != nil {
 				return fmt.Errorf("operator: temperature %g °C: %w", point, err)
 			}
 		}
-	case TempManual:
+	case plan.TempManual:
 		r.at.stage = stageTemperature
 		c, err := r.opt.Operator.Temperature(ctx, TemperatureRequest{PointCelsius: point, Index: ti + 1, Of: len(r.temps), Typed: true})
 		if err != nil {
@@ -50,7 +53,7 @@ func (r *runner) enterTemperature(ctx context.Context, ti int, point float64) er
 			return fmt.Errorf("operator: temperature %v °C is not a temperature", c)
 		}
 		r.tempC = c
-		r.event(JournalEvent{Type: EventTemperatureSet, TempIndex: ti, TemperatureC: c, Detail: fmt.Sprintf("typed by the operator (planned %g °C)", point)})
+		r.event(journal.Event{Type: journal.EventTemperatureSet, TempIndex: ti, TemperatureC: c, Detail: fmt.Sprintf("typed by the operator (planned %g °C)", point)})
 	}
 	return nil
 }
@@ -80,7 +83,7 @@ func (r *runner) rampChamber(ctx context.Context, target float64) error {
 		if err := r.clk.Sleep(ctx, tick); err != nil {
 			return err
 		}
-		sp = stepToward(sp, target, step)
+		sp = plan.StepToward(sp, target, step)
 		if err := ch.SetPointCelsius(ctx, sp); err != nil {
 			return fmt.Errorf("chamber: set point %g °C: %w", sp, err)
 		}
@@ -122,7 +125,7 @@ func (r *runner) soak(ctx context.Context, ti int, point float64) error {
 			}
 			if now-inSince >= soak {
 				r.tempC = c
-				r.event(JournalEvent{Type: EventSoakDone, TempIndex: ti, TemperatureC: c,
+				r.event(journal.Event{Type: journal.EventSoakDone, TempIndex: ti, TemperatureC: c,
 					Detail: fmt.Sprintf("within ±%g °C of %g °C for %g s (soak took %.0f s)", tp.SoakToleranceC, point, soak.Seconds(), (now - start).Seconds())})
 				r.note("soaked at %g °C (reading %.2f °C)", point, c)
 				return nil
@@ -131,7 +134,7 @@ func (r *runner) soak(ctx context.Context, ti int, point float64) error {
 			inSince = -1
 		}
 		if now-start >= timeout {
-			r.event(JournalEvent{Type: EventSoakTimeout, TempIndex: ti, TemperatureC: c,
+			r.event(journal.Event{Type: journal.EventSoakTimeout, TempIndex: ti, TemperatureC: c,
 				Detail: fmt.Sprintf("not within ±%g °C of %g °C for %g s after %g s", tp.SoakToleranceC, point, soak.Seconds(), timeout.Seconds())})
 			return fmt.Errorf("the chamber did not settle at %g °C: its reading did not stay within ±%g °C for %g s within soak_timeout_s = %g s (last reading %.2f °C); check the chamber, or widen temperature.soak_tolerance_c or raise temperature.soak_timeout_s",
 				point, tp.SoakToleranceC, soak.Seconds(), timeout.Seconds(), last)
@@ -145,7 +148,7 @@ func (r *runner) soak(ctx context.Context, ti int, point float64) error {
 // connectUnit puts unit u in the fixture, with the bench unpowered: on a
 // switch matrix every channel is opened and the unit's closed, then the
 // relay settles; otherwise the operator swaps it in by hand.
-func (r *runner) connectUnit(ctx context.Context, ti int, u Unit) error {
+func (r *runner) connectUnit(ctx context.Context, ti int, u plan.Unit) error {
 	if u.Channel != "" {
 		r.at.stage = stageSelect
 		sw := r.rig.Switch
@@ -158,7 +161,7 @@ func (r *runner) connectUnit(ctx context.Context, ti int, u Unit) error {
 		if err := r.clk.Sleep(ctx, r.timing.RelaySettle); err != nil {
 			return err
 		}
-		r.event(JournalEvent{Type: EventUnitSwap, Unit: u.ID, TempIndex: ti, TemperatureC: r.tempC, Detail: "switch channel " + u.Channel + " closed"})
+		r.event(journal.Event{Type: journal.EventUnitSwap, Unit: u.ID, TempIndex: ti, TemperatureC: r.tempC, Detail: "switch channel " + u.Channel + " closed"})
 		r.note("unit %s on switch channel %s", u.ID, u.Channel)
 		return nil
 	}
@@ -171,7 +174,7 @@ func (r *runner) connectUnit(ctx context.Context, ti int, u Unit) error {
 	if id != "" && id != u.ID {
 		return fmt.Errorf("the operator reports unit %q in the socket but the plan expects %q next; insert %q (the journal and resume use the plan's unit ids)", id, u.ID, u.ID)
 	}
-	r.event(JournalEvent{Type: EventUnitSwap, Unit: u.ID, TempIndex: ti, TemperatureC: r.tempC, Detail: "swapped in by hand"})
+	r.event(journal.Event{Type: journal.EventUnitSwap, Unit: u.ID, TempIndex: ti, TemperatureC: r.tempC, Detail: "swapped in by hand"})
 	return nil
 }
 

@@ -10,6 +10,8 @@ import (
 	"time"
 
 	"nullbench/instrument"
+	"nullbench/procedure/journal"
+	"nullbench/procedure/plan"
 )
 
 // fakeBench is an in-memory bench for the runner's tests. Every call is
@@ -29,7 +31,7 @@ import (
 // that decays after every change of state.
 type fakeBench struct {
 	mu  sync.Mutex
-	p   *Plan
+	p   *plan.Plan
 	clk *ManualClock
 
 	calls []fakeCall
@@ -104,11 +106,11 @@ type fakeSetPoint struct {
 	c  float64
 }
 
-func newFakeBench(p *Plan) *fakeBench {
+func newFakeBench(p *plan.Plan) *fakeBench {
 	fb := &fakeBench{p: p, clk: &ManualClock{}, out: map[string]*fakeOutput{}, closed: map[string]bool{},
 		sp: p.Temperature.AmbientCelsius, air: p.Temperature.AmbientCelsius, chamberTau: 2 * time.Minute,
 		k: 1000, vos: 20e-6, kc: 3e-6, kp: 5e-6, ko: 1e-6, boardGain: p.Fixture.BoardGain}
-	for _, r := range []string{RoleSupplyPos, RoleSupplyNeg, RoleSourceCM, RoleSourceDiff, RoleSourceRef} {
+	for _, r := range []string{plan.RoleSupplyPos, plan.RoleSupplyNeg, plan.RoleSourceCM, plan.RoleSourceDiff, plan.RoleSourceRef} {
 		fb.out[r] = &fakeOutput{}
 	}
 	return fb
@@ -119,19 +121,19 @@ func (fb *fakeBench) rig() *Rig {
 	r := &Rig{Meter: &fakeMeter{fb}}
 	b := &fb.p.Bench.Roles
 	if b.SupplyPos.Bound() {
-		r.SupplyPos = &fakeSupply{fb, RoleSupplyPos}
+		r.SupplyPos = &fakeSupply{fb, plan.RoleSupplyPos}
 	}
 	if b.SupplyNeg.Bound() {
-		r.SupplyNeg = &fakeSupply{fb, RoleSupplyNeg}
+		r.SupplyNeg = &fakeSupply{fb, plan.RoleSupplyNeg}
 	}
 	if b.SourceCM.Bound() {
-		r.SourceCM = &fakeSource{fb, RoleSourceCM}
+		r.SourceCM = &fakeSource{fb, plan.RoleSourceCM}
 	}
 	if b.SourceDiff.Bound() {
-		r.SourceDiff = &fakeSource{fb, RoleSourceDiff}
+		r.SourceDiff = &fakeSource{fb, plan.RoleSourceDiff}
 	}
 	if b.SourceRef.Bound() {
-		r.SourceRef = &fakeSource{fb, RoleSourceRef}
+		r.SourceRef = &fakeSource{fb, plan.RoleSourceRef}
 	}
 	if b.Switch.Bound() {
 		r.Switch = &fakeSwitch{fb}
@@ -139,7 +141,7 @@ func (fb *fakeBench) rig() *Rig {
 	if b.Chamber.Bound() {
 		r.Chamber = &fakeChamber{fb}
 	}
-	r.Identities = []JournalIdentity{{Instrument: "fake", Roles: []string{"all"}, IDN: "FAKE,BENCH,0,1"}}
+	r.Identities = []journal.Identity{{Instrument: "fake", Roles: []string{"all"}, IDN: "FAKE,BENCH,0,1"}}
 	return r
 }
 
@@ -172,11 +174,11 @@ func (fb *fakeBench) terminals() (pos, neg, cm, diff, ref float64) {
 		}
 		return 0
 	}
-	return v(RoleSupplyPos), v(RoleSupplyNeg), v(RoleSourceCM), v(RoleSourceDiff), v(RoleSourceRef)
+	return v(plan.RoleSupplyPos), v(plan.RoleSupplyNeg), v(plan.RoleSourceCM), v(plan.RoleSourceDiff), v(plan.RoleSourceRef)
 }
 
 func (fb *fakeBench) suppliesOn() bool {
-	return fb.out[RoleSupplyPos].on || fb.out[RoleSupplyNeg].on
+	return fb.out[plan.RoleSupplyPos].on || fb.out[plan.RoleSupplyNeg].on
 }
 
 // check records a violation of the part's absolute maxima after call c.
@@ -185,7 +187,7 @@ func (fb *fakeBench) check(c fakeCall) {
 	pos, neg, cm, diff, ref := fb.terminals()
 	beyond := fb.p.Part.InputBeyondRailVolts
 	hi, lo := cm, cm
-	if fb.p.Fixture.Kind == FixtureBoard {
+	if fb.p.Fixture.Kind == plan.FixtureBoard {
 		hi, lo = cm+math.Abs(diff), cm-math.Abs(diff)
 	}
 	bad := func(format string, args ...any) {
@@ -212,7 +214,7 @@ func (fb *fakeBench) setVolts(ctx context.Context, role string, v float64) error
 		return err
 	}
 	o := fb.out[role]
-	if o.on && math.Abs(v-o.volts) > rampStep(fb.p)+1e-9 {
+	if o.on && math.Abs(v-o.volts) > plan.RampStep(fb.p)+1e-9 {
 		fb.violations = append(fb.violations, fmt.Sprintf("call %d (%s): step of %g V on a live output", len(fb.calls), c, v-o.volts))
 	}
 	if o.volts != v && o.on {
@@ -263,7 +265,7 @@ func (fb *fakeBench) readVolts(ctx context.Context, role string) (float64, error
 func (fb *fakeBench) meterValue() float64 {
 	pos, neg, cm, diff, ref := fb.terminals()
 	var v float64
-	if fb.p.Fixture.Kind == FixtureBoard {
+	if fb.p.Fixture.Kind == plan.FixtureBoard {
 		// board: G·Vd + Acm·Vcm + supply terms, Acm = G·kc
 		v = fb.boardGain*diff + fb.boardGain*(fb.vos+fb.kc*cm+fb.kp*(pos-fb.p.Part.NominalPosVolts)-(fb.kc+fb.kp+fb.ko)*(neg-fb.p.Part.NominalNegVolts))
 	} else {
@@ -337,14 +339,14 @@ func (m *fakeMeter) ConfigureDCVolts(ctx context.Context, rng, nplc float64) err
 	fb := m.fb
 	fb.mu.Lock()
 	defer fb.mu.Unlock()
-	return fb.call(ctx, fakeCall{Role: RoleMeter, Op: "configure", Arg: rng}, time.Millisecond)
+	return fb.call(ctx, fakeCall{Role: plan.RoleMeter, Op: "configure", Arg: rng}, time.Millisecond)
 }
 
 func (m *fakeMeter) Read(ctx context.Context) (float64, error) {
 	fb := m.fb
 	fb.mu.Lock()
 	defer fb.mu.Unlock()
-	if err := fb.call(ctx, fakeCall{Role: RoleMeter, Op: "read"}, 20*time.Millisecond); err != nil {
+	if err := fb.call(ctx, fakeCall{Role: plan.RoleMeter, Op: "read"}, 20*time.Millisecond); err != nil {
 		return 0, err
 	}
 	return fb.meterValue(), nil
@@ -355,7 +357,7 @@ func (m *fakeMeter) ReadN(ctx context.Context, n int) ([]float64, error) {
 	fb.mu.Lock()
 	defer fb.mu.Unlock()
 	out := make([]float64, n)
-	if err := fb.call(ctx, fakeCall{Role: RoleMeter, Op: "read-n", Arg: float64(n)}, 0); err != nil {
+	if err := fb.call(ctx, fakeCall{Role: plan.RoleMeter, Op: "read-n", Arg: float64(n)}, 0); err != nil {
 		return nil, err
 	}
 	for i := range out {
@@ -372,7 +374,7 @@ func (s *fakeSwitch) move(ctx context.Context, op, ch string) error {
 	fb := s.fb
 	fb.mu.Lock()
 	defer fb.mu.Unlock()
-	c := fakeCall{Role: RoleSwitch, Op: op, Ch: ch}
+	c := fakeCall{Role: plan.RoleSwitch, Op: op, Ch: ch}
 	if err := fb.call(ctx, c, time.Millisecond); err != nil {
 		return err
 	}
@@ -413,7 +415,7 @@ func (c *fakeChamber) SetPointCelsius(ctx context.Context, t float64) error {
 	fb := c.fb
 	fb.mu.Lock()
 	defer fb.mu.Unlock()
-	if err := fb.call(ctx, fakeCall{Role: RoleChamber, Op: "set-point", Arg: t}, time.Millisecond); err != nil {
+	if err := fb.call(ctx, fakeCall{Role: plan.RoleChamber, Op: "set-point", Arg: t}, time.Millisecond); err != nil {
 		return err
 	}
 	fb.airNow()
@@ -426,7 +428,7 @@ func (c *fakeChamber) ReadCelsius(ctx context.Context) (float64, error) {
 	fb := c.fb
 	fb.mu.Lock()
 	defer fb.mu.Unlock()
-	if err := fb.call(ctx, fakeCall{Role: RoleChamber, Op: "read-celsius"}, time.Millisecond); err != nil {
+	if err := fb.call(ctx, fakeCall{Role: plan.RoleChamber, Op: "read-celsius"}, time.Millisecond); err != nil {
 		return 0, err
 	}
 	return fb.airNow(), nil
@@ -466,11 +468,11 @@ func failNth(role, op string, nth int, err error, sticky bool) func(fakeCall) er
 // sources on another.
 func instrumentGroup(role string) string {
 	switch role {
-	case RoleSupplyPos, RoleSupplyNeg:
+	case plan.RoleSupplyPos, plan.RoleSupplyNeg:
 		return "psu"
-	case RoleSourceCM, RoleSourceDiff, RoleSourceRef:
+	case plan.RoleSourceCM, plan.RoleSourceDiff, plan.RoleSourceRef:
 		return "src"
-	case RoleChamber, RoleThermometer:
+	case plan.RoleChamber, plan.RoleThermometer:
 		return "chamber"
 	}
 	return role
@@ -491,7 +493,7 @@ type fakeOperator struct {
 	hot      []string // swaps asked while powered
 }
 
-func (o *fakeOperator) SwapUnit(ctx context.Context, next Unit) (string, error) {
+func (o *fakeOperator) SwapUnit(ctx context.Context, next plan.Unit) (string, error) {
 	o.fb.mu.Lock()
 	pos, neg, cm, diff, ref := o.fb.terminals()
 	o.fb.mu.Unlock()

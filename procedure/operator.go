@@ -10,6 +10,8 @@ import (
 	"strconv"
 	"strings"
 	"sync"
+
+	"nullbench/procedure/plan"
 )
 
 // Operator is the person at the bench, for the steps a program cannot do:
@@ -22,7 +24,7 @@ type Operator interface {
 	// next and confirms. It returns the id the operator read off the part;
 	// "" means "the unit the plan names". A different id is refused by the
 	// run (the journal and the resume keys use the plan's ids).
-	SwapUnit(ctx context.Context, next Unit) (id string, err error)
+	SwapUnit(ctx context.Context, next plan.Unit) (id string, err error)
 	// Temperature is called once at the start of each temperature pass in
 	// the manual and thermometer modes. The operator brings the bench to
 	// req.PointCelsius (or confirms the room temperature) and, when
@@ -43,14 +45,14 @@ type TemperatureRequest struct {
 // units swapped by hand (no switch channels) or a manual temperature mode
 // or thermometer mode with several points. cmd refuses such plans when it
 // has no terminal to ask on.
-func NeedsOperator(p *Plan) string {
+func NeedsOperator(p *plan.Plan) string {
 	if handSwap(p) {
 		return "the units have no switch channels, so the operator swaps them by hand"
 	}
 	switch p.Temperature.Mode {
-	case TempManual:
+	case plan.TempManual:
 		return "temperature.mode = \"manual\": the operator types each temperature"
-	case TempThermometer:
+	case plan.TempThermometer:
 		if len(p.Temperature.PointsCelsius) > 1 {
 			return "temperature.mode = \"thermometer\" with several points: the operator brings the bench to each"
 		}
@@ -61,7 +63,7 @@ func NeedsOperator(p *Plan) string {
 // handSwap reports whether the plan's units are swapped by hand: no unit
 // has a switch channel (validation refuses a mix). A plan with a single
 // unit and no channel needs one swap: the operator inserts that unit.
-func handSwap(p *Plan) bool {
+func handSwap(p *plan.Plan) bool {
 	for _, u := range p.Units {
 		if u.Channel != "" {
 			return false
@@ -128,7 +130,7 @@ func (o *LineOperator) readLine(ctx context.Context) (string, error) {
 
 // SwapUnit asks for the next unit and returns the id typed (Enter confirms
 // the planned one).
-func (o *LineOperator) SwapUnit(ctx context.Context, next Unit) (string, error) {
+func (o *LineOperator) SwapUnit(ctx context.Context, next plan.Unit) (string, error) {
 	fmt.Fprintf(o.Out, "\nThe bench is powered down (inputs at 0 V, supplies off).\nInsert unit %s", next.ID)
 	if next.Notes != "" {
 		fmt.Fprintf(o.Out, " (%s)", next.Notes)

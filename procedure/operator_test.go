@@ -6,6 +6,8 @@ import (
 	"io"
 	"strings"
 	"testing"
+
+	"nullbench/procedure/plan"
 )
 
 func TestLineOperator(t *testing.T) {
@@ -17,9 +19,9 @@ func TestLineOperator(t *testing.T) {
 		err    error
 		prompt string
 	}{
-		{"swap: Enter confirms", "\n", func(o *LineOperator) (any, error) { return o.SwapUnit(context.Background(), Unit{ID: "U03"}) }, "", nil, "Insert unit U03"},
-		{"swap: id typed", "  U04 \n", func(o *LineOperator) (any, error) { return o.SwapUnit(context.Background(), Unit{ID: "U03"}) }, "U04", nil, "[U03]"},
-		{"swap: quit", "q\n", func(o *LineOperator) (any, error) { return o.SwapUnit(context.Background(), Unit{ID: "U03"}) }, "", ErrOperatorStop, ""},
+		{"swap: Enter confirms", "\n", func(o *LineOperator) (any, error) { return o.SwapUnit(context.Background(), plan.Unit{ID: "U03"}) }, "", nil, "Insert unit U03"},
+		{"swap: id typed", "  U04 \n", func(o *LineOperator) (any, error) { return o.SwapUnit(context.Background(), plan.Unit{ID: "U03"}) }, "U04", nil, "[U03]"},
+		{"swap: quit", "q\n", func(o *LineOperator) (any, error) { return o.SwapUnit(context.Background(), plan.Unit{ID: "U03"}) }, "", ErrOperatorStop, ""},
 		{"temperature typed after a wrong answer", "warm\n24.6 °C\n", func(o *LineOperator) (any, error) {
 			return o.Temperature(context.Background(), TemperatureRequest{PointCelsius: 25, Index: 1, Of: 2, Typed: true})
 		}, 24.6, nil, "not a temperature"},
@@ -45,7 +47,7 @@ func TestLineOperator(t *testing.T) {
 	}
 	t.Run("end of input", func(t *testing.T) {
 		o := &LineOperator{In: strings.NewReader(""), Out: &strings.Builder{}}
-		if _, err := o.SwapUnit(context.Background(), Unit{ID: "U01"}); err == nil {
+		if _, err := o.SwapUnit(context.Background(), plan.Unit{ID: "U01"}); err == nil {
 			t.Fatal("no error at end of input")
 		}
 	})
@@ -55,7 +57,7 @@ func TestLineOperator(t *testing.T) {
 		o := &LineOperator{In: r, Out: &strings.Builder{}}
 		ctx, cancel := context.WithCancel(context.Background())
 		cancel()
-		if _, err := o.SwapUnit(ctx, Unit{ID: "U01"}); !errors.Is(err, context.Canceled) {
+		if _, err := o.SwapUnit(ctx, plan.Unit{ID: "U01"}); !errors.Is(err, context.Canceled) {
 			t.Fatalf("err %v", err)
 		}
 	})

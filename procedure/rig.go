@@ -5,6 +5,8 @@ import (
 	"strings"
 
 	"nullbench/instrument"
+	"nullbench/procedure/journal"
+	"nullbench/procedure/plan"
 )
 
 // Rig is the bench as the sequencer sees it: one value per role, already
@@ -24,35 +26,27 @@ type Rig struct {
 
 	// Identities of the instruments behind the roles (name, roles,
 	// address, *IDN? answer): Run journals them at its start.
-	Identities []JournalIdentity
+	Identities []journal.Identity
 
 	// MeterAccuracy, StimulusAccuracy and StimulusByRole are the
 	// instruments' specified accuracies, for the uncertainty budget (Type
-	// B, GUM 4.3; AnalysisInputs takes them as they are). StimulusByRole
+	// B, GUM 4.3; analysis.Inputs takes them as they are). StimulusByRole
 	// holds the read-back accuracy of each supply and source role (the fit
 	// uses read-back values); StimulusAccuracy stands for any role not in
 	// it.
-	MeterAccuracy, StimulusAccuracy Accuracy
-	StimulusByRole                  map[string]Accuracy
-}
-
-// Accuracy is a DC accuracy specification: ±(GainPPM·10⁻⁶·|reading| +
-// OffsetVolts), taken as the half-width of a rectangular distribution (GUM
-// 4.3.7: u = a/√3).
-type Accuracy struct {
-	GainPPM     float64 `json:"gain_ppm"`
-	OffsetVolts float64 `json:"offset_volts"`
+	MeterAccuracy, StimulusAccuracy plan.Accuracy
+	StimulusByRole                  map[string]plan.Accuracy
 }
 
 // check reports the roles the plan needs that the rig lacks, naming each
 // role as in the plan's [bench.roles] table and why it is needed.
-func (r *Rig) check(p *Plan) error {
+func (r *Rig) check(p *plan.Plan) error {
 	if r == nil {
 		return fmt.Errorf("no bench: the rig is nil")
 	}
 	var missing []string
 	seen := map[string]bool{}
-	for _, need := range NeededRoles(p) {
+	for _, need := range plan.NeededRoles(p) {
 		seen[need.Role] = true
 		if !r.has(need.Role) {
 			missing = append(missing, fmt.Sprintf("%s (%s)", need.Role, need.Why))
@@ -60,7 +54,7 @@ func (r *Rig) check(p *Plan) error {
 	}
 	// The power sequences drive every bound supply and source (PowerUpOrder
 	// switches a bound source off at 0 V even when no test uses it).
-	for _, role := range []string{RoleSupplyPos, RoleSupplyNeg, RoleSourceCM, RoleSourceDiff, RoleSourceRef} {
+	for _, role := range []string{plan.RoleSupplyPos, plan.RoleSupplyNeg, plan.RoleSourceCM, plan.RoleSourceDiff, plan.RoleSourceRef} {
 		if !seen[role] && p.Bench.Roles.Get(role).Bound() && !r.has(role) {
 			missing = append(missing, fmt.Sprintf("%s (bound under [bench.roles], so the power sequences drive it)", role))
 		}
@@ -74,23 +68,23 @@ func (r *Rig) check(p *Plan) error {
 
 func (r *Rig) has(role string) bool {
 	switch role {
-	case RoleMeter:
+	case plan.RoleMeter:
 		return r.Meter != nil
-	case RoleSupplyPos:
+	case plan.RoleSupplyPos:
 		return r.SupplyPos != nil
-	case RoleSupplyNeg:
+	case plan.RoleSupplyNeg:
 		return r.SupplyNeg != nil
-	case RoleSourceCM:
+	case plan.RoleSourceCM:
 		return r.SourceCM != nil
-	case RoleSourceDiff:
+	case plan.RoleSourceDiff:
 		return r.SourceDiff != nil
-	case RoleSourceRef:
+	case plan.RoleSourceRef:
 		return r.SourceRef != nil
-	case RoleSwitch:
+	case plan.RoleSwitch:
 		return r.Switch != nil
-	case RoleChamber:
+	case plan.RoleChamber:
 		return r.Chamber != nil
-	case RoleThermometer:
+	case plan.RoleThermometer:
 		return r.Thermometer != nil || r.Chamber != nil
 	}
 	return false

@@ -12,6 +12,8 @@ import (
 	"time"
 
 	"nullbench/instrument"
+	"nullbench/procedure/journal"
+	"nullbench/procedure/plan"
 )
 
 // RigOptions adjust OpenRig.
@@ -34,10 +36,10 @@ type RigOptions struct {
 // figures from the profiles. The returned close function closes every
 // connection; the caller owns it (the procedure never closes anything).
 // On an error every connection opened so far is closed again.
-func OpenRig(ctx context.Context, p *Plan, opt RigOptions) (*Rig, func() error, error) {
+func OpenRig(ctx context.Context, p *plan.Plan, opt RigOptions) (*Rig, func() error, error) {
 	b := &p.Bench
 	roles := map[string][]string{} // instrument -> roles
-	for _, role := range RoleNames() {
+	for _, role := range plan.RoleNames() {
 		if rb := b.Roles.Get(role); rb.Bound() {
 			roles[rb.Instrument] = append(roles[rb.Instrument], role)
 		}
@@ -64,7 +66,7 @@ func OpenRig(ctx context.Context, p *Plan, opt RigOptions) (*Rig, func() error, 
 		_ = closeAll()
 		return nil, nil, err
 	}
-	rig := &Rig{StimulusByRole: map[string]Accuracy{}}
+	rig := &Rig{StimulusByRole: map[string]plan.Accuracy{}}
 	dopts := instrument.DriverOptions{Sleep: opt.Sleep}
 	for _, n := range names {
 		def, ok := b.Instruments[n]
@@ -89,7 +91,7 @@ func OpenRig(ctx context.Context, p *Plan, opt RigOptions) (*Rig, func() error, 
 			return fail(err)
 		}
 		opened[n] = in
-		rig.Identities = append(rig.Identities, JournalIdentity{Instrument: n, Roles: roles[n], Address: def.Address, IDN: in.Identity.Raw})
+		rig.Identities = append(rig.Identities, journal.Identity{Instrument: n, Roles: roles[n], Address: def.Address, IDN: in.Identity.Raw})
 		for _, role := range roles[n] {
 			if err := rig.bind(role, b.Roles.Get(role), in, dopts); err != nil {
 				return fail(fmt.Errorf("bench.roles.%s: %w", role, err))
@@ -100,13 +102,13 @@ func OpenRig(ctx context.Context, p *Plan, opt RigOptions) (*Rig, func() error, 
 }
 
 // bind creates the driver of one role on an opened instrument.
-func (r *Rig) bind(role string, rb RoleBinding, in *instrument.Instrument, o instrument.DriverOptions) error {
+func (r *Rig) bind(role string, rb plan.RoleBinding, in *instrument.Instrument, o instrument.DriverOptions) error {
 	s, prof := in.Session, in.Profile
-	readback := func(a instrument.SupplyAccuracy) Accuracy {
-		return Accuracy{GainPPM: a.ReadbackGainPPM, OffsetVolts: a.ReadbackOffsetVolts}
+	readback := func(a instrument.SupplyAccuracy) plan.Accuracy {
+		return plan.Accuracy{GainPPM: a.ReadbackGainPPM, OffsetVolts: a.ReadbackOffsetVolts}
 	}
 	switch role {
-	case RoleMeter:
+	case plan.RoleMeter:
 		m, err := instrument.NewMeter(s, prof, o)
 		if err != nil {
 			return err
@@ -115,45 +117,45 @@ func (r *Rig) bind(role string, rb RoleBinding, in *instrument.Instrument, o ins
 		// The offset term is specified in ppm of range; taken on the 10 V
 		// range, the default of the plans (DefaultRangeVolts).
 		a := m.Accuracy()
-		r.MeterAccuracy = Accuracy{GainPPM: a.GainPPM, OffsetVolts: a.OffsetPPMOfRange * 1e-6 * DefaultRangeVolts}
-	case RoleSupplyPos, RoleSupplyNeg:
+		r.MeterAccuracy = plan.Accuracy{GainPPM: a.GainPPM, OffsetVolts: a.OffsetPPMOfRange * 1e-6 * plan.DefaultRangeVolts}
+	case plan.RoleSupplyPos, plan.RoleSupplyNeg:
 		d, err := instrument.NewSupply(s, prof, rb.Channel, rb.Negative, o)
 		if err != nil {
 			return err
 		}
-		if role == RoleSupplyPos {
+		if role == plan.RoleSupplyPos {
 			r.SupplyPos = d
 		} else {
 			r.SupplyNeg = d
 		}
 		r.StimulusByRole[role] = readback(d.Accuracy())
-	case RoleSourceCM, RoleSourceDiff, RoleSourceRef:
+	case plan.RoleSourceCM, plan.RoleSourceDiff, plan.RoleSourceRef:
 		d, err := instrument.NewSource(s, prof, rb.Channel, o)
 		if err != nil {
 			return err
 		}
 		switch role {
-		case RoleSourceCM:
+		case plan.RoleSourceCM:
 			r.SourceCM = d
-		case RoleSourceDiff:
+		case plan.RoleSourceDiff:
 			r.SourceDiff = d
 		default:
 			r.SourceRef = d
 		}
 		r.StimulusByRole[role] = readback(d.Accuracy())
-	case RoleSwitch:
+	case plan.RoleSwitch:
 		d, err := instrument.NewSwitch(s, prof, o)
 		if err != nil {
 			return err
 		}
 		r.Switch = d
-	case RoleChamber:
+	case plan.RoleChamber:
 		d, err := instrument.NewChamber(s, prof, o)
 		if err != nil {
 			return err
 		}
 		r.Chamber = d
-	case RoleThermometer:
+	case plan.RoleThermometer:
 		d, err := instrument.NewThermometer(s, prof, o)
 		if err != nil {
 			return err

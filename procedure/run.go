@@ -8,19 +8,22 @@ import (
 	"math"
 	"strings"
 	"time"
+
+	"nullbench/procedure/journal"
+	"nullbench/procedure/plan"
 )
 
 // RunOptions configure Run. Every field may be left zero.
 type RunOptions struct {
 	// Journal receives the identities, every reading (flushed before the
 	// next step), the events and the end record. cmd opens it with
-	// OpenJournal, or ResumeJournal, and closes it after Run. Nil runs
+	// journal.Open, or journal.Resume, and closes it after Run. Nil runs
 	// without a journal (dry runs, tests).
-	Journal *JournalWriter
+	Journal *journal.Writer
 	// Resume is the contents of the journal being continued (from
-	// ResumeJournal); nil starts fresh. Points it holds are skipped
+	// journal.Resume); nil starts fresh. Points it holds are skipped
 	// exactly and their readings are returned in Outcome.Readings.
-	Resume *JournalContents
+	Resume *journal.Contents
 	// Clock is the bench time base; nil means NewScaledClock with the
 	// plan's bench.time_scale.
 	Clock Clock
@@ -33,7 +36,7 @@ type RunOptions struct {
 	Log io.Writer
 	// Consent is the operator's consent to a hazardous plan
 	// (CheckSafetyWith).
-	Consent HazardConsent
+	Consent plan.HazardConsent
 	// Timing sets the sequencer's own waits; zero fields take defaults.
 	Timing Timing
 }
@@ -87,7 +90,7 @@ type Outcome struct {
 	// Readings holds every point of the campaign so far: those recovered
 	// from the journal (in journal order), then those of this run, in the
 	// order measured. KeyOf gives each one's work key.
-	Readings  []Reading
+	Readings  []journal.Reading
 	Recovered int // readings that came from the journal
 	Measured  int // readings taken by this run
 	Flagged   int // readings of this run carrying a flag
@@ -120,11 +123,11 @@ type Outcome struct {
 // temperature, unit, test, repeat, step and level, and the instrument
 // command that failed. The Outcome returned with it holds every reading
 // taken so far.
-func Run(ctx context.Context, p *Plan, rig *Rig, opt RunOptions) (*Outcome, error) {
+func Run(ctx context.Context, p *plan.Plan, rig *Rig, opt RunOptions) (*Outcome, error) {
 	if p == nil {
 		return nil, errors.New("run: no plan")
 	}
-	if err := CheckSafetyWith(p, opt.Consent); err != nil {
+	if err := plan.CheckSafetyWith(p, opt.Consent); err != nil {
 		return nil, err
 	}
 	if err := rig.check(p); err != nil {
@@ -134,7 +137,7 @@ func Run(ctx context.Context, p *Plan, rig *Rig, opt RunOptions) (*Outcome, erro
 		return nil, fmt.Errorf("%s, but there is no operator to ask (run it from an interactive terminal)", why)
 	}
 	if opt.Resume != nil {
-		if err := CheckPlanMatch(p, opt.Resume); err != nil {
+		if err := journal.CheckPlanMatch(p, opt.Resume); err != nil {
 			return nil, err
 		}
 	}
@@ -204,7 +207,7 @@ func (e *RunError) where() string {
 		parts = append(parts, s)
 	}
 	if e.AtStep {
-		parts = append(parts, fmt.Sprintf("repeat %d, step %d (level %s)", e.Repeat+1, e.Step+1, fmtVolts(e.LevelVolts)))
+		parts = append(parts, fmt.Sprintf("repeat %d, step %d (level %s)", e.Repeat+1, e.Step+1, plan.FormatVolts(e.LevelVolts)))
 	}
 	return strings.Join(parts, ", ")
 }
@@ -255,19 +258,19 @@ type position struct {
 
 // runner carries one run's state.
 type runner struct {
-	p      *Plan
+	p      *plan.Plan
 	rig    *Rig
 	opt    RunOptions
 	timing Timing
 	clk    Clock
 	log    io.Writer
 	prog   Progress
-	jw     *JournalWriter
-	done   WorkSet
+	jw     *journal.Writer
+	done   journal.WorkSet
 	out    *Outcome
 	temps  []float64
 
-	state   BenchState      // as programmed (the last value each channel accepted)
+	state   plan.BenchState // as programmed (the last value each channel accepted)
 	srcSafe map[string]bool // source role -> known at 0 V or off
 	// unsure holds the roles whose last set command failed: the instrument
 	// may have applied it all the same (a reply lost after the change), so
@@ -281,7 +284,7 @@ type runner struct {
 	finished int // points done, recovered included
 }
 
-func newRunner(p *Plan, rig *Rig, opt RunOptions) *runner {
+func newRunner(p *plan.Plan, rig *Rig, opt RunOptions) *runner {
 	r := &runner{p: p, rig: rig, opt: opt, timing: opt.Timing.withDefaults(),
 		clk: opt.Clock, log: opt.Log, prog: opt.Progress, jw: opt.Journal,
 		out: &Outcome{}, temps: p.TemperaturePoints(), srcSafe: map[string]bool{}, unsure: map[string]bool{}}
@@ -294,7 +297,7 @@ func newRunner(p *Plan, rig *Rig, opt RunOptions) *runner {
 	if r.prog == nil {
 		r.prog = NopProgress{}
 	}
-	for _, role := range sourceRoles(p) {
+	for _, role := range plan.SourceRoles(p) {
 		r.srcSafe[role] = true // untouched: its output is as the operator left it; PowerUpOrder switches it off first
 	}
 	if c := opt.Resume; c != nil {
@@ -304,7 +307,7 @@ func newRunner(p *Plan, rig *Rig, opt RunOptions) *runner {
 		// Continue the bench-time axis of the journal: its last bench time
 		// plus the wall time since, in bench time. A drift term fitted
 		// across the break then sees one time axis.
-		var last Reading
+		var last journal.Reading
 		for _, x := range c.Readings {
 			if x.BenchSeconds >= last.BenchSeconds {
 				last = x
@@ -318,13 +321,13 @@ func newRunner(p *Plan, rig *Rig, opt RunOptions) *runner {
 			r.clk = offsetClock{Clock: r.clk, offset: off}
 		}
 	} else {
-		r.done = (&JournalContents{}).Done()
+		r.done = (&journal.Contents{}).Done()
 	}
 	r.at = position{tempIndex: -1, test: -1}
 	return r
 }
 
-func timeScale(p *Plan) float64 {
+func timeScale(p *plan.Plan) float64 {
 	if s := p.Bench.TimeScale; s > 0 && !math.IsInf(s, 0) {
 		return s
 	}
@@ -355,7 +358,7 @@ func (r *runner) run(ctx context.Context) (*Outcome, error) {
 		return r.out, r.abort(ctx, err)
 	}
 	r.out.Complete = true
-	r.journalEnd(JournalEnd{Status: EndComplete})
+	r.journalEnd(journal.End{Status: journal.EndComplete})
 	r.logf("campaign complete: %d points measured, %d recovered, %d flagged", r.out.Measured, r.out.Recovered, r.out.Flagged)
 	return r.out, nil
 }
@@ -366,7 +369,7 @@ func (r *runner) count() (total, done int) {
 	for ti := range r.temps {
 		for _, u := range r.p.Units {
 			for i := range r.p.Tests {
-				steps := TestSteps(r.p, i)
+				steps := plan.TestSteps(r.p, i)
 				for rep := 0; rep < r.p.Tests[i].Repeats; rep++ {
 					for _, st := range steps {
 						total++
@@ -402,7 +405,7 @@ func (r *runner) tempFinished(ti int) bool {
 }
 
 func (r *runner) testFinished(ti int, unit string, i int) bool {
-	steps := TestSteps(r.p, i)
+	steps := plan.TestSteps(r.p, i)
 	for rep := 0; rep < r.p.Tests[i].Repeats; rep++ {
 		for _, st := range steps {
 			if !r.done.Has(st.Key(ti, unit, rep)) {
@@ -454,13 +457,13 @@ func (r *runner) campaign(ctx context.Context) error {
 // limit, the switch opened.
 func (r *runner) finish(ctx context.Context) error {
 	r.at.unit, r.at.test, r.at.atStep = "", -1, false
-	if r.chamber && r.p.Temperature.Mode == TempChamber {
+	if r.chamber && r.p.Temperature.Mode == plan.TempChamber {
 		r.at.stage = stageAmbient
 		amb := r.p.Temperature.AmbientCelsius
 		if err := r.rampChamber(ctx, amb); err != nil {
 			return err
 		}
-		r.event(JournalEvent{Type: EventTemperatureSet, TemperatureC: amb, Detail: "campaign over: chamber set back to ambient"})
+		r.event(journal.Event{Type: journal.EventTemperatureSet, TemperatureC: amb, Detail: "campaign over: chamber set back to ambient"})
 	}
 	if r.rig.Switch != nil && !handSwap(r.p) {
 		r.at.stage = stageOpenSwitch
@@ -481,7 +484,7 @@ func (r *runner) abort(ctx context.Context, err error) error {
 	if at.test < 0 {
 		e.Test, e.Part = "", ""
 	}
-	if r.p.Temperature.Mode == TempNone {
+	if r.p.Temperature.Mode == plan.TempNone {
 		e.TempIndex = -1 // one ambient pass: not worth naming
 	}
 	e.Interrupted = ctx.Err() != nil
@@ -491,19 +494,19 @@ func (r *runner) abort(ctx context.Context, err error) error {
 	reason := e.Error()
 	r.logf("STOP: %s", reason)
 	r.prog.Note("stopping: bringing the bench to its safe state")
-	r.event(JournalEvent{Type: EventAbort, Reason: fmt.Sprintf("%s: %v", at.stage, e.Err), Unit: at.unit,
+	r.event(journal.Event{Type: journal.EventAbort, Reason: fmt.Sprintf("%s: %v", at.stage, e.Err), Unit: at.unit,
 		TempIndex: max(at.tempIndex, 0), TemperatureC: at.tempPoint})
 	e.SafeState = r.safeState(ctx)
 	detail := "reached: sources at 0 V and off, then supplies ramped down and off"
 	if e.SafeState != nil {
 		detail = "NOT reached: " + e.SafeState.Error()
 	}
-	r.event(JournalEvent{Type: EventSafeState, Reason: "abort", Detail: detail, Unit: at.unit, TempIndex: max(at.tempIndex, 0)})
-	status := EndAborted
+	r.event(journal.Event{Type: journal.EventSafeState, Reason: "abort", Detail: detail, Unit: at.unit, TempIndex: max(at.tempIndex, 0)})
+	status := journal.EndAborted
 	if e.Interrupted {
-		status = EndInterrupted
+		status = journal.EndInterrupted
 	}
-	r.journalEnd(JournalEnd{Status: status, Reason: e.Error()})
+	r.journalEnd(journal.End{Status: status, Reason: e.Error()})
 	r.prog.Note(e.Error())
 	return e
 }

@@ -1,5 +1,9 @@
 package procedure
 
+import (
+	"nullbench/procedure/journal"
+)
+
 // journalIdentities writes the rig's instrument identities at the start of
 // the run (also on a resume: the instruments may have changed).
 func (r *runner) journalIdentities() error {
@@ -16,7 +20,7 @@ func (r *runner) journalIdentities() error {
 
 // event journals an event. A failed write is logged; the journal then
 // refuses every later record, so the next reading stops the run.
-func (r *runner) event(e JournalEvent) {
+func (r *runner) event(e journal.Event) {
 	if r.jw == nil {
 		return
 	}
@@ -29,7 +33,7 @@ func (r *runner) event(e JournalEvent) {
 }
 
 // journalEnd writes the end record.
-func (r *runner) journalEnd(e JournalEnd) {
+func (r *runner) journalEnd(e journal.End) {
 	if r.jw == nil {
 		return
 	}

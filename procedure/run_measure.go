@@ -8,6 +8,8 @@ import (
 	"time"
 
 	"nullbench/instrument"
+	"nullbench/procedure/journal"
+	"nullbench/procedure/plan"
 )
 
 // runTest runs every repeat of test i for one unit at temperature ti,
@@ -24,7 +26,7 @@ func (r *runner) runTest(ctx context.Context, ti int, unit string, i int) error 
 		return fmt.Errorf("meter: configure DC volts, range %g V, %g NPLC: %w", t.RangeVolts, t.NPLC, err)
 	}
 	r.note("unit %s: test[%d] %s (%s order, %d repeat(s))", unit, i+1, t.Kind, t.Order, t.Repeats)
-	steps := TestSteps(r.p, i)
+	steps := plan.TestSteps(r.p, i)
 	for rep := 0; rep < t.Repeats; rep++ {
 		measured := false
 		for _, st := range steps {
@@ -48,13 +50,13 @@ func (r *runner) runTest(ctx context.Context, ti int, unit string, i int) error 
 		}
 		r.at.atStep = false
 		if measured { // a pass the journal already held is not marked again
-			r.mark(func() error { return r.jw.PassDone(WorkKey{TempIndex: ti, Unit: unit, Test: t.Kind, Repeat: rep}) })
+			r.mark(func() error { return r.jw.PassDone(plan.WorkKey{TempIndex: ti, Unit: unit, Test: t.Kind, Repeat: rep}) })
 		}
 	}
-	r.mark(func() error { return r.jw.TestDone(WorkKey{TempIndex: ti, Unit: unit, Test: t.Kind}) })
+	r.mark(func() error { return r.jw.TestDone(plan.WorkKey{TempIndex: ti, Unit: unit, Test: t.Kind}) })
 	r.at.stage = stageNominal
 	r.at.atStep = false
-	return r.moveTo(ctx, NominalState(r.p))
+	return r.moveTo(ctx, plan.NominalState(r.p))
 }
 
 // mark writes a pass-done or test-done marker when there is a journal. A
@@ -67,8 +69,8 @@ func (r *runner) mark(write func() error) {
 	}
 }
 
-func stepsOfPart(steps []Step, part string) []Step {
-	var out []Step
+func stepsOfPart(steps []plan.Step, part string) []plan.Step {
+	var out []plan.Step
 	for _, s := range steps {
 		if s.Part == part {
 			out = append(out, s)
@@ -78,7 +80,7 @@ func stepsOfPart(steps []Step, part string) []Step {
 }
 
 // record adds a reading to the outcome and reports progress.
-func (r *runner) record(rd Reading, t *Test, st Step, sweepLen int) {
+func (r *runner) record(rd journal.Reading, t *plan.Test, st plan.Step, sweepLen int) {
 	r.out.Readings = append(r.out.Readings, rd)
 	r.out.Measured++
 	if len(rd.Flags) > 0 {
@@ -97,21 +99,21 @@ func (r *runner) record(rd Reading, t *Test, st Step, sweepLen int) {
 		flags = fmt.Sprintf(" %v", rd.Flags)
 	}
 	r.logf("%s %s%s rep %d step %d/%d level %s (read %s): %.9e V sd %.3e V n=%d settle %.2f s, %.2f °C%s",
-		rd.Unit, t.Kind, partSuffix(st.Part), rd.Repeat+1, rd.Step+1, sweepLen, fmtVolts(rd.SetVolts), fmtVolts(rd.ReadVolts),
+		rd.Unit, t.Kind, plan.PartSuffix(st.Part), rd.Repeat+1, rd.Step+1, sweepLen, plan.FormatVolts(rd.SetVolts), plan.FormatVolts(rd.ReadVolts),
 		rd.MeterVolts, rd.MeterSDVolts, rd.N, rd.SettleSeconds, rd.TemperatureC, flags)
 }
 
 // point measures one point: ramp to the level's bench state, wait the
 // dwell, wait for the output to settle, read back the stimulus, average
 // the meter, read the temperature.
-func (r *runner) point(ctx context.Context, t *Test, st Step, key WorkKey) (Reading, error) {
+func (r *runner) point(ctx context.Context, t *plan.Test, st plan.Step, key plan.WorkKey) (journal.Reading, error) {
 	r.eta.begin(r.clk.Now())
 	r.at.stage = stageLevel
 	if err := r.moveTo(ctx, st.State); err != nil {
-		return Reading{}, err
+		return journal.Reading{}, err
 	}
 	stepAt := r.clk.Now()
-	rd := Reading{Unit: key.Unit, Test: key.Test, Part: key.Part, TempIndex: key.TempIndex,
+	rd := journal.Reading{Unit: key.Unit, Test: key.Test, Part: key.Part, TempIndex: key.TempIndex,
 		Repeat: key.Repeat, Step: key.Step, SetVolts: st.LevelVolts, ReadVolts: st.LevelVolts}
 
 	r.at.stage = stageSettle
@@ -124,7 +126,7 @@ func (r *runner) point(ctx context.Context, t *Test, st Step, key WorkKey) (Read
 	}
 	rd.SettleSeconds = (r.clk.Now() - stepAt).Seconds()
 	if !settled {
-		rd.Flags = append(rd.Flags, FlagSettleTimeout)
+		rd.Flags = append(rd.Flags, journal.FlagSettleTimeout)
 	}
 
 	r.at.stage = stageReadBack
@@ -146,12 +148,12 @@ func (r *runner) point(ctx context.Context, t *Test, st Step, key WorkKey) (Read
 	rd.MeterVolts, rd.MeterSDVolts = meanSD(vals)
 	rd.N = len(vals)
 	if over {
-		rd.Flags = append(rd.Flags, FlagOverload)
+		rd.Flags = append(rd.Flags, journal.FlagOverload)
 	}
 
 	r.at.stage = stageReadTemp
 	rd.TemperatureC = r.tempC
-	if m := r.p.Temperature.Mode; m == TempChamber || m == TempThermometer {
+	if m := r.p.Temperature.Mode; m == plan.TempChamber || m == plan.TempThermometer {
 		c, err := r.rig.thermometer().ReadCelsius(ctx)
 		if err != nil {
 			return rd, fmt.Errorf("thermometer: read temperature: %w", err)
@@ -180,7 +182,7 @@ func (r *runner) point(ctx context.Context, t *Test, st Step, key WorkKey) (Read
 // readings' noise can be seen at all. A tail that matters below that level
 // (the self-heating tail of a part after a supply step) needs a dwell_s of
 // several of its time constants.
-func (r *runner) settle(ctx context.Context, t *Test) (bool, error) {
+func (r *runner) settle(ctx context.Context, t *plan.Test) (bool, error) {
 	deadline := r.clk.Now() + seconds(t.SettleTimeoutSeconds)
 	started := r.clk.Now()
 	prev, err := r.readMean(ctx, t.Readings)
@@ -270,7 +272,7 @@ func (r *runner) readN(ctx context.Context, n int) (vals []float64, overload boo
 // supply-shift cmrr, and the source's own reading for the source-driven
 // tests. A role whose driver cannot read back (errors.ErrUnsupported)
 // leaves ok false and the level as set; any other error stops the run.
-func (r *runner) readBack(ctx context.Context, t *Test, st Step) (float64, bool, error) {
+func (r *runner) readBack(ctx context.Context, t *plan.Test, st plan.Step) (float64, bool, error) {
 	rs := stimulusRoles(r.p, t, st.Part)
 	if len(rs) == 0 {
 		return st.LevelVolts, false, nil

@@ -8,6 +8,8 @@ import (
 	"strings"
 
 	"nullbench/instrument"
+	"nullbench/procedure/journal"
+	"nullbench/procedure/plan"
 )
 
 // powerUp runs PowerUpOrder: sources off at 0 V, current limits, supplies
@@ -15,14 +17,14 @@ import (
 func (r *runner) powerUp(ctx context.Context) error {
 	r.at.stage = stagePowerUp
 	r.note("unit %s: powering up (V+ %s, V- %s, current limit %g A)", r.at.unit,
-		fmtVolts(r.p.Part.NominalPosVolts), fmtVolts(r.p.Part.NominalNegVolts), r.p.Part.CurrentLimitAmps)
-	if err := r.execute(ctx, PowerUpOrder(r.p)); err != nil {
+		plan.FormatVolts(r.p.Part.NominalPosVolts), plan.FormatVolts(r.p.Part.NominalNegVolts), r.p.Part.CurrentLimitAmps)
+	if err := r.execute(ctx, plan.PowerUpOrder(r.p)); err != nil {
 		return err
 	}
 	if err := r.checkSupplyCurrent(ctx); err != nil {
 		return err
 	}
-	r.event(JournalEvent{Type: EventPowerUp, Unit: r.at.unit, TempIndex: r.at.tempIndex, TemperatureC: r.at.tempPoint})
+	r.event(journal.Event{Type: journal.EventPowerUp, Unit: r.at.unit, TempIndex: r.at.tempIndex, TemperatureC: r.at.tempPoint})
 	return nil
 }
 
@@ -100,7 +102,7 @@ func (r *runner) benchOff(ctx context.Context) error {
 		}
 		return nil
 	}
-	for _, role := range sourceRoles(r.p) {
+	for _, role := range plan.SourceRoles(r.p) {
 		if src := r.source(role); src != nil {
 			if err := down(role, src, false); err != nil {
 				return err
@@ -108,16 +110,16 @@ func (r *runner) benchOff(ctx context.Context) error {
 			r.srcSafe[role] = true
 		}
 	}
-	for _, role := range []string{RoleSupplyPos, RoleSupplyNeg} {
+	for _, role := range []string{plan.RoleSupplyPos, plan.RoleSupplyNeg} {
 		if sup := r.supply(role); sup != nil {
 			if err := down(role, sup, true); err != nil {
 				return err
 			}
 		}
 	}
-	r.state = BenchState{}
+	r.state = plan.BenchState{}
 	r.powered = false
-	r.event(JournalEvent{Type: EventBenchOff, TempIndex: -1, Detail: "every output ramped to 0 V and switched off before the first unit"})
+	r.event(journal.Event{Type: journal.EventBenchOff, TempIndex: -1, Detail: "every output ramped to 0 V and switched off before the first unit"})
 	return nil
 }
 
@@ -126,7 +128,7 @@ func (r *runner) benchOff(ctx context.Context) error {
 // 1 mV, a supply's resolution).
 func rampTo(v, target, step float64) []float64 {
 	if step <= 0 {
-		step = DefaultRampStepVolts
+		step = plan.DefaultRampStepVolts
 	}
 	d := target - v
 	if math.Abs(d) < 1e-3 {
@@ -144,19 +146,19 @@ func rampTo(v, target, step float64) []float64 {
 // and off, then the rails ramped down and off.
 func (r *runner) powerDown(ctx context.Context) error {
 	r.at.stage = stagePowerDown
-	if err := r.execute(ctx, PowerDownFrom(r.p, r.state)); err != nil {
+	if err := r.execute(ctx, plan.PowerDownFrom(r.p, r.state)); err != nil {
 		return err
 	}
 	r.powered = false
-	r.event(JournalEvent{Type: EventPowerDown, Unit: r.at.unit, TempIndex: r.at.tempIndex, TemperatureC: r.at.tempPoint})
+	r.event(journal.Event{Type: journal.EventPowerDown, Unit: r.at.unit, TempIndex: r.at.tempIndex, TemperatureC: r.at.tempPoint})
 	r.note("unit %s: powered down", r.at.unit)
 	return nil
 }
 
 // moveTo ramps the bench from its present state to s (Transition checks
 // every intermediate state against the plan's absolute maxima).
-func (r *runner) moveTo(ctx context.Context, s BenchState) error {
-	acts, err := Transition(r.p, r.state, s)
+func (r *runner) moveTo(ctx context.Context, s plan.BenchState) error {
+	acts, err := plan.Transition(r.p, r.state, s)
 	if err != nil {
 		return err
 	}
@@ -169,13 +171,13 @@ func (r *runner) moveTo(ctx context.Context, s BenchState) error {
 // profile's settle wait, the exchange itself) counts towards it, so the
 // dwell is a minimum, not an extra wait on top of the driver's. It stops
 // at the first error.
-func (r *runner) execute(ctx context.Context, acts []PowerAction) error {
+func (r *runner) execute(ctx context.Context, acts []plan.PowerAction) error {
 	for _, a := range acts {
 		sent := r.clk.Now()
 		if err := r.do(ctx, a); err != nil {
 			return err
 		}
-		if a.Op == PowerSetVolts {
+		if a.Op == plan.PowerSetVolts {
 			if rest := r.timing.RampDwell - (r.clk.Now() - sent); rest > 0 {
 				if err := r.clk.Sleep(ctx, rest); err != nil {
 					return err
@@ -189,46 +191,46 @@ func (r *runner) execute(ctx context.Context, acts []PowerAction) error {
 // do sends one action to its role and tracks the programmed state. The
 // error names the role and the action; the driver's error inside names the
 // instrument and its command.
-func (r *runner) do(ctx context.Context, a PowerAction) error {
+func (r *runner) do(ctx context.Context, a plan.PowerAction) error {
 	if err := ctx.Err(); err != nil {
 		return err
 	}
-	isSource := a.Role == RoleSourceCM || a.Role == RoleSourceDiff || a.Role == RoleSourceRef
-	if isSource && a.Op == PowerSetVolts && a.Volts != 0 {
+	isSource := a.Role == plan.RoleSourceCM || a.Role == plan.RoleSourceDiff || a.Role == plan.RoleSourceRef
+	if isSource && a.Op == plan.PowerSetVolts && a.Volts != 0 {
 		// From the moment it is attempted, the source may drive a
 		// non-zero voltage until it is set to 0 V or switched off.
 		r.srcSafe[a.Role] = false
 	}
-	if !isSource && a.Op == PowerOutputOn {
+	if !isSource && a.Op == plan.PowerOutputOn {
 		r.powered = true
 	}
 	var err error
 	switch a.Role {
-	case RoleSupplyPos, RoleSupplyNeg:
+	case plan.RoleSupplyPos, plan.RoleSupplyNeg:
 		s := r.supply(a.Role)
 		if s == nil {
 			return fmt.Errorf("%s: not on this bench", a.Role)
 		}
 		switch a.Op {
-		case PowerCurrentLimit:
+		case plan.PowerCurrentLimit:
 			err = s.SetCurrentLimit(ctx, a.Amps)
-		case PowerSetVolts:
+		case plan.PowerSetVolts:
 			err = s.SetVolts(ctx, a.Volts)
-		case PowerOutputOn, PowerOutputOff:
-			err = s.SetOutput(ctx, a.Op == PowerOutputOn)
+		case plan.PowerOutputOn, plan.PowerOutputOff:
+			err = s.SetOutput(ctx, a.Op == plan.PowerOutputOn)
 		default:
 			err = fmt.Errorf("unknown power operation %q", a.Op)
 		}
-	case RoleSourceCM, RoleSourceDiff, RoleSourceRef:
+	case plan.RoleSourceCM, plan.RoleSourceDiff, plan.RoleSourceRef:
 		s := r.source(a.Role)
 		if s == nil {
 			return fmt.Errorf("%s: not on this bench", a.Role)
 		}
 		switch a.Op {
-		case PowerSetVolts:
+		case plan.PowerSetVolts:
 			err = s.SetVolts(ctx, a.Volts)
-		case PowerOutputOn, PowerOutputOff:
-			err = s.SetOutput(ctx, a.Op == PowerOutputOn)
+		case plan.PowerOutputOn, plan.PowerOutputOff:
+			err = s.SetOutput(ctx, a.Op == plan.PowerOutputOn)
 		default:
 			err = fmt.Errorf("%s: a source has no %s", a.Role, a.Op)
 		}
@@ -236,14 +238,14 @@ func (r *runner) do(ctx context.Context, a PowerAction) error {
 		err = fmt.Errorf("unknown role %q in a power action", a.Role)
 	}
 	if err != nil {
-		if a.Op == PowerSetVolts {
+		if a.Op == plan.PowerSetVolts {
 			r.unsure[a.Role] = true
 		}
 		return fmt.Errorf("%s: %w", a, err)
 	}
 	delete(r.unsure, a.Role)
-	r.state = ApplyAction(r.state, a)
-	if isSource && (a.Op == PowerOutputOff || (a.Op == PowerSetVolts && a.Volts == 0)) {
+	r.state = plan.ApplyAction(r.state, a)
+	if isSource && (a.Op == plan.PowerOutputOff || (a.Op == plan.PowerSetVolts && a.Volts == 0)) {
 		r.srcSafe[a.Role] = true
 	}
 	return nil
@@ -272,8 +274,8 @@ func (r *runner) safeState(runCtx context.Context) error {
 	defer cancel()
 	var errs []error
 	failed := map[string]bool{}
-	call := func(a PowerAction) {
-		if failed[a.Role] && a.Op == PowerSetVolts {
+	call := func(a plan.PowerAction) {
+		if failed[a.Role] && a.Op == plan.PowerSetVolts {
 			return
 		}
 		cctx, ccancel := context.WithTimeout(ctx, r.timing.SafeCallTimeout)
@@ -284,7 +286,7 @@ func (r *runner) safeState(runCtx context.Context) error {
 			errs = append(errs, err)
 			return
 		}
-		if a.Op == PowerSetVolts {
+		if a.Op == plan.PowerSetVolts {
 			// The dwell between ramp steps runs on the fresh context; a
 			// failed sleep (deadline) only shortens the ramp.
 			_ = r.clk.Sleep(ctx, r.timing.RampDwell)
@@ -310,25 +312,25 @@ func (r *runner) safeState(runCtx context.Context) error {
 		v, err := o.ReadVolts(cctx)
 		ccancel()
 		if err == nil {
-			r.state = ApplyAction(r.state, PowerAction{Op: PowerSetVolts, Role: role, Volts: v})
+			r.state = plan.ApplyAction(r.state, plan.PowerAction{Op: plan.PowerSetVolts, Role: role, Volts: v})
 			delete(r.unsure, role)
 		}
 	}
-	acts := PowerDownFrom(r.p, r.state)
+	acts := plan.PowerDownFrom(r.p, r.state)
 	i := 0
 	for ; i < len(acts) && isSourceRole(acts[i].Role); i++ {
 		call(acts[i])
 	}
 	var live []string
-	for _, role := range sourceRoles(r.p) {
+	for _, role := range plan.SourceRoles(r.p) {
 		if !r.srcSafe[role] {
-			live = append(live, fmt.Sprintf("%s (last set to %s)", role, fmtVolts(sourceVolts(r.state, role))))
+			live = append(live, fmt.Sprintf("%s (last set to %s)", role, plan.FormatVolts(plan.SourceVolts(r.state, role))))
 		}
 	}
 	suppliesDown := false
 	if len(live) > 0 {
 		errs = append(errs, fmt.Errorf("could not bring %s to 0 V or off: the supplies are LEFT ON at V+ %s, V- %s so that no input sits beyond the rails of an unpowered part; switch that source off by hand, then the supplies",
-			strings.Join(live, ", "), fmtVolts(r.state.PosVolts), fmtVolts(r.state.NegVolts)))
+			strings.Join(live, ", "), plan.FormatVolts(r.state.PosVolts), plan.FormatVolts(r.state.NegVolts)))
 	} else {
 		nerr := len(errs)
 		for ; i < len(acts); i++ {
@@ -345,7 +347,7 @@ func (r *runner) safeState(runCtx context.Context) error {
 		if err := r.rig.Chamber.SetPointCelsius(cctx, amb); err != nil {
 			errs = append(errs, fmt.Errorf("chamber: set point %g °C (ambient): %w", amb, err))
 		} else {
-			r.event(JournalEvent{Type: EventTemperatureSet, TemperatureC: amb, Detail: "safe state: chamber set back to ambient"})
+			r.event(journal.Event{Type: journal.EventTemperatureSet, TemperatureC: amb, Detail: "safe state: chamber set back to ambient"})
 		}
 		ccancel()
 	}
@@ -360,7 +362,7 @@ func (r *runner) safeState(runCtx context.Context) error {
 }
 
 func isSourceRole(role string) bool {
-	return role == RoleSourceCM || role == RoleSourceDiff || role == RoleSourceRef
+	return role == plan.RoleSourceCM || role == plan.RoleSourceDiff || role == plan.RoleSourceRef
 }
 
 // supply and source map role names to the rig's roles; a nil interface
@@ -372,11 +374,11 @@ func (r *runner) supply(role string) interface {
 	ReadVolts(context.Context) (float64, error)
 } {
 	switch role {
-	case RoleSupplyPos:
+	case plan.RoleSupplyPos:
 		if r.rig.SupplyPos != nil {
 			return r.rig.SupplyPos
 		}
-	case RoleSupplyNeg:
+	case plan.RoleSupplyNeg:
 		if r.rig.SupplyNeg != nil {
 			return r.rig.SupplyNeg
 		}
@@ -390,15 +392,15 @@ func (r *runner) source(role string) interface {
 	ReadVolts(context.Context) (float64, error)
 } {
 	switch role {
-	case RoleSourceCM:
+	case plan.RoleSourceCM:
 		if r.rig.SourceCM != nil {
 			return r.rig.SourceCM
 		}
-	case RoleSourceDiff:
+	case plan.RoleSourceDiff:
 		if r.rig.SourceDiff != nil {
 			return r.rig.SourceDiff
 		}
-	case RoleSourceRef:
+	case plan.RoleSourceRef:
 		if r.rig.SourceRef != nil {
 			return r.rig.SourceRef
 		}
@@ -409,19 +411,19 @@ func (r *runner) source(role string) interface {
 // stimulusRoles returns the roles whose voltage a test's level moves, with
 // the volts each moves per volt of level (from StateAt, so the run agrees
 // with the safety check on what a level means).
-func stimulusRoles(p *Plan, t *Test, part string) []roleSlope {
-	s0, s1 := StateAt(p, t, part, 0), StateAt(p, t, part, 1)
+func stimulusRoles(p *plan.Plan, t *plan.Test, part string) []roleSlope {
+	s0, s1 := plan.StateAt(p, t, part, 0), plan.StateAt(p, t, part, 1)
 	var out []roleSlope
 	add := func(role string, a, b float64) {
 		if d := b - a; math.Abs(d) > 1e-12 {
 			out = append(out, roleSlope{role: role, slope: d})
 		}
 	}
-	add(RoleSupplyPos, s0.PosVolts, s1.PosVolts)
-	add(RoleSupplyNeg, s0.NegVolts, s1.NegVolts)
-	add(RoleSourceCM, s0.CMVolts, s1.CMVolts)
-	add(RoleSourceDiff, s0.DiffVolts, s1.DiffVolts)
-	add(RoleSourceRef, s0.RefVolts, s1.RefVolts)
+	add(plan.RoleSupplyPos, s0.PosVolts, s1.PosVolts)
+	add(plan.RoleSupplyNeg, s0.NegVolts, s1.NegVolts)
+	add(plan.RoleSourceCM, s0.CMVolts, s1.CMVolts)
+	add(plan.RoleSourceDiff, s0.DiffVolts, s1.DiffVolts)
+	add(plan.RoleSourceRef, s0.RefVolts, s1.RefVolts)
 	return out
 }
 
@@ -431,12 +433,12 @@ type roleSlope struct {
 }
 
 // roleVolts is the programmed voltage of a role in s.
-func roleVolts(s BenchState, role string) float64 {
+func roleVolts(s plan.BenchState, role string) float64 {
 	switch role {
-	case RoleSupplyPos:
+	case plan.RoleSupplyPos:
 		return s.PosVolts
-	case RoleSupplyNeg:
+	case plan.RoleSupplyNeg:
 		return s.NegVolts
 	}
-	return sourceVolts(s, role)
+	return plan.SourceVolts(s, role)
 }

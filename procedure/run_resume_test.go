@@ -9,12 +9,15 @@ import (
 	"path/filepath"
 	"testing"
 	"time"
+
+	"nullbench/procedure/journal"
+	"nullbench/procedure/plan"
 )
 
 // resumePlan: two chamber temperatures, two units on the switch, cmrr
 // (3 levels, zigzag: 6 points) once and psrr_pos (6 points) twice:
 // 2·2·(6 + 2·6) = 72 points.
-func resumePlan() *Plan {
+func resumePlan() *plan.Plan {
 	p := withChamber(testPlan(), 25, 45)
 	p.Tests = p.Tests[:2]
 	p.Tests[0].Levels = []float64{-5, 0, 5}
@@ -22,22 +25,22 @@ func resumePlan() *Plan {
 	return p
 }
 
-func header(p *Plan) JournalHeader {
-	return JournalHeader{PlanHash: p.Hash, PlanPath: "resume-test.toml", ToolVersion: "test", Started: time.Now(), TimeScale: 1}
+func header(p *plan.Plan) journal.Header {
+	return journal.Header{PlanHash: p.Hash, PlanPath: "resume-test.toml", ToolVersion: "test", Started: time.Now(), TimeScale: 1}
 }
 
 // journalKeys reads a journal file and returns its reading keys (failing
 // on a duplicate) and its contents.
-func journalKeys(t *testing.T, path string) (map[WorkKey]bool, *JournalContents) {
+func journalKeys(t *testing.T, path string) (map[plan.WorkKey]bool, *journal.Contents) {
 	t.Helper()
-	c, err := ReadJournalFile(path)
+	c, err := journal.ReadFile(path)
 	if err != nil {
 		t.Fatal(err)
 	}
 	return keySet(t, c.Readings), c
 }
 
-func sameKeys(t *testing.T, what string, got, want map[WorkKey]bool) {
+func sameKeys(t *testing.T, what string, got, want map[plan.WorkKey]bool) {
 	t.Helper()
 	if len(got) != len(want) {
 		t.Errorf("%s: %d points, want %d", what, len(got), len(want))
@@ -57,10 +60,10 @@ func sameKeys(t *testing.T, what string, got, want map[WorkKey]bool) {
 }
 
 // uninterrupted runs the plan once with a journal and returns its keys.
-func uninterrupted(t *testing.T, p *Plan, dir string) (map[WorkKey]bool, string) {
+func uninterrupted(t *testing.T, p *plan.Plan, dir string) (map[plan.WorkKey]bool, string) {
 	t.Helper()
 	path := filepath.Join(dir, "reference.jsonl")
-	w, err := OpenJournal(path, header(p))
+	w, err := journal.Open(path, header(p))
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -74,7 +77,7 @@ func uninterrupted(t *testing.T, p *Plan, dir string) (map[WorkKey]bool, string)
 			return
 		}
 		nread++
-		f, err := ReadJournalFile(path)
+		f, err := journal.ReadFile(path)
 		if err != nil {
 			flushErr = err
 		} else if len(f.Readings) != nread-1 {
@@ -93,7 +96,7 @@ func uninterrupted(t *testing.T, p *Plan, dir string) (map[WorkKey]bool, string)
 	keys := keySet(t, out.Readings)
 	jk, c := journalKeys(t, path)
 	sameKeys(t, "reference journal", jk, keys)
-	if c.End == nil || c.End.Status != EndComplete {
+	if c.End == nil || c.End.Status != journal.EndComplete {
 		t.Errorf("reference journal ends %+v", c.End)
 	}
 	if len(keys) != out.Total || out.Total != 72 {
@@ -103,9 +106,9 @@ func uninterrupted(t *testing.T, p *Plan, dir string) (map[WorkKey]bool, string)
 }
 
 // resume continues the journal at path on a fresh (unpowered) bench.
-func resume(t *testing.T, p *Plan, path string, prog *recProgress) (*Outcome, *fakeBench) {
+func resume(t *testing.T, p *plan.Plan, path string, prog *recProgress) (*Outcome, *fakeBench) {
 	t.Helper()
-	w, c, err := ResumeJournal(path, p, header(p))
+	w, c, err := journal.Resume(path, p, header(p))
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -145,7 +148,7 @@ func TestRunResumeAfterAbortGivesTheSamePoints(t *testing.T) {
 		k, how := st.k, st.how
 		t.Run(fmt.Sprintf("%s at point %d", how, k), func(t *testing.T) {
 			path := filepath.Join(dir, fmt.Sprintf("%s-%d.jsonl", how, k))
-			w, err := OpenJournal(path, header(p))
+			w, err := journal.Open(path, header(p))
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -175,14 +178,14 @@ func TestRunResumeAfterAbortGivesTheSamePoints(t *testing.T) {
 				t.Fatalf("first run measured %d points before the fault at %d", out.Measured, k)
 			}
 			_, c := journalKeys(t, path)
-			wantEnd := EndAborted
+			wantEnd := journal.EndAborted
 			if how == "cancel" {
-				wantEnd = EndInterrupted
+				wantEnd = journal.EndInterrupted
 			}
 			if c.End == nil || c.End.Status != wantEnd {
 				t.Errorf("journal ends %+v, want %s", c.End, wantEnd)
 			}
-			if !hasEvent(c, EventSafeState) || !hasEvent(c, EventAbort) {
+			if !hasEvent(c, journal.EventSafeState) || !hasEvent(c, journal.EventAbort) {
 				t.Errorf("journal lacks the abort or safe-state event: %+v", c.Events)
 			}
 			out2, _ := resume(t, p, path, &recProgress{})
@@ -225,7 +228,7 @@ func TestRunResumeRefusesAnotherPlan(t *testing.T) {
 	q := resumePlan()
 	q.Hash = "another-plan"
 	fb := newFakeBench(q)
-	_, err := runFake(context.Background(), t, q, fb, RunOptions{Resume: &JournalContents{Header: header(p)}})
+	_, err := runFake(context.Background(), t, q, fb, RunOptions{Resume: &journal.Contents{Header: header(p)}})
 	if err == nil || len(fb.calls) != 0 {
 		t.Fatalf("err %v after %d calls", err, len(fb.calls))
 	}
@@ -234,7 +237,7 @@ func TestRunResumeRefusesAnotherPlan(t *testing.T) {
 func TestRunJournalEvents(t *testing.T) {
 	p := resumePlan()
 	path := filepath.Join(t.TempDir(), "events.jsonl")
-	w, err := OpenJournal(path, header(p))
+	w, err := journal.Open(path, header(p))
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -251,7 +254,7 @@ func TestRunJournalEvents(t *testing.T) {
 	// 2 temperatures × 2 units: 4 power-ups, power-downs and unit swaps;
 	// 2 soaks; set points reached for 2 temperatures plus the return to
 	// ambient.
-	for typ, n := range map[string]int{EventPowerUp: 4, EventPowerDown: 4, EventUnitSwap: 4, EventSoakDone: 2, EventTemperatureSet: 3} {
+	for typ, n := range map[string]int{journal.EventPowerUp: 4, journal.EventPowerDown: 4, journal.EventUnitSwap: 4, journal.EventSoakDone: 2, journal.EventTemperatureSet: 3} {
 		if count[typ] != n {
 			t.Errorf("%d %s events, want %d (all: %v)", count[typ], typ, n, count)
 		}
@@ -266,7 +269,7 @@ func TestRunJournalEvents(t *testing.T) {
 	}
 }
 
-func hasEvent(c *JournalContents, typ string) bool {
+func hasEvent(c *journal.Contents, typ string) bool {
 	for _, e := range c.Events {
 		if e.Type == typ {
 			return true
@@ -280,7 +283,7 @@ func hasEvent(c *JournalContents, typ string) bool {
 func TestRunStopsWhenTheJournalFails(t *testing.T) {
 	p := testPlan()
 	path := filepath.Join(t.TempDir(), "j.jsonl")
-	w, err := OpenJournal(path, header(p))
+	w, err := journal.Open(path, header(p))
 	if err != nil {
 		t.Fatal(err)
 	}

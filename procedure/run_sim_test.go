@@ -11,6 +11,8 @@ import (
 
 	"nullbench/instrument"
 	"nullbench/instrument/sim"
+	"nullbench/procedure/journal"
+	"nullbench/procedure/plan"
 )
 
 // These tests run the sequencer against the simulated bench over loopback
@@ -114,7 +116,7 @@ ambient_c = 25.0
 
 type simSetup struct {
 	bench *sim.Bench
-	plan  *Plan
+	plan  *plan.Plan
 	rig   *Rig
 	clock simClock
 }
@@ -139,7 +141,7 @@ func startSim(t *testing.T, commonMode string, full bool, rigTimeout time.Durati
 		more, temp = simMoreTests, simChamber
 	}
 	rest = strings.ReplaceAll(strings.ReplaceAll(rest, "%MORE%", more), "%TEMP%", temp)
-	p, err := ParsePlan([]byte(b.BenchSection()+rest), "loopback.toml")
+	p, err := plan.Parse([]byte(b.BenchSection()+rest), "loopback.toml")
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -181,9 +183,9 @@ func checkSimBench(t *testing.T, b *sim.Bench, off bool) sim.Snapshot {
 }
 
 func TestRunOnSimulatedBench(t *testing.T) {
-	su := startSim(t, CMBySupplyShift, true, 0)
+	su := startSim(t, plan.CMBySupplyShift, true, 0)
 	path := filepath.Join(t.TempDir(), "loopback.jsonl")
-	w, err := OpenJournal(path, JournalHeader{PlanHash: su.plan.Hash, PlanPath: "loopback.toml", ToolVersion: "test", TimeScale: 1})
+	w, err := journal.Open(path, journal.Header{PlanHash: su.plan.Hash, PlanPath: "loopback.toml", ToolVersion: "test", TimeScale: 1})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -211,9 +213,9 @@ func TestRunOnSimulatedBench(t *testing.T) {
 			tr = &u
 		}
 	}
-	var cm []Reading
+	var cm []journal.Reading
 	for _, r := range out.Readings {
-		if r.Unit == "U01" && r.Test == TestCMRR && r.TempIndex == 0 {
+		if r.Unit == "U01" && r.Test == plan.TestCMRR && r.TempIndex == 0 {
 			cm = append(cm, r)
 			if !r.ReadBack || math.Abs(r.ReadVolts-r.SetVolts) > 0.05 {
 				t.Errorf("level %g read back %v %g", r.SetVolts, r.ReadBack, r.ReadVolts)
@@ -250,12 +252,12 @@ func TestRunOnSimulatedBenchFaults(t *testing.T) {
 		is         error
 		left       bool // the supplies stay on: the input source was lost while driving
 	}{
-		{name: "meter connection dropped", commonMode: CMBySupplyShift, instrument: sim.NameDMM,
+		{name: "meter connection dropped", commonMode: plan.CMBySupplyShift, instrument: sim.NameDMM,
 			fault: &sim.Fault{Kind: sim.FaultDrop, Match: "READ?"}, is: instrument.ErrClosed},
-		{name: "supply stops answering once", commonMode: CMBySupplyShift, instrument: sim.NameSupply,
+		{name: "supply stops answering once", commonMode: plan.CMBySupplyShift, instrument: sim.NameSupply,
 			fault: &sim.Fault{Kind: sim.FaultNoReply, Match: "MEAS:VOLT?"}, is: instrument.ErrTimeout},
-		{name: "ctrl-c", commonMode: CMByInputDrive, instrument: sim.NameDMM, cancel: true, is: context.Canceled},
-		{name: "source connection dropped while driving the inputs", commonMode: CMByInputDrive, instrument: sim.NameSource,
+		{name: "ctrl-c", commonMode: plan.CMByInputDrive, instrument: sim.NameDMM, cancel: true, is: context.Canceled},
+		{name: "source connection dropped while driving the inputs", commonMode: plan.CMByInputDrive, instrument: sim.NameSource,
 			fault: &sim.Fault{Kind: sim.FaultDrop, Match: "VOLT", Persistent: true}, is: instrument.ErrClosed, left: true},
 	}
 	for _, tc := range cases {
@@ -268,7 +270,7 @@ func TestRunOnSimulatedBenchFaults(t *testing.T) {
 				// After the cmrr point at +5 V of U01 (the inputs are
 				// driven there in input-drive mode; the next step
 				// ramps to another level).
-				if armed || i.Unit != "U01" || i.Test != TestCMRR || i.LevelVolts != 5 {
+				if armed || i.Unit != "U01" || i.Test != plan.TestCMRR || i.LevelVolts != 5 {
 					return
 				}
 				armed = true
@@ -281,8 +283,8 @@ func TestRunOnSimulatedBenchFaults(t *testing.T) {
 				}
 			}}
 			path := filepath.Join(t.TempDir(), "faulted.jsonl")
-			hdr := JournalHeader{PlanHash: su.plan.Hash, PlanPath: "loopback.toml", ToolVersion: "test", TimeScale: 1}
-			w, err := OpenJournal(path, hdr)
+			hdr := journal.Header{PlanHash: su.plan.Hash, PlanPath: "loopback.toml", ToolVersion: "test", TimeScale: 1}
+			w, err := journal.Open(path, hdr)
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -299,7 +301,7 @@ func TestRunOnSimulatedBenchFaults(t *testing.T) {
 			if !errors.Is(err, tc.is) {
 				t.Errorf("error does not wrap %v: %v", tc.is, err)
 			}
-			if re.Unit != "U01" || re.Test != TestCMRR || out.Measured == 0 {
+			if re.Unit != "U01" || re.Test != plan.TestCMRR || out.Measured == 0 {
 				t.Errorf("stopped at unit %q test %q after %d points: %v", re.Unit, re.Test, out.Measured, err)
 			}
 			s := checkSimBench(t, su.bench, !tc.left)
@@ -327,7 +329,7 @@ func TestRunOnSimulatedBenchFaults(t *testing.T) {
 				t.Fatal(err)
 			}
 			defer closeRig()
-			w2, c, err := ResumeJournal(path, su.plan, hdr)
+			w2, c, err := journal.Resume(path, su.plan, hdr)
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -397,7 +399,7 @@ func TestRunBoardOnSimulatedBench(t *testing.T) {
 		t.Fatal(err)
 	}
 	defer b.Close()
-	p, err := ParsePlan([]byte(b.BenchSection()+simBoardPlan), "board-loopback.toml")
+	p, err := plan.Parse([]byte(b.BenchSection()+simBoardPlan), "board-loopback.toml")
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -414,12 +416,12 @@ func TestRunBoardOnSimulatedBench(t *testing.T) {
 		t.Fatal(err)
 	}
 	checkSimBench(t, b, true)
-	var diff, cm []Reading
+	var diff, cm []journal.Reading
 	for _, r := range out.Readings {
 		switch {
-		case r.Test == TestBoardCMRR && r.Part == PartDiff:
+		case r.Test == plan.TestBoardCMRR && r.Part == plan.PartDiff:
 			diff = append(diff, r)
-		case r.Test == TestBoardCMRR && r.Part == PartCM:
+		case r.Test == plan.TestBoardCMRR && r.Part == plan.PartCM:
 			cm = append(cm, r)
 		}
 	}
@@ -438,11 +440,11 @@ func TestRunBoardOnSimulatedBench(t *testing.T) {
 	// The differential sweep's slope against the read-back drive is the
 	// board's gain A_d (truth) within 0.1 % (meter noise over ±0.5 V of
 	// drive; the meter's gain spec is 35 ppm).
-	readBack := func(rs []Reading) []Reading {
-		out := append([]Reading(nil), rs...)
+	readBack := func(rs []journal.Reading) []journal.Reading {
+		out := append([]journal.Reading(nil), rs...)
 		for i := range out {
 			if !out[i].ReadBack {
-				t.Fatalf("point %+v not read back", KeyOf(out[i]))
+				t.Fatalf("point %+v not read back", journal.KeyOf(out[i]))
 			}
 			out[i].SetVolts = out[i].ReadVolts
 		}

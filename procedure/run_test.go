@@ -12,40 +12,42 @@ import (
 	"time"
 
 	"nullbench/instrument"
+	"nullbench/procedure/journal"
+	"nullbench/procedure/plan"
 )
 
 // testPlan is a small nulling-loop plan for HX-4107 op-amps (invented part)
 // on a switch matrix, built in code with the defaults applied, then
 // shortened: 1 s dwell, 4 readings, 10 s settle time-out.
-func testPlan() *Plan {
-	p := &Plan{
-		Campaign: Campaign{Name: "HX-4107 runner test", Lot: "L-TEST"},
-		Bench: Bench{TimeScale: 1, Instruments: map[string]Instrument{
+func testPlan() *plan.Plan {
+	p := &plan.Plan{
+		Campaign: plan.Campaign{Name: "HX-4107 runner test", Lot: "L-TEST"},
+		Bench: plan.Bench{TimeScale: 1, Instruments: map[string]plan.Instrument{
 			"dmm":     {Address: "tcp://127.0.0.1:1", Profile: "dmm"},
 			"psu":     {Address: "tcp://127.0.0.1:2", Profile: "supply2"},
 			"src":     {Address: "tcp://127.0.0.1:3", Profile: "source3"},
 			"mux":     {Address: "tcp://127.0.0.1:4", Profile: "switch"},
 			"chamber": {Address: "tcp://127.0.0.1:5", Profile: "chamber"},
-		}, Roles: Roles{
-			Meter:     RoleBinding{Instrument: "dmm"},
-			SupplyPos: RoleBinding{Instrument: "psu", Channel: "1"},
-			SupplyNeg: RoleBinding{Instrument: "psu", Channel: "2", Negative: true},
-			SourceCM:  RoleBinding{Instrument: "src", Channel: "1"},
-			SourceRef: RoleBinding{Instrument: "src", Channel: "3"},
-			Switch:    RoleBinding{Instrument: "mux"},
+		}, Roles: plan.Roles{
+			Meter:     plan.RoleBinding{Instrument: "dmm"},
+			SupplyPos: plan.RoleBinding{Instrument: "psu", Channel: "1"},
+			SupplyNeg: plan.RoleBinding{Instrument: "psu", Channel: "2", Negative: true},
+			SourceCM:  plan.RoleBinding{Instrument: "src", Channel: "1"},
+			SourceRef: plan.RoleBinding{Instrument: "src", Channel: "3"},
+			Switch:    plan.RoleBinding{Instrument: "mux"},
 		}},
-		Fixture: Fixture{Kind: FixtureNullingLoop, NoiseGain: 1000, NoiseGainTolerance: 0.001,
-			CommonMode: CMBySupplyShift, MaxStimulusVolts: 12},
-		Part: Part{Number: "HX-4107", NominalPosVolts: 15, NominalNegVolts: -15, MaxSupplySpanVolts: 44,
+		Fixture: plan.Fixture{Kind: plan.FixtureNullingLoop, NoiseGain: 1000, NoiseGainTolerance: 0.001,
+			CommonMode: plan.CMBySupplyShift, MaxStimulusVolts: 12},
+		Part: plan.Part{Number: "HX-4107", NominalPosVolts: 15, NominalNegVolts: -15, MaxSupplySpanVolts: 44,
 			CMHeadroomPosVolts: 2, CMHeadroomNegVolts: 2, CMMarginVolts: 0.5, CurrentLimitAmps: 0.05},
-		Tests: []Test{
-			{Kind: TestCMRR, Levels: []float64{-10, -5, 0, 5, 10}},
-			{Kind: TestPSRRPos, Levels: []float64{-5, 0, 5}},
-			{Kind: TestPSRRNeg, Levels: []float64{-5, 0, 5}},
-			{Kind: TestPSRRSym, Levels: []float64{-4, 0, 4}},
-			{Kind: TestAOL, Levels: []float64{-5, 0, 5}},
+		Tests: []plan.Test{
+			{Kind: plan.TestCMRR, Levels: []float64{-10, -5, 0, 5, 10}},
+			{Kind: plan.TestPSRRPos, Levels: []float64{-5, 0, 5}},
+			{Kind: plan.TestPSRRNeg, Levels: []float64{-5, 0, 5}},
+			{Kind: plan.TestPSRRSym, Levels: []float64{-4, 0, 4}},
+			{Kind: plan.TestAOL, Levels: []float64{-5, 0, 5}},
 		},
-		Units: []Unit{{ID: "U01", Channel: "101"}, {ID: "U02", Channel: "102"}},
+		Units: []plan.Unit{{ID: "U01", Channel: "101"}, {ID: "U02", Channel: "102"}},
 		Hash:  "0123456789abcdef-test-plan",
 	}
 	p.ApplyDefaults()
@@ -59,28 +61,28 @@ func testPlan() *Plan {
 }
 
 // withChamber adds a chamber with the given points.
-func withChamber(p *Plan, points ...float64) *Plan {
-	p.Bench.Roles.Chamber = RoleBinding{Instrument: "chamber"}
-	p.Bench.Roles.Thermometer = RoleBinding{Instrument: "chamber"}
-	p.Temperature = Temperature{Mode: TempChamber, PointsCelsius: points, SoakToleranceC: 0.5, SoakSeconds: 120,
+func withChamber(p *plan.Plan, points ...float64) *plan.Plan {
+	p.Bench.Roles.Chamber = plan.RoleBinding{Instrument: "chamber"}
+	p.Bench.Roles.Thermometer = plan.RoleBinding{Instrument: "chamber"}
+	p.Temperature = plan.Temperature{Mode: plan.TempChamber, PointsCelsius: points, SoakToleranceC: 0.5, SoakSeconds: 120,
 		SoakTimeoutSeconds: 3600, RampMaxCPerMinute: 10, AmbientCelsius: 25}
 	return p
 }
 
 // boardPlan is an HB-220 board plan (invented part) with a board_cmrr
 // test.
-func boardPlan() *Plan {
+func boardPlan() *plan.Plan {
 	p := testPlan()
-	p.Bench.Roles.SourceRef = RoleBinding{}
-	p.Bench.Roles.SourceDiff = RoleBinding{Instrument: "src", Channel: "2"}
-	p.Fixture = Fixture{Kind: FixtureBoard, CommonMode: CMByInputDrive, BoardGain: 10, ResistorTolerance: 0.001, MaxStimulusVolts: 12}
+	p.Bench.Roles.SourceRef = plan.RoleBinding{}
+	p.Bench.Roles.SourceDiff = plan.RoleBinding{Instrument: "src", Channel: "2"}
+	p.Fixture = plan.Fixture{Kind: plan.FixtureBoard, CommonMode: plan.CMByInputDrive, BoardGain: 10, ResistorTolerance: 0.001, MaxStimulusVolts: 12}
 	p.Part.Number = "HB-220"
 	p.Part.MaxSupplySpanVolts = 36
-	p.Tests = []Test{
-		{Kind: TestBoardCMRR, Levels: []float64{-8, 0, 8}, DiffLevels: []float64{-0.5, 0, 0.5}},
-		{Kind: TestBoardPSRRPos, Levels: []float64{-2, 0, 2}},
+	p.Tests = []plan.Test{
+		{Kind: plan.TestBoardCMRR, Levels: []float64{-8, 0, 8}, DiffLevels: []float64{-0.5, 0, 0.5}},
+		{Kind: plan.TestBoardPSRRPos, Levels: []float64{-2, 0, 2}},
 	}
-	p.Units = []Unit{{ID: "B01", Channel: "201"}}
+	p.Units = []plan.Unit{{ID: "B01", Channel: "201"}}
 	p.ApplyDefaults()
 	for i := range p.Tests {
 		p.Tests[i].DwellSeconds = 1
@@ -90,7 +92,7 @@ func boardPlan() *Plan {
 	return p
 }
 
-func runFake(ctx context.Context, t *testing.T, p *Plan, fb *fakeBench, opt RunOptions) (*Outcome, error) {
+func runFake(ctx context.Context, t *testing.T, p *plan.Plan, fb *fakeBench, opt RunOptions) (*Outcome, error) {
 	t.Helper()
 	opt.Clock = fb.clk
 	if opt.Log == nil {
@@ -107,11 +109,11 @@ func noViolations(t *testing.T, fb *fakeBench) {
 }
 
 // keySet returns the work keys of readings, failing on a duplicate.
-func keySet(t *testing.T, rs []Reading) map[WorkKey]bool {
+func keySet(t *testing.T, rs []journal.Reading) map[plan.WorkKey]bool {
 	t.Helper()
-	m := map[WorkKey]bool{}
+	m := map[plan.WorkKey]bool{}
 	for _, r := range rs {
-		k := KeyOf(r)
+		k := journal.KeyOf(r)
 		if m[k] {
 			t.Fatalf("point %+v measured twice", k)
 		}
@@ -141,7 +143,7 @@ func TestRunCompleteLot(t *testing.T) {
 	// The meter is configured once per test, unit and temperature.
 	conf := 0
 	for _, c := range calls {
-		if c.Role == RoleMeter && c.Op == "configure" {
+		if c.Role == plan.RoleMeter && c.Op == "configure" {
 			conf++
 		}
 	}
@@ -174,7 +176,7 @@ func TestRunCompleteLot(t *testing.T) {
 	for _, r := range out.Readings {
 		pt := p.TemperaturePoints()[r.TempIndex]
 		if math.Abs(r.TemperatureC-pt) > p.Temperature.SoakToleranceC {
-			t.Errorf("%+v: temperature %.3f °C, point %g °C", KeyOf(r), r.TemperatureC, pt)
+			t.Errorf("%+v: temperature %.3f °C, point %g °C", journal.KeyOf(r), r.TemperatureC, pt)
 		}
 	}
 	// Progress: Begin once with the total, one Point per point, End once;
@@ -201,16 +203,16 @@ func TestRunLevelsReachThePart(t *testing.T) {
 		order string
 		want  []float64
 	}{
-		{OrderZigzag, []float64{0, 5, -5, 10, -10, -10, 10, -5, 5, 0}},
-		{OrderAscending, []float64{-10, -5, 0, 5, 10}},
-		{OrderSymmetric, []float64{-10, -5, 0, 5, 10, 10, 5, 0, -5, -10}},
+		{plan.OrderZigzag, []float64{0, 5, -5, 10, -10, -10, 10, -5, 5, 0}},
+		{plan.OrderAscending, []float64{-10, -5, 0, 5, 10}},
+		{plan.OrderSymmetric, []float64{-10, -5, 0, 5, 10, 10, 5, 0, -5, -10}},
 	}
-	for _, commonMode := range []string{CMBySupplyShift, CMByInputDrive} {
+	for _, commonMode := range []string{plan.CMBySupplyShift, plan.CMByInputDrive} {
 		for _, tc := range cases {
 			t.Run(commonMode+"/"+tc.order, func(t *testing.T) {
 				p := testPlan()
 				p.Fixture.CommonMode = commonMode
-				p.Tests = []Test{p.Tests[0]}
+				p.Tests = []plan.Test{p.Tests[0]}
 				p.Tests[0].Levels = levels
 				p.Tests[0].Order = tc.order
 				p.Tests[0].Repeats = 2
@@ -245,7 +247,7 @@ func TestRunLevelsReachThePart(t *testing.T) {
 					t.Fatalf("levels measured in order %v, want %v", got, want)
 				}
 				for i, r := range out.Readings {
-					s := StateAt(p, &p.Tests[0], "", r.SetVolts)
+					s := plan.StateAt(p, &p.Tests[0], "", r.SetVolts)
 					w := [5]float64{s.PosVolts, s.NegVolts, s.CMVolts, s.DiffVolts, s.RefVolts}
 					if seen[i] != w {
 						t.Errorf("reading %d (level %g): the part had %v, StateAt says %v", i, r.SetVolts, seen[i], w)
@@ -261,7 +263,7 @@ func TestRunLevelsReachThePart(t *testing.T) {
 				// method carries the open-loop-gain term.
 				slope := fitSlope(out.Readings)
 				w := fb.k * fb.kc
-				if commonMode == CMBySupplyShift {
+				if commonMode == plan.CMBySupplyShift {
 					w = fb.k * (fb.kc + fb.ko)
 				}
 				if math.Abs(slope-w) > 1e-12 {
@@ -273,7 +275,7 @@ func TestRunLevelsReachThePart(t *testing.T) {
 }
 
 // fitSlope is the least-squares slope of MeterVolts on SetVolts (GUM H.3).
-func fitSlope(rs []Reading) float64 {
+func fitSlope(rs []journal.Reading) float64 {
 	var mx, my float64
 	for _, r := range rs {
 		mx += r.SetVolts
@@ -305,18 +307,18 @@ func TestRunBoardSweeps(t *testing.T) {
 		t.Fatal(err)
 	}
 	noViolations(t, fb)
-	var cm, diff []Reading
+	var cm, diff []journal.Reading
 	for i, r := range out.Readings {
-		if r.Test != TestBoardCMRR {
+		if r.Test != plan.TestBoardCMRR {
 			continue
 		}
 		switch r.Part {
-		case PartCM:
+		case plan.PartCM:
 			cm = append(cm, r)
 			if seen[i][3] != 0 || seen[i][2] != r.SetVolts {
 				t.Errorf("cm sweep level %g: Vcm %g, Vd %g (want Vd = 0)", r.SetVolts, seen[i][2], seen[i][3])
 			}
-		case PartDiff:
+		case plan.PartDiff:
 			diff = append(diff, r)
 			if seen[i][2] != 0 || seen[i][3] != r.SetVolts {
 				t.Errorf("diff sweep level %g: Vcm %g, Vd %g (want Vcm = 0)", r.SetVolts, seen[i][2], seen[i][3])
@@ -353,15 +355,15 @@ func TestRunReadBack(t *testing.T) {
 		L := r.SetVolts
 		var want float64
 		switch r.Test {
-		case TestCMRR: // rails 15-L and -15-L read 1.001×: equivalent Vcm = -(V+ + V-)/2 = 1.001·L
+		case plan.TestCMRR: // rails 15-L and -15-L read 1.001×: equivalent Vcm = -(V+ + V-)/2 = 1.001·L
 			want = 1.001 * L
-		case TestPSRRPos: // V+ = 15 + L read 1.001×: change 1.001·(15+L) - 15
+		case plan.TestPSRRPos: // V+ = 15 + L read 1.001×: change 1.001·(15+L) - 15
 			want = 1.001*(15+L) - 15
-		case TestPSRRNeg: // V- = -15 - L read 1.001×: growth of |V-| = 1.001·(15+L) - 15
+		case plan.TestPSRRNeg: // V- = -15 - L read 1.001×: growth of |V-| = 1.001·(15+L) - 15
 			want = 1.001*(15+L) - 15
-		case TestPSRRSym: // span 30 + L read 1.001×: change 1.001·(30+L) - 30
+		case plan.TestPSRRSym: // span 30 + L read 1.001×: change 1.001·(30+L) - 30
 			want = 1.001*(30+L) - 30
-		case TestAOL: // the reference source read 1.001×
+		case plan.TestAOL: // the reference source read 1.001×
 			want = 1.001 * L
 		}
 		if !r.ReadBack || math.Abs(r.ReadVolts-want) > 1e-9 {
@@ -394,7 +396,7 @@ func TestRunSettling(t *testing.T) {
 	for _, tc := range cases {
 		t.Run(tc.name, func(t *testing.T) {
 			p := testPlan()
-			p.Tests = []Test{p.Tests[4]} // aol
+			p.Tests = []plan.Test{p.Tests[4]} // aol
 			p.Tests[0].SettleTimeoutSeconds = tc.settleTimeout
 			p.Units = p.Units[:1]
 			fb := newFakeBench(p)
@@ -404,7 +406,7 @@ func TestRunSettling(t *testing.T) {
 				t.Fatal(err)
 			}
 			for i, r := range out.Readings {
-				has := slices.Contains(r.Flags, FlagSettleTimeout)
+				has := slices.Contains(r.Flags, journal.FlagSettleTimeout)
 				if tc.name == "tail" && i > 0 && out.Readings[i-1].SetVolts == r.SetVolts {
 					continue // no change of level, nothing to settle (zigzag turns back on itself)
 				}
@@ -425,16 +427,16 @@ func TestRunSettling(t *testing.T) {
 func TestRunRefusesUnsafePlanBeforeContact(t *testing.T) {
 	cases := []struct {
 		name   string
-		mutate func(p *Plan)
+		mutate func(p *plan.Plan)
 	}{
-		{"span above the maximum", func(p *Plan) { p.Tests[1].Levels = []float64{-5, 0, 20} }},
-		{"common mode out of range", func(p *Plan) { p.Tests[0].Levels = []float64{-14, 0, 14} }},
-		{"no current limit", func(p *Plan) { p.Part.CurrentLimitAmps = 0 }},
-		{"hazardous without consent", func(p *Plan) {
+		{"span above the maximum", func(p *plan.Plan) { p.Tests[1].Levels = []float64{-5, 0, 20} }},
+		{"common mode out of range", func(p *plan.Plan) { p.Tests[0].Levels = []float64{-14, 0, 14} }},
+		{"no current limit", func(p *plan.Plan) { p.Part.CurrentLimitAmps = 0 }},
+		{"hazardous without consent", func(p *plan.Plan) {
 			p.Part.MaxSupplySpanVolts = 200
 			p.Part.NominalPosVolts, p.Part.NominalNegVolts = 40, -40
 		}},
-		{"invalid plan", func(p *Plan) { p.Tests[0].Readings = 0 }},
+		{"invalid plan", func(p *plan.Plan) { p.Tests[0].Readings = 0 }},
 	}
 	for _, tc := range cases {
 		t.Run(tc.name, func(t *testing.T) {
@@ -445,10 +447,10 @@ func TestRunRefusesUnsafePlanBeforeContact(t *testing.T) {
 			if err == nil {
 				t.Fatal("unsafe plan accepted")
 			}
-			var se *SafetyError
-			var pe PlanErrors
+			var se *plan.SafetyError
+			var pe plan.Errors
 			if !errors.As(err, &se) && !errors.As(err, &pe) {
-				t.Errorf("error %T is neither a SafetyError nor PlanErrors: %v", err, err)
+				t.Errorf("error %T is neither a SafetyError nor plan.Errors: %v", err, err)
 			}
 			if out != nil || len(fb.callsSnapshot()) != 0 {
 				t.Fatalf("%d instrument calls made before the refusal: %v", len(fb.calls), err)
@@ -461,14 +463,14 @@ func TestRunRefusesUnsafePlanBeforeContact(t *testing.T) {
 		p.Part.NominalPosVolts, p.Part.NominalNegVolts = 35, -35 // 70 V across the part, above 60 V DC
 		p.Tests = p.Tests[1:2]
 		p.Units = p.Units[:1]
-		for _, consent := range []HazardConsent{{AllowOption: true}, {AllowOption: true, Interactive: true}} {
+		for _, consent := range []plan.HazardConsent{{AllowOption: true}, {AllowOption: true, Interactive: true}} {
 			fb := newFakeBench(p)
 			if _, err := runFake(context.Background(), t, p, fb, RunOptions{Consent: consent}); err == nil || len(fb.calls) != 0 {
 				t.Fatalf("consent %+v: err %v after %d calls", consent, err, len(fb.calls))
 			}
 		}
 		fb := newFakeBench(p)
-		out, err := runFake(context.Background(), t, p, fb, RunOptions{Consent: HazardConsent{AllowOption: true, Interactive: true, Confirmed: true}})
+		out, err := runFake(context.Background(), t, p, fb, RunOptions{Consent: plan.HazardConsent{AllowOption: true, Interactive: true, Confirmed: true}})
 		if err != nil || !out.Complete {
 			t.Fatalf("err %v", err)
 		}
@@ -486,7 +488,7 @@ func TestRunRefusesUnsafePlanBeforeContact(t *testing.T) {
 	})
 	t.Run("hand swap without operator", func(t *testing.T) {
 		p := testPlan()
-		p.Bench.Roles.Switch = RoleBinding{}
+		p.Bench.Roles.Switch = plan.RoleBinding{}
 		for i := range p.Units {
 			p.Units[i].Channel = ""
 		}
@@ -529,7 +531,7 @@ func failNthMeterRead(measurement bool, nth int, err error, sticky bool) func(fa
 	var spot measurementSpotter
 	seen, dead := 0, false
 	return func(c fakeCall) error {
-		if dead && c.Role == RoleMeter {
+		if dead && c.Role == plan.RoleMeter {
 			return fmt.Errorf("%s: %w", c, err)
 		}
 		if spot.measurement(c) == measurement && c.Op == "read-n" {
@@ -558,7 +560,7 @@ func lastReadCall(fb *fakeBench) int {
 // the supplies end at 0 V and off ("down"), are not touched ("left", a
 // source could not be switched off), or were tried ("dead"); the chamber
 // (if used) is back at ambient.
-func checkSafeState(t *testing.T, fb *fakeBench, p *Plan, after int, supplies string) {
+func checkSafeState(t *testing.T, fb *fakeBench, p *plan.Plan, after int, supplies string) {
 	t.Helper()
 	calls := fb.callsSnapshot()
 	lastSrc, firstSup := -1, -1
@@ -566,7 +568,7 @@ func checkSafeState(t *testing.T, fb *fakeBench, p *Plan, after int, supplies st
 		switch {
 		case isSourceRole(c.Role) && (c.Op == "set-volts" || c.Op == "output"):
 			lastSrc = c.N
-		case (c.Role == RoleSupplyPos || c.Role == RoleSupplyNeg) && (c.Op == "set-volts" || c.Op == "output") && firstSup < 0:
+		case (c.Role == plan.RoleSupplyPos || c.Role == plan.RoleSupplyNeg) && (c.Op == "set-volts" || c.Op == "output") && firstSup < 0:
 			firstSup = c.N
 		}
 	}
@@ -583,12 +585,12 @@ func checkSafeState(t *testing.T, fb *fakeBench, p *Plan, after int, supplies st
 			t.Error("the safe state did not try the supplies")
 		}
 	case "down":
-		for _, role := range sourceRoles(p) {
+		for _, role := range plan.SourceRoles(p) {
 			if o := fb.out[role]; o.on {
 				t.Errorf("%s left on at %g V", role, o.volts)
 			}
 		}
-		for _, role := range []string{RoleSupplyPos, RoleSupplyNeg} {
+		for _, role := range []string{plan.RoleSupplyPos, plan.RoleSupplyNeg} {
 			if o := fb.out[role]; o.on || o.volts != 0 {
 				t.Errorf("%s left at %g V, on=%v", role, o.volts, o.on)
 			}
@@ -596,7 +598,7 @@ func checkSafeState(t *testing.T, fb *fakeBench, p *Plan, after int, supplies st
 	default:
 		t.Fatalf("bad expectation %q", supplies)
 	}
-	if p.Temperature.Mode == TempChamber && len(fb.setPoints) > 0 {
+	if p.Temperature.Mode == plan.TempChamber && len(fb.setPoints) > 0 {
 		if last := fb.setPoints[len(fb.setPoints)-1].c; last != p.Temperature.AmbientCelsius {
 			t.Errorf("chamber left at %g °C, want ambient %g", last, p.Temperature.AmbientCelsius)
 		}
@@ -607,7 +609,7 @@ func TestRunFaultBringsBenchToSafeState(t *testing.T) {
 	scpiErr := &instrument.InstrumentError{Instrument: "dmm", Command: "READ?", Code: -222, Message: "Data out of range"}
 	cases := []struct {
 		name   string
-		plan   func() *Plan
+		plan   func() *plan.Plan
 		fault  func() func(fakeCall) error
 		cancel func(c fakeCall) bool // cancel the run's context after this call
 		// expectations
@@ -620,15 +622,15 @@ func TestRunFaultBringsBenchToSafeState(t *testing.T) {
 	}{
 		{name: "meter error mid-test", plan: testPlan,
 			fault: func() func(fakeCall) error { return failNthMeterRead(true, 14, scpiErr, false) },
-			is:    scpiErr, stage: stageMeasure, unit: "U01", test: TestPSRRPos, supplies: "down", safeOK: true},
+			is:    scpiErr, stage: stageMeasure, unit: "U01", test: plan.TestPSRRPos, supplies: "down", safeOK: true},
 		{name: "supply time-out once", plan: testPlan,
 			fault: func() func(fakeCall) error {
-				return failNth(RoleSupplyPos, "set-volts", 40, instrument.ErrTimeout, false)
+				return failNth(plan.RoleSupplyPos, "set-volts", 40, instrument.ErrTimeout, false)
 			},
-			is: instrument.ErrTimeout, stage: stageLevel, unit: "U01", test: TestCMRR, supplies: "down", safeOK: true},
+			is: instrument.ErrTimeout, stage: stageLevel, unit: "U01", test: plan.TestCMRR, supplies: "down", safeOK: true},
 		{name: "supply instrument stops answering", plan: testPlan,
 			fault: func() func(fakeCall) error {
-				return failNth(RoleSupplyNeg, "set-volts", 60, instrument.ErrTimeout, true)
+				return failNth(plan.RoleSupplyNeg, "set-volts", 60, instrument.ErrTimeout, true)
 			},
 			is: instrument.ErrTimeout, stage: stageLevel, unit: "U01", supplies: "dead", safeOK: false},
 		{name: "meter connection lost", plan: testPlan,
@@ -650,25 +652,25 @@ func TestRunFaultBringsBenchToSafeState(t *testing.T) {
 			cancel: func() func(c fakeCall) bool {
 				n := 0
 				return func(c fakeCall) bool {
-					if c.Role == RoleSupplyPos && c.Op == "output" && c.On {
+					if c.Role == plan.RoleSupplyPos && c.Op == "output" && c.On {
 						n++
 					}
 					return n == 2
 				}
 			}(),
 			is: context.Canceled, stage: stagePowerUp, unit: "U02", interrupted: true, supplies: "down", safeOK: true},
-		{name: "input drive source lost while driving", plan: func() *Plan {
+		{name: "input drive source lost while driving", plan: func() *plan.Plan {
 			p := testPlan()
-			p.Fixture.CommonMode = CMByInputDrive
-			p.Tests = []Test{p.Tests[0]}
-			p.Tests[0].Order = OrderAscending
+			p.Fixture.CommonMode = plan.CMByInputDrive
+			p.Tests = []plan.Test{p.Tests[0]}
+			p.Tests[0].Order = plan.OrderAscending
 			return p
 		},
 			// point 4 is at +5 V: the source dies before it is read back
 			// (read-back 5: the first is the check before the first unit)
-			fault: func() func(fakeCall) error { return failNth(RoleSourceCM, "read-volts", 5, errLost, true) },
-			is:    instrument.ErrClosed, stage: stageReadBack, unit: "U01", test: TestCMRR, supplies: "left", safeOK: false},
-		{name: "chamber soak time-out", plan: func() *Plan {
+			fault: func() func(fakeCall) error { return failNth(plan.RoleSourceCM, "read-volts", 5, errLost, true) },
+			is:    instrument.ErrClosed, stage: stageReadBack, unit: "U01", test: plan.TestCMRR, supplies: "left", safeOK: false},
+		{name: "chamber soak time-out", plan: func() *plan.Plan {
 			p := withChamber(testPlan(), 25, 60)
 			p.Temperature.SoakTimeoutSeconds = 600
 			return p
@@ -676,7 +678,7 @@ func TestRunFaultBringsBenchToSafeState(t *testing.T) {
 			fault: nil, stage: stageSoak, supplies: "down", safeOK: true},
 		{name: "switch refuses a channel", plan: testPlan,
 			fault: func() func(fakeCall) error {
-				return failNth(RoleSwitch, "close", 2, errors.New("mux: ROUT:CLOS (@102): -222"), false)
+				return failNth(plan.RoleSwitch, "close", 2, errors.New("mux: ROUT:CLOS (@102): -222"), false)
 			},
 			stage: stageSelect, unit: "U02", supplies: "down", safeOK: true},
 	}
@@ -755,11 +757,11 @@ func TestRunFaultBringsBenchToSafeState(t *testing.T) {
 }
 
 func TestRunHandSwap(t *testing.T) {
-	mk := func() *Plan {
+	mk := func() *plan.Plan {
 		p := testPlan()
-		p.Bench.Roles.Switch = RoleBinding{}
+		p.Bench.Roles.Switch = plan.RoleBinding{}
 		p.Tests = p.Tests[:2]
-		p.Units = []Unit{{ID: "U07"}, {ID: "U08"}, {ID: "U09"}}
+		p.Units = []plan.Unit{{ID: "U07"}, {ID: "U08"}, {ID: "U09"}}
 		return p
 	}
 	t.Run("swaps with the bench down", func(t *testing.T) {
@@ -802,7 +804,7 @@ func TestRunTemperatureModes(t *testing.T) {
 	t.Run("manual", func(t *testing.T) {
 		p := testPlan()
 		p.Tests = p.Tests[1:2]
-		p.Temperature = Temperature{Mode: TempManual, PointsCelsius: []float64{25, 40}, SoakToleranceC: 0.5, SoakTimeoutSeconds: 1, AmbientCelsius: 25}
+		p.Temperature = plan.Temperature{Mode: plan.TempManual, PointsCelsius: []float64{25, 40}, SoakToleranceC: 0.5, SoakTimeoutSeconds: 1, AmbientCelsius: 25}
 		fb := newFakeBench(p)
 		op := &fakeOperator{fb: fb, temps: []float64{24.6, 39.8}}
 		out, err := runFake(context.Background(), t, p, fb, RunOptions{Operator: op})
@@ -815,15 +817,15 @@ func TestRunTemperatureModes(t *testing.T) {
 		for _, r := range out.Readings {
 			want := []float64{24.6, 39.8}[r.TempIndex]
 			if r.TemperatureC != want {
-				t.Errorf("%+v: %g °C, typed %g", KeyOf(r), r.TemperatureC, want)
+				t.Errorf("%+v: %g °C, typed %g", journal.KeyOf(r), r.TemperatureC, want)
 			}
 		}
 	})
 	t.Run("thermometer", func(t *testing.T) {
 		p := testPlan()
 		p.Tests = p.Tests[1:2]
-		p.Bench.Roles.Thermometer = RoleBinding{Instrument: "chamber"}
-		p.Temperature = Temperature{Mode: TempThermometer, SoakToleranceC: 0.5, SoakTimeoutSeconds: 1, AmbientCelsius: 23}
+		p.Bench.Roles.Thermometer = plan.RoleBinding{Instrument: "chamber"}
+		p.Temperature = plan.Temperature{Mode: plan.TempThermometer, SoakToleranceC: 0.5, SoakTimeoutSeconds: 1, AmbientCelsius: 23}
 		fb := newFakeBench(p)
 		fb.air, fb.sp = 23.4, 23.4
 		rig := fb.rig()
@@ -859,7 +861,7 @@ func TestRunTemperatureModes(t *testing.T) {
 }
 
 func TestRunErrorMessage(t *testing.T) {
-	e := &RunError{Stage: stageSettle, TempIndex: 1, TemperatureC: 85, Unit: "U03", TestIndex: 1, Test: TestPSRRPos,
+	e := &RunError{Stage: stageSettle, TempIndex: 1, TemperatureC: 85, Unit: "U03", TestIndex: 1, Test: plan.TestPSRRPos,
 		Repeat: 0, Step: 2, LevelVolts: 5, AtStep: true,
 		Err: fmt.Errorf("meter: read: %w", &instrument.InstrumentError{Instrument: "dmm", Command: "READ?", Code: -222, Message: "Data out of range"})}
 	got := e.Error()
@@ -886,7 +888,7 @@ func TestRunRampDwellIsAMinimum(t *testing.T) {
 	} {
 		t.Run(tc.dwell.String(), func(t *testing.T) {
 			p := testPlan()
-			p.Tests = []Test{p.Tests[1]} // psrr_pos: V+ alone ramps in 1 V steps
+			p.Tests = []plan.Test{p.Tests[1]} // psrr_pos: V+ alone ramps in 1 V steps
 			p.Units = p.Units[:1]
 			fb := newFakeBench(p)
 			if _, err := runFake(context.Background(), t, p, fb, RunOptions{Timing: Timing{RampDwell: tc.dwell}}); err != nil {
@@ -930,11 +932,11 @@ func TestRunSettlingReadsAverage(t *testing.T) {
 	settles, measurements := 0, 0
 	test := -1
 	for _, c := range fb.callsSnapshot() {
-		if c.Role == RoleMeter && c.Op == "configure" {
+		if c.Role == plan.RoleMeter && c.Op == "configure" {
 			test++
 		}
 		meas := spot.measurement(c)
-		if c.Role != RoleMeter || !strings.HasPrefix(c.Op, "read") {
+		if c.Role != plan.RoleMeter || !strings.HasPrefix(c.Op, "read") {
 			continue
 		}
 		if c.Op != "read-n" {
@@ -959,7 +961,7 @@ func TestRunSettlingReadsAverage(t *testing.T) {
 	}
 }
 
-func testIndex(p *Plan, kind string) int {
+func testIndex(p *plan.Plan, kind string) int {
 	for i := range p.Tests {
 		if p.Tests[i].Kind == kind {
 			return i
@@ -974,7 +976,7 @@ func testIndex(p *Plan, kind string) int {
 // the time-out only ends the wait after two readings failed to agree.
 func TestRunSettleTimeoutNeedsAComparison(t *testing.T) {
 	p := testPlan()
-	p.Tests = []Test{p.Tests[4]} // aol
+	p.Tests = []plan.Test{p.Tests[4]} // aol
 	p.Units = p.Units[:1]
 	fb := newFakeBench(p)
 	var spot measurementSpotter
@@ -993,7 +995,7 @@ func TestRunSettleTimeoutNeedsAComparison(t *testing.T) {
 		t.Fatalf("stalled %d settling reads", stalled)
 	}
 	for _, r := range out.Readings {
-		if slices.Contains(r.Flags, FlagSettleTimeout) {
+		if slices.Contains(r.Flags, journal.FlagSettleTimeout) {
 			t.Errorf("step %d flagged %v after a stalled read (settle %.1f s)", r.Step, r.Flags, r.SettleSeconds)
 		}
 	}
@@ -1053,9 +1055,9 @@ func TestRunChecksSupplyCurrent(t *testing.T) {
 func TestRunSwitchesALiveBenchOffFirst(t *testing.T) {
 	p := testPlan()
 	fb := newFakeBench(p)
-	fb.out[RoleSupplyPos] = &fakeOutput{volts: 15, on: true}
-	fb.out[RoleSupplyNeg] = &fakeOutput{volts: -15, on: true}
-	fb.out[RoleSourceCM] = &fakeOutput{volts: 2, on: true}
+	fb.out[plan.RoleSupplyPos] = &fakeOutput{volts: 15, on: true}
+	fb.out[plan.RoleSupplyNeg] = &fakeOutput{volts: -15, on: true}
+	fb.out[plan.RoleSourceCM] = &fakeOutput{volts: 2, on: true}
 	if _, err := runFake(context.Background(), t, p, fb, RunOptions{}); err != nil {
 		t.Fatal(err)
 	}
@@ -1064,11 +1066,11 @@ func TestRunSwitchesALiveBenchOffFirst(t *testing.T) {
 	firstSwitch, lastSourceOff, firstSupplyOff := -1, -1, -1
 	for i, c := range calls {
 		switch {
-		case c.Role == RoleSwitch && firstSwitch < 0:
+		case c.Role == plan.RoleSwitch && firstSwitch < 0:
 			firstSwitch = i
 		case c.Op == "output" && !c.On && isSourceRole(c.Role) && firstSwitch < 0:
 			lastSourceOff = i
-		case c.Op == "output" && !c.On && (c.Role == RoleSupplyPos || c.Role == RoleSupplyNeg) && firstSupplyOff < 0:
+		case c.Op == "output" && !c.On && (c.Role == plan.RoleSupplyPos || c.Role == plan.RoleSupplyNeg) && firstSupplyOff < 0:
 			firstSupplyOff = i
 		}
 	}
@@ -1088,8 +1090,8 @@ func TestRunSwitchesALiveBenchOffFirst(t *testing.T) {
 func TestRunSafeStateAfterALostReply(t *testing.T) {
 	p := testPlan()
 	for _, tc := range p.Tests {
-		if tc.Kind == TestPSRRPos {
-			p.Tests = []Test{tc}
+		if tc.Kind == plan.TestPSRRPos {
+			p.Tests = []plan.Test{tc}
 			break
 		}
 	}
@@ -1101,7 +1103,7 @@ func TestRunSafeStateAfterALostReply(t *testing.T) {
 		// V+ moving above nominal during the sweep (16, then 17 V for the
 		// +2 V level): the step up to 17 V takes effect, then the reply is
 		// lost, so the runner believes 16 V.
-		if c.Role == RoleSupplyPos && c.Arg > p.Part.NominalPosVolts {
+		if c.Role == plan.RoleSupplyPos && c.Arg > p.Part.NominalPosVolts {
 			if n++; n == 2 {
 				return fmt.Errorf("%s: %w", c, errLost)
 			}

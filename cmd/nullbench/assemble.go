@@ -6,17 +6,19 @@ import (
 	"time"
 
 	"nullbench/fit"
-	"nullbench/procedure"
+	"nullbench/procedure/analysis"
+	"nullbench/procedure/journal"
+	"nullbench/procedure/plan"
 	"nullbench/report"
 )
 
 // campaignRecord is one measured plan: what the report needs beside the
 // analysis results.
 type campaignRecord struct {
-	Plan       *procedure.Plan
-	Readings   []procedure.Reading
-	Results    *procedure.Results
-	Identities []procedure.JournalIdentity
+	Plan       *plan.Plan
+	Readings   []journal.Reading
+	Results    *analysis.Results
+	Identities []journal.Identity
 	Started    time.Time
 	Finished   time.Time
 }
@@ -49,7 +51,7 @@ func toReport(recs ...campaignRecord) *report.Campaign {
 			if c.Started.IsZero() || (!r.Started.IsZero() && r.Started.Before(c.Started)) {
 				c.Started = r.Started
 			}
-			if p.Fixture.Kind == procedure.FixtureBoard {
+			if p.Fixture.Kind == plan.FixtureBoard {
 				// The board's own gains and tolerances go in the Board sheet;
 				// keep its design figures for the summary too.
 				c.Fixture.BoardGain = p.Fixture.BoardGain
@@ -71,7 +73,7 @@ func toReport(recs ...campaignRecord) *report.Campaign {
 	return c
 }
 
-func appendInstrument(list []report.InstrumentInfo, id procedure.JournalIdentity) []report.InstrumentInfo {
+func appendInstrument(list []report.InstrumentInfo, id journal.Identity) []report.InstrumentInfo {
 	for _, in := range list {
 		if in.Name == id.Instrument && in.Identity == id.IDN {
 			return list
@@ -80,7 +82,7 @@ func appendInstrument(list []report.InstrumentInfo, id procedure.JournalIdentity
 	return append(list, report.InstrumentInfo{Name: id.Instrument, Roles: id.Roles, Address: id.Address, Identity: id.IDN})
 }
 
-func fixtureInfo(p *procedure.Plan) report.FixtureInfo {
+func fixtureInfo(p *plan.Plan) report.FixtureInfo {
 	f := p.Fixture
 	return report.FixtureInfo{
 		Kind: f.Kind, CommonMode: f.CommonMode, Output: f.Output,
@@ -89,7 +91,7 @@ func fixtureInfo(p *procedure.Plan) report.FixtureInfo {
 	}
 }
 
-func ruleWords(res *procedure.Results) string {
+func ruleWords(res *analysis.Results) string {
 	if res == nil {
 		return ""
 	}
@@ -99,7 +101,7 @@ func ruleWords(res *procedure.Results) string {
 
 // setPoint is the plan's nominal temperature of a reading: the report joins
 // readings, fits and results on it.
-func setPoint(p *procedure.Plan, idx int) float64 {
+func setPoint(p *plan.Plan, idx int) float64 {
 	pts := p.TemperaturePoints()
 	if idx >= 0 && idx < len(pts) {
 		return pts[idx]
@@ -107,10 +109,10 @@ func setPoint(p *procedure.Plan, idx int) float64 {
 	return p.Temperature.AmbientCelsius
 }
 
-func addReadings(c *report.Campaign, p *procedure.Plan, rs []procedure.Reading) {
+func addReadings(c *report.Campaign, p *plan.Plan, rs []journal.Reading) {
 	for _, r := range rs {
 		measured := math.NaN()
-		if p.Temperature.Mode != procedure.TempNone && p.Temperature.Mode != "" {
+		if p.Temperature.Mode != plan.TempNone && p.Temperature.Mode != "" {
 			measured = r.TemperatureC
 		}
 		c.Readings = append(c.Readings, report.Reading{
@@ -123,14 +125,14 @@ func addReadings(c *report.Campaign, p *procedure.Plan, rs []procedure.Reading) 
 }
 
 // condTemp is the nominal temperature of an analysis condition.
-func condTemp(res *procedure.Results, cond int) float64 {
+func condTemp(res *analysis.Results, cond int) float64 {
 	if cond >= 0 && cond < len(res.Conditions) {
 		return res.Conditions[cond].SetPointC
 	}
 	return math.NaN()
 }
 
-func addResults(c *report.Campaign, res *procedure.Results) {
+func addResults(c *report.Campaign, res *analysis.Results) {
 	for _, r := range res.Ratios {
 		t := condTemp(res, r.Condition)
 		rj := r.Rejection
@@ -176,9 +178,9 @@ func addResults(c *report.Campaign, res *procedure.Results) {
 		// a board's two sweeps come from its board row below.
 		test := r.Name
 		switch {
-		case r.Name == procedure.ResultCMRRUncorrected:
-			test = procedure.TestCMRR
-		case r.Name == procedure.PsrrWorst, r.Name == procedure.TestBoardCMRR, len(r.DerivedFrom) > 0:
+		case r.Name == analysis.ResultCMRRUncorrected:
+			test = plan.TestCMRR
+		case r.Name == plan.PsrrWorst, r.Name == plan.TestBoardCMRR, len(r.DerivedFrom) > 0:
 			continue
 		}
 		c.Fits = append(c.Fits, fitRow(r.Unit, test, "", t, r.Line, r.NoiseGain, r.Nonlinearity, r.NonlinearityChecked))
@@ -186,10 +188,10 @@ func addResults(c *report.Campaign, res *procedure.Results) {
 	for _, b := range res.Boards {
 		t := condTemp(res, b.Condition)
 		if b.HasDiffGain {
-			c.Fits = append(c.Fits, fitRow(b.Unit, procedure.TestBoardCMRR, procedure.PartDiff, t, b.DiffLine, 1, fit.Nonlinearity{}, false))
+			c.Fits = append(c.Fits, fitRow(b.Unit, plan.TestBoardCMRR, plan.PartDiff, t, b.DiffLine, 1, fit.Nonlinearity{}, false))
 		}
 		if b.HasCMGain {
-			c.Fits = append(c.Fits, fitRow(b.Unit, procedure.TestBoardCMRR, procedure.PartCM, t, b.CMLine, 1, fit.Nonlinearity{}, false))
+			c.Fits = append(c.Fits, fitRow(b.Unit, plan.TestBoardCMRR, plan.PartCM, t, b.CMLine, 1, fit.Nonlinearity{}, false))
 		}
 		row := report.BoardRow{
 			Unit: b.Unit, TemperatureC: t,
@@ -217,11 +219,11 @@ func addResults(c *report.Campaign, res *procedure.Results) {
 				continue
 			}
 			switch {
-			case r.Name == procedure.ResultCMRRUncorrected:
+			case r.Name == analysis.ResultCMRRUncorrected:
 				row.CMRRUncorrectedDB = r.Rejection.RatioDB
-			case r.Name == procedure.TestCMRR && r.AOLCorrected:
+			case r.Name == plan.TestCMRR && r.AOLCorrected:
 				row.CMRRCorrectedDB = r.Rejection.RatioDB
-			case r.Name == procedure.TestCMRR && math.IsNaN(row.CMRRUncorrectedDB):
+			case r.Name == plan.TestCMRR && math.IsNaN(row.CMRRUncorrectedDB):
 				row.CMRRUncorrectedDB = r.Rejection.RatioDB
 			}
 		}

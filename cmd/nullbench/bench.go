@@ -10,6 +10,8 @@ import (
 
 	"nullbench/instrument"
 	"nullbench/procedure"
+	"nullbench/procedure/journal"
+	"nullbench/procedure/plan"
 )
 
 // openBench connects to every instrument the plan's bench section names,
@@ -17,7 +19,7 @@ import (
 // opens connections; the returned close function closes them all.
 //
 // sleep is the clock's wait, so that drivers settle in bench time.
-func openBench(ctx context.Context, p *procedure.Plan, sleep func(context.Context, time.Duration) error) (*procedure.Rig, func(), error) {
+func openBench(ctx context.Context, p *plan.Plan, sleep func(context.Context, time.Duration) error) (*procedure.Rig, func(), error) {
 	opened := map[string]*instrument.Instrument{}
 	closeAll := func() {
 		for _, in := range opened {
@@ -48,7 +50,7 @@ func openBench(ctx context.Context, p *procedure.Plan, sleep func(context.Contex
 	opts := instrument.DriverOptions{Sleep: sleep}
 	for _, name := range names {
 		in := opened[name]
-		rig.Identities = append(rig.Identities, procedure.JournalIdentity{
+		rig.Identities = append(rig.Identities, journal.Identity{
 			Instrument: name,
 			Roles:      usedBy(roles, name),
 			Address:    in.Address.String(),
@@ -74,10 +76,10 @@ func openBench(ctx context.Context, p *procedure.Plan, sleep func(context.Contex
 
 type roleBinding struct {
 	role    string
-	binding procedure.RoleBinding
+	binding plan.RoleBinding
 }
 
-func roleBindings(p *procedure.Plan) []roleBinding {
+func roleBindings(p *plan.Plan) []roleBinding {
 	r := p.Bench.Roles
 	return []roleBinding{
 		{"meter", r.Meter}, {"supply_pos", r.SupplyPos}, {"supply_neg", r.SupplyNeg},
@@ -96,7 +98,7 @@ func usedBy(roles []roleBinding, name string) []string {
 	return out
 }
 
-func bindRole(rig *procedure.Rig, role string, b procedure.RoleBinding, in *instrument.Instrument, opts instrument.DriverOptions) error {
+func bindRole(rig *procedure.Rig, role string, b plan.RoleBinding, in *instrument.Instrument, opts instrument.DriverOptions) error {
 	s, prof := in.Session, in.Profile
 	switch role {
 	case "meter":
@@ -108,7 +110,7 @@ func bindRole(rig *procedure.Rig, role string, b procedure.RoleBinding, in *inst
 		acc := m.Accuracy()
 		// The offset term of a DMM cancels in a slope; it is kept for the
 		// budget's record at the 10 V range, the one the plans use most.
-		rig.MeterAccuracy = procedure.Accuracy{GainPPM: acc.GainPPM, OffsetVolts: acc.OffsetPPMOfRange * 1e-6 * 10}
+		rig.MeterAccuracy = plan.Accuracy{GainPPM: acc.GainPPM, OffsetVolts: acc.OffsetPPMOfRange * 1e-6 * 10}
 	case "supply_pos", "supply_neg":
 		d, err := instrument.NewSupply(s, prof, b.Channel, b.Negative, opts)
 		if err != nil {
@@ -171,7 +173,7 @@ func widenStimulus(rig *procedure.Rig, a instrument.SupplyAccuracy) {
 }
 
 // identitiesText lists the instruments for a summary.
-func identitiesText(ids []procedure.JournalIdentity) string {
+func identitiesText(ids []journal.Identity) string {
 	var b strings.Builder
 	for _, id := range ids {
 		fmt.Fprintf(&b, "  %-8s %-28s %s\n", id.Instrument, strings.Join(id.Roles, ","), id.IDN)

@@ -7,7 +7,7 @@ import (
 
 	"github.com/spf13/cobra"
 
-	"nullbench/procedure"
+	"nullbench/procedure/plan"
 )
 
 type checkOptions struct {
@@ -36,16 +36,16 @@ is invalid (2) or would be refused as unsafe (4).`,
 }
 
 func runCheck(std streams, o checkOptions) error {
-	p, err := procedure.LoadPlan(o.Plan)
+	p, err := plan.Load(o.Plan)
 	if err != nil {
 		return withCode(exitUsage, err)
 	}
-	if err := procedure.WriteCheck(std.Out, p); err != nil {
+	if err := plan.WriteCheck(std.Out, p); err != nil {
 		return err
 	}
-	consent := procedure.HazardConsent{AllowOption: o.AllowHazardous, Interactive: o.AllowHazardous, Confirmed: o.AllowHazardous}
-	err = procedure.CheckSafetyWith(p, consent)
-	if h := procedure.AssessHazard(p); o.AllowHazardous && h.Hazardous {
+	consent := plan.HazardConsent{AllowOption: o.AllowHazardous, Interactive: o.AllowHazardous, Confirmed: o.AllowHazardous}
+	err = plan.CheckSafetyWith(p, consent)
+	if h := plan.AssessHazard(p); o.AllowHazardous && h.Hazardous {
 		// The step table above judges without consent and says REFUSED
 		// for the hazard; say what the exit status judges.
 		verdict := "the plan is safe apart from that"
@@ -63,7 +63,7 @@ func safetyExit(err error) error {
 	if err == nil {
 		return nil
 	}
-	var se *procedure.SafetyError
+	var se *plan.SafetyError
 	if errors.As(err, &se) {
 		return withCode(exitSafety, err)
 	}

@@ -15,7 +15,7 @@ import (
 	"github.com/spf13/cobra"
 
 	"nullbench/instrument/sim"
-	"nullbench/procedure"
+	"nullbench/procedure/plan"
 )
 
 //go:embed demo/lot.toml
@@ -92,7 +92,7 @@ func runDemo(ctx context.Context, std streams, o demoOptions) error {
 	var recs []campaignRecord
 	var runErr error
 	for _, path := range plans {
-		p, err := procedure.LoadPlan(path)
+		p, err := plan.Load(path)
 		if err != nil {
 			return withCode(exitFailure, fmt.Errorf("demo plan: %w", err))
 		}
@@ -126,7 +126,7 @@ func writeDemoPlans(dir string, bench *sim.Bench, dut *sim.DUTFile, timeScale fl
 	for _, t := range truth {
 		if t.Kind == "board" {
 			boards = append(boards, t)
-		} else if t.Fixture == procedure.FixtureNullingLoop {
+		} else if t.Fixture == plan.FixtureNullingLoop {
 			opamps = append(opamps, t)
 		}
 	}

@@ -15,7 +15,8 @@ import (
 
 	"nullbench/instrument"
 	"nullbench/instrument/sim"
-	"nullbench/procedure"
+	"nullbench/procedure/analysis"
+	"nullbench/procedure/plan"
 )
 
 // End-to-end tests: the simulated bench (started here, on loopback) holds
@@ -131,20 +132,20 @@ noise_gain = 1000.0
 
 // e2eRun is one campaign on a fresh simulated bench.
 type e2eRun struct {
-	plan    *procedure.Plan
-	results *procedure.Results
+	plan    *plan.Plan
+	results *analysis.Results
 	truth   map[string]sim.UnitTruth
 	clock   *sim.ManualClock
 	bench   *sim.Bench
 }
 
 // runE2E starts a simulated bench with dutTOML on a virtual clock, writes
-// the demo's lot plan for it, lets plan turn that text into the plan to
+// the demo's lot plan for it, lets editPlan turn that text into the plan to
 // run (it must change it: the demo plan as written has three
 // temperatures), then runs and analyses the plan as the demo does. before,
 // if not nil, runs after the bench has started and before the campaign
 // (e.g. to start a chamber ramp).
-func runE2E(t *testing.T, dutTOML string, plan func(b *sim.Bench, demoPlan string) string, before func(*e2eRun)) *e2eRun {
+func runE2E(t *testing.T, dutTOML string, editPlan func(b *sim.Bench, demoPlan string) string, before func(*e2eRun)) *e2eRun {
 	t.Helper()
 	dir := t.TempDir()
 	dut, err := sim.ParseDUT([]byte(dutTOML), "e2e-dut.toml")
@@ -163,14 +164,14 @@ func runE2E(t *testing.T, dutTOML string, plan func(b *sim.Bench, demoPlan strin
 	if err != nil {
 		t.Fatal(err)
 	}
-	changed := plan(bench, string(text))
+	changed := editPlan(bench, string(text))
 	if changed == string(text) {
 		t.Fatalf("the plan edit changed nothing: has cmd/nullbench/demo/lot.toml changed?")
 	}
 	if err := os.WriteFile(paths[0], []byte(changed), 0o644); err != nil {
 		t.Fatal(err)
 	}
-	p, err := procedure.LoadPlan(paths[0])
+	p, err := plan.Load(paths[0])
 	if err != nil {
 		t.Fatalf("plan: %v", err)
 	}
@@ -215,13 +216,13 @@ type coverageCheck struct {
 // a result name.
 func e2eTruthOf(u sim.UnitTruth, name string) (db, k float64, ok bool) {
 	switch name {
-	case procedure.TestCMRR:
+	case plan.TestCMRR:
 		return u.CMRRdB, u.KcUVPerV, true
-	case procedure.TestPSRRPos:
+	case plan.TestPSRRPos:
 		return u.PSRRPosdB, u.KpUVPerV, true
-	case procedure.TestPSRRNeg:
+	case plan.TestPSRRNeg:
 		return u.PSRRNegdB, u.KnUVPerV, true
-	case procedure.TestAOL:
+	case plan.TestAOL:
 		return u.AOLdB, u.KoUVPerV, true
 	}
 	return 0, 0, false
@@ -390,7 +391,7 @@ channel = %q
 // TestEndToEndDriftCancellingOrder: a steady offset drift during a sweep
 // biases the slope of an ascending sweep (time then tracks the level, so
 // a drift looks exactly like a slope) but not of a zigzag, whose every
-// level has the pass's mean time (procedure.OrderLevels; the least-squares
+// level has the pass's mean time (plan.OrderLevels; the least-squares
 // slope of GUM H.3 then gets nothing from a drift linear in time). The
 // drift here is physical: the chamber ramps at its maximum rate
 // (5 °C/min) while one op-amp with an offset tempco of 1 µV/°C is measured
@@ -409,10 +410,10 @@ func TestEndToEndDriftCancellingOrder(t *testing.T) {
 
 	measureOrder := func(order string, driftTerm bool) coverageCheck {
 		t.Helper()
-		plan := func(b *sim.Bench, _ string) string {
-			return e2eDriftPlan(b, unit.id, "101", procedure.TestAOL, order, driftTerm)
+		editPlan := func(b *sim.Bench, _ string) string {
+			return e2eDriftPlan(b, unit.id, "101", plan.TestAOL, order, driftTerm)
 		}
-		run := runE2E(t, dut, plan, func(run *e2eRun) {
+		run := runE2E(t, dut, editPlan, func(run *e2eRun) {
 			// Start the chamber ramp over SCPI, as an operator would at its
 			// panel, and let the case temperature reach the ramp's rate
 			// (case time constant 90 s: after 600 s the lag has settled to
@@ -440,7 +441,7 @@ func TestEndToEndDriftCancellingOrder(t *testing.T) {
 			t.Fatalf("%s: chamber air at %.1f °C after the sweep; the ramp did not run", order, air)
 		}
 		checks := compareWithTruth(t, run)
-		if len(checks) != 1 || checks[0].test != procedure.TestAOL {
+		if len(checks) != 1 || checks[0].test != plan.TestAOL {
 			t.Fatalf("%s: want one aol result, got %+v; problems %v", order, checks, run.results.Problems)
 		}
 		c := checks[0]
@@ -448,11 +449,11 @@ func TestEndToEndDriftCancellingOrder(t *testing.T) {
 			order, driftTerm, c.measured, c.lo, c.hi, c.truth, c.z, c.inside)
 		return c
 	}
-	zig := measureOrder(procedure.OrderZigzag, false)
-	asc := measureOrder(procedure.OrderAscending, false)
+	zig := measureOrder(plan.OrderZigzag, false)
+	asc := measureOrder(plan.OrderAscending, false)
 	// With the drift term fitted as well, the zigzag's drift no longer
 	// inflates its residuals: a tight interval, still around the truth.
-	zigDrift := measureOrder(procedure.OrderZigzag, true)
+	zigDrift := measureOrder(plan.OrderZigzag, true)
 	if !zigDrift.inside || zigDrift.hi-zigDrift.lo > (zig.hi-zig.lo)/2 {
 		t.Errorf("zigzag with a drift term: A_OL %.3f dB, interval %.3f..%.3f dB, true %.3f dB; want it inside and at most half as wide as without (%.3f..%.3f dB)",
 			zigDrift.measured, zigDrift.lo, zigDrift.hi, zigDrift.truth, zig.lo, zig.hi)

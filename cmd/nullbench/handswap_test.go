@@ -15,6 +15,7 @@ import (
 
 	"nullbench/instrument/sim"
 	"nullbench/procedure"
+	"nullbench/procedure/plan"
 )
 
 // Units swapped by hand, end to end: a plan whose units have no switch
@@ -110,7 +111,7 @@ type benchHands struct {
 	seen     []swapSeen
 }
 
-func (h *benchHands) SwapUnit(_ context.Context, next procedure.Unit) (string, error) {
+func (h *benchHands) SwapUnit(_ context.Context, next plan.Unit) (string, error) {
 	s := h.bench.Inspect()
 	seen := swapSeen{next: next.ID, socket: s.Socket, state: h.bench.SocketState()}
 	for _, c := range append(append([]sim.ChannelSnapshot(nil), s.Supply...), s.Source...) {
@@ -143,7 +144,7 @@ func (h *benchHands) Temperature(context.Context, procedure.TemperatureRequest) 
 // handSwapRun is one hand-swap campaign on a fresh simulated bench.
 type handSwapRun struct {
 	bench   *sim.Bench
-	plan    *procedure.Plan
+	plan    *plan.Plan
 	rec     campaignRecord
 	err     error // from measure
 	journal string
@@ -170,7 +171,7 @@ func runHandSwap(t *testing.T, units []e2eUnit, hands *benchHands) *handSwapRun 
 	if err := os.WriteFile(path, []byte(handSwapPlan(bench, ids...)), 0o644); err != nil {
 		t.Fatal(err)
 	}
-	p, err := procedure.LoadPlan(path)
+	p, err := plan.Load(path)
 	if err != nil {
 		t.Fatalf("plan: %v", err)
 	}
@@ -295,7 +296,7 @@ func TestHandSwapCampaign(t *testing.T) {
 			t.Errorf("%s %s: %+.4f µV/V, truth %+.4f, |Δ| %.4f > 2U = %.4f", rt.Unit, rt.Name, rj.CoefficientUVPerV, kTrue, d, 2*rj.ExpandedUUVPerV)
 		}
 		for _, other := range units {
-			if other.id == rt.Unit || rt.Name != procedure.TestCMRR {
+			if other.id == rt.Unit || rt.Name != plan.TestCMRR {
 				continue
 			}
 			_, kOther, _ := e2eTruthOf(truth[other.id], rt.Name)

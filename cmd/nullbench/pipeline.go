@@ -14,6 +14,9 @@ import (
 
 	"nullbench/instrument"
 	"nullbench/procedure"
+	"nullbench/procedure/analysis"
+	"nullbench/procedure/journal"
+	"nullbench/procedure/plan"
 	"nullbench/report"
 )
 
@@ -28,8 +31,8 @@ type outputOptions struct {
 // analysisInputs takes the instruments' accuracy from the profiles the plan
 // names, without contacting them, so that "report" gives the same budget as
 // the run that took the readings.
-func analysisInputs(p *procedure.Plan) (procedure.AnalysisInputs, error) {
-	in := procedure.AnalysisInputs{StimulusByRole: map[string]procedure.Accuracy{}}
+func analysisInputs(p *plan.Plan) (analysis.Inputs, error) {
+	in := analysis.Inputs{StimulusByRole: map[string]plan.Accuracy{}}
 	for _, rb := range roleBindings(p) {
 		if rb.binding.Instrument == "" {
 			continue
@@ -46,17 +49,17 @@ func analysisInputs(p *procedure.Plan) (procedure.AnalysisInputs, error) {
 		case "meter":
 			if prof.Meter != nil {
 				a := prof.Meter.Accuracy
-				in.Meter = procedure.Accuracy{GainPPM: a.GainPPM, OffsetVolts: a.OffsetPPMOfRange * 1e-6 * 10}
+				in.Meter = plan.Accuracy{GainPPM: a.GainPPM, OffsetVolts: a.OffsetPPMOfRange * 1e-6 * 10}
 			}
 		case "supply_pos", "supply_neg":
 			if prof.Supply != nil {
 				a := prof.Supply.Accuracy
-				in.StimulusByRole[rb.role] = procedure.Accuracy{GainPPM: a.ReadbackGainPPM, OffsetVolts: a.ReadbackOffsetVolts}
+				in.StimulusByRole[rb.role] = plan.Accuracy{GainPPM: a.ReadbackGainPPM, OffsetVolts: a.ReadbackOffsetVolts}
 			}
 		case "source_cm", "source_diff", "source_ref":
 			if prof.Source != nil {
 				a := prof.Source.Accuracy
-				in.StimulusByRole[rb.role] = procedure.Accuracy{GainPPM: a.ReadbackGainPPM, OffsetVolts: a.ReadbackOffsetVolts}
+				in.StimulusByRole[rb.role] = plan.Accuracy{GainPPM: a.ReadbackGainPPM, OffsetVolts: a.ReadbackOffsetVolts}
 			}
 		}
 	}
@@ -64,12 +67,12 @@ func analysisInputs(p *procedure.Plan) (procedure.AnalysisInputs, error) {
 }
 
 // analyse fits a plan's readings.
-func analyse(p *procedure.Plan, readings []procedure.Reading) (*procedure.Results, error) {
+func analyse(p *plan.Plan, readings []journal.Reading) (*analysis.Results, error) {
 	in, err := analysisInputs(p)
 	if err != nil {
 		return nil, withCode(exitUsage, err)
 	}
-	res, err := procedure.Analyze(p, readings, in)
+	res, err := analysis.Analyze(p, readings, in)
 	if err != nil {
 		return nil, withCode(exitFailure, fmt.Errorf("analyse %s: %w", p.Source, err))
 	}
@@ -140,22 +143,22 @@ func writeFile(path string, write func(io.Writer) error) error {
 // consent asks for permission to run a hazardous plan. It returns an error
 // (exit code: safety) when the plan is hazardous and the operator has not
 // allowed it; it never asks without a terminal.
-func consent(std streams, in *bufio.Reader, p *procedure.Plan, allow bool) (procedure.HazardConsent, error) {
-	h := procedure.AssessHazard(p)
-	c := procedure.HazardConsent{AllowOption: allow, Interactive: std.IsTerm}
+func consent(std streams, in *bufio.Reader, p *plan.Plan, allow bool) (plan.HazardConsent, error) {
+	h := plan.AssessHazard(p)
+	c := plan.HazardConsent{AllowOption: allow, Interactive: std.IsTerm}
 	if !h.Hazardous {
 		return c, nil
 	}
 	if !allow {
 		return c, withCode(exitSafety, fmt.Errorf("plan %s takes a terminal to %.1f V (%s), above the %.0f V DC limit for extra-low voltage; "+
-			"see SAFETY.md, then run with --allow-hazardous from an interactive terminal", p.Source, h.MaxAcrossVolts, h.Where, procedure.HazardousVolts))
+			"see SAFETY.md, then run with --allow-hazardous from an interactive terminal", p.Source, h.MaxAcrossVolts, h.Where, plan.HazardousVolts))
 	}
 	if !std.IsTerm {
 		return c, withCode(exitSafety, fmt.Errorf("plan %s is hazardous (%.1f V); it needs an interactive confirmation and there is no terminal", p.Source, h.MaxAcrossVolts))
 	}
-	fmt.Fprint(std.Err, procedure.HazardPrompt(h))
+	fmt.Fprint(std.Err, plan.HazardPrompt(h))
 	line, _ := in.ReadString('\n')
-	c.Confirmed = procedure.HazardAnswerOK(line)
+	c.Confirmed = plan.HazardAnswerOK(line)
 	if !c.Confirmed {
 		return c, withCode(exitSafety, errors.New("hazardous plan not confirmed; nothing was switched on"))
 	}
@@ -167,7 +170,7 @@ func consent(std streams, in *bufio.Reader, p *procedure.Plan, allow bool) (proc
 // failure mid-run the error says which step failed; the readings taken so
 // far are returned with it and are in the journal.
 type measureOptions struct {
-	Plan           *procedure.Plan
+	Plan           *plan.Plan
 	JournalPath    string
 	Resume         bool
 	AllowHazardous bool
@@ -186,7 +189,7 @@ func measure(ctx context.Context, std streams, o measureOptions) (campaignRecord
 	if err != nil {
 		return rec, nil, err
 	}
-	if err := procedure.CheckSafetyWith(p, hc); err != nil {
+	if err := plan.CheckSafetyWith(p, hc); err != nil {
 		return rec, nil, safetyExit(err)
 	}
 	if why := procedure.NeedsOperator(p); why != "" && !std.IsTerm && o.Operator == nil {
@@ -203,13 +206,13 @@ func measure(ctx context.Context, std streams, o measureOptions) (campaignRecord
 	if abs, err := filepath.Abs(planPath); err == nil {
 		planPath = abs
 	}
-	header := procedure.JournalHeader{PlanHash: p.Hash, PlanPath: planPath, ToolVersion: version, Started: rec.Started, TimeScale: p.Bench.TimeScale}
+	header := journal.Header{PlanHash: p.Hash, PlanPath: planPath, ToolVersion: version, Started: rec.Started, TimeScale: p.Bench.TimeScale}
 	var (
-		jw     *procedure.JournalWriter
-		resume *procedure.JournalContents
+		jw     *journal.Writer
+		resume *journal.Contents
 	)
 	if o.Resume {
-		jw, resume, err = procedure.ResumeJournal(o.JournalPath, p, header)
+		jw, resume, err = journal.Resume(o.JournalPath, p, header)
 		if resume != nil && resume.Truncated {
 			fmt.Fprintf(std.Err, "journal %s: line %d was cut short by the interruption and was dropped; that point is measured again\n", o.JournalPath, resume.TruncatedLine)
 		}
@@ -221,7 +224,7 @@ func measure(ctx context.Context, std streams, o measureOptions) (campaignRecord
 		if err := os.MkdirAll(filepath.Dir(o.JournalPath), 0o755); err != nil {
 			return rec, nil, withCode(exitFailure, err)
 		}
-		jw, err = procedure.OpenJournal(o.JournalPath, header)
+		jw, err = journal.Open(o.JournalPath, header)
 	}
 	if err != nil {
 		return rec, nil, withCode(exitUsage, err)
@@ -248,7 +251,7 @@ func measure(ctx context.Context, std streams, o measureOptions) (campaignRecord
 		rec.Readings = out.Readings
 	}
 	if runErr != nil {
-		var se *procedure.SafetyError
+		var se *plan.SafetyError
 		switch {
 		case errors.As(runErr, &se):
 			runErr = withCode(exitSafety, runErr)
@@ -287,7 +290,7 @@ func printSummary(w io.Writer, c *report.Campaign, book string) {
 	var units []string
 	for _, r := range c.Results {
 		k := report.VerdictClass(r.Verdict)
-		if k == report.KindNotJudged || k == report.KindOther || r.Test == procedure.ResultCMRRUncorrected {
+		if k == report.KindNotJudged || k == report.KindOther || r.Test == analysis.ResultCMRRUncorrected {
 			continue
 		}
 		cur, ok := unitKind[r.Unit]
@@ -312,7 +315,7 @@ func printSummary(w io.Writer, c *report.Campaign, book string) {
 	worst := map[string]report.Result{}
 	var order []string
 	for _, r := range c.Results {
-		if r.Test == procedure.ResultCMRRUncorrected {
+		if r.Test == analysis.ResultCMRRUncorrected {
 			continue
 		}
 		cur, ok := worst[r.Test]

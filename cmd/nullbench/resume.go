@@ -7,7 +7,8 @@ import (
 
 	"github.com/spf13/cobra"
 
-	"nullbench/procedure"
+	"nullbench/procedure/journal"
+	"nullbench/procedure/plan"
 )
 
 type resumeOptions struct {
@@ -40,23 +41,23 @@ measured again. The workbook is written beside the journal.`,
 }
 
 // planForJournal loads the plan a journal belongs to and checks they match.
-func planForJournal(journal, plan string) (*procedure.Plan, *procedure.JournalContents, error) {
-	jc, err := procedure.ReadJournalFile(journal)
+func planForJournal(journalPath, planPath string) (*plan.Plan, *journal.Contents, error) {
+	jc, err := journal.ReadFile(journalPath)
 	if err != nil {
 		return nil, nil, withCode(exitUsage, err)
 	}
-	recorded := plan == ""
+	recorded := planPath == ""
 	if recorded {
-		plan = jc.Header.PlanPath
+		planPath = jc.Header.PlanPath
 	}
-	p, err := procedure.LoadPlan(plan)
+	p, err := plan.Load(planPath)
 	if err != nil {
 		if recorded {
-			err = fmt.Errorf("%w\n(%s is the plan recorded in the journal %s; if it has moved, give its path with --plan)", err, plan, journal)
+			err = fmt.Errorf("%w\n(%s is the plan recorded in the journal %s; if it has moved, give its path with --plan)", err, planPath, journalPath)
 		}
 		return nil, nil, withCode(exitUsage, err)
 	}
-	if err := procedure.CheckPlanMatch(p, jc); err != nil {
+	if err := journal.CheckPlanMatch(p, jc); err != nil {
 		return nil, nil, withCode(exitUsage, err)
 	}
 	return p, jc, nil

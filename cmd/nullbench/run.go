@@ -9,7 +9,7 @@ import (
 
 	"github.com/spf13/cobra"
 
-	"nullbench/procedure"
+	"nullbench/procedure/plan"
 )
 
 type runOptions struct {
@@ -56,7 +56,7 @@ func defaultOutDir(plan string) string {
 }
 
 func runRun(ctx context.Context, std streams, o runOptions) error {
-	p, err := procedure.LoadPlan(o.Plan)
+	p, err := plan.Load(o.Plan)
 	if err != nil {
 		return withCode(exitUsage, err)
 	}

@@ -10,7 +10,7 @@ import (
 	"testing"
 	"time"
 
-	"nullbench/procedure"
+	"nullbench/procedure/plan"
 )
 
 // cliEndpoint is one line "sim" prints: name, role, address, profile, *IDN?.
@@ -207,7 +207,7 @@ func TestSimAndProbeOverTCP(t *testing.T) {
 		t.Fatal(err)
 	}
 	body := strings.ReplaceAll(cliPlanBody, "%CMRR_LIMIT%", "100.0")
-	p, err := procedure.ParsePlan(append(section, body...), "bench-out.toml")
+	p, err := plan.Parse(append(section, body...), "bench-out.toml")
 	if err != nil {
 		t.Fatalf("bench section + plan body: %v\n%s", err, section)
 	}
@@ -220,7 +220,7 @@ func TestSimAndProbeOverTCP(t *testing.T) {
 			t.Errorf("[bench.instrument.%s] = %+v, want address %s profile %s", e.name, in, e.address, e.profile)
 		}
 	}
-	if err := procedure.CheckSafety(p); err != nil {
+	if err := plan.CheckSafety(p); err != nil {
 		t.Errorf("the plan on the simulated bench is refused: %v", err)
 	}
 }

@@ -1,0 +1,16 @@
+// Package analysis turns a plan and its readings into results: readings
+// and plan in, Results out, calling package fit. It knows nothing of the
+// runner or the instruments, so it refits a journal as well as a live run.
+//
+// Analyze fits each unit × test × temperature with package fit (read-back
+// stimulus, optional drift and quadratic terms), refers the slope to the
+// input by the noise gain, builds the GUM budget, judges it by the plan's
+// ILAC-G8 rule, and adds the nulling-loop closure, the open-loop-gain
+// correction of the supply-shift CMRR, board CMRR = A_d/A_cm with the
+// resistor-matching limit, lot statistics, temperature coefficients and
+// repeatability. Its doc comment states every sign convention. Inputs
+// carries the instruments' accuracies (plan.Accuracy) for the Type B rows
+// of the budgets.
+//
+// Units: volts, degrees Celsius and seconds of bench time throughout.
+package analysis

@@ -1,0 +1,385 @@
+package plan
+
+import (
+	"errors"
+	"fmt"
+	"io"
+	"math"
+	"strings"
+	"text/tabwriter"
+	"time"
+)
+
+// LineFrequencyHz is the mains frequency used to turn NPLC into seconds for
+// estimates (one power-line cycle = 20 ms at 50 Hz, METHODS §7). At 60 Hz
+// the integration is shorter, so the estimate errs long.
+const LineFrequencyHz = 50.0
+
+// MeterOverhead multiplies a reading's integration time to allow for
+// auto-zero, conversion and transfer (common practice, no published
+// source: auto-zero alone roughly doubles a reading at high NPLC, while a
+// fixed range and trigger count trim the rest).
+const MeterOverhead = 1.5
+
+// Step is one point of one pass of a test, as StepTable lays it out.
+type Step struct {
+	Test       int     // index into Plan.Tests
+	Kind       string  // the test kind
+	Part       string  // "" or, for board_cmrr, PartCM or PartDiff
+	Index      int     // position in the ordered sweep (Reading.Step)
+	LevelVolts float64 // the stimulus (see BenchState for its meaning)
+	State      BenchState
+	Pins       Terminals
+	// CMVolts is the inputs' common-mode voltage to ground; CMRelVolts the
+	// same relative to the rails' centre (V+ + V-)/2.
+	CMVolts    float64
+	CMRelVolts float64
+	// ToPosVolts = V+ - highest input and ToNegVolts = lowest input - V-:
+	// the common mode's distance to each rail (the plan requires at least
+	// cm_headroom + cm_margin on each side).
+	ToPosVolts       float64
+	ToNegVolts       float64
+	MaxToGroundVolts float64 // the highest |voltage| any pin or source sees
+	Seconds          float64 // estimated bench seconds for this point
+}
+
+// Key is the work key of this step for one temperature, unit and repeat.
+func (s Step) Key(tempIndex int, unit string, repeat int) WorkKey {
+	return WorkKey{TempIndex: tempIndex, Unit: unit, Test: s.Kind, Repeat: repeat, Part: s.Part, Step: s.Index}
+}
+
+// TestSteps lays out one pass of test i: its sweeps in order, each level in
+// the order it is visited.
+func TestSteps(p *Plan, i int) []Step {
+	t := &p.Tests[i]
+	pt := PointSeconds(t)
+	var out []Step
+	for _, sw := range Sweeps(t) {
+		for j, l := range sw.Levels {
+			s := StateAt(p, t, sw.Part, l)
+			pins := TerminalsOf(p, s)
+			out = append(out, Step{
+				Test: i, Kind: t.Kind, Part: sw.Part, Index: j, LevelVolts: l,
+				State: s, Pins: pins,
+				CMVolts:          (pins.InHighVolts + pins.InLowVolts) / 2,
+				CMRelVolts:       (pins.InHighVolts+pins.InLowVolts)/2 - (s.PosVolts+s.NegVolts)/2,
+				ToPosVolts:       s.PosVolts - pins.InHighVolts,
+				ToNegVolts:       pins.InLowVolts - s.NegVolts,
+				MaxToGroundVolts: pins.MaxToGroundVolts(s),
+				Seconds:          pt,
+			})
+		}
+	}
+	return out
+}
+
+// StepTable lays out one pass of every test, in plan order.
+func StepTable(p *Plan) []Step {
+	var out []Step
+	for i := range p.Tests {
+		out = append(out, TestSteps(p, i)...)
+	}
+	return out
+}
+
+// PointSeconds estimates one point of t in bench seconds:
+//
+//	dwell + readings·(NPLC/f_line)·overhead + 2·(NPLC/f_line)·overhead
+//
+// the last term being the settling check's two successive readings when
+// the output has already settled (the settle time-out bounds it).
+func PointSeconds(t *Test) float64 {
+	reading := t.NPLC / LineFrequencyHz * MeterOverhead
+	return t.DwellSeconds + float64(t.Readings)*reading + 2*reading
+}
+
+// TestEstimate is the estimated duration of one test for one unit at one
+// temperature.
+type TestEstimate struct {
+	Test        int
+	Kind        string
+	Points      int     // points per pass
+	PassSeconds float64 // one pass
+	Seconds     float64 // all repeats
+}
+
+// Estimate is the estimated duration of a campaign, in bench seconds.
+type Estimate struct {
+	Tests        []TestEstimate
+	UnitSeconds  float64 // every test of one unit at one temperature
+	Units        int
+	Temperatures int
+	// MeasureSeconds = UnitSeconds × Units × Temperatures.
+	MeasureSeconds float64
+	// SoakSeconds is the chamber ramps (|ΔT| / ramp_max_c_per_min, from
+	// the ambient temperature) and soaks (soak_s per point).
+	SoakSeconds  float64
+	TotalSeconds float64
+	// WallSeconds = TotalSeconds / time_scale (the waits run that much
+	// faster on a simulated bench).
+	WallSeconds float64
+}
+
+// EstimateDuration adds up the points of every test, unit and temperature
+// and the soaks. Hand swaps and prompts are not counted.
+func EstimateDuration(p *Plan) Estimate {
+	e := Estimate{Units: len(p.Units), Temperatures: len(p.TemperaturePoints())}
+	for i := range p.Tests {
+		t := &p.Tests[i]
+		te := TestEstimate{Test: i, Kind: t.Kind}
+		for _, s := range TestSteps(p, i) {
+			te.Points++
+			te.PassSeconds += s.Seconds
+		}
+		te.Seconds = te.PassSeconds * float64(t.Repeats)
+		e.UnitSeconds += te.Seconds
+		e.Tests = append(e.Tests, te)
+	}
+	e.MeasureSeconds = e.UnitSeconds * float64(e.Units) * float64(e.Temperatures)
+	tp := &p.Temperature
+	if tp.Mode != TempNone && len(tp.PointsCelsius) > 0 {
+		prev := tp.AmbientCelsius
+		for _, c := range tp.PointsCelsius {
+			if tp.Mode == TempChamber && tp.RampMaxCPerMinute > 0 {
+				e.SoakSeconds += math.Abs(c-prev) / tp.RampMaxCPerMinute * 60
+			}
+			e.SoakSeconds += tp.SoakSeconds
+			prev = c
+		}
+	}
+	e.TotalSeconds = e.MeasureSeconds + e.SoakSeconds
+	e.WallSeconds = e.TotalSeconds
+	if p.Bench.TimeScale > 0 {
+		e.WallSeconds = e.TotalSeconds / p.Bench.TimeScale
+	}
+	return e
+}
+
+// FormatSeconds writes a duration in seconds as "1h02m03s", "2m05s" or
+// "4.5s".
+func FormatSeconds(sec float64) string {
+	if sec < 60 {
+		return fmt.Sprintf("%.1fs", sec)
+	}
+	d := time.Duration(math.Round(sec)) * time.Second
+	h := d / time.Hour
+	m := (d % time.Hour) / time.Minute
+	s := (d % time.Minute) / time.Second
+	if h > 0 {
+		return fmt.Sprintf("%dh%02dm%02ds", h, m, s)
+	}
+	return fmt.Sprintf("%dm%02ds", m, s)
+}
+
+// describeTest says in words how a test applies its stimulus.
+func describeTest(p *Plan, t *Test) string {
+	switch t.Kind {
+	case TestCMRR:
+		if p.Fixture.CommonMode == CMByInputDrive {
+			return "common mode driven at the inputs by source_cm; rails nominal; level = V_CM"
+		}
+		return "both rails shifted by -level, inputs at ground; level = V_CM relative to the rails' centre"
+	case TestPSRRPos, TestBoardPSRRPos:
+		return "V+ = nominal + level; V- nominal"
+	case TestPSRRNeg, TestBoardPSRRNeg:
+		return "V- = nominal - level (the rail grows with the level); V+ nominal"
+	case TestPSRRSym:
+		return "V+ = nominal + level/2, V- = nominal - level/2 (span grows by the level)"
+	case TestAOL:
+		return "output held at the level by the nulling loop's reference (source_ref)"
+	case TestBoardCMRR:
+		return "cm: V_CM = level from source_cm; diff: V_d = level from source_diff"
+	}
+	return ""
+}
+
+// WriteCheck prints what a run of the plan would do, without touching an
+// instrument: for each test and level the stimulus, the rails, the common
+// mode and its distance to each rail, the highest voltage any terminal
+// sees, and the estimated time; then the campaign's duration, the power
+// sequence, the hazard assessment and the safety verdict (CheckSafety's
+// refusals, if any). An invalid plan gets its validation errors instead.
+// It returns only write errors: the caller asks CheckSafety for the
+// verdict that sets the exit status.
+func WriteCheck(w io.Writer, p *Plan) error {
+	ew := &checkWriter{w: w}
+	pf := ew.printf
+	if err := Validate(p); err != nil {
+		pf("plan      %s\ninvalid, nothing to lay out:\n", p.Source)
+		for _, line := range strings.Split(err.Error(), "\n") {
+			pf("  %s\n", line)
+		}
+		return ew.err
+	}
+	pt := &p.Part
+	fx := &p.Fixture
+	pf("plan      %s\n", p.Source)
+	pf("sha256    %s\n", p.Hash)
+	if c := p.Campaign; c.Name != "" || c.Lot != "" {
+		pf("campaign  %s", c.Name)
+		if c.Lot != "" {
+			pf("; lot %s", c.Lot)
+		}
+		if c.Operator != "" {
+			pf("; operator %s", c.Operator)
+		}
+		pf("\n")
+	}
+	pf("part      %s: nominal %s / %s; max span %g V; common-mode headroom %g V (V+) / %g V (V-) + margin %g V; inputs ≤ %g V beyond a rail; current limit %g A\n",
+		pt.Number, FormatVolts(pt.NominalPosVolts), FormatVolts(pt.NominalNegVolts), pt.MaxSupplySpanVolts,
+		pt.CMHeadroomPosVolts, pt.CMHeadroomNegVolts, pt.CMMarginVolts, pt.InputBeyondRailVolts, pt.CurrentLimitAmps)
+	if pt.SupplyAmpsMin > 0 || pt.SupplyAmpsMax > 0 {
+		pf("presence  each rail must draw %g … %g mA after power-up (0: unchecked), or the run stops before measuring\n",
+			1e3*pt.SupplyAmpsMin, 1e3*pt.SupplyAmpsMax)
+	}
+	switch fx.Kind {
+	case FixtureBoard:
+		pf("fixture   board, gain %g, resistor tolerance %g; max stimulus %g V\n", fx.BoardGain, fx.ResistorTolerance, fx.MaxStimulusVolts)
+	default:
+		pf("fixture   %s, K = %g ± %g (relative); common mode by %s; max stimulus %g V\n",
+			fx.Kind, fx.NoiseGain, fx.NoiseGainTolerance, fx.CommonMode, fx.MaxStimulusVolts)
+	}
+	pf("units     %d (%s)\n", len(p.Units), describeUnits(p))
+	pf("temps     %s\n", describeTemps(p))
+	pf("decision  %s\n", p.Decision.Rule)
+
+	for i := range p.Tests {
+		t := &p.Tests[i]
+		pf("\n%s %s: %s\n", testKey(i), t.Kind, describeTest(p, t))
+		pf("  order %s, %d repeat(s), %d readings at %g NPLC on the %g V range, dwell %g s, settle %g V (time-out %g s)\n",
+			t.Order, t.Repeats, t.Readings, t.NPLC, t.RangeVolts, t.DwellSeconds, t.SettleVolts, t.SettleTimeoutSeconds)
+		for _, part := range sweepParts(t) {
+			lo, hi, ok := SafeLevels(p, t, part)
+			label := ""
+			if part != "" {
+				label = " (" + part + ")"
+			}
+			if ok {
+				pf("  safe levels%s %s … %s\n", label, FormatVolts(lo), FormatVolts(hi))
+			} else {
+				pf("  safe levels%s: none\n", label)
+			}
+		}
+		tw := tabwriter.NewWriter(ew, 0, 0, 2, ' ', tabwriter.AlignRight)
+		fmt.Fprintf(tw, "  step\tpart\tlevel V\tV+ V\tV- V\tVcm V\tto V+ V\tto V- V\tmax|V|\ttime s\t\n")
+		pass := 0.0
+		for _, s := range TestSteps(p, i) {
+			part := s.Part
+			if part == "" {
+				part = "-"
+			}
+			fmt.Fprintf(tw, "  %d\t%s\t%+.3f\t%+.3f\t%+.3f\t%+.3f\t%.3f\t%.3f\t%.3f\t%.2f\t\n",
+				s.Index, part, noNegZero(s.LevelVolts), noNegZero(s.State.PosVolts), noNegZero(s.State.NegVolts), noNegZero(s.CMVolts),
+				noNegZero(s.ToPosVolts), noNegZero(s.ToNegVolts), noNegZero(s.MaxToGroundVolts), s.Seconds)
+			pass += s.Seconds
+		}
+		if err := tw.Flush(); err != nil {
+			return err
+		}
+		pf("  one pass %s × %d repeat(s) = %s per unit and temperature\n", FormatSeconds(pass), t.Repeats, FormatSeconds(pass*float64(t.Repeats)))
+	}
+
+	e := EstimateDuration(p)
+	pf("\nduration (bench time)\n")
+	pf("  per unit and temperature %s; × %d unit(s) × %d temperature(s) = %s\n",
+		FormatSeconds(e.UnitSeconds), e.Units, e.Temperatures, FormatSeconds(e.MeasureSeconds))
+	pf("  chamber ramps and soaks %s\n", FormatSeconds(e.SoakSeconds))
+	pf("  total %s", FormatSeconds(e.TotalSeconds))
+	if p.Bench.TimeScale != 1 {
+		pf("; at time_scale %g about %s of wall time", p.Bench.TimeScale, FormatSeconds(e.WallSeconds))
+	}
+	pf("\n  (per point: dwell + (readings + 2)·NPLC/%g Hz·%g; unit swaps by hand not counted)\n", LineFrequencyHz, MeterOverhead)
+
+	up := PowerUpOrder(p)
+	pf("\npower-up   %d actions: sources off at 0 V; current limits %g A; supplies on at 0 V; rails ramped to %s / %s in steps ≤ %g V; then sources on\n",
+		len(up), pt.CurrentLimitAmps, FormatVolts(pt.NominalPosVolts), FormatVolts(pt.NominalNegVolts), p.Safety.RampStepVolts)
+	pf("power-down %d actions: sources ramped to 0 V and off; rails ramped to 0 V; supplies off\n", len(PowerDownOrder(p)))
+
+	h := AssessHazard(p)
+	verdict := "below"
+	if h.Hazardous {
+		verdict = "ABOVE"
+	}
+	pf("\nhazard    highest %s to ground, %s across the bench: %s the %g V DC limit (SELV/ES1)\n",
+		fmtMag(h.MaxToGroundVolts), fmtMag(h.MaxAcrossVolts), verdict, HazardousVolts)
+	err := CheckSafety(p)
+	var se *SafetyError
+	switch {
+	case err == nil:
+		pf("safety    OK: every step is inside the part's and the fixture's limits\n")
+	case errors.As(err, &se):
+		pf("safety    REFUSED (%d):\n", len(se.Refusals))
+		for _, r := range se.Refusals {
+			pf("  %s\n", r.Error())
+		}
+	default:
+		pf("safety    not checked: %v\n", err)
+	}
+	return ew.err
+}
+
+// noNegZero turns a negative zero into zero, so that tables never print "-0.000".
+func noNegZero(x float64) float64 {
+	if math.Abs(x) < 5e-10 {
+		return 0
+	}
+	return x
+}
+
+func sweepParts(t *Test) []string {
+	if t.Kind == TestBoardCMRR {
+		return []string{PartCM, PartDiff}
+	}
+	return []string{""}
+}
+
+func describeUnits(p *Plan) string {
+	if len(p.Units) == 0 {
+		return "none"
+	}
+	if p.Units[0].Channel == "" {
+		if len(p.Units) == 1 {
+			return "fixed in the fixture"
+		}
+		return "swapped by hand"
+	}
+	return fmt.Sprintf("switch channels %s … %s", p.Units[0].Channel, p.Units[len(p.Units)-1].Channel)
+}
+
+func describeTemps(p *Plan) string {
+	t := &p.Temperature
+	pts := make([]string, len(t.PointsCelsius))
+	for i, c := range t.PointsCelsius {
+		pts[i] = fmt.Sprintf("%g", c)
+	}
+	switch t.Mode {
+	case TempNone:
+		return fmt.Sprintf("none (ambient %g °C)", t.AmbientCelsius)
+	case TempChamber:
+		return fmt.Sprintf("chamber set points %s °C; soak %g s within ±%g °C (time-out %g s); ramp ≤ %g °C/min",
+			strings.Join(pts, ", "), t.SoakSeconds, t.SoakToleranceC, t.SoakTimeoutSeconds, t.RampMaxCPerMinute)
+	}
+	if len(pts) == 0 {
+		return t.Mode
+	}
+	return fmt.Sprintf("%s at %s °C; soak %g s", t.Mode, strings.Join(pts, ", "), t.SoakSeconds)
+}
+
+// checkWriter keeps the first write error and drops later writes.
+type checkWriter struct {
+	w   io.Writer
+	err error
+}
+
+func (e *checkWriter) Write(b []byte) (int, error) {
+	if e.err != nil {
+		return 0, e.err
+	}
+	n, err := e.w.Write(b)
+	e.err = err
+	return n, err
+}
+
+func (e *checkWriter) printf(format string, args ...any) {
+	fmt.Fprintf(e, format, args...)
+}

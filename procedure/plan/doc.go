@@ -1,0 +1,46 @@
+// Package plan is the measurement plan and everything that follows from it
+// alone: the schema, TOML parsing with file/line/key errors, validation,
+// the safety rules, the power sequences as data, the order of the levels
+// and the step table. Its functions are pure: no I/O beyond reading the
+// plan file and no instrument contact. The runner (package procedure), the
+// journal and the analysis import it; it imports none of them.
+//
+// Plans. Load and Parse read a TOML plan (go-toml v2, unknown keys
+// refused), apply the defaults of the keys left out and validate it. Every
+// error is an Error naming file, line and key and saying how to fix it:
+//
+//	plans/lot.toml:41: key "test[2].levels": psrr_pos level +20 V: V+ = +35 V, V- = -15 V: the span 50 V exceeds the part's absolute maximum 36 V (part.max_supply_span_volts); keep test[2].levels within -12.5 V … +6 V
+//
+// Key paths count [[test]] and [[unit]] tables from 1, as a reader does.
+//
+// Safety. CheckSafety refuses, from the plan alone and before any
+// instrument is touched, a plan whose rails exceed the part's maximum span
+// or have the wrong polarity for their channels, whose common mode leaves
+// the input range (with the plan's margin), whose inputs go beyond a rail,
+// whose sources exceed the fixture's maximum stimulus, whose supplies lack a
+// current limit, or whose terminals exceed HazardousVolts (60 V DC, the
+// SELV/ES1 limit of IEC 60950-1 §1.2.8 and IEC 62368-1) without the
+// operator's explicit consent. BenchState documents what each test's level
+// means (supply-shift common mode follows MIL-M-38510/114 Table III).
+// PowerUpOrder, PowerDownOrder and Transition give the power sequences as
+// data: current limits first, inputs only after the rails, everything
+// ramped in steps of at most safety.ramp_step_volts, and when the rails
+// shift, first the rail whose move shrinks the span.
+//
+// Levels. OrderLevels visits the levels as a palindrome (zigzag about the
+// centre and back, or ascending then descending), so that every level's
+// mean time equals the pass's mean time and a drift linear in time adds
+// exactly nothing to the fitted slope.
+//
+// The step table. StepTable, EstimateDuration and WriteCheck show what a
+// run would do: each level's rails, common mode and its distance to each
+// rail, the highest terminal voltage and the time it takes. Each Step
+// names its point of the campaign with a WorkKey, the key the journal and
+// the runner use to skip finished work on resume.
+//
+// Accuracy is an instrument's DC accuracy specification; the rig carries
+// it and the analysis turns it into Type B rows of the uncertainty budget.
+//
+// Units: volts, amps, degrees Celsius and seconds of bench time
+// (Bench.TimeScale) throughout.
+package plan
