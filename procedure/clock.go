@@ -11,7 +11,8 @@ import (
 // bench time. On a real bench it is wall time; against a simulated bench
 // started with --time-scale N the bench runs N times faster, so a Clock
 // whose Now advances N times faster and whose Sleep(d) lasts d/N keeps the
-// tool and the simulation on the same time base (BENCH.md "Time").
+// tool and the simulation on the same time base (package instrument/sim,
+// "Time").
 type Clock interface {
 	// Now is the bench time elapsed since the clock started.
 	Now() time.Duration

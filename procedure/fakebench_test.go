@@ -27,7 +27,8 @@ import (
 //   - a relay moved while a supply output is on (hot switching).
 //
 // Violations are collected; tests assert there are none. The meter reads
-// a linear model of the part (METHODS §8) plus an optional settling tail
+// a linear model of the part (derived from kc + kp + kn + ko = 0, no
+// published source) plus an optional settling tail
 // that decays after every change of state.
 type fakeBench struct {
 	mu  sync.Mutex
@@ -269,7 +270,8 @@ func (fb *fakeBench) meterValue() float64 {
 		// board: G·Vd + Acm·Vcm + supply terms, Acm = G·kc
 		v = fb.boardGain*diff + fb.boardGain*(fb.vos+fb.kc*cm+fb.kp*(pos-fb.p.Part.NominalPosVolts)-(fb.kc+fb.kp+fb.ko)*(neg-fb.p.Part.NominalNegVolts))
 	} else {
-		// METHODS §8: the offset depends only on voltages between the
+		// Derived, no published source: the offset depends only on voltages
+		// between the
 		// part's own terminals, Vio = vos + kc·(Vin - V-) + kp·(V+ - V-) +
 		// ko·(Vout - V-), so kn = -(kc + kp + ko). Taken from the nominal
 		// rails, where Vio = vos.
@@ -464,7 +466,8 @@ func failNth(role, op string, nth int, err error, sticky bool) func(fakeCall) er
 }
 
 // instrumentGroup maps a role to the instrument serving it on the
-// simulated bench's wiring (BENCH.md): both supplies on one, the three
+// simulated bench's wiring (package instrument/sim): both supplies on one,
+// the three
 // sources on another.
 func instrumentGroup(role string) string {
 	switch role {

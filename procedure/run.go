@@ -46,9 +46,10 @@ type RunOptions struct {
 // because the safe state must finish even on a stalled clock.
 type Timing struct {
 	// RampDwell is the least bench time from sending each ramp step of a
-	// supply or source to the next action (METHODS §6: "step ≤ 1 V with
-	// settling"); the time the driver spends on the step (its profile's
-	// settle wait, the exchange) counts towards it. Default 50 ms.
+	// supply or source to the next action (steps ≤ 1 V with settling:
+	// common practice, no published source); the time the driver spends
+	// on the step (its profile's settle wait, the exchange) counts towards
+	// it. Default 50 ms.
 	RampDwell time.Duration
 	// RelaySettle is waited after closing a unit's switch channel: relay
 	// operate and bounce time, typically under 10 ms for reed and signal

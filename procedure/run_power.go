@@ -260,7 +260,7 @@ func (r *runner) do(ctx context.Context, a plan.PowerAction) error {
 //     down (the span shrinking at every step) and switched off. A source
 //     that could not be brought to 0 V or switched off would otherwise
 //     drive an input beyond the rails of an unpowered part (latch-up,
-//     JESD78; METHODS §6), so then the supplies are left on and the error
+//     JEDEC JESD78), so then the supplies are left on and the error
 //     says so;
 //  3. the chamber set back to ambient (set point at once: the campaign is
 //     over, the chamber's own controller ramps);

@@ -204,8 +204,9 @@ func TestRunOnSimulatedBench(t *testing.T) {
 	}
 	// The readings carry the part's physics: with the rails shifted by -L
 	// and the inputs and output held at ground, ΔE0 = K·(kc + ko)·L
-	// (METHODS §8). Compare the fitted slope at 25 °C with the sim's truth
-	// for U01 (K = 1000), within 5 % (noise, drift and thermal tails).
+	// (derived from kc + kp + kn + ko = 0, no published source). Compare
+	// the fitted slope at 25 °C with the sim's truth for U01 (K = 1000),
+	// within 5 % (noise, drift and thermal tails).
 	var tr *sim.UnitTruth
 	for _, u := range su.bench.Truth() {
 		if u.ID == "U01" {

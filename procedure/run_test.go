@@ -232,7 +232,8 @@ func TestRunLevelsReachThePart(t *testing.T) {
 				}
 				noViolations(t, fb)
 				// Shifting both rails, the rail that shrinks the span moves
-				// first (METHODS §6): the span never exceeds the nominal
+				// first (derived from the span rating, no published source):
+				// the span never exceeds the nominal
 				// 30 V, where moving the other rail first would reach
 				// 30 V + one ramp step.
 				if fb.maxSpan > 30+1e-9 {
@@ -259,7 +260,8 @@ func TestRunLevelsReachThePart(t *testing.T) {
 				// The readings follow the fake part: driving the inputs
 				// gives K·kc per volt; shifting both rails by -L with the
 				// inputs and the output held at ground gives
-				// ΔVio = -(kc + ko)·(-L) (METHODS §8): the supply-shift
+				// ΔVio = -(kc + ko)·(-L) (derived from kc + kp + kn + ko = 0,
+				// no published source): the supply-shift
 				// method carries the open-loop-gain term.
 				slope := fitSlope(out.Readings)
 				w := fb.k * fb.kc

@@ -71,8 +71,8 @@ type e2eUnit struct {
 
 // e2eLot spreads n units over CMRR from lo to hi dB. The other ratios are
 // set from chosen signed coefficients so that kc + kp + kn + ko = 0
-// (METHODS §8) holds by construction: k_c from the CMRR, k_p and k_o from
-// PSRR+ (85–130 dB) and A_OL (100–140 dB) values spread by the golden
+// (derived, no published source) holds by construction: k_c from the
+// CMRR, k_p and k_o from PSRR+ (85–130 dB) and A_OL (100–140 dB) values spread by the golden
 // ratio, signs from a fixed pattern, and k_n = −(k_c + k_p + k_o).
 func e2eLot(n int, lo, hi float64) []e2eUnit {
 	const phi = 0.6180339887498949
@@ -236,8 +236,8 @@ func e2eTruthOf(u sim.UnitTruth, name string) (db, k float64, ok bool) {
 // independent results the truth lies inside the stated interval in about
 // 95 % of cases. Resolved results use the exact asymmetric limits
 // −20·log10(|k| ± U) (fit.Rejection.LowerDB/UpperDB); unresolved ones state
-// only the one-sided bound ratio ≥ 1/(|k| + U) (METHODS §5, EURACHEM/CITAC
-// CG4 Appendix F), which the truth must not be below.
+// only the one-sided bound ratio ≥ 1/(|k| + U) (common practice, after
+// EURACHEM/CITAC CG4 Appendix F), which the truth must not be below.
 func compareWithTruth(t *testing.T, run *e2eRun) []coverageCheck {
 	t.Helper()
 	var out []coverageCheck

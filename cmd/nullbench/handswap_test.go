@@ -208,7 +208,8 @@ func (r *handSwapRun) checkSafe(t *testing.T) {
 
 // checkSwapsDead checks that every swap found the bench powered down: no
 // output on, none above 10 mV (the supply's programming offset at 0 V is
-// ≤ 5 mV, METHODS §7), the socket dead.
+// ≤ 5 mV, the low end of typical bench-supply specifications; common
+// practice, no published source), the socket dead.
 func checkSwapsDead(t *testing.T, seen []swapSeen) {
 	t.Helper()
 	for i, s := range seen {

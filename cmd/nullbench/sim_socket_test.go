@@ -37,7 +37,8 @@ func TestSimSocketFlag(t *testing.T) {
 // is answered plainly; with the supplies on (set over SCPI, as the tool
 // would) the socket is live, and a part inserted then is reported DAMAGED,
 // as the simulated part is (socket.go: any contact farther from 0 V than
-// 0.3 V, METHODS §6).
+// 0.3 V, the typical absolute maximum of an input beyond a rail; common
+// practice, no published source).
 func TestSimSocketLines(t *testing.T) {
 	clk := sim.NewManualClock()
 	b, err := sim.New(sim.Config{Clock: clk})

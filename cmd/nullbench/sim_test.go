@@ -63,7 +63,8 @@ func cliServeSim(t *testing.T, args ...string) []cliEndpoint {
 }
 
 // The instruments of the simulated bench, their roles, built-in profiles
-// and identities as BENCH.md ("Identities") fixes them.
+// and identities as the simulated bench (package instrument/sim) answers
+// them.
 var cliBenchInstruments = []cliEndpoint{
 	{"dmm", "meter", "", "dmm", "NULLBENCH-SIM,DMM-65,SIM0001,1.0"},
 	{"psu", "supply", "", "supply2", "NULLBENCH-SIM,PSU-2CH,SIM0002,1.0"},
@@ -228,7 +229,8 @@ func TestSimAndProbeOverTCP(t *testing.T) {
 // sim --truth prints one JSON object per unit with the true values; the
 // ratios given in the DUT file come back as written, and the open-loop
 // gain derived from three ratios satisfies kc + kp + kn + ko = 0 with
-// aol_db = -20·log10|ko| (METHODS §8, the identity of the four
+// aol_db = -20·log10|ko| (derived, no published source: the identity of
+// the four
 // input-referred coefficients of an op-amp, which has no ground pin).
 func TestSimTruth(t *testing.T) {
 	dut := cliWriteFile(t, t.TempDir(), "dut.toml", cliDUT)

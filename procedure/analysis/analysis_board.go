@@ -15,8 +15,8 @@ import (
 // it the worst-case limits that the design alone allows, so the engineer
 // sees what dominates:
 //
-//	resistor matching:  CMRR_R = (1 + G)/(4t)           (Sedra & Smith, difference amplifier, METHODS §2)
-//	with the op-amp:    1/CMRR_tot = 1/CMRR_R + 1/CMRR_OA  (Franco, worst case; METHODS §2 marks it unverified)
+//	resistor matching:  CMRR_R = (1 + G)/(4t)           (Sedra & Smith, difference amplifier)
+//	with the op-amp:    1/CMRR_tot = 1/CMRR_R + 1/CMRR_OA  (Franco, worst case; from memory, unverified)
 //
 // with G the nominal board_gain, t the resistor_tolerance and CMRR_OA the
 // op-amp's datasheet CMRR (fixture.opamp_cmrr_db). Both are worst cases:
@@ -73,7 +73,7 @@ type BoardResult struct {
 //	CMRR_R = (1 + G)/(4t)
 //
 // (Sedra & Smith, Microelectronic Circuits, difference amplifier problem,
-// (K+1)/(4ε); METHODS §2: G = 1, t = 0.1 % → 500, 54.0 dB). G must be
+// (K+1)/(4ε); e.g. G = 1, t = 0.1 % → 500, 54.0 dB). G must be
 // > 0 and t > 0.
 func ResistorCMRR(gain, tolerance float64) (float64, error) {
 	if !(gain > 0) || math.IsInf(gain, 0) {
@@ -91,8 +91,8 @@ func ResistorCMRR(gain, tolerance float64) (float64, error) {
 //	1/CMRR_tot = 1/CMRR_R + 1/CMRR_OA
 //
 // (Franco, Design with Operational Amplifiers and Analog Integrated
-// Circuits; METHODS §2, marked unverified there; the two can also partly
-// cancel). METHODS §2: 2750 and 10⁵ (100 dB) → 2676 (68.55 dB).
+// Circuits; cited from memory, page not checked; the two can also partly
+// cancel). E.g. 2750 and 10⁵ (100 dB) → 2676 (68.55 dB).
 func CombinedCMRR(cmrrR, cmrrOA float64) float64 {
 	return 1 / (1/cmrrR + 1/cmrrOA)
 }

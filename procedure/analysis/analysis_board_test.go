@@ -10,11 +10,13 @@ import (
 	"nullbench/procedure/plan"
 )
 
-// TestResistorCMRR checks the worst-case design limits against the worked
-// examples of METHODS §2: the difference amplifier (1+G)/(4t) (Sedra &
-// Smith) and the worst-case combination with the op-amp
-// 1/CMRR_tot = 1/CMRR_R + 1/CMRR_OA (Franco; METHODS §2 marks it
-// unverified). dB values as printed there (one or two decimals).
+// TestResistorCMRR checks the worst-case design limits against worked
+// examples of the difference amplifier (1+G)/(4t) (Sedra & Smith,
+// Microelectronic Circuits, difference-amplifier problem (K+1)/(4ε)) and
+// the worst-case combination with the op-amp 1/CMRR_tot = 1/CMRR_R +
+// 1/CMRR_OA (Franco, Design with Operational Amplifiers and Analog
+// Integrated Circuits; from memory, unverified). dB values to one or two
+// decimals.
 func TestResistorCMRR(t *testing.T) {
 	for _, tc := range []struct {
 		gain, tol       float64
@@ -33,7 +35,7 @@ func TestResistorCMRR(t *testing.T) {
 			t.Errorf("G = %g, t = %g: %g (%.2f dB), want %g (%.1f dB)", tc.gain, tc.tol, got, fit.DBFromRatio(got), tc.want, tc.wantDB)
 		}
 	}
-	// METHODS §2: CMRR_R = 2750 with CMRR_OA = 100 dB → 2676 (68.55 dB).
+	// Franco's rule: CMRR_R = 2750 with CMRR_OA = 100 dB → 2676 (68.55 dB).
 	c := CombinedCMRR(2750, fit.RatioFromDB(100))
 	if math.Abs(c-2676) > 0.5 || math.Abs(fit.DBFromRatio(c)-68.55) > 0.005 {
 		t.Errorf("combined %g (%.3f dB), want 2676 (68.55 dB)", c, fit.DBFromRatio(c))
@@ -47,7 +49,7 @@ func TestResistorCMRR(t *testing.T) {
 
 // azBoard is an amplifier board: differential gain, common-mode gain,
 // input-referred supply coefficients per volt of V+ and of V− itself, and
-// an output offset (BENCH.md "Physics", board fixture).
+// an output offset (package instrument/sim, "Physics": the board fixture).
 type azBoard struct {
 	gain, acm, kpb, knb, offV float64
 }
@@ -79,8 +81,8 @@ func azBoardPlan(kinds ...string) *plan.Plan {
 }
 
 // TestAnalyzeBoard: a G = 10 difference amplifier whose resistors set
-// CMRR = 2750 (A_cm = 10/2750, METHODS §2: 68.8 dB), with PSRR of +5 µV/V
-// per volt of V+ and −20 µV/V per volt of V− (input referred). The
+// CMRR = 2750 (A_cm = 10/2750, (1+G)/(4t) with t = 0.1 %: 68.8 dB), with
+// PSRR of +5 µV/V per volt of V+ and −20 µV/V per volt of V− (input referred). The
 // analysis must recover A_d, A_cm, the CMRR and the signed board PSRRs, and
 // show the design limits beside them (2750, 68.79 dB; with a 100 dB op-amp
 // 2676, 68.55 dB; resistor matching dominates).

@@ -9,8 +9,8 @@ import (
 )
 
 // ClosureResult is the consistency of one unit's op-amp coefficients at one
-// temperature (METHODS §8, derived from k_c + k_p + k_n + k_o = 0: an op-amp
-// has no ground pin).
+// temperature (derived from k_c + k_p + k_n + k_o = 0: an op-amp has no
+// ground pin; no published source).
 //
 // Closure (superposition): shifting both rails up together must move V_IO
 // by the sum of the single-rail coefficients,
@@ -42,7 +42,7 @@ type ClosureResult struct {
 	Closure fit.Closure `json:"closure"`
 	Budget  fit.Budget  `json:"budget"`
 	// The coefficients, each per volt of the named terminal moved up,
-	// everything else held (METHODS §8), µV/V. HasKc/HasKo say which are
+	// everything else held, µV/V. HasKc/HasKo say which are
 	// known; Kc is the A_OL-corrected value where a correction applies.
 	KpUVPerV float64 `json:"kp_uv_per_v"`
 	KnUVPerV float64 `json:"kn_uv_per_v"`
@@ -72,7 +72,8 @@ type ConsistencyCheck struct {
 }
 
 // outputMovesWithCM reports whether the cmrr test also moves the part's
-// output against its rails, so that it measures k_c + k_o (METHODS §8):
+// output against its rails, so that it measures k_c + k_o (derived from
+// k_c + k_p + k_n + k_o = 0, no published source):
 // every method but input drive in the nulling loop (which holds the output).
 func outputMovesWithCM(p *plan.Plan) bool {
 	return !(p.Fixture.Kind == plan.FixtureNullingLoop && p.Fixture.CommonMode == plan.CMByInputDrive)
@@ -138,7 +139,7 @@ func (a *analyzer) analyzeNulling() {
 				}
 			} else {
 				a.res.Ratios[cm].Notes = append(a.res.Ratios[cm].Notes,
-					"not corrected for the open-loop gain (no aol result for this unit and temperature): the coefficient is k_c + k_o (METHODS §8)")
+					"not corrected for the open-loop gain (no aol result for this unit and temperature): the coefficient is k_c + k_o (the output moves against the rails with the common mode)")
 			}
 		}
 
@@ -236,9 +237,10 @@ func (a *analyzer) analyzeNulling() {
 }
 
 // correctAOL forms k_c = k − k_o from the measured common-mode result and
-// the aol result (METHODS §8; the same as fit.CorrectShift with
+// the aol result (derived, no published source; the same as
+// fit.CorrectShift with
 // k_shift = −k), with the budgets combined and the shared inputs merged.
-// METHODS §8 example: k = k_c + k_o = 10.01 µV/V (99.99 dB), k_o =
+// Example (invented numbers): k = k_c + k_o = 10.01 µV/V (99.99 dB), k_o =
 // 0.01 µV/V → k_c = 10.00 µV/V (100.00 dB).
 func (a *analyzer) correctAOL(m, o RatioResult) (RatioResult, error) {
 	k, ko := m.Rejection.Budget, o.Rejection.Budget

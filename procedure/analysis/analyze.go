@@ -251,7 +251,8 @@ func limitName(name string) string {
 //	                     sit +L from the rails' centre: ΔV_CM = +L and
 //	                     k = b1/K per volt of ΔV_CM. The output (held at
 //	                     ground) also moves +L against the rails, so
-//	                     k = k_c + k_o (METHODS §8).
+//	                     k = k_c + k_o (derived from
+//	                     k_c + k_p + k_n + k_o = 0, no published source).
 //	cmrr, input_drive:   V_CM = L at the inputs: k = b1/K per volt of V_CM;
 //	                     k = k_c in the nulling loop (output held), k_c + k_o
 //	                     in a noise-gain stage (its output follows V_CM).
@@ -260,7 +261,7 @@ func limitName(name string) string {
 //	                     of the rail V− itself the rail moves by −d, so
 //	                     k_n = −b1/K.
 //	psrr_sym:            V+ up d/2, V− down d/2: b1/K per volt of supply
-//	                     span, = (k_p − k_n)/2 (METHODS §8).
+//	                     span, = (k_p − k_n)/2 (derived, as above).
 //	aol:                 the part's output follows the auxiliary reference
 //	                     r: k_o = b1/K per volt of output, A_OL = 1/|k_o|.
 //	board_cmrr:          A_d = slope of the diff sweep, A_cm = slope of the
@@ -270,7 +271,7 @@ func limitName(name string) string {
 //	                     hence the same sign flip as psrr_neg).
 //
 // Ratios use the magnitude: ratio = 1/|k|, dB = 20·log10(10⁶/|k µV/V|)
-// (JEDEC JESD99B k_CMR, k_SVR; METHODS §2).
+// (JEDEC JESD99B k_CMR, k_SVR).
 //
 // Derived results: where the cmrr method measures k_c + k_o and an aol
 // result of the same unit and condition exists, "cmrr" is the corrected

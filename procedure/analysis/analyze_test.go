@@ -14,7 +14,8 @@ import (
 
 // The readings in these tests are generated from known signed coefficients
 // through the level semantics of StateAt (safety.go) and the op-amp error
-// model of the bench contract (BENCH.md "Physics"; METHODS §8):
+// model of the simulated bench (package instrument/sim, "Physics"; derived
+// from kc + kp + kn + ko = 0, no published source):
 //
 //	V_IO = Vos + kc·(Vcm − V−) + kp·(V+ − V−) + ko·(Vout − V−),  kn = −(kc + kp + ko)
 //
@@ -129,9 +130,10 @@ func azOpAmpPlan(fixture, cm string, kinds ...string) *plan.Plan {
 	return p
 }
 
-// METHODS §8 worked example (invented numbers): kc = +10, kp = +4,
+// A worked example (invented numbers, derived from kc + kp + kn + ko = 0;
+// no published source): kc = +10, kp = +4,
 // ko = +0.01 µV/V, so kn = −14.01 µV/V.
-var azMethods8 = azOpAmp{vos: 120e-6, kc: 10e-6, kp: 4e-6, ko: 0.01e-6}
+var azWorked = azOpAmp{vos: 120e-6, kc: 10e-6, kp: 4e-6, ko: 0.01e-6}
 
 func azAnalyze(t *testing.T, p *plan.Plan, rs []journal.Reading, acc Inputs) *Results {
 	t.Helper()
@@ -191,22 +193,23 @@ func azCheckCoef(t *testing.T, r *RatioResult, wantUV, tolUV float64) {
 	}
 }
 
-// TestAnalyzeNullingLoopMethods8 recovers the METHODS §8 worked example
+// TestAnalyzeNullingLoopWorked recovers the worked example azWorked
 // from a nulling loop with supply-shift common mode: every coefficient with
-// its sign, the ratios in dB as METHODS §8 lists them (CMRR 100.00 dB,
+// its sign, the ratios in dB (dB = 20·log10(10⁶/|k µV/V|), JEDEC JESD99B;
+// CMRR 100.00 dB,
 // PSRR+ 107.96 dB, PSRR− 97.07 dB, A_OL 160 dB, supply shift 99.99 dB,
 // symmetric 9.005 µV/V), the A_OL correction, closure and psrr_worst.
-func TestAnalyzeNullingLoopMethods8(t *testing.T) {
+func TestAnalyzeNullingLoopWorked(t *testing.T) {
 	p := azOpAmpPlan(plan.FixtureNullingLoop, plan.CMBySupplyShift, plan.TestCMRR, plan.TestPSRRPos, plan.TestPSRRNeg, plan.TestPSRRSym, plan.TestAOL)
 	sim := azNewBench(p, 1, 1e-6)
 	sim.driftVPerS = 0.2e-6 // a thermal-EMF-like wander, removed by the drift term
-	rs := sim.opAmpReadings(nil, "U1", 0, 25, azMethods8)
+	rs := sim.opAmpReadings(nil, "U1", 0, 25, azWorked)
 	res := azAnalyze(t, p, rs, Inputs{Meter: plan.Accuracy{GainPPM: 20}, Stimulus: plan.Accuracy{GainPPM: 300, OffsetVolts: 1e-3}})
 
 	tests := []struct {
 		name          string
 		wantUV, tolUV float64
-		wantDB, tolDB float64 // METHODS §8 values, rounded as printed there
+		wantDB, tolDB float64 // the worked example's values, as rounded
 	}{
 		{plan.TestCMRR, 10.00, 0.002, 100.00, 0.005},
 		{ResultCMRRUncorrected, 10.01, 0.002, 99.99, 0.005},
@@ -285,7 +288,7 @@ func TestAnalyzeNullingLoopMethods8(t *testing.T) {
 		t.Errorf("four coefficients kc %.4f kp %.4f kn %.4f ko %.4f", cl.KcUVPerV, cl.KpUVPerV, cl.KnUVPerV, cl.KoUVPerV)
 	}
 	if sum := cl.KcUVPerV + cl.KpUVPerV + cl.KnUVPerV + cl.KoUVPerV; math.Abs(sum) > 0.003 {
-		t.Errorf("kc + kp + kn + ko = %.5f, want 0 (METHODS §8)", sum)
+		t.Errorf("kc + kp + kn + ko = %.5f, want 0 (no ground pin)", sum)
 	}
 	// Cross-check the closure value against fit.CheckClosure.
 	fc, err := fit.CheckClosure(fit.Quantity{Value: cl.Closure.ShiftUVPerV, StdUnc: 1, DOF: fit.InfDOF},
@@ -296,7 +299,7 @@ func TestAnalyzeNullingLoopMethods8(t *testing.T) {
 	if math.Abs(fc.ClosureUVPerV-cl.Closure.ClosureUVPerV) > 1e-12 {
 		t.Errorf("closure %g, fit.CheckClosure %g", cl.Closure.ClosureUVPerV, fc.ClosureUVPerV)
 	}
-	// Symmetric supply: (kp − kn)/2 = 9.005 µV/V (METHODS §8).
+	// Symmetric supply: (kp − kn)/2 = 9.005 µV/V (derived).
 	if !cl.Symmetric.Checked || cl.Symmetric.Mismatch || math.Abs(cl.Symmetric.PredictedUVPerV-9.005) > 0.002 {
 		t.Errorf("symmetric check %+v", cl.Symmetric)
 	}
@@ -399,7 +402,7 @@ func TestAnalyzeClosureFlagsInconsistency(t *testing.T) {
 		t.Run(tc.name, func(t *testing.T) {
 			p := azOpAmpPlan(plan.FixtureNullingLoop, plan.CMBySupplyShift, plan.TestCMRR, plan.TestPSRRPos, plan.TestPSRRNeg)
 			sim := azNewBench(p, 42, 1e-6)
-			o := azMethods8
+			o := azWorked
 			bad := o
 			bad.kp += tc.injectUV * 1e-6
 			bad.kc -= tc.injectUV * 1e-6 // keeps kn of the bad part equal to the real one
@@ -440,14 +443,14 @@ func TestAnalyzeClosureFlagsInconsistency(t *testing.T) {
 
 // TestAnalyzeDecisions checks that each result is judged against its own
 // limit by the plan's rule, with the zones of ILAC-G8:09/2019 §4.2 placed
-// relative to the result's U (METHODS §5: TL = 85, U = 1.5: 87 pass, 86
+// relative to the result's U (e.g. TL = 85, U = 1.5: 87 pass, 86
 // conditional pass, 84 conditional fail, 83 fail — here scaled to the
 // result's own U): the limit is put at value − 2U, value − U/2, value + U/2
 // and value + 2U.
 func TestAnalyzeDecisions(t *testing.T) {
 	p := azOpAmpPlan(plan.FixtureNullingLoop, plan.CMByInputDrive, plan.TestCMRR, plan.TestPSRRPos, plan.TestPSRRNeg)
 	p.Fixture.NoiseGainTolerance = 0.02 // a wide U, so the zones are far apart
-	rs := azNewBench(p, 5, 1e-6).opAmpReadings(nil, "U1", 0, 25, azMethods8)
+	rs := azNewBench(p, 5, 1e-6).opAmpReadings(nil, "U1", 0, 25, azWorked)
 	first := azAnalyze(t, p, rs, Inputs{})
 	base := azRatio(t, first, "U1", plan.PsrrWorst, 0)
 	if base.Judged {
@@ -499,7 +502,8 @@ func TestAnalyzeDecisions(t *testing.T) {
 
 // TestAnalyzeUnresolved: a part whose common-mode coefficient is zero
 // cannot be told from zero; the result is a one-sided lower bound
-// (METHODS §5, EURACHEM/CITAC CG4 App. F) and is judged on it.
+// (common practice, after EURACHEM/CITAC CG4 Appendix F on results near
+// the detection limit) and is judged on it.
 func TestAnalyzeUnresolved(t *testing.T) {
 	p := azOpAmpPlan(plan.FixtureNullingLoop, plan.CMByInputDrive, plan.TestCMRR)
 	p.Limits = plan.Limits{plan.TestCMRR: 120}
@@ -528,7 +532,7 @@ func TestAnalyzeReadingHandling(t *testing.T) {
 	sim := azNewBench(p, 3, 1e-6)
 	// The source delivers 0.2 % more than programmed and reads it back.
 	sim.readBackGain = 0.002
-	rs := sim.opAmpReadings(nil, "U1", 0, 25, azMethods8)
+	rs := sim.opAmpReadings(nil, "U1", 0, 25, azWorked)
 	rs[2].Flags = []string{journal.FlagOverload}
 	rs[2].MeterVolts = 9.9e37
 	rs[3].Flags = []string{journal.FlagSettleTimeout}
@@ -608,7 +612,7 @@ func TestAnalyzeTemperatureConditions(t *testing.T) {
 	var rs []journal.Reading
 	for ti, tc := range p.Temperature.PointsCelsius {
 		before := len(rs)
-		rs = sim.opAmpReadings(rs, "U1", ti, tc, azMethods8)
+		rs = sim.opAmpReadings(rs, "U1", ti, tc, azWorked)
 		for i := before; i < len(rs); i++ {
 			rs[i].TemperatureC += 0.3 * math.Sin(float64(i)) // chamber wander ±0.3 °C
 		}
@@ -671,7 +675,7 @@ func TestAnalyzeNonlinearity(t *testing.T) {
 	for _, quad := range []bool{false, true} {
 		p := azOpAmpPlan(plan.FixtureNullingLoop, plan.CMByInputDrive, plan.TestCMRR)
 		p.Tests[0].QuadraticTerm = quad
-		o := azMethods8
+		o := azWorked
 		const q = 0.05e-6
 		rs := azNewBench(p, 8, 0.5e-6).run(nil, "U1", plan.TestCMRR, 0, 25, func(_ int, s plan.BenchState) float64 {
 			return o.meter(p, s) + p.Fixture.NoiseGain*q*s.CMVolts*s.CMVolts

@@ -11,7 +11,7 @@ import (
 )
 
 // LineFrequencyHz is the mains frequency used to turn NPLC into seconds for
-// estimates (one power-line cycle = 20 ms at 50 Hz, METHODS §7). At 60 Hz
+// estimates (one power-line cycle = 1/50 Hz = 20 ms). At 60 Hz
 // the integration is shorter, so the estimate errs long.
 const LineFrequencyHz = 50.0
 

@@ -237,7 +237,8 @@ type Temperature struct {
 // SafetyOptions are the plan's own safety settings.
 type SafetyOptions struct {
 	// RampStepVolts is the largest single step of any supply or source
-	// when ramping up or down (default 1 V, METHODS §6).
+	// when ramping up or down (default 1 V; common practice, no published
+	// source).
 	RampStepVolts float64 `toml:"ramp_step_volts"`
 }
 
@@ -300,18 +301,20 @@ const (
 	DefaultRepeats  = 1
 	DefaultReadings = 5
 	// DefaultNPLC: 10 power-line cycles, where a 6½-digit meter's rms noise
-	// is about 1e-6 of range (METHODS §7, published DMM manuals).
+	// is about 1e-6 of range (typical of published 6½-digit DMM
+	// specifications; common practice, no single published source).
 	DefaultNPLC       = 10.0
 	DefaultRangeVolts = 10.0
 	DefaultTimeScale  = 1.0
 	DefaultRule       = RuleGuarded
 	// DefaultRampStepVolts: the largest step of a supply or source while
-	// ramping (METHODS §6, "step ≤ 1 V with settling").
+	// ramping (steps ≤ 1 V with settling: common practice, no published
+	// source).
 	DefaultRampStepVolts = 1.0
 	DefaultDwellSeconds  = 2.0
 	// DefaultSettleVolts: two successive readings must agree within 50 µV at
 	// the meter, about 3.5 times the rms difference of two 10-NPLC readings
-	// on the 10 V range (1e-6 × range rms each, METHODS §7); common
+	// on the 10 V range (1e-6 × range rms each, as DefaultNPLC); common
 	// practice, no published source.
 	DefaultSettleVolts          = 50e-6
 	DefaultSettleTimeoutSeconds = 30.0
@@ -319,15 +322,16 @@ const (
 	DefaultAmbientCelsius       = 25.0
 	DefaultSoakToleranceC       = 0.5
 	// DefaultSoakSeconds: 10 minutes, the low end of the 10–30 min thermal
-	// soak of METHODS §7 (common practice).
+	// soak usual on temperature benches (common practice, no published
+	// source).
 	DefaultSoakSeconds        = 600.0
 	DefaultSoakTimeoutSeconds = 3600.0
 	// DefaultRampMaxCPerMinute: chamber slew used for the duration estimate
 	// and as the largest set-point change per minute (common practice).
 	DefaultRampMaxCPerMinute = 5.0
 	// DefaultInputBeyondRailVolts: the usual absolute maximum of an input
-	// beyond a rail before its ESD diodes conduct (METHODS §6, "typical
-	// abs. max rail ±0.3 V").
+	// beyond a rail before its ESD diodes conduct (rail ±0.3 V in typical
+	// op-amp data sheets; common practice, no published source).
 	DefaultInputBeyondRailVolts = 0.3
 )
 

@@ -9,7 +9,7 @@ import (
 
 // HazardousVolts is the DC voltage above which a terminal is treated as
 // hazardous: 60 V DC, the SELV limit of IEC 60950-1 §1.2.8 and the ES1
-// limit of IEC 62368-1 (METHODS §6). IEC 61010-1:2010 (3rd ed.) §6.3.1 uses
+// limit of IEC 62368-1. IEC 61010-1:2010 (3rd ed.) §6.3.1 uses
 // 70 V DC for laboratory equipment; local codes may be stricter: defer to
 // them. A plan that takes any terminal above it, to ground or to another
 // terminal, runs only with the allow-hazardous option and a confirmation
@@ -23,7 +23,7 @@ const HazardousVolts = 60.0
 //	                     The inputs then sit at +L from the rails' centre
 //	                     (equivalent V_CM = -(V+ + V-)/2 + (Vp0 + Vn0)/2),
 //	                     the convention of MIL-M-38510/114 Table III
-//	                     (METHODS §1): ±20 V rails, L = +15 gives +5/-35 V.
+//	                     (Group A): ±20 V rails, L = +15 gives +5/-35 V.
 //	cmrr, input_drive:   V_CM = L at the inputs (source_cm), rails nominal.
 //	psrr_pos:            V+ = Vp0 + d (V- nominal).
 //	psrr_neg:            V- = Vn0 - d: a positive d grows the rail's

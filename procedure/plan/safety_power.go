@@ -54,11 +54,12 @@ func RampStep(p *Plan) float64 {
 	return DefaultRampStepVolts
 }
 
-// PowerUpOrder is the power-up sequence (METHODS §6; latch-up avoidance
-// per JEDEC JESD78): every source output off at 0 V; each supply's current
-// limit set and its voltage set to 0 V with its output off; both supply
-// outputs on; the rails ramped together to nominal in steps of at most
-// safety.ramp_step_volts (a soft start: the part never sees a step larger
+// PowerUpOrder is the power-up sequence (common practice, no published
+// source; it keeps the inputs from driving an unpowered part, the latch-up
+// trigger that JEDEC JESD78 tests for): every source output off at 0 V;
+// each supply's current limit set and its voltage set to 0 V with its
+// output off; both supply outputs on; the rails ramped together to nominal
+// in steps of at most safety.ramp_step_volts (a soft start: the part never sees a step larger
 // than that); then the sources' outputs on at 0 V. The inputs stay at
 // ground (or open) until both rails are up; the runner then moves to each
 // test state with Transition.
@@ -87,7 +88,8 @@ func PowerDownOrder(p *Plan) []PowerAction { return PowerDownFrom(p, NominalStat
 
 // PowerDownFrom is the reverse of power-up from any state (an abort
 // mid-test): each source ramped to 0 V in steps ≤ ramp_step_volts and
-// switched off (inputs first, METHODS §6); then both rails ramped to 0 V,
+// switched off (inputs first: common practice, no published source; JEDEC
+// JESD78 latch-up); then both rails ramped to 0 V,
 // the span shrinking at every step; then the supply outputs off.
 func PowerDownFrom(p *Plan, from BenchState) []PowerAction {
 	step := RampStep(p)
@@ -109,7 +111,8 @@ func PowerDownFrom(p *Plan, from BenchState) []PowerAction {
 // rails, then sources moving away from 0 V. The rails move alternately,
 // each round first the rail whose move shrinks the span (when shifting up,
 // V- rises first), so the span never exceeds the larger of its start and
-// end values (METHODS §6). Every intermediate state is checked against the
+// end values (derived from the span rating; no published source). Every
+// intermediate state is checked against the
 // absolute maxima (span, rail polarity, inputs beyond the rails, source
 // size); a violation is returned as an error and no actions.
 func Transition(p *Plan, from, to BenchState) ([]PowerAction, error) {

@@ -66,7 +66,7 @@ func checkSteps(t *testing.T, from BenchState, actions []PowerAction, step float
 // TestPowerUpOrder: current limits and voltages are set with the outputs
 // off, the supplies come on before any source, the rails ramp in steps of
 // at most ramp_step_volts, and the inputs are never driven while a rail is
-// off (METHODS §6; JEDEC JESD78 latch-up).
+// off (common practice, no published source; JEDEC JESD78 latch-up).
 func TestPowerUpOrder(t *testing.T) {
 	for _, name := range []string{"lot", "board", "noise_gain"} {
 		p := loadExamplePlan(t, name)
@@ -153,7 +153,8 @@ func TestPowerDownOrder(t *testing.T) {
 // TestTransitionShrinkFirst: between any two steps every move is at most
 // the ramp step, each rail moves monotonically, the span never exceeds the
 // larger of its start and end values, and when both rails shift up V-
-// moves first (METHODS §6: "shifting up: raise V- first").
+// moves first (derived from the span rating: shifting up, raise V- first;
+// no published source).
 func TestTransitionShrinkFirst(t *testing.T) {
 	p := loadExamplePlan(t, "lot")
 	p.Safety.RampStepVolts = 0.7 // not a divisor of the distances: the last step must land exactly

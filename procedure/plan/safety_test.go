@@ -10,7 +10,8 @@ import (
 )
 
 // TestStateAtMILM38510Table checks the level semantics against MIL-M-38510/114
-// Table III (Group A), as restated in METHODS §1: with ±20 V nominal rails
+// Table III (Group A; read from a public transcription of the
+// specification): with ±20 V nominal rails
 // and the inputs at ground, tests 1 and 2 shift both rails to +35/-5 V and
 // +5/-35 V (equivalent V_CM = -(V+ + V-)/2 = -15 and +15 V); test 14 is
 // +10/-20 V and test 15 is +20/-10 V (one rail 10 V closer to ground).
@@ -70,8 +71,9 @@ func TestStateAtMILM38510Table(t *testing.T) {
 	}
 }
 
-// TestShiftedRailsNotHazardous: METHODS §6 (common practice): shifted ±20 V
-// rails reach 35 V to ground, under 60 V DC.
+// TestShiftedRailsNotHazardous: shifted ±20 V rails reach 35 V to ground,
+// under the 60 V DC SELV/ES1 limit (IEC 60950-1 §1.2.8, IEC 62368-1); that
+// such a bench is not hazardous is common practice, no published source.
 func TestShiftedRailsNotHazardous(t *testing.T) {
 	p := &Plan{
 		Fixture: Fixture{Kind: FixtureNullingLoop, CommonMode: CMBySupplyShift},
