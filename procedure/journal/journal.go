@@ -98,6 +98,9 @@ type Record struct {
 	Event    *Event        `json:"event,omitempty"`
 	Work     *plan.WorkKey `json:"work,omitempty"` // pass-done, test-done
 	End      *End          `json:"end,omitempty"`
+	// Chain is the running hash of this record and every one before it
+	// (chain.go); Write sets it.
+	Chain string `json:"chain,omitempty"`
 }
 
 // Writer appends records to a journal file. Each record goes out in
@@ -111,6 +114,10 @@ type Writer struct {
 	path   string
 	err    error // the first write failure; later writes refuse
 	closed bool
+	// chain is the last record's chain value; unchained continues a
+	// journal written before records carried one.
+	chain     string
+	unchained bool
 	// Now stamps records whose Time is zero; time.Now by default. Set it
 	// before the first write (tests use a fixed clock).
 	Now func() time.Time
@@ -154,6 +161,10 @@ func Resume(path string, p *plan.Plan, h Header) (*Writer, *Contents, error) {
 		f.Close()
 		return nil, nil, fmt.Errorf("journal %s: %w", path, err)
 	}
+	if err := c.CheckIntegrity(Seal{}); err != nil {
+		f.Close()
+		return nil, nil, fmt.Errorf("journal %s: %w; it cannot be continued (start a new journal)", path, err)
+	}
 	if c.End != nil && c.End.Status == EndComplete {
 		f.Close()
 		return nil, nil, fmt.Errorf("journal %s: the run already ended complete; nothing to resume (start a new journal to measure again)", path)
@@ -168,7 +179,7 @@ func Resume(path string, p *plan.Plan, h Header) (*Writer, *Contents, error) {
 		f.Close()
 		return nil, nil, fmt.Errorf("journal %s: %w", path, err)
 	}
-	w := &Writer{f: f, path: path, Now: time.Now}
+	w := &Writer{f: f, path: path, Now: time.Now, chain: c.LastChain, unchained: !c.Chained}
 	if err := w.Write(Record{Kind: RecordResume, Header: &h}); err != nil {
 		f.Close()
 		return nil, nil, err
@@ -208,7 +219,17 @@ func (w *Writer) Write(rec Record) error {
 		}
 		rec.Time = now().UTC()
 	}
-	line, err := json.Marshal(rec)
+	var (
+		line  []byte
+		chain string
+		err   error
+	)
+	if w.unchained {
+		rec.Chain = ""
+		line, err = json.Marshal(rec)
+	} else {
+		line, chain, err = encodeChained(rec, w.chain)
+	}
 	if err != nil {
 		return fmt.Errorf("journal %s: encode %s record: %w", w.path, rec.Kind, err)
 	}
@@ -221,6 +242,7 @@ func (w *Writer) Write(rec Record) error {
 		w.err = err
 		return fmt.Errorf("journal %s: fsync: %w; check the disk", w.path, err)
 	}
+	w.chain = chain
 	return nil
 }
 

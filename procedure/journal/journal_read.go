@@ -24,6 +24,15 @@ type Contents struct {
 	End        *End           // the last end record, if no resume followed it
 	Records    int            // complete records read
 
+	// Chained says the records carry running hashes (chain.go); LastChain
+	// is the last record's, ChainBreakLine the first line whose hash does
+	// not verify (0: none), RecordLines the line number of the last record.
+	Chained        bool
+	LastChain      string
+	ChainBreakLine int
+	RecordLines    int
+	chains         []string // chain value after each record
+
 	// Truncated says the last line was incomplete (no newline: a run killed
 	// while writing it) and was skipped; TruncatedLine is its line number.
 	Truncated     bool
@@ -98,7 +107,10 @@ func Read(r io.Reader) (*Contents, error) {
 		if c.End != nil && rec.Kind != RecordResume {
 			return nil, fmt.Errorf("line %d: %s record after the end record", line, rec.Kind)
 		}
+		c.verifyChain(rec, line)
 		c.Records++
+		c.RecordLines = line
+		c.chains = append(c.chains, rec.Chain)
 		switch rec.Kind {
 		case RecordStart:
 			c.Header = *rec.Header
