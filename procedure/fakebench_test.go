@@ -493,6 +493,7 @@ type fakeOperator struct {
 	swaps    []string
 	requests []TemperatureRequest
 	swapErr  error
+	skip     map[string]string // plan id -> reason to skip it
 	hot      []string // swaps asked while powered
 }
 
@@ -506,6 +507,9 @@ func (o *fakeOperator) SwapUnit(ctx context.Context, next plan.Unit) (string, er
 	o.swaps = append(o.swaps, next.ID)
 	if o.swapErr != nil {
 		return "", o.swapErr
+	}
+	if why, ok := o.skip[next.ID]; ok {
+		return "", &SkipUnitError{Unit: next.ID, Reason: why}
 	}
 	return o.ids[next.ID], nil
 }

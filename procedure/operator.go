@@ -135,8 +135,19 @@ func (o *LineOperator) SwapUnit(ctx context.Context, next plan.Unit) (string, er
 	if next.Notes != "" {
 		fmt.Fprintf(o.Out, " (%s)", next.Notes)
 	}
-	fmt.Fprintf(o.Out, ", then press Enter, or type the id on the part [%s] (q stops): ", next.ID)
-	return o.readLine(ctx)
+	fmt.Fprintf(o.Out, ", then press Enter, or type the id on the part [%s] (skip REASON leaves it out, q stops): ", next.ID)
+	t, err := o.readLine(ctx)
+	if err != nil {
+		return "", err
+	}
+	if f := strings.Fields(t); len(f) > 0 && strings.EqualFold(f[0], "skip") {
+		reason := strings.TrimSpace(t[len(f[0]):])
+		if reason == "" {
+			reason = "skipped by the operator"
+		}
+		return "", &SkipUnitError{Unit: next.ID, Reason: reason}
+	}
+	return t, nil
 }
 
 // Temperature asks for a temperature (manual mode) or a confirmation

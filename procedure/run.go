@@ -39,6 +39,10 @@ type RunOptions struct {
 	Consent plan.HazardConsent
 	// Timing sets the sequencer's own waits; zero fields take defaults.
 	Timing Timing
+	// Skip leaves units out (unit id → reason: socket empty, part
+	// cracked). Each is journalled as a unit-skipped event when the run
+	// reaches it, and stays skipped on resume (see skip.go).
+	Skip map[string]string
 }
 
 // Timing holds the waits that are the sequencer's, not the plan's. The
@@ -283,6 +287,9 @@ type runner struct {
 	tempC    float64 // temperature recorded with readings when not read per point
 	eta      etaEstimator
 	finished int // points done, recovered included
+	// skipped holds the units skipped so far (journalled), pending the
+	// ones asked for in RunOptions.Skip that the run has not reached yet.
+	skipped, pending map[string]string
 }
 
 func newRunner(p *plan.Plan, rig *Rig, opt RunOptions) *runner {
@@ -324,6 +331,7 @@ func newRunner(p *plan.Plan, rig *Rig, opt RunOptions) *runner {
 	} else {
 		r.done = (&journal.Contents{}).Done()
 	}
+	r.initSkips()
 	r.at = position{tempIndex: -1, test: -1}
 	return r
 }
@@ -369,6 +377,9 @@ func (r *runner) run(ctx context.Context) (*Outcome, error) {
 func (r *runner) count() (total, done int) {
 	for ti := range r.temps {
 		for _, u := range r.p.Units {
+			if _, skip := r.skipped[u.ID]; skip {
+				continue
+			}
 			for i := range r.p.Tests {
 				steps := plan.TestSteps(r.p, i)
 				for rep := 0; rep < r.p.Tests[i].Repeats; rep++ {
@@ -388,6 +399,9 @@ func (r *runner) count() (total, done int) {
 // unitFinished reports whether the journal holds every point of unit at
 // temperature ti; tempFinished the same for every unit.
 func (r *runner) unitFinished(ti int, unit string) bool {
+	if _, skip := r.skipped[unit]; skip {
+		return true
+	}
 	for i := range r.p.Tests {
 		if !r.testFinished(ti, unit, i) {
 			return false
@@ -430,11 +444,15 @@ func (r *runner) campaign(ctx context.Context) error {
 			return err
 		}
 		for _, u := range r.p.Units {
-			if r.unitFinished(ti, u.ID) {
+			if r.skipNow(ti, u.ID) || r.unitFinished(ti, u.ID) {
 				continue
 			}
 			r.at.unit, r.at.test, r.at.atStep = u.ID, -1, false
 			if err := r.connectUnit(ctx, ti, u); err != nil {
+				if reason, ok := SkipReason(err); ok {
+					r.skipUnit(ti, u.ID, reason)
+					continue
+				}
 				return err
 			}
 			if err := r.powerUp(ctx); err != nil {
