@@ -807,6 +807,26 @@ func unknownBuiltin(name string) error {
 		name, strings.Join(BuiltinProfileNames(), ", "))
 }
 
+// BuiltinProfileSource returns the bytes of a built-in profile (to keep a
+// copy of the profile a run used beside its journal).
+func BuiltinProfileSource(name string) ([]byte, error) {
+	if !validProfileName(name) {
+		return nil, unknownBuiltin(name)
+	}
+	data, err := builtinFS.ReadFile(path.Join("profiles", name+".toml"))
+	if err != nil {
+		return nil, unknownBuiltin(name)
+	}
+	return data, nil
+}
+
+// IsProfilePath says whether a plan's profile entry names a file (it
+// contains a path separator or ends in ".toml") rather than a built-in
+// profile.
+func IsProfilePath(nameOrPath string) bool {
+	return strings.ContainsAny(nameOrPath, `/\`) || strings.HasSuffix(nameOrPath, ".toml")
+}
+
 // BuiltinProfiles parses every embedded profile.
 func BuiltinProfiles() ([]*Profile, error) {
 	var out []*Profile
@@ -824,7 +844,7 @@ func BuiltinProfiles() ([]*Profile, error) {
 // a path to a profile file (anything containing a path separator or ending
 // in ".toml").
 func ResolveProfile(nameOrPath string) (*Profile, error) {
-	if strings.ContainsAny(nameOrPath, `/\`) || strings.HasSuffix(nameOrPath, ".toml") {
+	if IsProfilePath(nameOrPath) {
 		return LoadProfile(nameOrPath)
 	}
 	return BuiltinProfile(nameOrPath)

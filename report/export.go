@@ -28,6 +28,7 @@ var resultCSVHeader = []string{
 	"unit", "test", "temperature_c", "coefficient_uv_per_v", "coefficient_u_uv_per_v",
 	"ratio_db", "expanded_u_db", "expanded_u_low_db", "expanded_u_high_db", "coverage_k",
 	"dof_effective", "resolved", "lower_bound_db", "reported_db", "limit_db", "verdict", "rule", "flags",
+	"campaign_incomplete", "missing_points",
 }
 
 // readingCSVHeader is the header of WriteReadingsCSV.
@@ -54,6 +55,7 @@ func WriteResultsCSV(w io.Writer, results []Result, opt CSVOptions) error {
 			fnum(r.RatioDB), fnum(r.ExpandedUDB), fnum(r.ExpandedUDBLow), fnum(r.ExpandedUDBHigh), fnum(r.CoverageK),
 			fnum(r.DOFEffective), strconv.FormatBool(r.Resolved), fnum(r.LowerBoundDB), fnum(r.ReportedDB()),
 			fnum(r.LimitDB), t(r.Verdict), t(r.Rule), t(strings.Join(r.Flags, ";")),
+			strconv.FormatBool(r.Incomplete), strconv.Itoa(r.MissingPoints),
 		}
 		if err := cw.Write(rec); err != nil {
 			return fmt.Errorf("report: results CSV row %d (unit %q): %w", i+1, r.Unit, err)
@@ -151,6 +153,8 @@ type resultJSON struct {
 	Verdict            string   `json:"verdict"`
 	Rule               string   `json:"rule"`
 	Flags              []string `json:"flags,omitempty"`
+	CampaignIncomplete bool     `json:"campaign_incomplete"`
+	MissingPoints      int      `json:"missing_points"`
 }
 
 // readingJSON is one line of WriteReadingsJSONL.
@@ -188,6 +192,7 @@ func WriteResultsJSONL(w io.Writer, results []Result) error {
 			ExpandedUDBHigh: jnum(r.ExpandedUDBHigh), CoverageK: jnum(r.CoverageK), DOFEffective: jnum(r.DOFEffective),
 			Resolved: r.Resolved, LowerBoundDB: jnum(r.LowerBoundDB), ReportedDB: jnum(r.ReportedDB()),
 			LimitDB: jnum(r.LimitDB), Verdict: r.Verdict, Rule: r.Rule, Flags: r.Flags,
+			CampaignIncomplete: r.Incomplete, MissingPoints: r.MissingPoints,
 		}); err != nil {
 			return fmt.Errorf("report: results JSON line %d (unit %q): %w", i+1, r.Unit, err)
 		}

@@ -46,7 +46,41 @@ type Campaign struct {
 	Temperature []TempRow    // ratio against temperature, per unit and for the lot
 	Closures    []ClosureRow // CMRR/PSRR closure checks (METHODS.md §8), optional
 	Boards      []BoardRow   // finished-board CMRR against worst-case limits, optional
+
+	// ReportID identifies this report (e.g. the plan hash and journal seal
+	// shortened); it is printed in every page header.
+	ReportID string
+	// Completeness: PlannedPoints the plan asked for (skipped units left
+	// out), MissingPoints of those not measured. Incomplete marks the
+	// campaign INCOMPLETE on the Summary and Units sheets and in the
+	// exports.
+	PlannedPoints int
+	MissingPoints int
+	Incomplete    bool
+	// Integrity is "" for an intact journal, else what is wrong with it,
+	// e.g. "journal edited or truncated at line 42".
+	Integrity string
+	Events    []EventRow // faults, resumes, operator prompts, skips
+	// ReferenceTests are result names kept for reference that do not
+	// decide a unit's verdict (e.g. an uncorrected ratio).
+	ReferenceTests []string
 }
+
+// EventRow is one event of the run, in journal order.
+type EventRow struct {
+	Time         time.Time
+	Type         string // "abort", "resume", "unit-skipped", ...
+	Unit         string
+	TemperatureC float64
+	Detail       string // reason and detail in words
+}
+
+// Unit verdicts on the Units sheet beyond the result verdicts.
+const (
+	UnitSkipped    = "skipped"    // left out on purpose (socket empty, part cracked)
+	UnitIncomplete = "incomplete" // some of its points were not measured
+	UnitNoResults  = "no results" // nothing measured
+)
 
 // InstrumentInfo is one instrument on the bench as the tool saw it.
 type InstrumentInfo struct {
@@ -79,6 +113,10 @@ type UnitInfo struct {
 	Serial  string // serial number (user text)
 	Channel string // switch-matrix channel, "" when swapped by hand
 	Notes   string // user text
+	// Skipped is the reason the unit was skipped ("" = not skipped);
+	// MissingPoints its points not measured.
+	Skipped       string
+	MissingPoints int
 }
 
 // Result is the judged outcome of one unit × test × temperature.
@@ -107,6 +145,11 @@ type Result struct {
 	Verdict      string  // see the Verdict* constants
 	Rule         string  // decision rule applied, e.g. "guarded" or "simple"
 	Flags        []string
+	// Incomplete says the campaign this result belongs to has points not
+	// measured (MissingPoints of them): exported with every result so a
+	// program reading one line cannot miss it.
+	Incomplete    bool
+	MissingPoints int
 }
 
 // ReportedDB is the value the report states for r: the ratio when it was

@@ -105,6 +105,14 @@ func printSetup(f *excelize.File, sheet string, headerRow bool) error {
 	if err := f.SetSheetProps(sheet, &excelize.SheetPropsOptions{FitToPage: ptr(true)}); err != nil {
 		return fmt.Errorf("report: sheet %q page layout: %w", sheet, err)
 	}
+	// Header: report and sheet; footer: page n of m (the &-codes of
+	// ECMA-376 Part 1 §18.3.1.39 headerFooter).
+	if err := f.SetHeaderFooter(sheet, &excelize.HeaderFooterOptions{
+		OddHeader: "&L&A&R" + headerText(f),
+		OddFooter: "&LPrinted &D&RPage &P of &N",
+	}); err != nil {
+		return fmt.Errorf("report: sheet %q header and footer: %w", sheet, err)
+	}
 	if !headerRow {
 		return nil
 	}
@@ -181,3 +189,16 @@ func joinFlags(fl []string) any {
 }
 
 func ptr[T any](v T) *T { return &v }
+
+// headerText is the page-header text naming the report (its document
+// title), with '&' doubled as header codes require.
+func headerText(f *excelize.File) string {
+	id := f.GetSheetName(0)
+	if p, err := f.GetDocProps(); err == nil && p.Title != "" {
+		id = p.Title
+		if p.Identifier != "" {
+			id += " · report " + p.Identifier
+		}
+	}
+	return strings.ReplaceAll(id, "&", "&&")
+}

@@ -137,6 +137,17 @@ func buildWorkbook(f *excelize.File, c *Campaign, opt WorkbookOptions) error {
 		}
 	}
 	f.SetActiveSheet(0)
+	// Document properties first: every page header names the report.
+	props := &excelize.DocProperties{
+		Title:       cellText(c.Name),
+		Subject:     "Common-mode and supply rejection test report",
+		Creator:     cellText(c.Generator),
+		Description: cellText("Part " + c.Part + ", lot " + c.Lot),
+		Identifier:  cellText(c.ReportID),
+	}
+	if err := f.SetDocProps(props); err != nil {
+		return fmt.Errorf("report: document properties: %w", err)
+	}
 
 	if err := writeSummary(f, st, c, temps); err != nil {
 		return err
@@ -168,15 +179,6 @@ func buildWorkbook(f *excelize.File, c *Campaign, opt WorkbookOptions) error {
 		if err != nil {
 			return err
 		}
-	}
-	props := &excelize.DocProperties{
-		Title:       cellText(c.Name),
-		Subject:     "Common-mode and supply rejection test report",
-		Creator:     cellText(c.Generator),
-		Description: cellText("Part " + c.Part + ", lot " + c.Lot),
-	}
-	if err := f.SetDocProps(props); err != nil {
-		return fmt.Errorf("report: document properties: %w", err)
 	}
 	return nil
 }
@@ -266,6 +268,18 @@ func writeSummary(f *excelize.File, st *styles, c *Campaign, temps []float64) er
 	}
 	w.row = 1
 	w.set(1, 1, "Common-mode and supply rejection test report", st.title)
+	w.heading("Status")
+	w.kv("Report identifier", c.ReportID, 0)
+	if c.Incomplete {
+		w.kv("Campaign", incompleteMark(c), st.attention)
+	} else if c.PlannedPoints > 0 {
+		w.kv("Campaign", fmt.Sprintf("complete: all %d planned points measured", c.PlannedPoints), 0)
+	}
+	if c.Integrity != "" {
+		w.kv("Journal", c.Integrity, st.attention)
+	} else {
+		w.kv("Journal", "intact: every record's running hash verifies", 0)
+	}
 	w.heading("Campaign")
 	w.kv("Name", c.Name, 0)
 	w.kv("Part", c.Part, 0)
@@ -397,12 +411,43 @@ func writeSummary(f *excelize.File, st *styles, c *Campaign, temps []float64) er
 		w.set(1, w.row, e.k.Label(), st.verdict[e.k])
 		w.set(2, w.row, e.text, 0)
 	}
+	if len(c.Events) > 0 {
+		w.heading("Event log")
+		for _, e := range c.Events {
+			var parts []string
+			if t := isoTime(e.Time); t != "" {
+				parts = append(parts, t)
+			}
+			if e.Unit != "" {
+				parts = append(parts, "unit "+e.Unit)
+			}
+			if !math.IsNaN(e.TemperatureC) {
+				parts = append(parts, fmt.Sprintf("%g °C", e.TemperatureC))
+			}
+			if e.Detail != "" {
+				parts = append(parts, e.Detail)
+			}
+			w.kv(e.Type, strings.Join(parts, ", "), 0)
+		}
+	}
+	w.heading("Approval")
+	for _, l := range []string{"Tested by (name, signature)", "Reviewed by (name, signature)", "Date"} {
+		w.kv(l, "", 0)
+		if w.err == nil {
+			w.err = f.SetRowHeight(SheetSummary, w.row, 30)
+		}
+	}
 	if w.err != nil {
 		return fmt.Errorf("report: summary sheet: %w", w.err)
 	}
 	// Page setup last: AutoFilter rewrites the sheet properties.
 	if err := printSetup(f, SheetSummary, false); err != nil {
 		return err
+	}
+	if err := f.SetDefinedName(&excelize.DefinedName{
+		Name: "_xlnm.Print_Area", RefersTo: fmt.Sprintf("'%s'!$A$1:$I$%d", SheetSummary, w.row), Scope: SheetSummary,
+	}); err != nil {
+		return fmt.Errorf("report: summary print area: %w", err)
 	}
 	if err := f.SetPageLayout(SheetSummary, &excelize.PageLayoutOptions{Orientation: ptr("portrait")}); err != nil {
 		return fmt.Errorf("report: summary page layout: %w", err)
@@ -479,13 +524,42 @@ func joinTemps(t []float64) string {
 // --- Tables ---------------------------------------------------------------
 
 func writeUnits(f *excelize.File, st *styles, c *Campaign) error {
+	vs := UnitVerdicts(c, c.ReferenceTests...)
+	missing := map[string]int{}
+	channel := map[string]string{}
+	notes := map[string]string{}
+	for _, u := range c.Units {
+		missing[u.ID], channel[u.ID], notes[u.ID] = u.MissingPoints, u.Channel, u.Notes
+	}
 	spec := tableSpec{sheet: SheetUnits, table: "tblUnits", freezeCols: 1, cols: []column{
-		{"Unit", 14, st.text}, {"Serial number", 18, st.text}, {"Switch channel", 10, st.text}, {"Notes", 60, st.text},
+		{"Unit", 12, st.text}, {"Serial number", 16, st.text}, {"Switch channel", 9, st.text},
+		{"Verdict", 14, st.text}, {"Deciding result", 40, st.text}, {"Reason", 60, st.wrap},
+		{"Points not measured", 11, st.integer}, {"Notes", 30, st.wrap},
 	}}
-	return streamTable(f, st, spec, len(c.Units), func(i int, d []any) {
-		u := &c.Units[i]
-		d[0], d[1], d[2], d[3] = u.ID, u.Serial, u.Channel, u.Notes
+	if c.Incomplete {
+		spec.cols = append(spec.cols, column{incompleteMark(c), 40, st.text})
+	}
+	err := streamTable(f, st, spec, len(vs), func(i int, d []any) {
+		v := &vs[i]
+		k := VerdictClass(v.Verdict)
+		label := k.Label()
+		if k == KindOther {
+			label = strings.ToUpper(v.Verdict)
+		}
+		d[0], d[1], d[2] = v.Unit, v.Serial, channel[v.Unit]
+		d[3] = excelize.Cell{StyleID: st.verdict[k], Value: label}
+		d[4], d[5], d[6], d[7] = v.Worst, v.Reason, missing[v.Unit], notes[v.Unit]
 	})
+	if err != nil {
+		return err
+	}
+	return nil
+}
+
+// incompleteMark is the INCOMPLETE statement of a campaign with points
+// not measured.
+func incompleteMark(c *Campaign) string {
+	return fmt.Sprintf("INCOMPLETE: %d of %d planned points not measured", c.MissingPoints, c.PlannedPoints)
 }
 
 // resultHeaders are the Results sheet headers, in order.

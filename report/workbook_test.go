@@ -284,7 +284,7 @@ func TestWorkbookPanesAndTables(t *testing.T) {
 		{SheetLot, 2, "tblLot", len(c.LotStats), 16},
 		{SheetConsistency, 1, "tblConsistency", len(c.Closures), 9},
 		{SheetTemperature, 1, "tblTemperature", len(c.Temperature), 5},
-		{SheetUnits, 1, "tblUnits", len(c.Units), 4},
+		{SheetUnits, 1, "tblUnits", len(c.Units), 8},
 	}
 	for _, tc := range tests {
 		t.Run(tc.sheet, func(t *testing.T) {
@@ -1109,7 +1109,7 @@ func TestTextRoundTripWorkbook(t *testing.T) {
 	if !found {
 		t.Error("no notes in the summary")
 	}
-	if got := cellStr(t, f, SheetUnits, "D2"); got != want {
+	if got := cellStr(t, f, SheetUnits, "H2"); got != want {
 		t.Errorf("unit notes %q, want %q", got, want)
 	}
 }

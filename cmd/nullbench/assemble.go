@@ -3,6 +3,7 @@ package main
 import (
 	"fmt"
 	"math"
+	"strings"
 	"time"
 
 	"nullbench/fit"
@@ -21,6 +22,18 @@ type campaignRecord struct {
 	Identities []journal.Identity
 	Started    time.Time
 	Finished   time.Time
+
+	// JournalPath is the journal the readings came from ("" in tests that
+	// build records by hand); finish reads it again for completeness,
+	// skipped units, events and integrity.
+	JournalPath string
+	// Folder is the run folder the plan and profiles were read from (nil:
+	// the plan's own paths).
+	Folder *runFolder
+	// Set by finish from the journal:
+	Journal      *journal.Contents
+	Completeness *journal.Completeness
+	Integrity    error // *journal.IntegrityError, or nil
 }
 
 const safetyNote = "Plans were checked before any instrument contact: supply span against the part's absolute maximum, " +
@@ -62,15 +75,83 @@ func toReport(recs ...campaignRecord) *report.Campaign {
 		for _, id := range r.Identities {
 			c.Instruments = appendInstrument(c.Instruments, id)
 		}
+		var k journal.Completeness
+		if r.Completeness != nil {
+			k = *r.Completeness
+		}
 		for _, u := range p.Units {
-			c.Units = append(c.Units, report.UnitInfo{ID: u.ID, Channel: u.Channel, Notes: u.Notes})
+			c.Units = append(c.Units, report.UnitInfo{ID: u.ID, Serial: u.Serial, Channel: u.Channel, Notes: u.Notes,
+				Skipped: k.Skipped[u.ID], MissingPoints: k.MissingByUnit[u.ID]})
+		}
+		c.PlannedPoints += k.Planned
+		c.MissingPoints += k.Missing
+		if r.Integrity != nil && c.Integrity == "" {
+			c.Integrity = r.Integrity.Error()
+		}
+		if r.Journal != nil {
+			addEvents(c, p, r.Journal)
+			if c.ReportID == "" {
+				c.ReportID = reportID(p, r.Journal)
+			}
+		}
+		if r.Folder != nil && i == 0 && r.Folder.Manifest.PlanPath != "" {
+			c.PlanFile = r.Folder.Manifest.PlanPath
 		}
 		addReadings(c, p, r.Readings)
 		if r.Results != nil {
 			addResults(c, r.Results)
 		}
 	}
+	c.Incomplete = c.MissingPoints > 0
+	for i := range c.Results {
+		c.Results[i].Incomplete, c.Results[i].MissingPoints = c.Incomplete, c.MissingPoints
+	}
+	c.ReferenceTests = []string{analysis.ResultCMRRUncorrected}
 	return c
+}
+
+// reportID names a report by its plan and journal: the first 8 hex digits
+// of the plan's SHA-256 and of the journal's last running hash (or its
+// record count for an unchained journal). The same journal always gives
+// the same identifier; a resumed run a new one.
+func reportID(p *plan.Plan, jc *journal.Contents) string {
+	tail := fmt.Sprintf("r%d", jc.Records)
+	if len(jc.LastChain) >= 8 {
+		tail = jc.LastChain[:8]
+	}
+	h := p.Hash
+	if len(h) > 8 {
+		h = h[:8]
+	}
+	return strings.ToUpper("NB-" + h + "-" + tail)
+}
+
+// addEvents copies the journal's events that a reader of the report needs
+// (faults, safe state, resumes, skips, operator temperatures, soak
+// time-outs) into the event log, with the run's end.
+func addEvents(c *report.Campaign, p *plan.Plan, jc *journal.Contents) {
+	for _, r := range jc.Resumes {
+		c.Events = append(c.Events, report.EventRow{Time: r.Started, Type: "resume", TemperatureC: math.NaN(), Detail: "the run was continued from its journal"})
+	}
+	for _, e := range jc.Events {
+		switch e.Type {
+		case journal.EventPowerUp, journal.EventPowerDown, journal.EventUnitSwap, journal.EventSoakDone:
+			continue // routine: in the journal
+		}
+		detail := e.Reason
+		if e.Detail != "" {
+			if detail != "" {
+				detail += "; "
+			}
+			detail += e.Detail
+		}
+		c.Events = append(c.Events, report.EventRow{Type: e.Type, Unit: e.Unit, TemperatureC: setPoint(p, e.TempIndex), Detail: detail})
+	}
+	if jc.End != nil {
+		c.Events = append(c.Events, report.EventRow{Time: jc.LastTime, Type: "end: " + jc.End.Status, TemperatureC: math.NaN(), Detail: jc.End.Reason})
+	} else {
+		c.Events = append(c.Events, report.EventRow{Time: jc.LastTime, Type: "no end record", TemperatureC: math.NaN(), Detail: "the journal stops without an end record: the run was killed, or the journal was cut"})
+	}
 }
 
 func appendInstrument(list []report.InstrumentInfo, id journal.Identity) []report.InstrumentInfo {

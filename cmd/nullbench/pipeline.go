@@ -12,7 +12,6 @@ import (
 	"strings"
 	"time"
 
-	"nullbench/instrument"
 	"nullbench/procedure"
 	"nullbench/procedure/analysis"
 	"nullbench/procedure/journal"
@@ -32,6 +31,12 @@ type outputOptions struct {
 // names, without contacting them, so that "report" gives the same budget as
 // the run that took the readings.
 func analysisInputs(p *plan.Plan) (analysis.Inputs, error) {
+	return analysisInputsWith(p, resolveFromPlan)
+}
+
+// analysisInputsWith is analysisInputs with the profiles from resolve (a
+// run folder's copies).
+func analysisInputsWith(p *plan.Plan, resolve profileResolver) (analysis.Inputs, error) {
 	in := analysis.Inputs{StimulusByRole: map[string]plan.Accuracy{}}
 	for _, rb := range roleBindings(p) {
 		if rb.binding.Instrument == "" {
@@ -41,7 +46,7 @@ func analysisInputs(p *plan.Plan) (analysis.Inputs, error) {
 		if !ok {
 			continue // validation reports it
 		}
-		prof, err := instrument.ResolveProfile(spec.Profile)
+		prof, err := resolve(rb.binding.Instrument, spec.Profile)
 		if err != nil {
 			return in, fmt.Errorf("plan %s, [bench.instrument.%s] profile: %w", p.Source, rb.binding.Instrument, err)
 		}
@@ -68,7 +73,14 @@ func analysisInputs(p *plan.Plan) (analysis.Inputs, error) {
 
 // analyse fits a plan's readings.
 func analyse(p *plan.Plan, readings []journal.Reading) (*analysis.Results, error) {
-	in, err := analysisInputs(p)
+	return analyseWith(p, readings, resolveFromPlan)
+}
+
+func analyseWith(p *plan.Plan, readings []journal.Reading, resolve profileResolver) (*analysis.Results, error) {
+	if resolve == nil {
+		resolve = resolveFromPlan
+	}
+	in, err := analysisInputsWith(p, resolve)
 	if err != nil {
 		return nil, withCode(exitUsage, err)
 	}
@@ -177,11 +189,15 @@ type measureOptions struct {
 	Clock          procedure.Clock    // nil: scaled wall clock from the plan
 	Log            io.Writer          // nil: none
 	Operator       procedure.Operator // nil: a LineOperator on the terminal, if there is one
+	// RunFolder copies the plan and its profiles beside a new journal
+	// (run): the folder can then be re-reported on its own.
+	RunFolder bool
+	Skip      map[string]string // units to leave out, with the reason
 }
 
 func measure(ctx context.Context, std streams, o measureOptions) (campaignRecord, *procedure.Outcome, error) {
 	p := o.Plan
-	rec := campaignRecord{Plan: p, Started: time.Now().UTC()}
+	rec := campaignRecord{Plan: p, Started: time.Now().UTC(), JournalPath: o.JournalPath}
 	// One reader for the terminal, so nothing typed ahead of the hazard
 	// question is lost to the operator's prompts.
 	in := bufio.NewReader(std.In)
@@ -224,6 +240,11 @@ func measure(ctx context.Context, std streams, o measureOptions) (campaignRecord
 		if err := os.MkdirAll(filepath.Dir(o.JournalPath), 0o755); err != nil {
 			return rec, nil, withCode(exitFailure, err)
 		}
+		if o.RunFolder {
+			if err := copyRunInputs(filepath.Dir(o.JournalPath), p); err != nil {
+				return rec, nil, withCode(exitFailure, err)
+			}
+		}
 		jw, err = journal.Open(o.JournalPath, header)
 	}
 	if err != nil {
@@ -244,7 +265,7 @@ func measure(ctx context.Context, std streams, o measureOptions) (campaignRecord
 	}
 	out, runErr := procedure.Run(ctx, p, rig, procedure.RunOptions{
 		Journal: jw, Resume: resume, Clock: clock, Operator: op,
-		Progress: newProgress(std.Err, std.IsTerm), Log: o.Log, Consent: hc,
+		Progress: newProgress(std.Err, std.IsTerm), Log: o.Log, Consent: hc, Skip: o.Skip,
 	})
 	rec.Finished = time.Now().UTC()
 	if out != nil {
@@ -283,6 +304,17 @@ func printSummary(w io.Writer, c *report.Campaign, book string) {
 		counts[report.VerdictClass(r.Verdict)]++
 	}
 	fmt.Fprintf(w, "\n%s — %s, lot %s\n", c.Name, c.Part, c.Lot)
+	if c.Incomplete {
+		fmt.Fprintf(w, "INCOMPLETE: %d of %d planned points not measured (resume the journal to finish)\n", c.MissingPoints, c.PlannedPoints)
+	}
+	if c.Integrity != "" {
+		fmt.Fprintf(w, "WARNING: %s\n", c.Integrity)
+	}
+	for _, u := range c.Units {
+		if u.Skipped != "" {
+			fmt.Fprintf(w, "unit %s skipped: %s\n", u.ID, u.Skipped)
+		}
+	}
 	fmt.Fprintf(w, "results: %d pass, %d conditional pass, %d conditional fail, %d fail, %d not judged\n",
 		counts[report.KindPass], counts[report.KindConditionalPass], counts[report.KindConditionalFail], counts[report.KindFail], counts[report.KindNotJudged])
 	// Units by their most severe verdict (ILAC-G8 zones, worst first).

@@ -3,6 +3,7 @@ package main
 import (
 	"context"
 	"fmt"
+	"os"
 	"path/filepath"
 
 	"github.com/spf13/cobra"
@@ -21,7 +22,7 @@ type resumeOptions struct {
 func newResumeCmd(std streams, run func(context.Context, streams, resumeOptions) error) *cobra.Command {
 	var o resumeOptions
 	cmd := &cobra.Command{
-		Use:   "resume JOURNAL",
+		Use:   "resume RUN-FOLDER|JOURNAL",
 		Short: "Continue a stopped run from its journal without repeating finished points",
 		Long: `resume reads a journal left by an interrupted run, checks that it belongs
 to the plan (the plan named in the journal, or --plan), and continues the
@@ -64,7 +65,18 @@ func planForJournal(journalPath, planPath string) (*plan.Plan, *journal.Contents
 }
 
 func runResume(ctx context.Context, std streams, o resumeOptions) error {
-	p, _, err := planForJournal(o.Journal, o.Plan)
+	if fi, err := os.Stat(o.Journal); err == nil && fi.IsDir() {
+		o.Journal = filepath.Join(o.Journal, runJournalName)
+	}
+	var (
+		p   *plan.Plan
+		err error
+	)
+	if rf, ferr := openRunFolder(filepath.Dir(o.Journal)); ferr == nil && o.Plan == "" {
+		p, _, err = planFromFolder(rf, o.Journal)
+	} else {
+		p, _, err = planForJournal(o.Journal, o.Plan)
+	}
 	if err != nil {
 		return err
 	}

@@ -232,8 +232,17 @@ poll:
 		if err := os.Rename(plan, moved); err != nil {
 			t.Fatal(err)
 		}
+		// The run folder holds its own copy of the plan: report needs
+		// nothing else.
 		r := cliExec(t, "report", journal, "--out", filepath.Join(dir, "moved"))
-		cliWantCode(t, r, exitUsage, "report", journal)
+		cliWantCode(t, r, exitOK, "report", journal)
+		// A bare journal, away from its run folder, needs the plan.
+		bare := filepath.Join(t.TempDir(), "bare.jsonl")
+		if err := os.WriteFile(bare, cliMust(os.ReadFile(journal)), 0o644); err != nil {
+			t.Fatal(err)
+		}
+		r = cliExec(t, "report", bare, "--out", filepath.Join(dir, "bare"))
+		cliWantCode(t, r, exitUsage, "report", bare)
 		if !strings.Contains(r.err, "give its path with --plan") {
 			t.Errorf("no hint to give --plan:\n%s", r.err)
 		}

@@ -15,6 +15,8 @@ import (
 type runOptions struct {
 	Plan           string
 	AllowHazardous bool
+	Force          bool
+	Skip           []string // UNIT or UNIT=REASON
 	outputOptions
 }
 
@@ -47,7 +49,30 @@ Exit status: 0 all judged results pass, 5 some result failed its limit,
 	}
 	addOutputFlags(cmd, &o.outputOptions, "folder for the journal, workbook and exports (default: a new folder named after the plan)")
 	cmd.Flags().BoolVar(&o.AllowHazardous, "allow-hazardous", false, "allow a plan above 60 V DC (asks for confirmation at a terminal; see SAFETY.md)")
+	cmd.Flags().BoolVar(&o.Force, "force", false, "write into an --out folder that holds other files (files of the same names are replaced)")
+	cmd.Flags().StringArrayVar(&o.Skip, "skip", nil, "leave a unit out: UNIT or UNIT=REASON (socket empty, part cracked); repeatable")
 	return cmd
+}
+
+// parseSkips turns --skip values into unit → reason, checking the units.
+func parseSkips(p *plan.Plan, vals []string) (map[string]string, error) {
+	if len(vals) == 0 {
+		return nil, nil
+	}
+	out := map[string]string{}
+	for _, v := range vals {
+		id, reason, _ := strings.Cut(v, "=")
+		id = strings.TrimSpace(id)
+		found := false
+		for _, u := range p.Units {
+			found = found || u.ID == id
+		}
+		if !found {
+			return nil, withCode(exitUsage, fmt.Errorf("--skip %q: plan %s has no unit %q", v, p.Source, id))
+		}
+		out[id] = strings.TrimSpace(reason)
+	}
+	return out, nil
 }
 
 func defaultOutDir(plan string) string {
@@ -63,8 +88,21 @@ func runRun(ctx context.Context, std streams, o runOptions) error {
 	if o.Out == "" {
 		o.Out = defaultOutDir(o.Plan)
 	}
+	skips, err := parseSkips(p, o.Skip)
+	if err != nil {
+		return err
+	}
+	if err := checkOutDir(o.Out, p, o.Force); err != nil {
+		return err
+	}
+	if o.Force {
+		if err := clearRun(o.Out); err != nil {
+			return withCode(exitFailure, err)
+		}
+	}
 	rec, _, runErr := measure(ctx, std, measureOptions{
-		Plan: p, JournalPath: filepath.Join(o.Out, "journal.jsonl"), AllowHazardous: o.AllowHazardous,
+		Plan: p, JournalPath: filepath.Join(o.Out, runJournalName), AllowHazardous: o.AllowHazardous,
+		RunFolder: true, Skip: skips,
 	})
 	return finish(std, o.outputOptions, runErr, rec)
 }
@@ -73,11 +111,20 @@ func runRun(ctx context.Context, std streams, o runOptions) error {
 // taken are worth a report), writes the outputs and picks the exit status.
 func finish(std streams, o outputOptions, runErr error, recs ...campaignRecord) error {
 	var measured []campaignRecord
+	var integrity error
 	for _, rec := range recs {
+		journalState(std, &rec)
+		if rec.Integrity != nil && integrity == nil {
+			integrity = rec.Integrity
+		}
 		if len(rec.Readings) == 0 {
 			continue
 		}
-		res, err := analyse(rec.Plan, rec.Readings)
+		var resolve profileResolver
+		if rec.Folder != nil {
+			resolve = rec.Folder.resolver()
+		}
+		res, err := analyseWith(rec.Plan, rec.Readings, resolve)
 		if err != nil {
 			if runErr != nil {
 				return runErr
@@ -103,8 +150,27 @@ func finish(std streams, o outputOptions, runErr error, recs ...campaignRecord) 
 		summary = std.Err // standard output carries the JSON lines
 	}
 	printSummary(summary, c, book)
+	if _, err := readManifest(o.Out); err != nil && len(measured) > 0 {
+		// A report written away from its run folder: the manifest names
+		// the plan, so a later report of the same plan may write here.
+		m := &runManifest{Tool: "nullbench " + version, Plan: manifestFile{SHA256: measured[0].Plan.Hash}, PlanPath: measured[0].Plan.Source}
+		if err := writeManifest(o.Out, m); err != nil {
+			return withCode(exitFailure, err)
+		}
+	}
+	for _, rec := range measured {
+		if rec.Journal == nil || rec.Completeness == nil || !sameDir(filepath.Dir(rec.JournalPath), o.Out) {
+			continue
+		}
+		if err := sealRunFolder(o.Out, rec.JournalPath, rec.Journal, *rec.Completeness, runOutputs); err != nil {
+			return withCode(exitFailure, fmt.Errorf("update the run folder's manifest: %w", err))
+		}
+	}
 	if runErr != nil {
 		return runErr
+	}
+	if integrity != nil {
+		return withCode(exitFailure, fmt.Errorf("%w: the workbook %s says so on its Summary sheet; compare the journal with a backup", integrity, book))
 	}
 	if anyFailed(c) {
 		return withCode(exitOutOfLimits, fmt.Errorf("some results did not pass their limits (see %s)", book))

@@ -52,6 +52,7 @@ func encodeChained(rec Record, prev string) ([]byte, string, error) {
 // state. The first break is kept in c.ChainBreakLine; later lines are not
 // checked against it (one break is enough to distrust the rest).
 func (c *Contents) verifyChain(rec Record, line int) {
+	c.LastTime = rec.Time
 	first := c.Records == 0
 	if first {
 		c.Chained = rec.Chain != ""

@@ -8,6 +8,7 @@ import (
 	"fmt"
 	"io"
 	"os"
+	"time"
 
 	"nullbench/procedure/plan"
 )
@@ -31,6 +32,7 @@ type Contents struct {
 	LastChain      string
 	ChainBreakLine int
 	RecordLines    int
+	LastTime       time.Time // the last record's time
 	chains         []string // chain value after each record
 
 	// Truncated says the last line was incomplete (no newline: a run killed

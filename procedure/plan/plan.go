@@ -211,6 +211,7 @@ type Test struct {
 // its channel. With no channel the operator swaps units by hand.
 type Unit struct {
 	ID      string `toml:"id"`
+	Serial  string `toml:"serial"` // the serial number marked on the part or board (for the report)
 	Channel string `toml:"channel"`
 	Notes   string `toml:"notes"`
 }
