@@ -135,6 +135,10 @@ type SupplyCommands struct {
 	Select, SetVolts, SetCurrentLimit, SetOutput, ReadVolts, ReadAmps string
 	Settle                                                            time.Duration
 	Accuracy                                                          SupplyAccuracy
+	// MaxAmps is the channels' current rating (max_amps, from the data
+	// sheet); 0 when the profile does not state it. check refuses a plan
+	// whose current limit exceeds it.
+	MaxAmps float64
 }
 
 // SourceCommands is the [source] table: a multi-channel DC voltage source.
@@ -243,6 +247,7 @@ type supplyDoc struct {
 	ReadVolts       string   `toml:"read_volts"`
 	ReadAmps        string   `toml:"read_amps"`
 	Settle          string   `toml:"settle"`
+	MaxAmps         float64  `toml:"max_amps"`
 	accuracyDoc
 }
 
@@ -343,7 +348,9 @@ func ParseProfile(data []byte, file string) (*Profile, error) {
 			SetOutput: d.SetOutput, ReadVolts: d.ReadVolts, ReadAmps: d.ReadAmps,
 			Settle:   roleSettle("supply.settle", d.Settle),
 			Accuracy: pr.accuracy("supply", d.accuracyDoc),
+			MaxAmps:  d.MaxAmps,
 		}
+		nonNegative(pr, "supply.max_amps", d.MaxAmps)
 	}
 	if d := doc.Source; d != nil {
 		p.Source = &SourceCommands{

@@ -7,6 +7,7 @@ import (
 
 	"github.com/spf13/cobra"
 
+	"nullbench/instrument"
 	"nullbench/procedure/plan"
 )
 
@@ -43,6 +44,9 @@ func runCheck(std streams, o checkOptions) error {
 	if err := plan.WriteCheck(std.Out, p); err != nil {
 		return err
 	}
+	if err := checkBench(p); err != nil {
+		return err
+	}
 	consent := plan.HazardConsent{AllowOption: o.AllowHazardous, Interactive: o.AllowHazardous, Confirmed: o.AllowHazardous}
 	err = plan.CheckSafetyWith(p, consent)
 	if h := plan.AssessHazard(p); o.AllowHazardous && h.Hazardous {
@@ -68,4 +72,33 @@ func safetyExit(err error) error {
 		return withCode(exitSafety, err)
 	}
 	return withCode(exitUsage, err)
+}
+
+// benchProfile describes a profile for plan.CheckBench.
+func benchProfile(_ string, profile string) (plan.BenchProfile, error) {
+	prof, err := instrument.ResolveProfile(profile)
+	if err != nil {
+		return plan.BenchProfile{}, err
+	}
+	bp := plan.BenchProfile{Roles: map[string]bool{}}
+	for _, r := range prof.Roles() {
+		bp.Roles[r] = true
+	}
+	if prof.Supply != nil {
+		bp.Roles["supply"] = true
+		bp.SupplyChannels, bp.SupplyMaxAmps = prof.Supply.Channels, prof.Supply.MaxAmps
+	}
+	if prof.Source != nil {
+		bp.Roles["source"] = true
+		bp.SourceChannels = prof.Source.Channels
+	}
+	return bp, nil
+}
+
+// checkBench checks the plan against its instruments' profiles.
+func checkBench(p *plan.Plan) error {
+	if err := plan.CheckBench(p, benchProfile); err != nil {
+		return withCode(exitUsage, err)
+	}
+	return nil
 }

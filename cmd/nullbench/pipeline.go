@@ -208,6 +208,9 @@ func measure(ctx context.Context, std streams, o measureOptions) (campaignRecord
 	if err := plan.CheckSafetyWith(p, hc); err != nil {
 		return rec, nil, safetyExit(err)
 	}
+	if err := checkBench(p); err != nil {
+		return rec, nil, err
+	}
 	if why := procedure.NeedsOperator(p); why != "" && !std.IsTerm && o.Operator == nil {
 		return rec, nil, withCode(exitUsage, fmt.Errorf("plan %s needs an operator at a terminal (%s), and standard input is not a terminal", p.Source, why))
 	}

@@ -1,0 +1,46 @@
+package main
+
+import (
+	"regexp"
+	"strings"
+	"testing"
+)
+
+// check refuses the four bench mistakes that used to surface only in run,
+// as instrument faults: each with file, line and key.
+func TestCheckKnowsTheBench(t *testing.T) {
+	b := cliStartSim(t, "")
+	good := b.BenchSection() + strings.ReplaceAll(cliPlanBody, "%CMRR_LIMIT%", "90.0")
+	if !strings.Contains(good, `profile = "supply2"`) || !strings.Contains(good, `supply_pos  = { instrument = "psu", channel = "1" }`) || !strings.Contains(good, "current_limit_amps = 0.05") {
+		t.Fatalf("the bench section changed; update this test:\n%s", good)
+	}
+	tests := []struct {
+		name, from, to string
+		want           string // regexp on stderr
+	}{
+		{"unknown profile name", `profile = "supply2"`, `profile = "supply9"`,
+			`plan\.toml:\d+: key "bench\.instrument\.psu\.profile": profile "supply9": no built-in profile`},
+		{"channel the instrument lacks", `supply_pos  = { instrument = "psu", channel = "1" }`, `supply_pos  = { instrument = "psu", channel = "7" }`,
+			`plan\.toml:\d+: key "bench\.roles\.supply_pos\.channel": instrument psu has no channel "7" \(its profile lists 1, 2\)`},
+		// supply2 states max_amps = 3.0.
+		{"current limit beyond the channel rating", "current_limit_amps = 0.05", "current_limit_amps = 4.5",
+			`plan\.toml:\d+: key "part\.current_limit_amps": current limit 4\.5 A is beyond the 3 A rating of psu`},
+		{"relative profile path", `profile = "supply2"`, `profile = "profiles/supply2.toml"`,
+			`plan\.toml:\d+: key "bench\.instrument\.psu\.profile": profile path "profiles/supply2\.toml" is relative`},
+	}
+	for _, tt := range tests {
+		t.Run(tt.name, func(t *testing.T) {
+			plan := cliWriteFile(t, t.TempDir(), "plan.toml", strings.Replace(good, tt.from, tt.to, 1))
+			r := cliExec(t, "check", plan)
+			cliWantCode(t, r, exitUsage, "check", plan)
+			if !regexp.MustCompile(tt.want).MatchString(r.err) {
+				t.Errorf("stderr does not match %s:\n%s", tt.want, r.err)
+			}
+			// run refuses it too, before connecting.
+			r = cliExec(t, "run", plan, "--out", t.TempDir()+"/out")
+			cliWantCode(t, r, exitUsage, "run", plan)
+		})
+	}
+	plan := cliWriteFile(t, t.TempDir(), "plan.toml", good)
+	cliWantCode(t, cliExec(t, "check", plan), exitOK, "check", plan)
+}

@@ -1,0 +1,121 @@
+package plan
+
+import (
+	"fmt"
+	"path/filepath"
+	"sort"
+	"strings"
+)
+
+// BenchProfile is what CheckBench needs to know of one instrument's
+// profile: which roles it can serve, its channels per role, and its
+// supply channels' current rating. cmd fills it from the instrument
+// profiles; plan stays free of instrument code.
+type BenchProfile struct {
+	Roles          map[string]bool // role kinds: "meter", "supply", "source", "switch", "chamber", "thermometer"
+	SupplyChannels []string
+	SourceChannels []string
+	SupplyMaxAmps  float64 // 0: not stated
+}
+
+// ProfileLookup returns the profile a plan's entry names for an
+// instrument, or an error (unknown name, unreadable file).
+type ProfileLookup func(instrument, profile string) (BenchProfile, error)
+
+// IsProfilePath says whether a profile entry names a file rather than a
+// built-in profile (as instrument.IsProfilePath).
+func isProfilePath(s string) bool {
+	return strings.ContainsAny(s, `/\`) || strings.HasSuffix(s, ".toml")
+}
+
+// CheckBench checks the plan's bench against the instruments' profiles,
+// before any instrument contact: every profile entry is a built-in name or
+// an absolute path (a relative one would resolve against whatever folder
+// the tool is started from), every profile exists, every bound channel is
+// one the profile lists, and the supplies' current limit is within the
+// channel rating. Each problem names file, line and key.
+func CheckBench(p *Plan, lookup ProfileLookup) error {
+	var errs Errors
+	add := func(key, problem, fix string) {
+		errs = append(errs, &Error{File: p.Source, Line: p.keys.line(key), Key: key, Problem: problem, Fix: fix})
+	}
+	names := make([]string, 0, len(p.Bench.Instruments))
+	for n := range p.Bench.Instruments {
+		names = append(names, n)
+	}
+	sort.Strings(names)
+	profiles := map[string]BenchProfile{}
+	for _, n := range names {
+		spec := p.Bench.Instruments[n]
+		key := "bench.instrument." + n + ".profile"
+		if isProfilePath(spec.Profile) && !filepath.IsAbs(spec.Profile) {
+			add(key, fmt.Sprintf("profile path %q is relative: it would be looked up from the folder the tool is started in", spec.Profile),
+				"give the absolute path of the profile file")
+			continue
+		}
+		bp, err := lookup(n, spec.Profile)
+		if err != nil {
+			add(key, fmt.Sprintf("profile %q: %v", spec.Profile, err), "name a built-in profile or an existing profile file")
+			continue
+		}
+		profiles[n] = bp
+	}
+	type roleCheck struct {
+		role, kind string
+		channels   func(BenchProfile) []string
+	}
+	supplyCh := func(b BenchProfile) []string { return b.SupplyChannels }
+	sourceCh := func(b BenchProfile) []string { return b.SourceChannels }
+	checks := []roleCheck{
+		{RoleSupplyPos, "supply", supplyCh}, {RoleSupplyNeg, "supply", supplyCh},
+		{RoleSourceCM, "source", sourceCh}, {RoleSourceDiff, "source", sourceCh}, {RoleSourceRef, "source", sourceCh},
+	}
+	for _, rc := range checks {
+		b := p.Bench.Roles.Get(rc.role)
+		bp, ok := profiles[b.Instrument]
+		if !b.Bound() || !ok {
+			continue
+		}
+		key := "bench.roles." + rc.role
+		if !bp.Roles[rc.kind] {
+			add(key+".instrument", fmt.Sprintf("instrument %s (profile %q) has no %s commands", b.Instrument, p.Bench.Instruments[b.Instrument].Profile, rc.kind),
+				"bind the role to an instrument whose profile has a ["+rc.kind+"] table")
+			continue
+		}
+		chans := rc.channels(bp)
+		if b.Channel != "" && len(chans) > 0 && !contains(chans, b.Channel) {
+			add(key+".channel", fmt.Sprintf("instrument %s has no channel %q (its profile lists %s)", b.Instrument, b.Channel, strings.Join(chans, ", ")),
+				"use one of the channels the profile lists")
+		}
+		if rc.kind == "supply" && bp.SupplyMaxAmps > 0 && p.Part.CurrentLimitAmps > bp.SupplyMaxAmps {
+			add("part.current_limit_amps", fmt.Sprintf("current limit %g A is beyond the %g A rating of %s's channels (%s)", p.Part.CurrentLimitAmps, bp.SupplyMaxAmps, b.Instrument, rc.role),
+				fmt.Sprintf("set at most %g A", bp.SupplyMaxAmps))
+		}
+	}
+	if len(errs) == 0 {
+		return nil
+	}
+	return dedupe(errs).sorted()
+}
+
+func contains(list []string, s string) bool {
+	for _, x := range list {
+		if x == s {
+			return true
+		}
+	}
+	return false
+}
+
+// dedupe drops repeated problems (both rails on one supply).
+func dedupe(es Errors) Errors {
+	seen := map[string]bool{}
+	var out Errors
+	for _, e := range es {
+		if k := e.Error(); !seen[k] {
+			seen[k] = true
+			out = append(out, e)
+		}
+	}
+	return out
+}
