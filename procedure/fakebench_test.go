@@ -494,7 +494,7 @@ type fakeOperator struct {
 	requests []TemperatureRequest
 	swapErr  error
 	skip     map[string]string // plan id -> reason to skip it
-	hot      []string // swaps asked while powered
+	hot      []string          // swaps asked while powered
 }
 
 func (o *fakeOperator) SwapUnit(ctx context.Context, next plan.Unit) (string, error) {

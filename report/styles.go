@@ -12,11 +12,12 @@ const (
 	numFmtInteger = 1
 	numFmtDB      = 2 // "0.00": ratios, uncertainties and limits in dB
 	numFmtPercent = 10
-	// fmtUVPerV is engineering notation (exponent a multiple of 3) with
-	// four significant figures: 12.35E+0, 1.234E+3.
-	fmtUVPerV = "##0.000E+0"
-	// fmtVolts keeps the seven significant figures of a 6½-digit meter.
-	fmtVolts = "0.000000E+00"
+	// fmtUVPerV is a plain decimal to 0.0001 µV/V (the unit is in the
+	// column header): 12.3456, never 12.35E+0.
+	fmtUVPerV = "0.0000"
+	// fmtVolts keeps a 6½-digit meter's resolution on its 100 mV range
+	// (100 nV) as a plain decimal in volts.
+	fmtVolts = "0.0000000"
 	// fmtTime shows a date-time serial as ISO 8601 with milliseconds; the
 	// workbook stores times in UTC.
 	fmtTime    = `yyyy-mm-dd"T"hh:mm:ss.000`

@@ -191,4 +191,3 @@ func flatten(rows [][]string) []string {
 }
 
 func itoa(i int) string { return strconv.Itoa(i) }
-

@@ -33,7 +33,7 @@ type Contents struct {
 	ChainBreakLine int
 	RecordLines    int
 	LastTime       time.Time // the last record's time
-	chains         []string // chain value after each record
+	chains         []string  // chain value after each record
 
 	// Truncated says the last line was incomplete (no newline: a run killed
 	// while writing it) and was skipped; TruncatedLine is its line number.
