@@ -197,7 +197,7 @@ func TestHelpListsEveryCommand(t *testing.T) {
 	cliWantCode(t, r, exitOK, "--help")
 	// Commands of the tool and cobra's own two, each on one line
 	// "  name   short description".
-	commands := []string{"demo", "sim", "probe", "check", "run", "resume", "report", "fit", "completion", "help"}
+	commands := []string{"demo", "sim", "probe", "check", "run", "resume", "report", "fit", "off", "completion", "help"}
 	listed := map[string]string{}
 	inList := false
 	for _, line := range strings.Split(r.out, "\n") {
@@ -228,7 +228,7 @@ func TestHelpListsEveryCommand(t *testing.T) {
 		t.Errorf("--help lists %d commands, want %d: %v", len(listed), len(commands), listed)
 	}
 	// Every verb's own help works and names its usage.
-	for _, c := range commands[:8] {
+	for _, c := range commands[:9] {
 		r := cliExec(t, c, "--help")
 		cliWantCode(t, r, exitOK, c, "--help")
 		if !strings.Contains(r.out, "nullbench "+c) {

@@ -120,6 +120,7 @@ type verbs struct {
 	resume func(context.Context, streams, resumeOptions) error
 	report func(context.Context, streams, reportOptions) error
 	fit    func(context.Context, streams, fitOptions) error
+	off    func(context.Context, streams, offOptions) error
 }
 
 func defaultVerbs() verbs {
@@ -132,6 +133,7 @@ func defaultVerbs() verbs {
 		resume: runResume,
 		report: func(_ context.Context, std streams, o reportOptions) error { return runReport(std, o) },
 		fit:    func(_ context.Context, std streams, o fitOptions) error { return runFit(std, o) },
+		off:    runOff,
 	}
 }
 
@@ -164,6 +166,7 @@ Start with "nullbench demo": it runs a whole campaign on a simulated bench.`,
 		newResumeCmd(std, v.resume),
 		newReportCmd(std, v.report),
 		newFitCmd(std, v.fit),
+		newOffCmd(std, v.off),
 	)
 	return root
 }

@@ -1,0 +1,113 @@
+package procedure
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"io"
+
+	"nullbench/procedure/plan"
+)
+
+// OffOptions are the options of Off.
+type OffOptions struct {
+	Clock  Clock     // nil: the plan's scaled wall clock
+	Log    io.Writer // one line per action; nil discards
+	Timing Timing    // RampDwell and SafeCallTimeout are used
+}
+
+// OffReport says what Off did per role.
+type OffReport struct {
+	Actions []string // in order, in words
+}
+
+// Off brings a bench left on — by a crash, or by hand — to the plan's safe
+// state without measuring: every source the plan binds is read back,
+// ramped to 0 V in steps of at most safety.ramp_step_volts and switched
+// off, BEFORE the supplies are ramped down and switched off (the order of
+// plan.PowerDownOrder: the inputs never stay driven while the rails are
+// gone); then the switch opens every channel and the chamber's set point
+// returns to temperature.ambient_c. It carries on past a failing
+// instrument so that the others still reach their safe state, and returns
+// every failure. A role the rig lacks is skipped (the plan may bind
+// instruments that are not connected now).
+func Off(ctx context.Context, p *plan.Plan, rig *Rig, opt OffOptions) (*OffReport, error) {
+	if p == nil || rig == nil {
+		return nil, errors.New("off: no plan or no bench")
+	}
+	r := newRunner(p, rig, RunOptions{Clock: opt.Clock, Log: opt.Log, Timing: opt.Timing})
+	rep := &OffReport{}
+	var errs []error
+	note := func(format string, args ...any) {
+		s := fmt.Sprintf(format, args...)
+		rep.Actions = append(rep.Actions, s)
+		r.logf("%s", s)
+	}
+	type output interface {
+		SetVolts(context.Context, float64) error
+		SetOutput(context.Context, bool) error
+		ReadVolts(context.Context) (float64, error)
+	}
+	call := func(f func(context.Context) error) error {
+		cctx, cancel := context.WithTimeout(ctx, r.timing.SafeCallTimeout)
+		defer cancel()
+		return f(cctx)
+	}
+	down := func(role string, o output, supply bool) {
+		var v float64
+		err := call(func(c context.Context) (err error) { v, err = o.ReadVolts(c); return err })
+		if err != nil {
+			// Without a read-back the ramp cannot start from the output's
+			// value; switching the output off is still safer than leaving it.
+			errs = append(errs, fmt.Errorf("%s: read back: %w (switched off without a ramp)", role, err))
+		} else {
+			for _, step := range rampTo(v, 0, p.Safety.RampStepVolts) {
+				if err = call(func(c context.Context) error { return o.SetVolts(c, step) }); err != nil {
+					errs = append(errs, fmt.Errorf("%s: ramp to 0 V at %s: %w", role, plan.FormatVolts(step), err))
+					break
+				}
+				_ = r.clk.Sleep(ctx, r.timing.RampDwell)
+			}
+			if err == nil {
+				note("%s: ramped from %s to 0 V", role, plan.FormatVolts(v))
+			}
+		}
+		if err := call(func(c context.Context) error { return o.SetOutput(c, false) }); err != nil {
+			errs = append(errs, fmt.Errorf("%s: switch off: %w", role, err))
+			return
+		}
+		note("%s: output off", role)
+		if supply {
+			if err := call(func(c context.Context) error { return o.SetVolts(c, 0) }); err != nil {
+				errs = append(errs, fmt.Errorf("%s: set 0 V: %w", role, err))
+			}
+		}
+	}
+	for _, role := range plan.SourceRoles(p) {
+		if src := r.source(role); src != nil {
+			down(role, src, false)
+		}
+	}
+	for _, role := range []string{plan.RoleSupplyPos, plan.RoleSupplyNeg} {
+		if sup := r.supply(role); sup != nil {
+			down(role, sup, true)
+		}
+	}
+	if rig.Switch != nil {
+		if err := call(rig.Switch.OpenAll); err != nil {
+			errs = append(errs, fmt.Errorf("switch: open all: %w", err))
+		} else {
+			note("switch: every channel open")
+		}
+	}
+	if rig.Chamber != nil && p.Temperature.Mode == plan.TempChamber {
+		amb := p.Temperature.AmbientCelsius
+		if err := call(func(c context.Context) error { return rig.Chamber.SetPointCelsius(c, amb) }); err != nil {
+			errs = append(errs, fmt.Errorf("chamber: set point %g °C: %w", amb, err))
+		} else {
+			note("chamber: set point %g °C", amb)
+		}
+	}
+	return rep, errors.Join(errs...)
+}
+

@@ -1,0 +1,79 @@
+package procedure
+
+import (
+	"context"
+	"errors"
+	"strings"
+	"testing"
+
+	"nullbench/procedure/plan"
+)
+
+// A bench left on (supplies at their rails, the common-mode source at
+// +5 V, the switch closed on a unit) is brought to the safe state: sources
+// ramped and off before the supplies move, every step within the ramp
+// step (the fake records a violation otherwise, and one for an input left
+// beyond a rail), switch open. Nothing is measured.
+func TestOffBringsALiveBenchToItsSafeState(t *testing.T) {
+	p := testPlan()
+	fb := newFakeBench(p)
+	fb.out[plan.RoleSupplyPos] = &fakeOutput{volts: p.Part.NominalPosVolts, on: true}
+	fb.out[plan.RoleSupplyNeg] = &fakeOutput{volts: p.Part.NominalNegVolts, on: true}
+	fb.out[plan.RoleSourceCM] = &fakeOutput{volts: 5, on: true}
+	fb.closed["101"] = true
+	rep, err := Off(context.Background(), p, fb.rig(), OffOptions{Clock: fb.clk})
+	if err != nil {
+		t.Fatal(err)
+	}
+	noViolations(t, fb)
+	for role, o := range fb.out {
+		if o.on || o.volts != 0 && !isSourceRole(role) {
+			t.Errorf("%s left at %g V, on %v", role, o.volts, o.on)
+		}
+	}
+	if len(fb.closed) != 0 {
+		for ch, c := range fb.closed {
+			if c {
+				t.Errorf("switch channel %s still closed", ch)
+			}
+		}
+	}
+	lastSourceOff, firstSupplyMove := -1, -1
+	for i, c := range fb.callsSnapshot() {
+		switch {
+		case c.Op == "read-n" || c.Op == "read":
+			t.Fatalf("off measured: %v", c)
+		case isSourceRole(c.Role) && c.Op == "output" && !c.On:
+			lastSourceOff = i
+		case (c.Role == plan.RoleSupplyPos || c.Role == plan.RoleSupplyNeg) && (c.Op == "set-volts" || c.Op == "output") && firstSupplyMove < 0:
+			firstSupplyMove = i
+		}
+	}
+	if lastSourceOff < 0 || firstSupplyMove < 0 || lastSourceOff > firstSupplyMove {
+		t.Errorf("sources off at call %d, supplies first moved at call %d: sources must be off first", lastSourceOff, firstSupplyMove)
+	}
+	if !strings.Contains(strings.Join(rep.Actions, "\n"), "source_cm: ramped from +5 V to 0 V") {
+		t.Errorf("actions:\n%s", strings.Join(rep.Actions, "\n"))
+	}
+}
+
+// A failing supply does not stop the others from reaching their safe state.
+func TestOffCarriesOnPastAFailingInstrument(t *testing.T) {
+	p := testPlan()
+	fb := newFakeBench(p)
+	fb.out[plan.RoleSupplyPos] = &fakeOutput{volts: p.Part.NominalPosVolts, on: true}
+	fb.out[plan.RoleSupplyNeg] = &fakeOutput{volts: p.Part.NominalNegVolts, on: true}
+	fb.fault = func(c fakeCall) error {
+		if c.Role == plan.RoleSupplyPos {
+			return errLost
+		}
+		return nil
+	}
+	_, err := Off(context.Background(), p, fb.rig(), OffOptions{Clock: fb.clk})
+	if err == nil || !errors.Is(err, errLost) || !strings.Contains(err.Error(), "supply_pos") {
+		t.Fatalf("err %v", err)
+	}
+	if fb.out[plan.RoleSupplyNeg].on {
+		t.Error("the negative supply was left on because the positive one failed")
+	}
+}
