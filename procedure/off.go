@@ -110,4 +110,3 @@ func Off(ctx context.Context, p *plan.Plan, rig *Rig, opt OffOptions) (*OffRepor
 	}
 	return rep, errors.Join(errs...)
 }
-
