@@ -304,6 +304,9 @@ const (
 	VerdictConditionalFail = "conditional fail"
 	VerdictFail            = "fail"
 	VerdictNotJudged       = "not judged" // no limit for this test
+	// VerdictNoResult: the result could not be formed (a stuck meter, a
+	// stimulus that did not move, no part / no gain); Flags give the cause.
+	VerdictNoResult = "no result"
 )
 
 // VerdictKind classifies a verdict string for counting and styling.

@@ -56,7 +56,12 @@ func UnitVerdicts(c *Campaign, skipTests ...string) []UnitVerdict {
 		}
 		worst, judged, unjudged := -1, 0, 0
 		worstKind := KindPass
+		var errs []string
 		for i, r := range rs {
+			if r.Verdict == VerdictNoResult {
+				errs = append(errs, fmt.Sprintf("%s at %g °C: %s", r.Test, r.TemperatureC, strings.Join(r.Flags, "; ")))
+				continue
+			}
 			k := VerdictClass(r.Verdict)
 			if k == KindNotJudged || k == KindOther {
 				unjudged++
@@ -75,6 +80,8 @@ func UnitVerdicts(c *Campaign, skipTests ...string) []UnitVerdict {
 		case len(rs) == 0:
 			v.Verdict = UnitNoResults
 			why = append(why, "no results")
+		case judged == 0 && unjudged == 0:
+			v.Verdict = VerdictNoResult
 		case judged == 0:
 			v.Verdict = VerdictNotJudged
 			why = append(why, "no test has a limit")
@@ -86,6 +93,12 @@ func UnitVerdicts(c *Campaign, skipTests ...string) []UnitVerdict {
 				why = append(why, fmt.Sprintf("%d of %d judged results inside their limits; lowest margin %s", judged, judged, v.Worst))
 			} else {
 				why = append(why, v.Worst+" "+strings.ToLower(worstKind.Label()))
+			}
+		}
+		if len(errs) > 0 {
+			why = append(why, fmt.Sprintf("%d results not formed: %s", len(errs), strings.Join(errs, "; ")))
+			if worstKind == KindPass || worstKind == KindConditionalPass || judged == 0 {
+				v.Verdict = VerdictNoResult
 			}
 		}
 		if unjudged > 0 && judged > 0 {

@@ -100,6 +100,7 @@ func toReport(recs ...campaignRecord) *report.Campaign {
 		addReadings(c, p, r.Readings)
 		if r.Results != nil {
 			addResults(c, r.Results)
+			addProblems(c, p, r.Results)
 		}
 	}
 	c.Incomplete = c.MissingPoints > 0
@@ -381,4 +382,31 @@ func fitRow(unit, test, sweep string, t float64, l fit.LineFit, gain float64, nl
 		row.SpanMismatch = nl.SpanDependent
 	}
 	return row
+}
+
+// VerdictNoResult: see report.VerdictNoResult.
+const VerdictNoResult = report.VerdictNoResult
+
+// addProblems lists every unit × test whose result could not be formed,
+// with the cause, among the results: such a result is an error, never a
+// ratio, and it shows on the Results and Units sheets and in the exports.
+func addProblems(c *report.Campaign, p *plan.Plan, res *analysis.Results) {
+	seen := map[string]bool{}
+	for _, pr := range res.Problems {
+		if pr.Unit == "" || pr.Test == "" || pr.TempIndex < 0 {
+			continue
+		}
+		key := fmt.Sprintf("%s/%s/%d", pr.Unit, pr.Test, pr.TempIndex)
+		if seen[key] {
+			continue
+		}
+		seen[key] = true
+		nan := math.NaN()
+		c.Results = append(c.Results, report.Result{
+			Unit: pr.Unit, Test: pr.Test, TemperatureC: setPoint(p, pr.TempIndex),
+			CoefficientUVPerV: nan, CoefficientUUVPerV: nan, RatioDB: nan, ExpandedUDB: nan, ExpandedUDBLow: nan, ExpandedUDBHigh: nan,
+			CoverageK: nan, DOFEffective: nan, LowerBoundDB: nan, LimitDB: nan,
+			Verdict: VerdictNoResult, Flags: []string{pr.Problem},
+		})
+	}
 }

@@ -10,6 +10,7 @@ import (
 	"github.com/spf13/cobra"
 
 	"nullbench/fit"
+	"nullbench/procedure/analysis"
 )
 
 // fitOptions holds the parsed flags of "nullbench fit".
@@ -72,6 +73,11 @@ func runFit(std streams, o fitOptions) error {
 	pts, err := fit.ReadPointsCSV(f)
 	if err != nil {
 		return withCode(exitUsage, fmt.Errorf("%s: %w", o.File, err))
+	}
+	if len(pts.StimulusVolts) >= 2 {
+		if err := analysis.Plausible(pts.StimulusVolts, pts.MeasuredVolts); err != nil {
+			return withCode(exitFailure, fmt.Errorf("%s: %w", o.File, err))
+		}
 	}
 	res, err := fit.HandFit(pts, fit.HandOptions{
 		Stimulus:            o.Stimulus,

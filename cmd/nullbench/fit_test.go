@@ -107,3 +107,22 @@ func TestFitBadCSV(t *testing.T) {
 		})
 	}
 }
+
+// Constant readings (a stuck meter) used to print "CMRR ≥ 2041.7 dB" with
+// exit 0; a stimulus that never moved is no better. Both are errors now.
+func TestFitImplausibleReadings(t *testing.T) {
+	tests := []struct{ name, text, want string }{
+		{"stuck meter", "stimulus,measured\n-5,0.802339\n0,0.802339\n5,0.802339\n-5,0.802339\n5,0.802339\n", "stuck meter"},
+		{"stimulus did not move", "stimulus,measured\n1,0.1001\n1,0.1003\n1,0.0999\n", "stimulus shows no variation"},
+	}
+	for _, tt := range tests {
+		t.Run(tt.name, func(t *testing.T) {
+			path := cliWriteFile(t, t.TempDir(), "points.csv", tt.text)
+			r := cliExec(t, "fit", path, "--stimulus", "cm", "--gain", "1000")
+			cliWantCode(t, r, exitFailure, "fit", path)
+			if !strings.Contains(r.err, tt.want) || strings.Contains(r.out, "dB") {
+				t.Errorf("stdout %q stderr %q; want an error saying %q and no ratio", r.out, r.err, tt.want)
+			}
+		})
+	}
+}

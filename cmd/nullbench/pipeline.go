@@ -350,6 +350,10 @@ func printSummary(w io.Writer, c *report.Campaign, book string) {
 	worst := map[string]report.Result{}
 	var order []string
 	for _, r := range c.Results {
+		if r.Verdict == VerdictNoResult {
+			fmt.Fprintf(w, "  NO RESULT %s %s at %g °C: %s\n", r.Unit, r.Test, r.TemperatureC, strings.Join(r.Flags, "; "))
+			continue
+		}
 		if r.Test == analysis.ResultCMRRUncorrected {
 			continue
 		}

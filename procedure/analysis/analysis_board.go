@@ -179,6 +179,9 @@ func (a *analyzer) analyzeBoardCMRR(bp *boardPair) {
 		if err == nil && s.line.Slope.Value == 0 {
 			err = fmt.Errorf("the differential gain fitted to exactly 0")
 		}
+		if err == nil {
+			err = plausibleGain(s.line.Slope.Value, a.p.Fixture.BoardGain)
+		}
 		if err != nil {
 			a.problem(bp.unit, plan.TestBoardCMRR, plan.PartDiff, cond, "no differential gain: "+err.Error())
 		} else {
@@ -356,4 +359,19 @@ func (a *analyzer) analyzeBoardPSRR(k groupKey, bp *boardPair) {
 	sign := conv.sign
 	r.Repeats = repeatValues(s, func(l fit.LineFit) float64 { return sign * 1e6 * l.Slope.Value / ad })
 	a.res.Ratios = append(a.res.Ratios, r)
+}
+
+// MinGainFraction is the smallest plausible measured differential gain of
+// a board as a fraction of its nominal gain: below it there is no board in
+// the position (or its output is open), and a "ratio" of two noise
+// readings would mean nothing (common practice, no published source).
+const MinGainFraction = 0.1
+
+// plausibleGain refuses a differential gain near zero: no part in the
+// position, or no gain.
+func plausibleGain(ad, nominal float64) error {
+	if nominal > 0 && math.Abs(ad) < MinGainFraction*nominal {
+		return fmt.Errorf("no part / no gain: the differential gain is %.3g V/V against a nominal %g V/V (below %g %% of it): is a board in this position, powered and wired?", ad, nominal, 100*MinGainFraction)
+	}
+	return nil
 }

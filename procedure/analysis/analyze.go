@@ -603,6 +603,9 @@ func fitSweep(rs []journal.Reading, t *plan.Test) (sweep, error) {
 	if s.points < 3 {
 		return s, fmt.Errorf("%d usable point(s); a line with an uncertainty needs at least 3", s.points)
 	}
+	if err := Plausible(s.x, s.y); err != nil {
+		return s, err
+	}
 	line, drift, quad, notes, err := lineWithFallback(s.x, s.y, s.t, t.DriftTerm, t.QuadraticTerm)
 	s.notes = append(s.notes, notes...)
 	if err != nil {
@@ -610,6 +613,32 @@ func fitSweep(rs []journal.Reading, t *plan.Test) (sweep, error) {
 	}
 	s.line, s.drift, s.quad = line, drift, quad
 	return s, nil
+}
+
+// Plausible refuses a sweep that cannot carry a ratio, whatever the fit
+// would say: a stimulus that did not move (every read-back the same: the
+// source stayed off or is not wired) or a response that did not move at
+// all (every meter value identical to the last digit: a stuck meter, or
+// one returning a stale reading). A real 6½-digit reading always carries
+// noise in its last digits, so identical values are not a very good part
+// but a fault; fitting them would give a zero slope and an unbounded
+// "ratio ≥ …" (common practice, no published source).
+func Plausible(x, y []float64) error {
+	same := func(v []float64) bool {
+		for _, e := range v[1:] {
+			if e != v[0] {
+				return false
+			}
+		}
+		return true
+	}
+	if same(x) {
+		return fmt.Errorf("implausible: the stimulus shows no variation (every point at %g V): the source or supply did not move; check that its output is on and wired", x[0])
+	}
+	if same(y) {
+		return fmt.Errorf("implausible: the meter returned %g V at every one of %d points: a stuck meter or a stale reading (check its trigger and the connection); no ratio is formed", y[0], len(y))
+	}
+	return nil
 }
 
 // lineWithFallback fits y against x with the requested drift and quadratic
