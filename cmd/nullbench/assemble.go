@@ -243,6 +243,9 @@ func addResults(c *report.Campaign, res *analysis.Results) {
 		if r.AOLCorrected {
 			flags = append(flags, "A_OL corrected")
 		}
+		if r.Judged && r.LimitScope == plan.LimitScopeFullRange {
+			flags = append(flags, "limit over the full temperature range")
+		}
 		c.Results = append(c.Results, report.Result{
 			Unit: r.Unit, Test: r.Name, TemperatureC: t,
 			CoefficientUVPerV: rj.CoefficientUVPerV, CoefficientUUVPerV: rj.StdUncUVPerV,

@@ -213,7 +213,7 @@ func (a *analyzer) lotStatistics() {
 			if len(lr.ValuesDB) < 2 {
 				continue
 			}
-			lim, ok := a.p.Limits[limitName(name)]
+			lim, _, ok := a.p.LimitAt(limitName(name), c.SetPointC)
 			lr.HasLimit, lr.LimitDB = ok, lim
 			ref := lim
 			if !ok {

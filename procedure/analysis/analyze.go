@@ -175,7 +175,10 @@ type RatioResult struct {
 	// Judged is false when the plan has no limit for the name.
 	Judged   bool         `json:"judged"`
 	Decision fit.Decision `json:"decision"`
-	Notes    []string     `json:"notes,omitempty"`
+	// LimitScope says which limit judged it: plan.LimitScopeRoom (25 °C)
+	// or plan.LimitScopeFullRange.
+	LimitScope string   `json:"limit_scope,omitempty"`
+	Notes      []string `json:"notes,omitempty"`
 }
 
 // ValueDB returns the figure to report in dB: the ratio when resolved,
@@ -916,10 +919,11 @@ func (a *analyzer) sortResults() {
 func (a *analyzer) decide() {
 	for i := range a.res.Ratios {
 		r := &a.res.Ratios[i]
-		lim, ok := a.p.Limits[limitName(r.Name)]
+		lim, scope, ok := a.p.LimitAt(limitName(r.Name), a.res.Conditions[r.Condition].SetPointC)
 		if !ok {
 			continue
 		}
+		r.LimitScope = scope
 		d, err := fit.DecideRejection(r.Rejection, lim, a.rule)
 		if err != nil {
 			r.Notes = append(r.Notes, fmt.Sprintf("not judged: %v", err))

@@ -242,6 +242,7 @@ func WriteCheck(w io.Writer, p *Plan) error {
 	pf("units     %d (%s)\n", len(p.Units), describeUnits(p))
 	pf("temps     %s\n", describeTemps(p))
 	pf("decision  %s\n", p.Decision.Rule)
+	pf("limits    %s\n", describeLimits(p))
 
 	for i := range p.Tests {
 		t := &p.Tests[i]
@@ -382,4 +383,26 @@ func (e *checkWriter) Write(b []byte) (int, error) {
 
 func (e *checkWriter) printf(format string, args ...any) {
 	fmt.Fprintf(e, format, args...)
+}
+
+// describeLimits lists the limits, each with its full-range value when the
+// plan states one: "cmrr ≥ 100 dB at 25 °C, ≥ 96 dB over the full range".
+func describeLimits(p *Plan) string {
+	var out []string
+	for _, n := range LimitNames() {
+		room, hasRoom := p.Limits[n]
+		full, hasFull := p.LimitsFullRange[n]
+		switch {
+		case hasRoom && hasFull:
+			out = append(out, fmt.Sprintf("%s ≥ %g dB at 25 °C, ≥ %g dB over the full range", n, room, full))
+		case hasRoom:
+			out = append(out, fmt.Sprintf("%s ≥ %g dB", n, room))
+		case hasFull:
+			out = append(out, fmt.Sprintf("%s ≥ %g dB over the full range", n, full))
+		}
+	}
+	if len(out) == 0 {
+		return "none: every result is reported, not judged"
+	}
+	return strings.Join(out, "; ")
 }

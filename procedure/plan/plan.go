@@ -9,16 +9,19 @@ import "strconv"
 // Voltages are in volts, currents in amps, temperatures in degrees Celsius,
 // durations in seconds of bench time (see Bench.TimeScale).
 type Plan struct {
-	Campaign    Campaign      `toml:"campaign"`
-	Bench       Bench         `toml:"bench"`
-	Fixture     Fixture       `toml:"fixture"`
-	Part        Part          `toml:"part"`
-	Limits      Limits        `toml:"limits"`
-	Decision    Decision      `toml:"decision"`
-	Tests       []Test        `toml:"test"`
-	Units       []Unit        `toml:"unit"`
-	Temperature Temperature   `toml:"temperature"`
-	Safety      SafetyOptions `toml:"safety"`
+	Campaign Campaign `toml:"campaign"`
+	Bench    Bench    `toml:"bench"`
+	Fixture  Fixture  `toml:"fixture"`
+	Part     Part     `toml:"part"`
+	Limits   Limits   `toml:"limits"`
+	// LimitsFullRange are the limits over the full temperature range, as
+	// data sheets state them beside the 25 °C ones (see LimitAt).
+	LimitsFullRange Limits        `toml:"limits_full_range"`
+	Decision        Decision      `toml:"decision"`
+	Tests           []Test        `toml:"test"`
+	Units           []Unit        `toml:"unit"`
+	Temperature     Temperature   `toml:"temperature"`
+	Safety          SafetyOptions `toml:"safety"`
 
 	// Source is the file the plan came from (for error messages), and
 	// Hash the SHA-256 of its bytes (hex), which ties journals to plans.
@@ -148,6 +151,40 @@ type Part struct {
 // board_psrr_neg). A test without a limit is measured and reported, not
 // judged.
 type Limits map[string]float64
+
+// Data sheets state limits at TA = 25 °C and, often lower, over the full
+// temperature range. LimitRoomC ± LimitRoomToleranceC is the 25 °C point
+// (common practice, no published source for the tolerance).
+const (
+	LimitRoomC          = 25.0
+	LimitRoomToleranceC = 1.0
+)
+
+// Limit scopes (LimitAt).
+const (
+	LimitScopeRoom      = "25 °C"
+	LimitScopeFullRange = "full temperature range"
+)
+
+// LimitAt returns the limit of result name at the nominal temperature
+// setPointC and which limit it is: at 25 °C the [limits] value (else the
+// full-range one, which holds at 25 °C too); at any other temperature the
+// [limits_full_range] value (else the [limits] value, as plans without a
+// full-range table always judged).
+func (p *Plan) LimitAt(name string, setPointC float64) (limitDB float64, scope string, ok bool) {
+	room, hasRoom := p.Limits[name]
+	full, hasFull := p.LimitsFullRange[name]
+	atRoom := setPointC >= LimitRoomC-LimitRoomToleranceC && setPointC <= LimitRoomC+LimitRoomToleranceC
+	switch {
+	case atRoom && hasRoom:
+		return room, LimitScopeRoom, true
+	case hasFull:
+		return full, LimitScopeFullRange, true
+	case hasRoom:
+		return room, LimitScopeRoom, true
+	}
+	return 0, "", false
+}
 
 // Decision rules (ILAC-G8:09/2019 §4.2).
 const (

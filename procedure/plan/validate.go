@@ -514,19 +514,24 @@ func (c *planChecker) temperature() {
 }
 
 func (c *planChecker) limits() {
+	c.limitTable("limits", c.p.Limits)
+	c.limitTable("limits_full_range", c.p.LimitsFullRange)
+}
+
+func (c *planChecker) limitTable(table string, lims Limits) {
 	p := c.p
 	kinds := map[string]bool{}
 	for _, t := range p.Tests {
 		kinds[t.Kind] = true
 	}
-	names := make([]string, 0, len(p.Limits))
-	for n := range p.Limits {
+	names := make([]string, 0, len(lims))
+	for n := range lims {
 		names = append(names, n)
 	}
 	sort.Strings(names)
 	for _, n := range names {
-		v := p.Limits[n]
-		k := joinKey("limits", n)
+		v := lims[n]
+		k := joinKey(table, n)
 		if !planHas(LimitNames(), n) {
 			fix := "use one of " + planQuoteList(LimitNames())
 			if s := closestKey(n, LimitNames()); s != "" {
