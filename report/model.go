@@ -61,6 +61,12 @@ type Campaign struct {
 	// e.g. "journal edited or truncated at line 42".
 	Integrity string
 	Events    []EventRow // faults, resumes, operator prompts, skips
+	// TestConditions (rails, common-mode range, temperatures, NPLC,
+	// readings per point, per test) and Ratings (the part's ratings and the
+	// limits at 25 °C and over the full range) are label/value rows for
+	// the Summary sheet.
+	TestConditions []KeyValue
+	Ratings        []KeyValue
 	// ReferenceTests are result names kept for reference that do not
 	// decide a unit's verdict (e.g. an uncorrected ratio).
 	ReferenceTests []string
@@ -88,6 +94,9 @@ type InstrumentInfo struct {
 	Roles    []string // roles it served: "supply", "meter", ...
 	Address  string   // e.g. "tcp://192.0.2.10:5025", "serial:///dev/ttyUSB0"
 	Identity string   // its *IDN? response, verbatim (instrument text)
+	// CalibrationDue is the date its calibration falls due (YYYY-MM-DD,
+	// from the plan), "" when not stated.
+	CalibrationDue string
 }
 
 // FixtureInfo describes how the part was wired (mirrors the plan's fixture).
@@ -367,3 +376,8 @@ func VerdictClass(v string) VerdictKind {
 
 // tempKey is the join key of a nominal temperature (0.01 °C resolution).
 func tempKey(c float64) int64 { return int64(math.Round(c * 100)) }
+
+// KeyValue is one labelled line of the Summary sheet (user text).
+type KeyValue struct {
+	Label, Value string
+}

@@ -317,27 +317,45 @@ func writeSummary(f *excelize.File, st *styles, c *Campaign, temps []float64) er
 	w.kv("Decision rule", c.DecisionRule, 0)
 	w.kv("Safety", c.SafetyNote, 0)
 
-	// Instruments: Name | Roles | Address (C:D) | Identity (E:I). Merged
-	// cells rule out an Excel table here, so the block gets an autofilter.
+	if len(c.TestConditions) > 0 {
+		w.heading("Test conditions")
+		for _, kv := range c.TestConditions {
+			w.kv(kv.Label, kv.Value, 0)
+		}
+	}
+	if len(c.Ratings) > 0 {
+		w.heading("Part ratings and limits")
+		for _, kv := range c.Ratings {
+			w.kv(kv.Label, kv.Value, 0)
+		}
+	}
+
+	// Instruments: Name | Roles | Address (C) | Calibration due (D) |
+	// Identity (E:I). Merged cells rule out an Excel table here, so the
+	// block gets an autofilter.
 	w.heading("Instruments")
 	w.row++
 	top := w.row
-	instrumentRow := func(name, roles, addr, idn string, style int) {
+	instrumentRow := func(name, roles, addr, due, idn string, style, dueStyle int) {
 		w.set(1, w.row, name, style)
 		w.set(2, w.row, roles, style)
 		w.set(3, w.row, addr, style)
+		w.set(4, w.row, due, dueStyle)
 		w.set(5, w.row, idn, style)
-		if w.err == nil {
-			w.err = f.MergeCell(SheetSummary, fmt.Sprintf("C%d", w.row), fmt.Sprintf("D%d", w.row))
-		}
 		if w.err == nil {
 			w.err = f.MergeCell(SheetSummary, fmt.Sprintf("E%d", w.row), fmt.Sprintf("I%d", w.row))
 		}
 	}
-	instrumentRow("Instrument", "Roles", "Address", "Identity (*IDN? response)", st.header)
+	instrumentRow("Instrument", "Roles", "Address", "Calibration due", "Identity (*IDN? response)", st.header, st.header)
 	for _, in := range c.Instruments {
 		w.row++
-		instrumentRow(in.Name, strings.Join(in.Roles, ", "), in.Address, in.Identity, st.text)
+		due, dueStyle := in.CalibrationDue, st.text
+		if due == "" {
+			due = "not stated"
+		} else if d, err := time.Parse("2006-01-02", due); err == nil && !c.Started.IsZero() && c.Started.After(d.AddDate(0, 0, 1)) {
+			due, dueStyle = due+" OVERDUE", st.attention
+		}
+		instrumentRow(in.Name, strings.Join(in.Roles, ", "), in.Address, due, in.Identity, st.text, dueStyle)
 	}
 	if len(c.Instruments) > 0 && w.err == nil {
 		w.err = f.AutoFilter(SheetSummary, fmt.Sprintf("A%d:I%d", top, w.row), nil)

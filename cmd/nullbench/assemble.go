@@ -73,8 +73,10 @@ func toReport(recs ...campaignRecord) *report.Campaign {
 			}
 		}
 		for _, id := range r.Identities {
-			c.Instruments = appendInstrument(c.Instruments, id)
+			c.Instruments = appendInstrument(c.Instruments, id, p.Bench.Instruments[id.Instrument].CalibrationDue)
 		}
+		c.TestConditions = append(c.TestConditions, testConditions(p, len(recs) > 1)...)
+		c.Ratings = append(c.Ratings, ratings(p, len(recs) > 1)...)
 		var k journal.Completeness
 		if r.Completeness != nil {
 			k = *r.Completeness
@@ -155,13 +157,83 @@ func addEvents(c *report.Campaign, p *plan.Plan, jc *journal.Contents) {
 	}
 }
 
-func appendInstrument(list []report.InstrumentInfo, id journal.Identity) []report.InstrumentInfo {
+func appendInstrument(list []report.InstrumentInfo, id journal.Identity, calDue string) []report.InstrumentInfo {
 	for _, in := range list {
 		if in.Name == id.Instrument && in.Identity == id.IDN {
 			return list
 		}
 	}
-	return append(list, report.InstrumentInfo{Name: id.Instrument, Roles: id.Roles, Address: id.Address, Identity: id.IDN})
+	return append(list, report.InstrumentInfo{Name: id.Instrument, Roles: id.Roles, Address: id.Address, Identity: id.IDN, CalibrationDue: calDue})
+}
+
+// testConditions states the conditions of a plan's tests for the report:
+// rails, common-mode range, temperatures, and per test its levels,
+// integration (NPLC), readings per point, repeats and dwell. prefix adds
+// the part number when several plans share a report.
+func testConditions(p *plan.Plan, prefix bool) []report.KeyValue {
+	pre := ""
+	if prefix {
+		pre = p.Part.Number + ": "
+	}
+	pt := &p.Part
+	out := []report.KeyValue{
+		{Label: pre + "Rails (V)", Value: fmt.Sprintf("%s / %s nominal", plan.FormatVolts(pt.NominalPosVolts), plan.FormatVolts(pt.NominalNegVolts))},
+		{Label: pre + "Common-mode range (V)", Value: fmt.Sprintf("%s … %s (input range %g V from each rail, plus %g V margin)",
+			plan.FormatVolts(pt.NominalNegVolts+pt.CMHeadroomNegVolts+pt.CMMarginVolts), plan.FormatVolts(pt.NominalPosVolts-pt.CMHeadroomPosVolts-pt.CMMarginVolts),
+			pt.CMHeadroomPosVolts, pt.CMMarginVolts)},
+	}
+	temps := p.TemperaturePoints()
+	ts := make([]string, len(temps))
+	for i, t := range temps {
+		ts[i] = fmt.Sprintf("%g", t)
+	}
+	out = append(out, report.KeyValue{Label: pre + "Temperatures (°C)", Value: fmt.Sprintf("%s (%s)", strings.Join(ts, ", "), p.Temperature.Mode)})
+	for _, t := range p.Tests {
+		lv := make([]string, len(t.Levels))
+		for i, l := range t.Levels {
+			lv[i] = fmt.Sprintf("%g", l)
+		}
+		v := fmt.Sprintf("levels %s V (%s order), %d repeat(s); %d readings per point at %g NPLC on the %g V range; dwell %g s",
+			strings.Join(lv, ", "), t.Order, t.Repeats, t.Readings, t.NPLC, t.RangeVolts, t.DwellSeconds)
+		if len(t.DiffLevels) > 0 {
+			v += fmt.Sprintf("; differential levels %v V", t.DiffLevels)
+		}
+		out = append(out, report.KeyValue{Label: pre + "Test " + t.Kind, Value: v})
+	}
+	return out
+}
+
+// ratings states the part's ratings and the limits (at 25 °C and over the
+// full temperature range) for the report.
+func ratings(p *plan.Plan, prefix bool) []report.KeyValue {
+	pre := ""
+	if prefix {
+		pre = p.Part.Number + ": "
+	}
+	pt := &p.Part
+	out := []report.KeyValue{
+		{Label: pre + "Part", Value: pt.Number},
+		{Label: pre + "Supply span, absolute maximum (V)", Value: fmt.Sprintf("%g", pt.MaxSupplySpanVolts)},
+		{Label: pre + "Input beyond a rail, absolute maximum (V)", Value: fmt.Sprintf("%g", pt.InputBeyondRailVolts)},
+		{Label: pre + "Supply current limit per rail (A)", Value: fmt.Sprintf("%g", pt.CurrentLimitAmps)},
+	}
+	for _, n := range plan.LimitNames() {
+		room, hasRoom := p.Limits[n]
+		full, hasFull := p.LimitsFullRange[n]
+		var v string
+		switch {
+		case hasRoom && hasFull:
+			v = fmt.Sprintf("≥ %g dB at 25 °C; ≥ %g dB over the full temperature range", room, full)
+		case hasRoom:
+			v = fmt.Sprintf("≥ %g dB at every temperature", room)
+		case hasFull:
+			v = fmt.Sprintf("≥ %g dB over the full temperature range", full)
+		default:
+			continue
+		}
+		out = append(out, report.KeyValue{Label: pre + "Limit " + n, Value: v})
+	}
+	return out
 }
 
 func fixtureInfo(p *plan.Plan) report.FixtureInfo {

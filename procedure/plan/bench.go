@@ -88,7 +88,7 @@ func CheckBench(p *Plan, lookup ProfileLookup) error {
 				"use one of the channels the profile lists")
 		}
 		if rc.kind == "supply" && bp.SupplyMaxAmps > 0 && p.Part.CurrentLimitAmps > bp.SupplyMaxAmps {
-			add("part.current_limit_amps", fmt.Sprintf("current limit %g A is beyond the %g A rating of %s's channels (%s)", p.Part.CurrentLimitAmps, bp.SupplyMaxAmps, b.Instrument, rc.role),
+			add("part.current_limit_amps", fmt.Sprintf("current limit %g A is beyond the %g A rating of %s's channels (its profile's max_amps)", p.Part.CurrentLimitAmps, bp.SupplyMaxAmps, b.Instrument),
 				fmt.Sprintf("set at most %g A", bp.SupplyMaxAmps))
 		}
 	}

@@ -56,6 +56,10 @@ type Bench struct {
 type Instrument struct {
 	Address string `toml:"address"` // tcp://HOST[:PORT] or serial:///dev/tty...?baud=...
 	Profile string `toml:"profile"` // a built-in profile name or a path to a profile file
+	// CalibrationDue is the date its calibration falls due, YYYY-MM-DD
+	// (from its calibration label); the report prints it beside the
+	// instrument's identity and marks it overdue after that date.
+	CalibrationDue string `toml:"calibration_due"`
 }
 
 // Roles binds each role the plan needs to an instrument and channel. A role

@@ -7,6 +7,7 @@ import (
 	"sort"
 	"strconv"
 	"strings"
+	"time"
 )
 
 // TestKindsFor returns the test kinds a fixture can run:
@@ -129,6 +130,7 @@ func Validate(p *Plan) error {
 	c.units()
 	c.temperature()
 	c.limits()
+	c.calibrationDates()
 	if r := p.Safety.RampStepVolts; r < 0.01 || r > 10 {
 		c.add("safety.ramp_step_volts", "give a step between 0.01 and 10 V, e.g. 1 (steps ≤ 1 V with settling are common practice)",
 			"ramp step %g V is out of range", r)
@@ -510,6 +512,24 @@ func (c *planChecker) temperature() {
 	}
 	if t.AmbientCelsius < -50 || t.AmbientCelsius > 100 {
 		c.add("temperature.ambient_c", "give the room temperature in °C, e.g. 25", "ambient %g °C is implausible", t.AmbientCelsius)
+	}
+}
+
+// calibrationDates checks the instruments' calibration_due dates.
+func (c *planChecker) calibrationDates() {
+	names := make([]string, 0, len(c.p.Bench.Instruments))
+	for n := range c.p.Bench.Instruments {
+		names = append(names, n)
+	}
+	sort.Strings(names)
+	for _, n := range names {
+		d := c.p.Bench.Instruments[n].CalibrationDue
+		if d == "" {
+			continue
+		}
+		if _, err := time.Parse("2006-01-02", d); err != nil {
+			c.add(joinKey(joinKey("bench.instrument", n), "calibration_due"), `give the date as YYYY-MM-DD, e.g. "2027-03-31"`, "calibration date %q is not a date", d)
+		}
 	}
 }
 

@@ -201,3 +201,14 @@ func TestValidateReportsEveryProblem(t *testing.T) {
 		}
 	}
 }
+
+func TestValidateCalibrationDue(t *testing.T) {
+	p := loadExamplePlan(t, "lot")
+	in := p.Bench.Instruments["dmm"]
+	in.CalibrationDue = "30/06/2027"
+	p.Bench.Instruments["dmm"] = in
+	err := Validate(p)
+	if err == nil || !strings.Contains(err.Error(), `bench.instrument.dmm.calibration_due`) {
+		t.Fatalf("err %v", err)
+	}
+}

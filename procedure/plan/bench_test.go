@@ -1,0 +1,45 @@
+package plan
+
+import (
+	"strings"
+	"testing"
+)
+
+func TestCheckBench(t *testing.T) {
+	p := &Plan{Source: "p.toml", Bench: Bench{
+		Instruments: map[string]Instrument{"psu": {Profile: "supply2"}, "src": {Profile: "./src.toml"}, "x": {Profile: "nosuch"}},
+		Roles: Roles{
+			SupplyPos: RoleBinding{Instrument: "psu", Channel: "1"},
+			SupplyNeg: RoleBinding{Instrument: "psu", Channel: "3", Negative: true},
+		},
+	}, Part: Part{CurrentLimitAmps: 5}}
+	lookup := func(_, profile string) (BenchProfile, error) {
+		if profile == "supply2" {
+			return BenchProfile{Roles: map[string]bool{"supply": true}, SupplyChannels: []string{"1", "2"}, SupplyMaxAmps: 3}, nil
+		}
+		return BenchProfile{}, errUnknown
+	}
+	err := CheckBench(p, lookup)
+	if err == nil {
+		t.Fatal("no error")
+	}
+	for _, want := range []string{
+		`key "bench.instrument.src.profile": profile path "./src.toml" is relative`,
+		`key "bench.instrument.x.profile": profile "nosuch": unknown`,
+		`key "bench.roles.supply_neg.channel": instrument psu has no channel "3"`,
+		`key "part.current_limit_amps": current limit 5 A is beyond the 3 A rating of psu`,
+	} {
+		if !strings.Contains(err.Error(), want) {
+			t.Errorf("error lacks %q:\n%v", want, err)
+		}
+	}
+	if n := strings.Count(err.Error(), "current limit 5 A"); n != 1 {
+		t.Errorf("the current-limit problem is reported %d times", n)
+	}
+}
+
+var errUnknown = errorString("unknown")
+
+type errorString string
+
+func (e errorString) Error() string { return string(e) }
