@@ -23,6 +23,9 @@ type tableSpec struct {
 	table      string // table name, unique in the workbook
 	cols       []column
 	freezeCols int // leading columns kept in view (0: header row only)
+	// key is written below the table, one blank row after it: what each
+	// verdict and flag on the sheet means (label, explanation).
+	key []KeyValue
 }
 
 // streamTable writes a sheet with excelize's stream writer: widths, column
@@ -76,6 +79,24 @@ func streamTable(f *excelize.File, st *styles, spec tableSpec, n int, fill func(
 		cell, _ := excelize.CoordinatesToCellName(1, i+2)
 		if err := sw.SetRow(cell, row); err != nil {
 			return fmt.Errorf("report: sheet %q row %d: %w", spec.sheet, i+2, err)
+		}
+	}
+	if len(spec.key) > 0 {
+		r := n + 3
+		cell, _ := excelize.CoordinatesToCellName(1, r)
+		if err := sw.SetRow(cell, []any{excelize.Cell{StyleID: st.label, Value: "Key"}}); err != nil {
+			return fmt.Errorf("report: sheet %q key: %w", spec.sheet, err)
+		}
+		for _, kv := range spec.key {
+			r++
+			cell, _ := excelize.CoordinatesToCellName(1, r)
+			label := any(excelize.Cell{StyleID: st.label, Value: cellText(kv.Label)})
+			if k := VerdictClass(kv.Label); k != KindOther {
+				label = excelize.Cell{StyleID: st.verdict[k], Value: k.Label()}
+			}
+			if err := sw.SetRow(cell, []any{label, excelize.Cell{StyleID: st.plain, Value: cellText(kv.Value)}}); err != nil {
+				return fmt.Errorf("report: sheet %q key: %w", spec.sheet, err)
+			}
 		}
 	}
 	if n > 0 {

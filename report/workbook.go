@@ -557,6 +557,12 @@ func writeUnits(f *excelize.File, st *styles, c *Campaign) error {
 	if c.Incomplete {
 		spec.cols = append(spec.cols, column{incompleteMark(c), 40, st.text})
 	}
+	spec.key = append(verdictKey(),
+		KeyValue{"SKIPPED", "left out on purpose (socket empty, part cracked); not a failure"},
+		KeyValue{"INCOMPLETE", "some of the unit's planned points were not measured: no verdict can be given"},
+		KeyValue{"NO RESULT", "a result could not be formed (stuck meter, stimulus that did not move, no part / no gain); see Reason"},
+		KeyValue{"Deciding result", "the result with the most severe verdict, or with the least margin to its limit"},
+	)
 	err := streamTable(f, st, spec, len(vs), func(i int, d []any) {
 		v := &vs[i]
 		k := VerdictClass(v.Verdict)
@@ -593,6 +599,15 @@ func writeResults(f *excelize.File, st *styles, c *Campaign) error {
 		st.dof, st.text, st.db, st.db, st.text, st.db, st.db, st.text, st.text, st.text}
 	widths := []float64{12, 12, 12, 14, 16, 11, 13, 10, 10, 10, 12, 10, 11, 11, 36, 10, 11, 13, 12, 24}
 	spec := tableSpec{sheet: SheetResults, table: "tblResults", freezeCols: 2}
+	spec.key = append(verdictKey(),
+		KeyValue{"no: lower bound", "|coefficient| < k·u: the ratio is not resolved and only its one-sided lower bound is stated"},
+		KeyValue{"curvature", "flag: the quadratic term of the fit is significant (the part is not linear over the sweep)"},
+		KeyValue{"span-dependent", "flag: the slope over the inner and the full span disagree"},
+		KeyValue{"N flagged points", "flag: points that did not settle within the time-out and were kept"},
+		KeyValue{"A_OL corrected", "flag: corrected for the finite open-loop gain (nulling loop)"},
+		KeyValue{"limit over the full temperature range", "flag: judged against the [limits_full_range] value, not the 25 °C one"},
+		KeyValue{"no result", "the result could not be formed; the cause is in Flags"},
+	)
 	for i, h := range resultHeaders {
 		spec.cols = append(spec.cols, column{h, widths[i], colStyles[i]})
 	}
@@ -789,4 +804,15 @@ func writeTemperature(f *excelize.File, st *styles, c *Campaign) error {
 		t := &c.Temperature[i]
 		d[0], d[1], d[2], d[3], d[4] = t.Unit, t.Test, num(t.SlopeDBPerC), num(t.SlopeU), num(t.RepeatabilityDB)
 	})
+}
+
+// verdictKey explains each verdict class (ILAC-G8:09/2019 §4.2 zones).
+func verdictKey() []KeyValue {
+	return []KeyValue{
+		{VerdictPass, "inside the acceptance zone of the decision rule"},
+		{VerdictConditionalPass, "inside the limit but within the guard band (ILAC-G8:09/2019 §4.2)"},
+		{VerdictConditionalFail, "outside the limit but within the guard band"},
+		{VerdictFail, "outside the limit by more than the guard band"},
+		{VerdictNotJudged, "no limit set for this test: measured and reported only"},
+	}
 }

@@ -223,6 +223,15 @@ func TestRunOnSimulatedBench(t *testing.T) {
 			if err != nil {
 				t.Fatal(err)
 			}
+			// The table ends at the first blank row (the key follows it).
+			end := len(rows)
+			for i, row := range rows {
+				if len(row) == 0 {
+					end = i
+					break
+				}
+			}
+			rows = rows[:end]
 			if len(rows) != 1+len(results) || len(rows[0]) < 2 || rows[0][0] != "Unit" || rows[0][1] != "Test" {
 				t.Fatalf("sheet %s has %d rows (header %v), want a header and %d rows", report.SheetResults, len(rows), rows[0], len(results))
 			}
