@@ -72,6 +72,7 @@ type tempChart struct {
 	Test    string
 	Series  []namedXY // lowest-ratio units first
 	Median  []xy      // the lot's median (from LotStats), may be empty
+	Limit   []xy      // the limit at each temperature (25 °C and full range may differ), may be empty
 	OfUnits int
 }
 
@@ -112,7 +113,14 @@ func planCharts(c *Campaign, opt ChartOptions) chartPlan {
 	}
 
 	if maxUnits > 0 {
+		// One set of response charts per temperature, the chart
+		// temperature first.
 		p.Responses = responseCharts(c, tests, p.ChartTempC, maxUnits, reported)
+		for _, t := range p.Temps {
+			if tempKey(t) != tempKey(p.ChartTempC) {
+				p.Responses = append(p.Responses, responseCharts(c, tests, t, maxUnits, reported)...)
+			}
+		}
 	}
 	for _, test := range tests {
 		for _, t := range p.Temps {
@@ -413,6 +421,16 @@ func temperatureChart(c *Campaign, test string, chartT float64, maxUnits int, re
 	}
 	slices.SortFunc(med, func(a, b xy) int { return cmp.Compare(a.X, b.X) })
 	tc.Median = finitePoints(med)
+	lim := map[int64]xy{}
+	for _, r := range c.Results {
+		if r.Test == test && !math.IsNaN(r.LimitDB) {
+			lim[tempKey(r.TemperatureC)] = xy{r.TemperatureC, r.LimitDB}
+		}
+	}
+	for _, v := range lim {
+		tc.Limit = append(tc.Limit, v)
+	}
+	slices.SortFunc(tc.Limit, func(a, b xy) int { return cmp.Compare(a.X, b.X) })
 	return tc, true
 }
 

@@ -219,7 +219,7 @@ func temperatureExcelChart(dw *chartDataWriter, tc tempChart) *excelize.Chart {
 	// Ratios sit far from zero: fit the vertical axis to the data, in
 	// whole dB with 1 dB to spare.
 	lo, hi := math.Inf(1), math.Inf(-1)
-	for _, s := range append(slices.Clone(tc.Series), namedXY{Points: tc.Median}) {
+	for _, s := range append(slices.Clone(tc.Series), namedXY{Points: tc.Median}, namedXY{Points: tc.Limit}) {
 		for _, p := range s.Points {
 			lo, hi = math.Min(lo, p.Y), math.Max(hi, p.Y)
 		}
@@ -242,6 +242,13 @@ func temperatureExcelChart(dw *chartDataWriter, tc tempChart) *excelize.Chart {
 			Name: ref.Name, Categories: ref.X, Values: ref.Y, Fill: solid("000000"),
 			Line:   excelize.LineOptions{Type: excelize.LineSolid, Width: 2.5},
 			Marker: excelize.ChartMarker{Symbol: "none"},
+		})
+	}
+	if ref, ok := dw.block(title, "limit", xAxis, yAxis, tc.Limit); ok {
+		c.Series = append(c.Series, excelize.ChartSeries{
+			Name: ref.Name, Categories: ref.X, Values: ref.Y, Fill: solid("1A1A1A"),
+			Line:   excelize.LineOptions{Type: excelize.LineSolid, Width: 1.5, Dash: excelize.LineDashDash},
+			Marker: excelize.ChartMarker{Symbol: "dash", Size: 8, Fill: solid("1A1A1A")},
 		})
 	}
 	return c

@@ -247,7 +247,16 @@ func temperaturePlot(tc tempChart) (*plot.Plot, error) {
 		p.Add(ln)
 		p.Legend.Add("lot median", ln)
 	}
-	legendRoom(p, len(tc.Series)+1)
+	if xys := toXYs(tc.Limit); len(xys) > 0 {
+		ln, err := plotter.NewLine(xys)
+		if err != nil {
+			return nil, fmt.Errorf("report: plot %q limit: %w", tc.title(), err)
+		}
+		ln.Color, ln.Width, ln.Dashes = color.Black, vg.Points(1.5), []vg.Length{vg.Points(6), vg.Points(3)}
+		p.Add(ln)
+		p.Legend.Add("limit", ln)
+	}
+	legendRoom(p, len(tc.Series)+2)
 	return p, nil
 }
 

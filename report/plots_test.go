@@ -19,10 +19,13 @@ func TestWritePlots(t *testing.T) {
 		{"one temperature, no per-unit plots", single, ChartOptions{MaxUnits: -1}, []string{
 			"01-histogram-cmrr-25C.png", "02-histogram-psrr_pos-25C.png",
 		}},
-		// cmrr only, to keep the suite quick: every kind of plot once.
+		// cmrr only, to keep the suite quick: every kind of plot, the
+		// response and residual plots at every temperature (the chart
+		// temperature first).
 		{"three temperatures, hostile unit ids", three, ChartOptions{MaxUnits: 4}, []string{
-			"01-response-cmrr-25C.png", "02-residuals-cmrr-25C.png", "03-temperature-cmrr.png",
-			"04-histogram-cmrr-m40C.png", "05-histogram-cmrr-25C.png", "06-histogram-cmrr-85C.png",
+			"01-response-cmrr-25C.png", "02-residuals-cmrr-25C.png", "03-response-cmrr-m40C.png", "04-residuals-cmrr-m40C.png",
+			"05-response-cmrr-85C.png", "06-residuals-cmrr-85C.png", "07-temperature-cmrr.png",
+			"08-histogram-cmrr-m40C.png", "09-histogram-cmrr-25C.png", "10-histogram-cmrr-85C.png",
 		}},
 	}
 	for _, tc := range tests {

@@ -73,9 +73,12 @@ var verdictPalette = [numVerdictKinds]excelize.Style{
 	},
 }
 
-// Series colours for charts and plots: blue/orange/grey families with
-// distinct markers and dashes, so series also differ without colour.
-var seriesColours = []string{"0072B2", "D55E00", "000000", "56B4E9", "E69F00", "7F7F7F", "2166AC", "B35806"}
+// Series colours for charts and plots: the eight colours of the Okabe–Ito
+// palette (M. Okabe and K. Ito, "Color Universal Design (CUD): how to make
+// figures and presentations that are friendly to colorblind people",
+// 2008), yellow last as it is faint on white. Each unit also gets its own
+// marker and dash, so series differ without colour too.
+var seriesColours = []string{"0072B2", "D55E00", "009E73", "CC79A7", "56B4E9", "E69F00", "000000", "F0E442"}
 
 // styles holds the style ids of one workbook (created once each).
 type styles struct {

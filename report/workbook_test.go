@@ -744,10 +744,10 @@ func floats(t *testing.T, s []string) []float64 {
 func TestWorkbookCharts(t *testing.T) {
 	c, path, f := sharedBook(t, three)
 	charts := readCharts(t, path)
-	// 2 tests × (response + residuals) + 2 temperature charts + 2 tests × 3
-	// temperatures of histograms.
-	if len(charts) != 12 {
-		t.Errorf("%d charts, want 12: %q", len(charts), slices.Sorted(maps.Keys(charts)))
+	// 2 tests × 3 temperatures × (response + residuals) + 2 temperature
+	// charts + 2 tests × 3 temperatures of histograms.
+	if len(charts) != 20 {
+		t.Errorf("%d charts, want 20: %q", len(charts), slices.Sorted(maps.Keys(charts)))
 	}
 	// Units ranked by cmrr at 25 °C, lowest first (fixtureRatios).
 	ranked := []string{"U06", "U05", "U04", "U03", "U02", "U01", "U08", "U07"}
@@ -885,11 +885,20 @@ func TestWorkbookCharts(t *testing.T) {
 			t.Fatal("no cmrr temperature chart")
 		}
 		ser := ch.series()
-		if len(ser) != 9 {
-			t.Fatalf("%d series, want 8 units + lot median", len(ser))
+		if len(ser) != 10 {
+			t.Fatalf("%d series, want 8 units + lot median + limit", len(ser))
 		}
 		if got := rangeValues(t, f, ser[8].Name)[0]; got != "lot median" {
-			t.Errorf("last series %q, want lot median", got)
+			t.Errorf("series 9 %q, want lot median", got)
+		}
+		// The limit is drawn as a line across the temperatures.
+		if got := rangeValues(t, f, ser[9].Name)[0]; got != "limit" {
+			t.Errorf("last series %q, want limit", got)
+		}
+		for i, y := range floats(t, rangeValues(t, f, ser[9].YVal)) {
+			if y != 110 {
+				t.Errorf("limit point %d at %v dB, want the fixture's 110 dB", i, y)
+			}
 		}
 		xs := floats(t, rangeValues(t, f, ser[0].XVal))
 		ys := floats(t, rangeValues(t, f, ser[0].YVal))
