@@ -3,6 +3,7 @@ package main
 import (
 	"fmt"
 	"math"
+	"sort"
 	"strings"
 	"time"
 
@@ -136,10 +137,18 @@ func addEvents(c *report.Campaign, p *plan.Plan, jc *journal.Contents) {
 	for _, r := range jc.Resumes {
 		c.Events = append(c.Events, report.EventRow{Time: r.Started, Type: "resume", TemperatureC: math.NaN(), Detail: "the run was continued from its journal"})
 	}
-	for _, e := range jc.Events {
+	for i, e := range jc.Events {
 		switch e.Type {
-		case journal.EventPowerUp, journal.EventPowerDown, journal.EventUnitSwap, journal.EventSoakDone:
+		case journal.EventPowerUp, journal.EventPowerDown, journal.EventSoakDone:
 			continue // routine: in the journal
+		case journal.EventUnitSwap:
+			if !strings.Contains(e.Detail, "by hand") {
+				continue // a switch channel: routine
+			}
+		}
+		var at time.Time
+		if i < len(jc.EventTimes) {
+			at = jc.EventTimes[i]
 		}
 		detail := e.Reason
 		if e.Detail != "" {
@@ -148,8 +157,10 @@ func addEvents(c *report.Campaign, p *plan.Plan, jc *journal.Contents) {
 			}
 			detail += e.Detail
 		}
-		c.Events = append(c.Events, report.EventRow{Type: e.Type, Unit: e.Unit, TemperatureC: setPoint(p, e.TempIndex), Detail: detail})
+		c.Events = append(c.Events, report.EventRow{Time: at, Type: e.Type, Unit: e.Unit, TemperatureC: setPoint(p, e.TempIndex), Detail: detail})
 	}
+	// Journal order: resumes among the events by their times.
+	sort.SliceStable(c.Events, func(i, j int) bool { return c.Events[i].Time.Before(c.Events[j].Time) })
 	if jc.End != nil {
 		c.Events = append(c.Events, report.EventRow{Time: jc.LastTime, Type: "end: " + jc.End.Status, TemperatureC: math.NaN(), Detail: jc.End.Reason})
 	} else {

@@ -191,3 +191,39 @@ func flatten(rows [][]string) []string {
 }
 
 func itoa(i int) string { return strconv.Itoa(i) }
+
+// run --skip leaves a unit out: skipped, not failed, and the campaign is
+// still complete.
+func TestRunSkipUnit(t *testing.T) {
+	b := cliStartSim(t, "")
+	dir := t.TempDir()
+	plan := cliWriteFile(t, dir, "plan.toml", b.BenchSection()+strings.ReplaceAll(cliPlanBody, "%CMRR_LIMIT%", "90.0"))
+	out := filepath.Join(dir, "out")
+	r := cliExec(t, "run", plan, "--out", out, "--no-charts", "--skip", "U02=part cracked")
+	cliWantCode(t, r, exitOK, "run", plan)
+	if !strings.Contains(r.out, "unit U02 skipped: part cracked") || strings.Contains(r.out, "INCOMPLETE") {
+		t.Errorf("console:\n%s", r.out)
+	}
+	cells := workbookCells(t, filepath.Join(out, "campaign.xlsx"))
+	found := false
+	for _, row := range cells["Units"] {
+		if len(row) > 5 && row[0] == "U02" {
+			found = true
+			if row[3] != "SKIPPED" || !strings.Contains(row[5], "part cracked") {
+				t.Errorf("Units row %v, want SKIPPED with the reason", row)
+			}
+		}
+	}
+	if !found {
+		t.Errorf("no U02 row on the Units sheet: %v", cells["Units"])
+	}
+	if s := strings.Join(flatten(cells["Summary"]), "|"); !strings.Contains(s, "unit-skipped") || !strings.Contains(s, "complete: all ") {
+		t.Errorf("summary lacks the skip in its event log or the complete mark: %s", s)
+	}
+	m, err := readManifest(out)
+	if err != nil || !m.Complete {
+		t.Errorf("manifest %+v, %v", m, err)
+	}
+	r = cliExec(t, "run", plan, "--out", filepath.Join(dir, "x"), "--skip", "U99")
+	cliWantCode(t, r, exitUsage, "run", plan, "--skip", "U99")
+}

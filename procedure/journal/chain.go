@@ -53,6 +53,9 @@ func encodeChained(rec Record, prev string) ([]byte, string, error) {
 // checked against it (one break is enough to distrust the rest).
 func (c *Contents) verifyChain(rec Record, line int) {
 	c.LastTime = rec.Time
+	if rec.Kind == RecordEvent {
+		c.EventTimes = append(c.EventTimes, rec.Time)
+	}
 	first := c.Records == 0
 	if first {
 		c.Chained = rec.Chain != ""

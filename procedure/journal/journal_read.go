@@ -32,8 +32,9 @@ type Contents struct {
 	LastChain      string
 	ChainBreakLine int
 	RecordLines    int
-	LastTime       time.Time // the last record's time
-	chains         []string  // chain value after each record
+	LastTime       time.Time   // the last record's time
+	EventTimes     []time.Time // the time of each of Events
+	chains         []string    // chain value after each record
 
 	// Truncated says the last line was incomplete (no newline: a run killed
 	// while writing it) and was skipped; TruncatedLine is its line number.
