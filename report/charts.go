@@ -138,6 +138,9 @@ func writeCharts(f *excelize.File, st *styles, plan chartPlan) error {
 	if err := printSetup(f, SheetCharts, false); err != nil {
 		return err
 	}
+	if err := printSetup(f, SheetChartData, true); err != nil {
+		return err
+	}
 	for i, c := range charts {
 		col := 1 + (i%2)*10
 		row := 1 + (i/2)*chartRowsStep

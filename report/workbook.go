@@ -595,9 +595,11 @@ var resultHeaders = []string{
 }
 
 func writeResults(f *excelize.File, st *styles, c *Campaign) error {
+	// Widths in characters hold the longest value each column shows
+	// ("no: lower bound", "COND. FAIL"); the rule and Flags wrap.
 	colStyles := []int{st.text, st.text, st.celsius, st.uvpv, st.uvpv, st.db, st.db, st.db, st.db, st.k,
-		st.dof, st.text, st.db, st.db, st.text, st.db, st.db, st.text, st.text, st.text}
-	widths := []float64{12, 12, 12, 14, 16, 11, 13, 10, 10, 10, 12, 10, 11, 11, 36, 10, 11, 13, 12, 24}
+		st.dof, st.text, st.db, st.db, st.text, st.db, st.db, st.text, st.wrap, st.wrap}
+	widths := []float64{12, 14, 12, 14, 16, 11, 13, 10, 10, 10, 12, 16, 11, 11, 40, 10, 11, 13, 24, 30}
 	spec := tableSpec{sheet: SheetResults, table: "tblResults", freezeCols: 2}
 	spec.key = append(verdictKey(),
 		KeyValue{"no: lower bound", "|coefficient| < k·u: the ratio is not resolved and only its one-sided lower bound is stated"},
