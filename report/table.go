@@ -26,6 +26,10 @@ type tableSpec struct {
 	// key is written below the table, one blank row after it: what each
 	// verdict and flag on the sheet means (label, explanation).
 	key []KeyValue
+	// rowLines, when set, gives the text lines of data row i: the row is
+	// made that tall, since a wrapped cell in a streamed row does not grow
+	// it by itself.
+	rowLines func(i int) int
 }
 
 // streamTable writes a sheet with excelize's stream writer: widths, column
@@ -77,11 +81,28 @@ func streamTable(f *excelize.File, st *styles, spec tableSpec, n int, fill func(
 			}
 		}
 		cell, _ := excelize.CoordinatesToCellName(1, i+2)
-		if err := sw.SetRow(cell, row); err != nil {
+		var opts []excelize.RowOpts
+		if spec.rowLines != nil {
+			if n := spec.rowLines(i); n > 1 {
+				opts = append(opts, excelize.RowOpts{Height: 15 * float64(min(n, 20))})
+			}
+		}
+		if err := sw.SetRow(cell, row, opts...); err != nil {
 			return fmt.Errorf("report: sheet %q row %d: %w", spec.sheet, i+2, err)
 		}
 	}
 	if len(spec.key) > 0 {
+		// The explanation starts in the first column past the longest
+		// label, so no label runs under it.
+		longest := 0
+		for _, kv := range spec.key {
+			longest = max(longest, len([]rune(kv.Label)))
+		}
+		textCol, span := 1, spec.cols[0].width
+		for textCol < len(spec.cols) && span < float64(longest+1) {
+			span += spec.cols[textCol].width
+			textCol++
+		}
 		r := n + 3
 		cell, _ := excelize.CoordinatesToCellName(1, r)
 		if err := sw.SetRow(cell, []any{excelize.Cell{StyleID: st.label, Value: "Key"}}); err != nil {
@@ -94,7 +115,9 @@ func streamTable(f *excelize.File, st *styles, spec tableSpec, n int, fill func(
 			if k := VerdictClass(kv.Label); k != KindOther {
 				label = excelize.Cell{StyleID: st.verdict[k], Value: k.Label()}
 			}
-			if err := sw.SetRow(cell, []any{label, excelize.Cell{StyleID: st.plain, Value: cellText(kv.Value)}}); err != nil {
+			vals := make([]any, textCol+1)
+			vals[0], vals[textCol] = label, excelize.Cell{StyleID: st.plain, Value: cellText(kv.Value)}
+			if err := sw.SetRow(cell, vals); err != nil {
 				return fmt.Errorf("report: sheet %q key: %w", spec.sheet, err)
 			}
 		}
@@ -222,4 +245,13 @@ func headerText(f *excelize.File) string {
 		}
 	}
 	return strings.ReplaceAll(id, "&", "&&")
+}
+
+// textLines is the number of lines text takes wrapped at width characters.
+func textLines(text string, width float64) int {
+	n := 0
+	for _, l := range strings.Split(text, "\n") {
+		n += max(1, int(math.Ceil(float64(len([]rune(l)))/math.Max(width-1, 1))))
+	}
+	return n
 }

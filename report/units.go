@@ -90,9 +90,15 @@ func UnitVerdicts(c *Campaign, skipTests ...string) []UnitVerdict {
 			v.Worst = describeResult(r)
 			v.Verdict = r.Verdict
 			if worstKind == KindPass || worstKind == KindConditionalPass {
-				why = append(why, fmt.Sprintf("%d of %d judged results inside their limits; lowest margin %s", judged, judged, v.Worst))
+				why = append(why, fmt.Sprintf("all %d judged results inside their limits", judged))
 			} else {
-				why = append(why, v.Worst+" "+strings.ToLower(worstKind.Label()))
+				n := 0
+				for _, r := range rs {
+					if k := VerdictClass(r.Verdict); k == KindFail || k == KindConditionalFail {
+						n++
+					}
+				}
+				why = append(why, fmt.Sprintf("%d of %d judged results outside their limits", n, judged))
 			}
 		}
 		if len(errs) > 0 {

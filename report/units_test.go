@@ -30,8 +30,8 @@ func TestUnitVerdicts(t *testing.T) {
 	want := []struct {
 		unit, serial, verdict, reason string
 	}{
-		{"U01", "SN-1001", VerdictConditionalPass, "lowest margin psrr_pos at 25 °C: 101.00 dB (limit 100.00 dB)"},
-		{"U02", "SN-1002", VerdictFail, "cmrr at 25 °C: 88.00 dB (limit 90.00 dB) fail"},
+		{"U01", "SN-1001", VerdictConditionalPass, "all 2 judged results inside their limits"},
+		{"U02", "SN-1002", VerdictFail, "1 of 2 judged results outside their limits"},
 		{"U03", "", UnitSkipped, "skipped: part cracked"},
 		{"U04", "", UnitIncomplete, "12 points not measured"},
 		{"U05", "", VerdictPass, "1 results not judged (no limit)"},
@@ -46,5 +46,9 @@ func TestUnitVerdicts(t *testing.T) {
 		if g.Unit != w.unit || g.Serial != w.serial || g.Verdict != w.verdict || !strings.Contains(g.Reason, w.reason) {
 			t.Errorf("unit %s: %+v; want serial %q, verdict %q, reason containing %q", w.unit, g, w.serial, w.verdict, w.reason)
 		}
+	}
+	// The deciding result: the most severe verdict, else the least margin.
+	if got[0].Worst != "psrr_pos at 25 °C: 101.00 dB (limit 100.00 dB)" || got[1].Worst != "cmrr at 25 °C: 88.00 dB (limit 90.00 dB)" {
+		t.Errorf("deciding results %q, %q", got[0].Worst, got[1].Worst)
 	}
 }

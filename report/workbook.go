@@ -551,7 +551,7 @@ func writeUnits(f *excelize.File, st *styles, c *Campaign) error {
 	}
 	spec := tableSpec{sheet: SheetUnits, table: "tblUnits", freezeCols: 1, cols: []column{
 		{"Unit", 12, st.text}, {"Serial number", 16, st.text}, {"Switch channel", 9, st.text},
-		{"Verdict", 14, st.text}, {"Deciding result", 40, st.text}, {"Reason", 60, st.wrap},
+		{"Verdict", 14, st.text}, {"Deciding result", 48, st.wrap}, {"Reason", 50, st.wrap},
 		{"Points not measured", 11, st.integer}, {"Notes", 30, st.wrap},
 	}}
 	if c.Incomplete {
@@ -563,6 +563,9 @@ func writeUnits(f *excelize.File, st *styles, c *Campaign) error {
 		KeyValue{"NO RESULT", "a result could not be formed (stuck meter, stimulus that did not move, no part / no gain); see Reason"},
 		KeyValue{"Deciding result", "the result with the most severe verdict, or with the least margin to its limit"},
 	)
+	spec.rowLines = func(i int) int {
+		return max(textLines(vs[i].Worst, 48), textLines(vs[i].Reason, 50), textLines(notes[vs[i].Unit], 30))
+	}
 	err := streamTable(f, st, spec, len(vs), func(i int, d []any) {
 		v := &vs[i]
 		k := VerdictClass(v.Verdict)
@@ -612,6 +615,10 @@ func writeResults(f *excelize.File, st *styles, c *Campaign) error {
 	)
 	for i, h := range resultHeaders {
 		spec.cols = append(spec.cols, column{h, widths[i], colStyles[i]})
+	}
+	spec.rowLines = func(i int) int {
+		r := &c.Results[i]
+		return max(textLines(strings.Join(r.Flags, "; "), 30), textLines(r.Rule, 24), textLines(statement(r), 40))
 	}
 	return streamTable(f, st, spec, len(c.Results), func(i int, d []any) {
 		r := &c.Results[i]
