@@ -320,32 +320,36 @@ func printSummary(w io.Writer, c *report.Campaign, book string) {
 	}
 	fmt.Fprintf(w, "results: %d pass, %d conditional pass, %d conditional fail, %d fail, %d not judged\n",
 		counts[report.KindPass], counts[report.KindConditionalPass], counts[report.KindConditionalFail], counts[report.KindFail], counts[report.KindNotJudged])
-	// Units by their most severe verdict (ILAC-G8 zones, worst first).
-	unitKind := map[string]report.VerdictKind{}
-	var units []string
-	for _, r := range c.Results {
-		k := report.VerdictClass(r.Verdict)
-		if k == report.KindNotJudged || k == report.KindOther || r.Test == analysis.ResultCMRRUncorrected {
-			continue
-		}
-		cur, ok := unitKind[r.Unit]
-		if !ok {
-			units = append(units, r.Unit)
-		}
-		if !ok || k > cur {
-			unitKind[r.Unit] = k
-		}
-	}
+	// Units by their verdict (report.UnitVerdicts: the most severe ILAC-G8
+	// zone, or skipped, incomplete, no result).
 	byKind := map[report.VerdictKind][]string{}
-	for _, u := range units {
-		byKind[unitKind[u]] = append(byKind[unitKind[u]], u)
+	other := map[string][]string{}
+	var otherOrder []string
+	for _, v := range report.UnitVerdicts(c, c.ReferenceTests...) {
+		switch k := report.VerdictClass(v.Verdict); k {
+		case report.KindNotJudged:
+		case report.KindOther:
+			if len(other[v.Verdict]) == 0 {
+				otherOrder = append(otherOrder, v.Verdict)
+			}
+			other[v.Verdict] = append(other[v.Verdict], v.Unit)
+		default:
+			byKind[k] = append(byKind[k], v.Unit)
+		}
 	}
-	fmt.Fprintf(w, "units:   %d pass, %d conditional pass, %d conditional fail, %d fail\n",
+	fmt.Fprintf(w, "units:   %d pass, %d conditional pass, %d conditional fail, %d fail",
 		len(byKind[report.KindPass]), len(byKind[report.KindConditionalPass]), len(byKind[report.KindConditionalFail]), len(byKind[report.KindFail]))
+	for _, o := range otherOrder {
+		fmt.Fprintf(w, ", %d %s", len(other[o]), o)
+	}
+	fmt.Fprintln(w)
 	for _, k := range []report.VerdictKind{report.KindFail, report.KindConditionalFail, report.KindConditionalPass} {
 		if len(byKind[k]) > 0 {
 			fmt.Fprintf(w, "  %s: %s\n", k.Label(), strings.Join(byKind[k], " "))
 		}
+	}
+	for _, o := range otherOrder {
+		fmt.Fprintf(w, "  %s: %s\n", strings.ToUpper(o), strings.Join(other[o], " "))
 	}
 	worst := map[string]report.Result{}
 	var order []string
