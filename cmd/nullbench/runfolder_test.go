@@ -2,12 +2,15 @@ package main
 
 import (
 	"bytes"
+	"context"
 	"os"
 	"path/filepath"
 	"reflect"
+	"regexp"
 	"strconv"
 	"strings"
 	"testing"
+	"time"
 
 	"github.com/xuri/excelize/v2"
 )
@@ -226,4 +229,49 @@ func TestRunSkipUnit(t *testing.T) {
 	}
 	r = cliExec(t, "run", plan, "--out", filepath.Join(dir, "x"), "--skip", "U99")
 	cliWantCode(t, r, exitUsage, "run", plan, "--skip", "U99")
+}
+
+// An interrupted run's folder reports INCOMPLETE with the count; resumed,
+// it is complete, the seal moves on, and report finds the journal intact.
+func TestRunFolderInterruptedThenResumed(t *testing.T) {
+	b := cliStartSim(t, "")
+	dir := t.TempDir()
+	plan := cliWriteFile(t, dir, "plan.toml", b.BenchSection()+strings.ReplaceAll(cliPlanBody, "%CMRR_LIMIT%", "90.0"))
+	out := filepath.Join(dir, "out")
+	j := filepath.Join(out, runJournalName)
+	ctx, cancel := context.WithTimeout(context.Background(), 60*time.Second)
+	defer cancel()
+	done := make(chan cliResult, 1)
+	go func() { done <- cliRun(t, ctx, cliOpts{}, "run", plan, "--out", out, "--no-charts") }()
+	for cliCount(t, j, "reading") < 5 {
+		select {
+		case r := <-done:
+			t.Fatalf("the run ended (exit %d) before 5 readings", r.code)
+		case <-time.After(time.Millisecond):
+		}
+	}
+	cancel()
+	r := <-done
+	if !regexp.MustCompile(`INCOMPLETE: \d+ of \d+ planned points not measured`).MatchString(r.out) {
+		t.Errorf("interrupted run's summary not marked INCOMPLETE:\n%s", r.out)
+	}
+	m, err := readManifest(out)
+	if err != nil || m.Complete || m.MissingPoints == 0 || m.Journal.Records == 0 {
+		t.Fatalf("manifest after the interruption %+v, %v", m, err)
+	}
+	r = cliExec(t, "resume", out, "--no-charts")
+	cliWantCode(t, r, exitOK, "resume", out)
+	m2, err := readManifest(out)
+	if err != nil || !m2.Complete || m2.Journal.Records <= m.Journal.Records {
+		t.Fatalf("manifest after the resume %+v, %v", m2, err)
+	}
+	r = cliExec(t, "report", out, "--no-charts")
+	cliWantCode(t, r, exitOK, "report", out)
+	if strings.Contains(r.out, "INCOMPLETE") || strings.Contains(r.err, "edited or truncated") {
+		t.Errorf("resumed folder:\n%s\n%s", r.out, r.err)
+	}
+	cells := workbookCells(t, filepath.Join(out, "campaign.xlsx"))
+	if s := strings.Join(flatten(cells["Summary"]), "|"); !strings.Contains(s, "resume") || !strings.Contains(s, "abort") && !strings.Contains(s, "interrupted") {
+		t.Errorf("event log lacks the interruption and the resume: %s", s)
+	}
 }
