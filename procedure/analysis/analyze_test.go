@@ -503,7 +503,9 @@ func TestAnalyzeDecisions(t *testing.T) {
 // TestAnalyzeUnresolved: a part whose common-mode coefficient is zero
 // cannot be told from zero; the result is a one-sided lower bound
 // (common practice, after EURACHEM/CITAC CG4 Appendix F on results near
-// the detection limit) and is judged on it.
+// the detection limit). Under simple acceptance (ILAC-G8:09/2019 §4.2.1,
+// w = 0) it is judged on the measured value; under guarded acceptance on
+// the bound.
 func TestAnalyzeUnresolved(t *testing.T) {
 	p := azOpAmpPlan(plan.FixtureNullingLoop, plan.CMByInputDrive, plan.TestCMRR)
 	p.Limits = plan.Limits{plan.TestCMRR: 120}
@@ -518,8 +520,14 @@ func TestAnalyzeUnresolved(t *testing.T) {
 	if !lb || db != c.Rejection.LowerBoundDB || db < 120 {
 		t.Errorf("value %.1f dB lower bound %v", db, lb)
 	}
-	if !c.Decision.JudgedOnLowerBound || c.Decision.State != fit.StatePass {
+	if c.Decision.JudgedOnLowerBound || c.Decision.State != fit.StatePass || c.Decision.JudgedDB < db {
 		t.Errorf("decision %+v", c.Decision)
+	}
+	p.Decision.Rule = plan.RuleGuarded
+	res = azAnalyze(t, p, rs, Inputs{})
+	c = azRatio(t, res, "U1", plan.TestCMRR, 0)
+	if !c.Decision.JudgedOnLowerBound || c.Decision.State != fit.StatePass {
+		t.Errorf("guarded decision %+v", c.Decision)
 	}
 }
 
