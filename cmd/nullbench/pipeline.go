@@ -278,6 +278,22 @@ func anyFailed(c *report.Campaign) bool {
 
 // printSummary writes the short summary a person reads after a campaign.
 func printSummary(w io.Writer, c *report.Campaign, book string) {
+	// cmrr_uncorrected is left out of the unit verdicts and the lowest
+	// figures where a corrected cmrr of the same unit and temperature
+	// stands beside it; without one it is the only common-mode figure.
+	type ut struct {
+		unit string
+		t    float64
+	}
+	hasCMRR := map[ut]bool{}
+	for _, r := range c.Results {
+		if r.Test == plan.TestCMRR {
+			hasCMRR[ut{r.Unit, r.TemperatureC}] = true
+		}
+	}
+	shadowed := func(r report.Result) bool {
+		return r.Test == analysis.ResultCMRRUncorrected && hasCMRR[ut{r.Unit, r.TemperatureC}]
+	}
 	counts := map[report.VerdictKind]int{}
 	for _, r := range c.Results {
 		counts[report.VerdictClass(r.Verdict)]++
@@ -290,7 +306,7 @@ func printSummary(w io.Writer, c *report.Campaign, book string) {
 	var units []string
 	for _, r := range c.Results {
 		k := report.VerdictClass(r.Verdict)
-		if k == report.KindNotJudged || k == report.KindOther || r.Test == analysis.ResultCMRRUncorrected {
+		if k == report.KindNotJudged || k == report.KindOther || shadowed(r) {
 			continue
 		}
 		cur, ok := unitKind[r.Unit]
@@ -315,7 +331,7 @@ func printSummary(w io.Writer, c *report.Campaign, book string) {
 	worst := map[string]report.Result{}
 	var order []string
 	for _, r := range c.Results {
-		if r.Test == analysis.ResultCMRRUncorrected {
+		if shadowed(r) {
 			continue
 		}
 		cur, ok := worst[r.Test]

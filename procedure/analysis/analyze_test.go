@@ -162,6 +162,15 @@ func azRatio(t *testing.T, res *Results, unit, name string, cond int) *RatioResu
 	return nil
 }
 
+func azHasNote(r *RatioResult, sub string) bool {
+	for _, n := range r.Notes {
+		if strings.Contains(n, sub) {
+			return true
+		}
+	}
+	return false
+}
+
 func azHasRatio(res *Results, unit, name string) bool {
 	for _, r := range res.Ratios {
 		if r.Unit == unit && r.Name == name {
@@ -345,10 +354,24 @@ func TestAnalyzeSignConventions(t *testing.T) {
 				// coefficient by 1/(1 − ko·K): allow for it.
 				tol := func(want float64) float64 { return 0.002 + math.Abs(want)*math.Abs(o.ko)*1000 }
 				want := tc.cmrr(o) * 1e6
-				c := azRatio(t, res, "U1", plan.TestCMRR, 0)
+				// Where the output moves with the common mode and no aol
+				// test corrects it, the figure is k_c + k_o: it is only
+				// ever called cmrr_uncorrected, never cmrr.
+				onlyUncorrected := !tc.corrected && !(tc.fixture == plan.FixtureNullingLoop && tc.cm == plan.CMByInputDrive)
+				name := plan.TestCMRR
+				if onlyUncorrected {
+					name = ResultCMRRUncorrected
+					if azHasRatio(res, "U1", plan.TestCMRR) {
+						t.Errorf("k_c + k_o reported as cmrr")
+					}
+				}
+				c := azRatio(t, res, "U1", name, 0)
 				azCheckCoef(t, c, want, tol(want))
-				if c.AOLCorrected != tc.corrected || azHasRatio(res, "U1", ResultCMRRUncorrected) != tc.corrected {
+				if c.AOLCorrected != tc.corrected || azHasRatio(res, "U1", ResultCMRRUncorrected) != (tc.corrected || onlyUncorrected) {
 					t.Errorf("corrected %v, cmrr_uncorrected present %v; want %v", c.AOLCorrected, azHasRatio(res, "U1", ResultCMRRUncorrected), tc.corrected)
+				}
+				if onlyUncorrected && !azHasNote(c, "k_c + k_o, not CMRR") {
+					t.Errorf("notes %q do not say what the figure contains", c.Notes)
 				}
 				azCheckCoef(t, azRatio(t, res, "U1", plan.TestPSRRPos, 0), o.kp*1e6, tol(o.kp*1e6))
 				azCheckCoef(t, azRatio(t, res, "U1", plan.TestPSRRNeg, 0), o.kn()*1e6, tol(o.kn()*1e6))
@@ -697,5 +720,30 @@ func TestAnalyzeNonlinearity(t *testing.T) {
 			t.Errorf("quad fitted %v, want %v", c.QuadFitted, quad)
 		}
 		azCheckCoef(t, c, 10, 0.002) // symmetric levels: the line's slope is kc too
+	}
+}
+
+// TestAnalyzeUncorrectedBoundByRatedAOL: a supply-shift common-mode result
+// without an aol test is k_c + k_o (derived from k_c + k_p + k_n + k_o = 0,
+// no published source); with the part's rated A_OL ≥ 100 dB, |k_o| ≤
+// 10 µV/V, so a measured 25 µV/V brackets CMRR between
+// 20·log10(10⁶/35) = 89.12 dB and 20·log10(10⁶/15) = 96.48 dB, and the
+// true 20·log10(10⁶/20) = 93.98 dB lies inside.
+func TestAnalyzeUncorrectedBoundByRatedAOL(t *testing.T) {
+	p := azOpAmpPlan(plan.FixtureNullingLoop, plan.CMBySupplyShift, plan.TestCMRR)
+	p.Part.AOLMinDB = 100
+	rs := azNewBench(p, 3, 1e-9).opAmpReadings(nil, "U1", 0, 25, azOpAmp{kc: 20e-6, kp: 1e-6, ko: 5e-6})
+	res := azAnalyze(t, p, rs, Inputs{})
+	c := azRatio(t, res, "U1", ResultCMRRUncorrected, 0)
+	if azHasRatio(res, "U1", plan.TestCMRR) {
+		t.Fatal("k_c + k_o reported as cmrr")
+	}
+	if !azHasNote(c, "|k_o| ≤ 10 µV/V against |k| = 25") || !azHasNote(c, "between 89.12 and 96.48 dB") {
+		t.Errorf("notes %q", c.Notes)
+	}
+	p.Part.AOLMinDB = 0
+	res = azAnalyze(t, p, rs, Inputs{})
+	if c := azRatio(t, res, "U1", ResultCMRRUncorrected, 0); !azHasNote(c, "give part.aol_min_db") {
+		t.Errorf("notes without a rated A_OL %q", c.Notes)
 	}
 }

@@ -328,6 +328,10 @@ func (c *planChecker) part() {
 		c.add("part.input_beyond_rail_volts", "give the absolute maximum of an input beyond a rail, e.g. 0.3",
 			"%g V is negative", pt.InputBeyondRailVolts)
 	}
+	if pt.AOLMinDB < 0 || pt.AOLMinDB > 250 || math.IsNaN(pt.AOLMinDB) {
+		c.add("part.aol_min_db", "give the datasheet's minimum open-loop gain in dB, e.g. 110, or leave it out",
+			"rated open-loop gain %g dB is out of range", pt.AOLMinDB)
+	}
 }
 
 func (c *planChecker) decision() {
