@@ -478,26 +478,26 @@ type HandOptions struct {
 
 // HandResult is the analysis of hand-taken readings, ready for JSON.
 type HandResult struct {
-	Stimulus           string      `json:"stimulus"`
-	Quantity           string      `json:"quantity"` // "CMRR" or "PSRR"
-	N                  int         `json:"n"`
-	Gain               float64     `json:"gain"`
-	DriftFitted        bool        `json:"drift_fitted"`
-	Slope              float64     `json:"slope"`
-	SlopeU             float64     `json:"slope_u"`
-	Intercept          float64     `json:"intercept_volts"`
-	DriftVoltsPerS     float64     `json:"drift_volts_per_s"`
-	ResidualSD         float64     `json:"residual_sd"`
-	DOF                int         `json:"dof"`
-	CoefficientUVPerV  float64     `json:"coefficient_uV_per_V"`
-	CoefficientUUVPerV float64     `json:"coefficient_u_uV_per_V"`
-	RatioDB            float64     `json:"ratio_db"`
-	ExpandedUDB        float64     `json:"expanded_u_db"`
-	LowerDB            float64     `json:"lower_db"`
-	UpperDB            float64     `json:"upper_db"`
-	CoverageK          float64     `json:"coverage_k"`
-	EffectiveDOF       DOF         `json:"effective_dof"`
-	Resolved           bool        `json:"resolved"`
-	LowerBoundDB       float64     `json:"lower_bound_db"`
-	Budget             []BudgetRow `json:"budget"`
+	Stimulus              string      `json:"stimulus"`
+	Quantity              string      `json:"quantity"` // "CMRR" or "PSRR"
+	N                     int         `json:"n"`
+	Gain                  float64     `json:"gain"`
+	DriftFitted           bool        `json:"drift_fitted"`
+	Slope                 float64     `json:"slope"`
+	SlopeU                float64     `json:"slope_u"`
+	Intercept             float64     `json:"intercept_volts"`
+	DriftVoltsPerS        float64     `json:"drift_volts_per_s"`
+	ResidualSD            float64     `json:"residual_sd"`
+	DOF                   int         `json:"dof"`
+	CoefficientUVPerV     float64     `json:"coefficient_uV_per_V"`
+	CoefficientStdUUVPerV float64     `json:"coefficient_std_u_uV_per_V"`
+	RatioDB               float64     `json:"ratio_db"`
+	ExpandedUDB           float64     `json:"expanded_u_db"`
+	LowerDB               float64     `json:"lower_db"`
+	UpperDB               float64     `json:"upper_db"`
+	CoverageK             float64     `json:"coverage_k"`
+	EffectiveDOF          DOF         `json:"effective_dof"`
+	Resolved              bool        `json:"resolved"`
+	LowerBoundDB          float64     `json:"lower_bound_db"`
+	Budget                []BudgetRow `json:"budget"`
 }

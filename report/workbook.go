@@ -490,16 +490,17 @@ func writeUnits(f *excelize.File, st *styles, c *Campaign) error {
 
 // resultHeaders are the Results sheet headers, in order.
 var resultHeaders = []string{
-	"Unit", "Test", "Temperature (°C)", "Coefficient (µV/V)", "Std. uncertainty of coefficient (µV/V)",
+	"Unit", "Test", "Temperature (°C)", "Coefficient (µV/V)", "Standard uncertainty u of coefficient (µV/V)",
+	"Expanded uncertainty U of coefficient (µV/V)",
 	"Ratio (dB)", "Expanded uncertainty U (dB)", "U below (dB)", "U above (dB)", "Coverage factor k",
 	"Effective degrees of freedom", "Resolved", "Lower bound (dB)", "Reported (dB)", "Statement",
-	"Limit (dB)", "Margin to limit (dB)", "Verdict", "Decision rule", "Flags",
+	"Limit (dB)", "Margin to limit (dB)", "Verdict", "Decision rule", "Flags", "Notes",
 }
 
 func writeResults(f *excelize.File, st *styles, c *Campaign) error {
-	colStyles := []int{st.text, st.text, st.celsius, st.uvpv, st.uvpv, st.db, st.db, st.db, st.db, st.k,
-		st.dof, st.text, st.db, st.db, st.text, st.db, st.db, st.text, st.text, st.text}
-	widths := []float64{12, 12, 12, 14, 16, 11, 13, 10, 10, 10, 12, 10, 11, 11, 36, 10, 11, 13, 12, 24}
+	colStyles := []int{st.text, st.text, st.celsius, st.uvpv, st.uvpv, st.uvpv, st.db, st.db, st.db, st.db, st.k,
+		st.dof, st.text, st.db, st.db, st.text, st.db, st.db, st.text, st.text, st.text, st.text}
+	widths := []float64{12, 12, 12, 14, 16, 16, 11, 13, 10, 10, 10, 12, 10, 11, 11, 36, 10, 11, 13, 12, 24, 60}
 	spec := tableSpec{sheet: SheetResults, table: "tblResults", freezeCols: 2}
 	for i, h := range resultHeaders {
 		spec.cols = append(spec.cols, column{h, widths[i], colStyles[i]})
@@ -508,30 +509,35 @@ func writeResults(f *excelize.File, st *styles, c *Campaign) error {
 		r := &c.Results[i]
 		rep := r.ReportedDB()
 		d[0], d[1], d[2] = r.Unit, r.Test, num(r.TemperatureC)
-		d[3], d[4] = num(r.CoefficientUVPerV), num(r.CoefficientUUVPerV)
-		d[5], d[6], d[7], d[8] = num(r.RatioDB), num(r.ExpandedUDB), num(r.ExpandedUDBLow), num(r.ExpandedUDBHigh)
-		d[9], d[10] = num(r.CoverageK), num(r.DOFEffective)
-		d[11] = "yes"
+		d[3], d[4], d[5] = num(r.CoefficientUVPerV), num(r.CoefficientStdUUVPerV), num(r.CoefficientExpandedUUVPerV)
+		d[6], d[7], d[8], d[9] = num(r.RatioDB), num(r.ExpandedUDB), num(r.ExpandedUDBLow), num(r.ExpandedUDBHigh)
+		d[10], d[11] = num(r.CoverageK), num(r.DOFEffective)
+		d[12] = "yes"
 		if !r.Resolved {
-			d[11] = excelize.Cell{StyleID: st.attention, Value: "no: lower bound"}
-			d[12] = num(r.LowerBoundDB)
+			d[12] = excelize.Cell{StyleID: st.attention, Value: "no: lower bound"}
+			d[13] = num(r.LowerBoundDB)
 		}
-		d[13] = num(rep)
-		d[14] = statement(r)
-		d[15] = num(r.LimitDB)
+		d[14] = num(rep)
+		d[15] = statement(r)
+		d[16] = num(r.LimitDB)
 		if !math.IsNaN(r.LimitDB) {
-			d[16] = num(rep - r.LimitDB)
+			d[17] = num(rep - r.LimitDB)
 		}
 		k := VerdictClass(r.Verdict)
 		label := k.Label()
 		if k == KindOther {
 			label = r.Verdict
 		}
-		d[17] = excelize.Cell{StyleID: st.verdict[k], Value: label}
-		d[18] = r.Rule
-		d[19] = joinFlags(r.Flags)
+		d[18] = excelize.Cell{StyleID: st.verdict[k], Value: label}
+		d[19] = r.Rule
+		d[20] = joinFlags(r.Flags)
+		d[21] = joinNotes(r.Notes)
 	})
 }
+
+// joinNotes joins a result's notes for one cell (NotesSeparator, as in
+// the CSV).
+func joinNotes(n []string) string { return strings.Join(n, NotesSeparator) }
 
 // statement is the result in words, e.g. "121.35 dB, U = 0.42 dB (k = 2.00)"
 // or "≥ 143.70 dB (not resolved)".

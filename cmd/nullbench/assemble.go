@@ -163,11 +163,12 @@ func addResults(c *report.Campaign, res *analysis.Results) {
 		}
 		c.Results = append(c.Results, report.Result{
 			Unit: r.Unit, Test: r.Name, TemperatureC: t,
-			CoefficientUVPerV: rj.CoefficientUVPerV, CoefficientUUVPerV: rj.StdUncUVPerV,
-			RatioDB: rj.RatioDB, ExpandedUDB: rj.ExpandedUDB, ExpandedUDBLow: low, ExpandedUDBHigh: high,
+			CoefficientUVPerV: rj.CoefficientUVPerV, CoefficientStdUUVPerV: rj.StdUncUVPerV,
+			CoefficientExpandedUUVPerV: rj.ExpandedUUVPerV,
+			RatioDB: ratioOrNaN(rj), ExpandedUDB: rj.ExpandedUDB, ExpandedUDBLow: low, ExpandedUDBHigh: high,
 			CoverageK: rj.CoverageK, DOFEffective: float64(rj.EffectiveDOF),
 			Resolved: rj.Resolved, LowerBoundDB: rj.LowerBoundDB,
-			LimitDB: limit, Verdict: verdict, Rule: rule, Flags: flags,
+			LimitDB: limit, Verdict: verdict, Rule: rule, Flags: flags, Notes: r.Notes,
 		})
 		for _, b := range rj.Budget.Rows {
 			c.Budgets = append(c.Budgets, budgetRow(r.Unit, r.Name, t, b))
@@ -300,4 +301,14 @@ func fitRow(unit, test, sweep string, t float64, l fit.LineFit, gain float64, nl
 		row.SpanMismatch = nl.SpanDependent
 	}
 	return row
+}
+
+// ratioOrNaN is the ratio of a resolved result; an unresolved one has no
+// ratio (only its lower bound), which the report writes as null or an
+// empty cell rather than 0.
+func ratioOrNaN(r fit.Rejection) float64 {
+	if !r.Resolved {
+		return math.NaN()
+	}
+	return r.RatioDB
 }

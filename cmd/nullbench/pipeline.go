@@ -354,7 +354,21 @@ func printSummary(w io.Writer, c *report.Campaign, book string) {
 		}
 		fmt.Fprintf(w, "  lowest %-16s %s%7.2f dB ± %.2f  unit %s at %.0f °C%s\n", t, mark, r.ReportedDB(), r.ExpandedUDB, r.Unit, r.TemperatureC, limit)
 	}
+	if n := notedResults(c); n > 0 {
+		fmt.Fprintf(w, "notes:   %d of %d results carry notes (the notes list in the JSON lines, the Notes column of the CSV and the Results sheet)\n", n, len(c.Results))
+	}
 	if book != "" {
 		fmt.Fprintf(w, "workbook: %s\n", book)
 	}
+}
+
+// notedResults counts the results that carry analysis notes.
+func notedResults(c *report.Campaign) int {
+	n := 0
+	for _, r := range c.Results {
+		if len(r.Notes) > 0 {
+			n++
+		}
+	}
+	return n
 }

@@ -3,6 +3,7 @@ package main
 import (
 	"context"
 	"encoding/csv"
+	"fmt"
 	"math"
 	"net"
 	"os"
@@ -170,6 +171,9 @@ func TestRunOnSimulatedBench(t *testing.T) {
 			if !regexp.MustCompile(`results: \d+ pass, `).MatchString(summary) || !strings.Contains(summary, "workbook: "+filepath.Join(out, "campaign.xlsx")) {
 				t.Errorf("no summary where expected (json %v):\nstdout:\n%s\nstderr:\n%s", tt.json, r.out, r.err)
 			}
+			if strings.Contains(tt.results[0], "cmrr_uncorrected") && !regexp.MustCompile(`notes: +\d+ of \d+ results carry notes`).MatchString(summary) {
+				t.Errorf("summary does not count the noted results:\n%s", summary)
+			}
 			if tt.code == exitOutOfLimits && !strings.Contains(r.err, "did not pass their limits") {
 				t.Errorf("exit 5 without saying why:\n%s", r.err)
 			}
@@ -200,6 +204,10 @@ func TestRunOnSimulatedBench(t *testing.T) {
 				unit, test := m["unit"].(string), m["test"].(string)
 				if unit+"/"+test != tt.results[i] {
 					t.Errorf("result %d is %s/%s, want %s", i, unit, test, tt.results[i])
+				}
+				// A figure without aol says what it contains, in its notes.
+				if test == "cmrr_uncorrected" && !strings.Contains(fmt.Sprint(m["notes"]), "k_c + k_o, not CMRR") {
+					t.Errorf("%s/%s notes %v do not say the figure is k_c + k_o", unit, test, m["notes"])
 				}
 				if m["verdict"] != tt.verdict[test] {
 					t.Errorf("%s/%s verdict %v, want %s", unit, test, m["verdict"], tt.verdict[test])

@@ -837,11 +837,19 @@ func (a *analyzer) analyzeOpAmp() {
 			continue
 		}
 		a.nonlinearity(&r, s, K)
+		if k.test == plan.TestPSRRSym {
+			r.Notes = append(r.Notes, psrrSymNote)
+		}
 		sign := conv.sign
 		r.Repeats = repeatValues(s, func(l fit.LineFit) float64 { return sign * 1e6 * l.Slope.Value / K })
 		a.res.Ratios = append(a.res.Ratios, r)
 	}
 }
+
+// psrrSymNote states psrr_sym's convention: per volt of total span. Each
+// rail moves by half the span, so per volt of one rail's move the
+// coefficient is twice as large and the ratio 20·log10(2) = 6.02 dB lower.
+const psrrSymNote = "per volt of total supply span V+ − V− (each rail moves half the span); a per-rail figure (per volt of each rail's move) is 6.02 dB lower"
 
 // sortResults orders ratios by unit (plan order), condition, then name,
 // and closures and boards by unit and condition.

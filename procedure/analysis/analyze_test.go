@@ -377,7 +377,13 @@ func TestAnalyzeSignConventions(t *testing.T) {
 				azCheckCoef(t, azRatio(t, res, "U1", plan.TestPSRRNeg, 0), o.kn()*1e6, tol(o.kn()*1e6))
 				if azHasRatio(res, "U1", plan.TestPSRRSym) {
 					w := (o.kp - o.kn()) / 2 * 1e6
-					azCheckCoef(t, azRatio(t, res, "U1", plan.TestPSRRSym, 0), w, tol(w))
+					sym := azRatio(t, res, "U1", plan.TestPSRRSym, 0)
+					azCheckCoef(t, sym, w, tol(w))
+					// Per volt of span; per volt of one rail 20·log10(2) =
+					// 6.02 dB lower (derived).
+					if !azHasNote(sym, "per volt of total supply span") || !azHasNote(sym, "6.02 dB lower") {
+						t.Errorf("psrr_sym notes %q do not state the convention", sym.Notes)
+					}
 				}
 				if azHasRatio(res, "U1", plan.TestAOL) && o.ko != 0 {
 					azCheckCoef(t, azRatio(t, res, "U1", plan.TestAOL, 0), o.ko*1e6, 0.002)
