@@ -165,7 +165,7 @@ func addResults(c *report.Campaign, res *analysis.Results) {
 			Unit: r.Unit, Test: r.Name, TemperatureC: t,
 			CoefficientUVPerV: rj.CoefficientUVPerV, CoefficientStdUUVPerV: rj.StdUncUVPerV,
 			CoefficientExpandedUUVPerV: rj.ExpandedUUVPerV,
-			RatioDB: ratioOrNaN(rj), ExpandedUDB: rj.ExpandedUDB, ExpandedUDBLow: low, ExpandedUDBHigh: high,
+			RatioDB:                    ratioOrNaN(rj), ExpandedUDB: rj.ExpandedUDB, ExpandedUDBLow: low, ExpandedUDBHigh: high,
 			CoverageK: rj.CoverageK, DOFEffective: float64(rj.EffectiveDOF),
 			Resolved: rj.Resolved, LowerBoundDB: rj.LowerBoundDB,
 			LimitDB: limit, Verdict: verdict, Rule: rule, Flags: flags, Notes: r.Notes,
