@@ -386,6 +386,10 @@ func (c *planChecker) tests() {
 		default:
 			c.add(k+".order", `use "zigzag" (default), "symmetric" or "ascending"`, "unknown order %q", t.Order)
 		}
+		if t.Order == OrderAscending && t.DriftTerm && t.Repeats <= 1 {
+			c.add(k+".order", `use order = "zigzag" (or "symmetric"), whose time does not track the level, or set drift_term = false`,
+				"ascending order in one pass with drift_term: time rises with the level, so drift and slope cannot be told apart")
+		}
 		if t.Repeats < 1 || t.Repeats > 1000 {
 			c.add(k+".repeats", "give 1 to 1000 passes", "repeats %d is out of range", t.Repeats)
 		}
