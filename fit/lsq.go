@@ -522,3 +522,35 @@ func ddAdd(ah, al, bh, bl float64) (float64, float64) {
 	e += al + bl
 	return twoSum(s, e)
 }
+
+// VarianceInflation returns the variance inflation factor of a regressor
+// a against one other regressor b in a model with an intercept,
+//
+//	VIF = 1/(1 − r²),  r = Pearson correlation of a and b
+//
+// (Marquardt, Technometrics 12, 1970; Draper & Smith, Applied Regression
+// Analysis, ch. 16): how many times the variance of a's coefficient grows
+// because b is in the model. It is +Inf when a and b are collinear and
+// NaN when either does not vary. Values above 10 are the usual warning
+// threshold (common practice, no published source for the number).
+func VarianceInflation(a, b []float64) float64 {
+	if len(a) != len(b) {
+		panic(fmt.Sprintf("fit.VarianceInflation: len(a) = %d, len(b) = %d", len(a), len(b)))
+	}
+	ma, mb := mean(a), mean(b)
+	var saa, sbb, sab float64
+	for i := range a {
+		da, db := a[i]-ma, b[i]-mb
+		saa += da * da
+		sbb += db * db
+		sab += da * db
+	}
+	if saa == 0 || sbb == 0 {
+		return math.NaN()
+	}
+	r2 := sab * sab / (saa * sbb)
+	if r2 >= 1 {
+		return math.Inf(1)
+	}
+	return 1 / (1 - r2)
+}

@@ -182,3 +182,20 @@ func TestLineStdErrMatchesFormula(t *testing.T) {
 		t.Errorf("residuals sum to %v with an intercept", sum)
 	}
 }
+
+// TestVarianceInflation: VIF = 1/(1 − r²) (Marquardt 1970). Ascending
+// levels with time rising alongside are collinear (+Inf); a zigzag
+// 0, +1, −1, +2, −2 against time 0..4 has r = −0.3 by hand
+// (Σ(x−x̄)(t−t̄) = −3, Σ(x−x̄)² = 10, Σ(t−t̄)² = 10), so VIF = 1/0.91.
+func TestVarianceInflation(t *testing.T) {
+	tm := []float64{0, 1, 2, 3, 4}
+	if v := VarianceInflation([]float64{-2, -1, 0, 1, 2}, tm); !math.IsInf(v, 1) {
+		t.Errorf("ascending: VIF %g, want +Inf", v)
+	}
+	if v := VarianceInflation([]float64{0, 1, -1, 2, -2}, tm); math.Abs(v-1/0.91) > 1e-12 {
+		t.Errorf("zigzag: VIF %.15g, want %.15g", v, 1/0.91)
+	}
+	if v := VarianceInflation([]float64{1, 1, 1, 1, 1}, tm); !math.IsNaN(v) {
+		t.Errorf("constant: VIF %g, want NaN", v)
+	}
+}

@@ -609,8 +609,19 @@ func fitSweep(rs []journal.Reading, t *plan.Test) (sweep, error) {
 		return s, err
 	}
 	s.line, s.drift, s.quad = line, drift, quad
+	if drift {
+		if vif := fit.VarianceInflation(s.x, s.t); vif > maxDriftVIF {
+			s.notes = append(s.notes, fmt.Sprintf("drift term nearly collinear with the level (variance inflation %.3g > %g): "+
+				"the slope's uncertainty is inflated that many times; take the levels in zigzag order", vif, float64(maxDriftVIF)))
+		}
+	}
 	return s, nil
 }
+
+// maxDriftVIF is the variance inflation of the drift term above which a
+// result is noted (fit.VarianceInflation; 10 is common practice, no
+// published source for the number).
+const maxDriftVIF = 10
 
 // lineWithFallback fits y against x with the requested drift and quadratic
 // terms; when the design cannot carry them (too few points, or time

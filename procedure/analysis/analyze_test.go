@@ -638,6 +638,30 @@ func TestAnalyzeDriftTerm(t *testing.T) {
 	}
 }
 
+// TestAnalyzeDriftNearlyCollinear: ascending levels whose settle times
+// vary a little make time and level nearly, not exactly, collinear; the
+// fit then succeeds, but the drift term's variance inflation 1/(1 − r²)
+// (Marquardt 1970) is large and the result says so.
+func TestAnalyzeDriftNearlyCollinear(t *testing.T) {
+	p := azOpAmpPlan(plan.FixtureNullingLoop, plan.CMByInputDrive, plan.TestCMRR)
+	p.Tests[0].Order = plan.OrderAscending
+	sim := azNewBench(p, 4, 0.2e-6)
+	rs := sim.opAmpReadings(nil, "U1", 0, 25, azOpAmp{kc: 1e-6})
+	for i := range rs {
+		rs[i].BenchSeconds += 0.3 * math.Sin(7*float64(i)) // settle times vary by ±0.3 s
+	}
+	c := azRatio(t, azAnalyze(t, p, rs, Inputs{}), "U1", plan.TestCMRR, 0)
+	if !c.DriftFitted || !azHasNote(c, "nearly collinear") {
+		t.Errorf("drift fitted %v, notes %q", c.DriftFitted, c.Notes)
+	}
+	// The zigzag order of the same plan is not noted.
+	p.Tests[0].Order = plan.OrderZigzag
+	c = azRatio(t, azAnalyze(t, p, azNewBench(p, 4, 0.2e-6).opAmpReadings(nil, "U1", 0, 25, azOpAmp{kc: 1e-6}), Inputs{}), "U1", plan.TestCMRR, 0)
+	if !c.DriftFitted || azHasNote(c, "nearly collinear") {
+		t.Errorf("zigzag: drift fitted %v, notes %q", c.DriftFitted, c.Notes)
+	}
+}
+
 // TestAnalyzeTemperatureConditions: readings are grouped by temperature
 // index, with small measured wander kept together, and split where an
 // index holds readings far apart in temperature.
