@@ -554,3 +554,19 @@ func VarianceInflation(a, b []float64) float64 {
 	}
 	return 1 / (1 - r2)
 }
+
+// SlopeAt returns the slope of the fitted curve at stimulus x0,
+//
+//	dy/dx(x0) = b1 + 2·b3·x0,  u² = u(b1)² + 4·x0²·u(b3)² + 4·x0·cov(b1, b3)
+//
+// (GUM 5.2.2, correlated inputs, with the covariances of the fit). Without
+// a quadratic term it is the slope itself.
+func (f LineFit) SlopeAt(x0 float64) Term {
+	if !f.HasQuad || f.QuadIndex < 0 || f.SlopeIndex < 0 {
+		return f.Slope
+	}
+	c := f.Model.Cov
+	i, j := f.SlopeIndex, f.QuadIndex
+	v := c[i][i] + 4*x0*x0*c[j][j] + 4*x0*c[i][j]
+	return Term{Name: f.Slope.Name, Value: f.Slope.Value + 2*f.Quad.Value*x0, StdErr: math.Sqrt(math.Max(v, 0))}
+}

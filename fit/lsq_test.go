@@ -199,3 +199,39 @@ func TestVarianceInflation(t *testing.T) {
 		t.Errorf("constant: VIF %g, want NaN", v)
 	}
 }
+
+// TestSlopeAt: y = 1 + 2x + 0.5x² exactly has slope 2 + x: 2 at 0 and 5 at
+// 3 (calculus). With noise, the standard error at the centre of the data
+// equals that of the slope refitted on x − x̄ (the same model
+// reparametrised, so the same variance: GUM 5.2.2 with the fit's
+// covariance).
+func TestSlopeAt(t *testing.T) {
+	x := []float64{0, 1, 2, 3, 4, 5, 6}
+	y := make([]float64, len(x))
+	for i, v := range x {
+		y[i] = 1 + 2*v + 0.5*v*v + 1e-3*math.Sin(3*v)
+	}
+	f, err := Line(x, y, LineOptions{Quadratic: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if s := f.SlopeAt(3); math.Abs(s.Value-5) > 0.01 {
+		t.Errorf("slope at 3: %g, want 5", s.Value)
+	}
+	xc := make([]float64, len(x))
+	for i, v := range x {
+		xc[i] = v - 3
+	}
+	fc, err := Line(xc, y, LineOptions{Quadratic: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	s := f.SlopeAt(3)
+	if math.Abs(s.Value-fc.Slope.Value) > 1e-9 || math.Abs(s.StdErr-fc.Slope.StdErr) > 1e-9*fc.Slope.StdErr+1e-15 {
+		t.Errorf("slope at centre %g ± %g, centred refit %g ± %g", s.Value, s.StdErr, fc.Slope.Value, fc.Slope.StdErr)
+	}
+	lin, _ := Line(x, y, LineOptions{})
+	if lin.SlopeAt(3) != lin.Slope {
+		t.Errorf("no quadratic term: SlopeAt changed the slope")
+	}
+}

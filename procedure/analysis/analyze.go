@@ -6,6 +6,7 @@ import (
 	"math"
 	"slices"
 	"sort"
+	"strconv"
 
 	"nullbench/fit"
 	"nullbench/procedure/journal"
@@ -553,8 +554,10 @@ type sweep struct {
 	x, y, t   []float64 // stimulus volts, meter volts, bench seconds
 	repeat    []int
 	line      fit.LineFit
-	drift     bool // drift term fitted
-	quad      bool // quadratic term fitted
+	coefLine  fit.LineFit // line with Slope at the centre of the sweep (atCentre)
+	drift     bool        // drift term fitted
+	quad      bool        // quadratic term fitted
+	curvature bool        // quadratic term fitted because the curvature test fired
 	meanTempC float64
 
 	points, excluded, flagged, readBack int
@@ -608,7 +611,29 @@ func fitSweep(rs []journal.Reading, t *plan.Test) (sweep, error) {
 	if err != nil {
 		return s, err
 	}
+	if !quad {
+		// The curvature test of fit.Nonlinear: when the quadratic term is
+		// significant, a straight line leaves it in the residuals (the
+		// Type A is inflated and the slope depends on the level mix), so
+		// it is fitted.
+		opt := fit.NonlinOptions{}
+		if drift {
+			opt.Time = s.t
+		}
+		if nl, err := fit.Nonlinear(s.x, s.y, opt); err == nil && nl.QuadSignificant {
+			if ql, err := fitLine(s.x, s.y, s.t, drift, true); err == nil {
+				line, quad = ql, true
+				s.curvature = true
+				s.notes = append(s.notes, fmt.Sprintf("significant curvature (t = %.1f): quadratic term fitted; the coefficient is the slope at the centre of the sweep (%s V)",
+					nl.QuadT, strconv.FormatFloat(centreOf(line), 'g', 4, 64)))
+			}
+		}
+	} else {
+		s.notes = append(s.notes, fmt.Sprintf("quadratic term fitted (plan): the coefficient is the slope at the centre of the sweep (%s V)",
+			strconv.FormatFloat(centreOf(line), 'g', 4, 64)))
+	}
 	s.line, s.drift, s.quad = line, drift, quad
+	s.coefLine = atCentre(line)
 	if drift {
 		if vif := fit.VarianceInflation(s.x, s.t); vif > maxDriftVIF {
 			s.notes = append(s.notes, fmt.Sprintf("drift term nearly collinear with the level (variance inflation %.3g > %g): "+
@@ -622,6 +647,30 @@ func fitSweep(rs []journal.Reading, t *plan.Test) (sweep, error) {
 // result is noted (fit.VarianceInflation; 10 is common practice, no
 // published source for the number).
 const maxDriftVIF = 10
+
+// fitLine fits y against x with or without the drift and quadratic terms.
+func fitLine(x, y, t []float64, drift, quad bool) (fit.LineFit, error) {
+	opt := fit.LineOptions{Quadratic: quad}
+	if drift {
+		opt.Time = t
+	}
+	return fit.Line(x, y, opt)
+}
+
+// centreOf is the centre of a fit's stimulus range, (x_min + x_max)/2.
+func centreOf(l fit.LineFit) float64 { return (l.XMin + l.XMax) / 2 }
+
+// atCentre returns the fit with its Slope replaced by the slope of the
+// fitted curve at the centre of the sweep (fit.LineFit.SlopeAt); a fit
+// without a quadratic term is returned as it is. The coefficient of a
+// curved transfer is this slope: the mean slope over a sweep symmetric
+// about its centre.
+func atCentre(l fit.LineFit) fit.LineFit {
+	if l.HasQuad {
+		l.Slope = l.SlopeAt(centreOf(l))
+	}
+	return l
+}
 
 // lineWithFallback fits y against x with the requested drift and quadratic
 // terms; when the design cannot carry them (too few points, or time
@@ -761,7 +810,7 @@ func repeatValues(s sweep, coef func(fit.LineFit) float64) []RepeatValue {
 		if err != nil {
 			continue
 		}
-		out = append(out, newRepeatValue(r, len(idx), coef(line)))
+		out = append(out, newRepeatValue(r, len(idx), coef(atCentre(line))))
 	}
 	return out
 }
@@ -788,7 +837,8 @@ func (a *analyzer) nonlinearity(r *RatioResult, s sweep, divisor float64) {
 	}
 	r.Nonlinearity, r.NonlinearityChecked = nl, true
 	if nl.QuadSignificant {
-		r.Notes = append(r.Notes, fmt.Sprintf("significant curvature (t = %.1f): the coefficient is the slope at zero stimulus", nl.QuadT))
+		r.Notes = append(r.Notes, fmt.Sprintf("non-linearity: largest deviation from a straight line %.3g µV at the input, at %g V",
+			nl.MaxDeviationUV, nl.AtStimulusVolts))
 	}
 	if nl.SpanDependent {
 		r.Notes = append(r.Notes, fmt.Sprintf("slope differs between the lower and upper half of the span (z = %.1f)", nl.SlopeZ))
@@ -839,7 +889,7 @@ func (a *analyzer) analyzeOpAmp() {
 		}
 		r := a.newRatio(k, k.test, conv, s)
 		r.NoiseGain = K
-		b, err := a.coefficientBudget(s.line, K, tol, a.stimulusAccuracy(conv.roles), conv.sign)
+		b, err := a.coefficientBudget(s.coefLine, K, tol, a.stimulusAccuracy(conv.roles), conv.sign)
 		if err == nil {
 			r.Rejection, err = fit.RejectionFromBudget(b)
 		}

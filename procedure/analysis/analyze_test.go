@@ -730,8 +730,11 @@ func TestAnalyzeRefusesBadPlans(t *testing.T) {
 // of the common mode, ΔV_IO = kc·L + q·L² with q = 0.05 µV/V². On the
 // symmetric levels −10 … 10 V the straight line misses the centre by
 // q·(mean of L²) = 0.05·50 = 2.5 µV at L = 0 (input referred); the
-// quadratic term is significant; with the plan's quadratic option the
-// coefficient is the slope at L = 0, i.e. kc.
+// quadratic term is significant, so the quadratic term is fitted whether
+// or not the plan asked for it, and the coefficient is the slope at the
+// centre of the sweep (L = 0), i.e. kc. The straight line would leave the
+// curvature in its residuals: its slope's standard error is larger than
+// the fitted curve's.
 func TestAnalyzeNonlinearity(t *testing.T) {
 	for _, quad := range []bool{false, true} {
 		p := azOpAmpPlan(plan.FixtureNullingLoop, plan.CMByInputDrive, plan.TestCMRR)
@@ -746,11 +749,37 @@ func TestAnalyzeNonlinearity(t *testing.T) {
 		if !c.NonlinearityChecked || !nl.QuadSignificant || math.Abs(nl.MaxDeviationUV-2.5) > 0.01 || nl.AtStimulusVolts != 0 {
 			t.Errorf("quadratic %v: nonlinearity %+v", quad, nl)
 		}
-		if c.QuadFitted != quad {
-			t.Errorf("quad fitted %v, want %v", c.QuadFitted, quad)
+		if !c.QuadFitted {
+			t.Errorf("plan quadratic %v: quad not fitted", quad)
+		}
+		if want := map[bool]string{false: "significant curvature", true: "quadratic term fitted (plan)"}[quad]; !azHasNote(c, want) || !azHasNote(c, "slope at the centre of the sweep (0 V)") {
+			t.Errorf("notes %q, want %q", c.Notes, want)
 		}
 		azCheckCoef(t, c, 10, 0.002) // symmetric levels: the line's slope is kc too
+		x, y := make([]float64, len(rs)), make([]float64, len(rs))
+		for i, r := range rs {
+			x[i], y[i] = r.SetVolts, r.MeterVolts
+		}
+		lin, err := fit.Line(x, y, fit.LineOptions{})
+		if err != nil {
+			t.Fatal(err)
+		}
+		if typeA := c.Rejection.Budget.Rows[0].StdUncertainty; !(typeA < lin.Slope.StdErr/2) {
+			t.Errorf("Type A of the curve %g V/V not below half the straight line's %g V/V", typeA, lin.Slope.StdErr)
+		}
 	}
+	// Levels 0 … 10 V: centre 5 V, slope there kc + 2q·5 V = 10.5 µV/V
+	// (calculus).
+	p := azOpAmpPlan(plan.FixtureNullingLoop, plan.CMByInputDrive, plan.TestCMRR)
+	p.Tests[0].Levels = []float64{0, 2.5, 5, 7.5, 10}
+	rs := azNewBench(p, 8, 0.5e-6).run(nil, "U1", plan.TestCMRR, 0, 25, func(_ int, s plan.BenchState) float64 {
+		return azWorked.meter(p, s) + p.Fixture.NoiseGain*0.05e-6*s.CMVolts*s.CMVolts
+	})
+	c := azRatio(t, azAnalyze(t, p, rs, Inputs{}), "U1", plan.TestCMRR, 0)
+	if !c.QuadFitted || !azHasNote(c, "centre of the sweep (5 V)") {
+		t.Errorf("0…10 V: quad %v notes %q", c.QuadFitted, c.Notes)
+	}
+	azCheckCoef(t, c, 10.5, 0.002)
 }
 
 // TestAnalyzeUncorrectedBoundByRatedAOL: a supply-shift common-mode result
