@@ -48,6 +48,12 @@ type Config struct {
 	Seed int64
 	// AmbientC is the room temperature, °C; 0 means 25.
 	AmbientC float64
+	// SupplyGainErrors, when it has two values, replaces the drawn
+	// programming gain errors of supply channels 1 and 2 (relative: the
+	// output is programmed·(1 + g) + offset). Unequal values make a
+	// supply-shift step move the span by (g1 − g2)·L: a systematic error
+	// the read-backs must reveal. The read-back errors stay as drawn.
+	SupplyGainErrors []float64
 }
 
 // ServeOptions says where the instruments listen.
@@ -144,6 +150,12 @@ func New(cfg Config) (*Bench, error) {
 	psuRng, srcRng := rngFor(2), rngFor(3)
 	sup := newChannels(2, true, psuRng)
 	src := newChannels(3, false, srcRng)
+	if n := len(cfg.SupplyGainErrors); n != 0 && n != 2 {
+		return nil, fmt.Errorf("sim: SupplyGainErrors has %d values; give two (channel 1, channel 2) or none", n)
+	}
+	if len(cfg.SupplyGainErrors) == 2 {
+		sup[0].progGain, sup[1].progGain = cfg.SupplyGainErrors[0], cfg.SupplyGainErrors[1]
+	}
 	copy(m.supply[:], sup)
 	copy(m.source[:], src)
 	m.openOffsetVolts = (2 + 3*m.openRng.Float64()) * 1e-6

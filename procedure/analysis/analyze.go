@@ -715,7 +715,10 @@ const (
 // stimulus gain and offset, plus the shared rows (noise-gain tolerance,
 // meter gain) under fixed names. A negative sign negates the value and
 // every sensitivity, which leaves each contribution unchanged.
-func (a *analyzer) coefficientBudget(line fit.LineFit, K, kTolRel float64, stim plan.Accuracy, sign float64) (fit.Budget, error) {
+//
+// more are rows of the signed coefficient (their sensitivities are given
+// for the signed value and are not negated).
+func (a *analyzer) coefficientBudget(line fit.LineFit, K, kTolRel float64, stim plan.Accuracy, sign float64, more ...fit.BudgetRow) (fit.Budget, error) {
 	k := 1e6 * line.Slope.Value / K
 	var extra []fit.BudgetRow
 	if kTolRel > 0 {
@@ -738,6 +741,9 @@ func (a *analyzer) coefficientBudget(line fit.LineFit, K, kTolRel float64, stim 
 		for i := range b.Rows {
 			b.Rows[i].Sensitivity = -b.Rows[i].Sensitivity
 		}
+	}
+	if len(more) > 0 {
+		return fit.Combine(b.Measurand, b.Unit, b.Value, append(b.Rows, more...), a.cov)
 	}
 	return b, nil
 }
@@ -871,9 +877,7 @@ func joinRoles(roles []string) string {
 
 // analyzeOpAmp fits every sweep of a nulling-loop or noise-gain fixture.
 func (a *analyzer) analyzeOpAmp() {
-	K, tol := a.p.Fixture.NoiseGain, a.p.Fixture.NoiseGainTolerance
 	for _, k := range a.keys {
-		t := a.testOf(k.test)
 		c := a.res.Conditions[k.cond]
 		switch k.test {
 		case plan.TestCMRR, plan.TestPSRRPos, plan.TestPSRRNeg, plan.TestPSRRSym, plan.TestAOL:
@@ -881,30 +885,40 @@ func (a *analyzer) analyzeOpAmp() {
 			a.problem(k.unit, k.test, k.part, c, fmt.Sprintf("test %q is not analysed on a %s fixture", k.test, a.p.Fixture.Kind))
 			continue
 		}
-		conv := conventionFor(a.p, k.test, k.part)
-		s, err := fitSweep(a.groups[k], t)
+		r, err := a.opAmpRatio(k, a.groups[k], nil)
 		if err != nil {
-			a.problem(k.unit, k.test, k.part, c, "no fit: "+err.Error())
+			a.problem(k.unit, k.test, k.part, c, err.Error())
 			continue
 		}
-		r := a.newRatio(k, k.test, conv, s)
-		r.NoiseGain = K
-		b, err := a.coefficientBudget(s.coefLine, K, tol, a.stimulusAccuracy(conv.roles), conv.sign)
-		if err == nil {
-			r.Rejection, err = fit.RejectionFromBudget(b)
-		}
-		if err != nil {
-			a.problem(k.unit, k.test, k.part, c, "no coefficient: "+err.Error())
-			continue
-		}
-		a.nonlinearity(&r, s, K)
-		if k.test == plan.TestPSRRSym {
-			r.Notes = append(r.Notes, psrrSymNote)
-		}
-		sign := conv.sign
-		r.Repeats = repeatValues(s, func(l fit.LineFit) float64 { return sign * 1e6 * l.Slope.Value / K })
 		a.res.Ratios = append(a.res.Ratios, r)
 	}
+}
+
+// opAmpRatio fits one op-amp sweep (readings rs of group k) and forms its
+// coefficient, budget (with the extra rows), nonlinearity and repeats.
+func (a *analyzer) opAmpRatio(k groupKey, rs []journal.Reading, extra []fit.BudgetRow) (RatioResult, error) {
+	K, tol := a.p.Fixture.NoiseGain, a.p.Fixture.NoiseGainTolerance
+	conv := conventionFor(a.p, k.test, k.part)
+	s, err := fitSweep(rs, a.testOf(k.test))
+	if err != nil {
+		return RatioResult{}, fmt.Errorf("no fit: %w", err)
+	}
+	r := a.newRatio(k, k.test, conv, s)
+	r.NoiseGain = K
+	b, err := a.coefficientBudget(s.coefLine, K, tol, a.stimulusAccuracy(conv.roles), conv.sign, extra...)
+	if err == nil {
+		r.Rejection, err = fit.RejectionFromBudget(b)
+	}
+	if err != nil {
+		return RatioResult{}, fmt.Errorf("no coefficient: %w", err)
+	}
+	a.nonlinearity(&r, s, K)
+	if k.test == plan.TestPSRRSym {
+		r.Notes = append(r.Notes, psrrSymNote)
+	}
+	sign := conv.sign
+	r.Repeats = repeatValues(s, func(l fit.LineFit) float64 { return sign * 1e6 * l.Slope.Value / K })
+	return r, nil
 }
 
 // psrrSymNote states psrr_sym's convention: per volt of total span. Each
