@@ -125,6 +125,10 @@ func (a *analyzer) analyzeNulling() {
 		aol := a.findIndex(pc.unit, plan.TestAOL, pc.cond)
 		cond := a.res.Conditions[pc.cond]
 
+		// Unequal rail steps (analysis_rails.go), before anything is
+		// formed from the two-rail results.
+		a.correctRailLeaks(cm, pos, neg, sym)
+
 		// Open-loop-gain correction.
 		hasCorr, kcCorr := false, 0.0
 		if cm >= 0 && moves {

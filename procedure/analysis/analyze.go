@@ -169,6 +169,11 @@ type RatioResult struct {
 	// aol result; AOLTermUVPerV = −k_o is what was added.
 	AOLCorrected  bool    `json:"aol_corrected"`
 	AOLTermUVPerV float64 `json:"aol_term_uv_per_v"`
+	// RailLeakCorrected: the two rails' read-backs showed unequal steps and
+	// the leak through the other rail combination (RailLeakUVPerV, the
+	// change of the coefficient) was taken out (analysis_rails.go).
+	RailLeakCorrected bool    `json:"rail_leak_corrected,omitempty"`
+	RailLeakUVPerV    float64 `json:"rail_leak_uv_per_v,omitempty"`
 	// DerivedFrom names the results a derived result was formed from.
 	DerivedFrom []string `json:"derived_from,omitempty"`
 	// Repeats: the result of each repeat fitted alone (repeats ≥ 2).
