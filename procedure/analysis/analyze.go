@@ -899,6 +899,36 @@ func (a *analyzer) analyzeOpAmp() {
 	}
 }
 
+// noiseGainStageAOL returns the budget row and note of the part's finite
+// open-loop gain in a noise-gain stage. The stage's output is K·V_IO, and
+// the output term k_o·ΔV_out feeds back into V_IO, so every coefficient is
+// measured as
+//
+//	k_measured = k/(1 − K·k_o)
+//
+// (derived from ΔV_IO = k·ΔS + k_o·K·ΔV_IO, no published source; 1 % at
+// K = 1000 and A_OL = 100 dB). An aol test needs the nulling loop, so k_o
+// is not measured on this fixture: with the rated minimum A_OL
+// (part.aol_min_db) the row is k_o = 0 ± 1/A_OL,min (rectangular, GUM
+// 4.3.7) with sensitivity ∂k/∂k_o = −K·k (µV/V per V/V); without it the
+// note says the scale is unbounded. kUV is the signed coefficient.
+func (a *analyzer) noiseGainStageAOL(kUV float64) (*fit.BudgetRow, string) {
+	K := a.p.Fixture.NoiseGain
+	aolDB := a.p.Part.AOLMinDB
+	if !(aolDB > 0) {
+		return nil, fmt.Sprintf("noise-gain stage: the coefficient is scaled by 1/(1 − K·k_o) with K = %g and k_o = ±1/A_OL not known; "+
+			"give part.aol_min_db (the rated A_OL) to put it in the budget", K)
+	}
+	koMax := math.Pow(10, -aolDB/20)
+	row := &fit.BudgetRow{
+		Name: "open-loop gain in the noise-gain stage: scale 1/(1 − K·k_o), |k_o| ≤ 1/A_OL,min (rated)", Kind: "B",
+		Distribution: fit.DistRectangular, Value: 0, StdUncertainty: fit.RectangularStdUnc(koMax), Unit: "V/V",
+		Sensitivity: -K * kUV, DOF: fit.InfDOF,
+	}
+	return row, fmt.Sprintf("noise-gain stage: the coefficient is scaled by 1/(1 − K·k_o); with the rated A_OL ≥ %.1f dB that is within ±%.3g %% (budget row, not corrected)",
+		aolDB, 100*K*koMax)
+}
+
 // opAmpRatio fits one op-amp sweep (readings rs of group k) and forms its
 // coefficient, budget (with the extra rows), nonlinearity and repeats.
 func (a *analyzer) opAmpRatio(k groupKey, rs []journal.Reading, extra []fit.BudgetRow) (RatioResult, error) {
@@ -910,6 +940,13 @@ func (a *analyzer) opAmpRatio(k groupKey, rs []journal.Reading, extra []fit.Budg
 	}
 	r := a.newRatio(k, k.test, conv, s)
 	r.NoiseGain = K
+	if a.p.Fixture.Kind == plan.FixtureNoiseGain {
+		row, note := a.noiseGainStageAOL(conv.sign * 1e6 * s.coefLine.Slope.Value / K)
+		if row != nil {
+			extra = append(slices.Clone(extra), *row)
+		}
+		r.Notes = append(r.Notes, note)
+	}
 	b, err := a.coefficientBudget(s.coefLine, K, tol, a.stimulusAccuracy(conv.roles), conv.sign, extra...)
 	if err == nil {
 		r.Rejection, err = fit.RejectionFromBudget(b)

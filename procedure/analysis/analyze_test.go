@@ -806,3 +806,38 @@ func TestAnalyzeUncorrectedBoundByRatedAOL(t *testing.T) {
 		t.Errorf("notes without a rated A_OL %q", c.Notes)
 	}
 }
+
+// TestAnalyzeNoiseGainStageAOL: in a noise-gain stage of K = 1000 a part
+// with A_OL = 100 dB (k_o = +10 µV/V) reads every coefficient
+// 1/(1 − K·k_o) = 1/0.99 too large (derived, no published source): k_p =
+// 20 µV/V reads 20.20 µV/V. Without the rated A_OL the budget does not see
+// it (the truth is outside U, and the note says so); with
+// part.aol_min_db = 100 a rectangular row of half-width K/A_OL = 1 %
+// brings the truth inside U.
+func TestAnalyzeNoiseGainStageAOL(t *testing.T) {
+	p := azOpAmpPlan(plan.FixtureNoiseGain, plan.CMByInputDrive, plan.TestPSRRPos)
+	o := azOpAmp{kc: 1e-6, kp: 20e-6, ko: 10e-6}
+	rs := azNewBench(p, 5, 1e-9).opAmpReadings(nil, "U1", 0, 25, o)
+	c := azRatio(t, azAnalyze(t, p, rs, Inputs{}), "U1", plan.TestPSRRPos, 0)
+	if got := c.Rejection.CoefficientUVPerV; math.Abs(got-20/0.99) > 0.005 {
+		t.Fatalf("measured %.4f µV/V, want 20/0.99 = %.4f", got, 20/0.99)
+	}
+	if math.Abs(c.Rejection.CoefficientUVPerV-20) <= c.Rejection.ExpandedUUVPerV || !azHasNote(c, "give part.aol_min_db") {
+		t.Errorf("without the rated A_OL: %.4f ± %.4f µV/V, notes %q", c.Rejection.CoefficientUVPerV, c.Rejection.ExpandedUUVPerV, c.Notes)
+	}
+	p.Part.AOLMinDB = 100
+	c = azRatio(t, azAnalyze(t, p, rs, Inputs{}), "U1", plan.TestPSRRPos, 0)
+	if math.Abs(c.Rejection.CoefficientUVPerV-20) > c.Rejection.ExpandedUUVPerV || !azHasNote(c, "within ±1 %") {
+		t.Errorf("with the rated A_OL: %.4f ± %.4f µV/V, notes %q", c.Rejection.CoefficientUVPerV, c.Rejection.ExpandedUUVPerV, c.Notes)
+	}
+	// The row: u = 1e-5/√3 V/V, sensitivity −K·k = −20.2e3 µV/V per V/V.
+	var row *fit.BudgetRow
+	for i := range c.Rejection.Budget.Rows {
+		if strings.HasPrefix(c.Rejection.Budget.Rows[i].Name, "open-loop gain in the noise-gain stage") {
+			row = &c.Rejection.Budget.Rows[i]
+		}
+	}
+	if row == nil || math.Abs(row.StdUncertainty-1e-5/math.Sqrt(3)) > 1e-12 || math.Abs(row.Sensitivity+1000*c.Rejection.CoefficientUVPerV) > 1e-9 {
+		t.Errorf("budget row %+v", row)
+	}
+}
