@@ -3,6 +3,7 @@ package fit
 import (
 	"fmt"
 	"math"
+	"slices"
 	"strconv"
 
 	"gonum.org/v1/gonum/mat"
@@ -298,6 +299,27 @@ func Line(x, y []float64, opt LineOptions) (LineFit, error) {
 		cols = append(cols, x2)
 		names = append(names, "quad")
 	}
+	if opt.Segments != nil {
+		if len(opt.Segments) != len(x) {
+			panic(fmt.Sprintf("fit.Line: len(Segments) = %d, len(x) = %d", len(opt.Segments), len(x)))
+		}
+		var order []int
+		for _, s := range opt.Segments {
+			if !slices.Contains(order, s) {
+				order = append(order, s)
+			}
+		}
+		for j, seg := range order[1:] {
+			col := make([]float64, len(x))
+			for i, s := range opt.Segments {
+				if s == seg {
+					col[i] = 1
+				}
+			}
+			cols = append(cols, col)
+			names = append(names, fmt.Sprintf("offset step %d", j+1))
+		}
+	}
 	lf, err := Linear(y, cols, LinearOptions{NoIntercept: opt.NoIntercept, Names: names})
 	if err != nil {
 		if opt.Time != nil {
@@ -326,7 +348,9 @@ func Line(x, y []float64, opt LineOptions) (LineFit, error) {
 		out.QuadIndex = i
 		out.Quad = lf.Terms[i]
 		out.HasQuad = true
+		i++
 	}
+	out.Steps = append(out.Steps, lf.Terms[i:]...)
 	return out, nil
 }
 

@@ -235,3 +235,33 @@ func TestSlopeAt(t *testing.T) {
 		t.Errorf("no quadratic term: SlopeAt changed the slope")
 	}
 }
+
+// TestLineSegments: y = 2 + 3x with a step of +0.5 from the fourth point
+// on (a reading offset that changed between two sessions). A single line
+// puts part of the step into the slope; with a segment offset the slope is
+// exactly 3 and the step 0.5 (exact data, least squares reproduces them).
+func TestLineSegments(t *testing.T) {
+	x := []float64{-2, 0, 2, -1, 1, 3}
+	seg := []int{0, 0, 0, 1, 1, 1}
+	y := make([]float64, len(x))
+	for i, v := range x {
+		y[i] = 2 + 3*v
+		if seg[i] == 1 {
+			y[i] += 0.5
+		}
+	}
+	plain, err := Line(x, y, LineOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if math.Abs(plain.Slope.Value-3) < 0.01 {
+		t.Fatalf("setup: the step does not bias the plain slope (%g)", plain.Slope.Value)
+	}
+	f, err := Line(x, y, LineOptions{Segments: seg})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if math.Abs(f.Slope.Value-3) > 1e-12 || len(f.Steps) != 1 || math.Abs(f.Steps[0].Value-0.5) > 1e-12 || f.DOF != 3 {
+		t.Errorf("slope %g, steps %+v, dof %d", f.Slope.Value, f.Steps, f.DOF)
+	}
+}

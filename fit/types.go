@@ -132,6 +132,13 @@ type LineOptions struct {
 	Quadratic bool
 	// NoIntercept removes b0.
 	NoIntercept bool
+	// Segments, if not nil, gives each point's segment (any int, e.g. the
+	// session of a resumed run) and adds one offset term per segment other
+	// than the first point's, so that a step of the reading between
+	// segments falls into its own term and not into the slope. Terms are
+	// named "offset step 1", "offset step 2", … in order of first
+	// appearance. Must have the length of x.
+	Segments []int
 }
 
 // LineFit is a straight line y = b0 + b1·x [+ b2·t] [+ b3·x²] fitted by
@@ -145,6 +152,9 @@ type LineFit struct {
 	Quad      Term      `json:"quad"`
 	HasDrift  bool      `json:"has_drift"`
 	HasQuad   bool      `json:"has_quad"`
+	// Steps are the offset steps of LineOptions.Segments (y units), one per
+	// segment after the first.
+	Steps []Term `json:"steps,omitempty"`
 	// Index of each term in Model.Terms (−1 when absent).
 	InterceptIndex int `json:"intercept_index"`
 	SlopeIndex     int `json:"slope_index"`
