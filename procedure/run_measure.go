@@ -114,7 +114,7 @@ func (r *runner) point(ctx context.Context, t *plan.Test, st plan.Step, key plan
 	}
 	stepAt := r.clk.Now()
 	rd := journal.Reading{Unit: key.Unit, Test: key.Test, Part: key.Part, TempIndex: key.TempIndex,
-		Repeat: key.Repeat, Step: key.Step, SetVolts: st.LevelVolts, ReadVolts: st.LevelVolts}
+		Repeat: key.Repeat, Step: key.Step, SetVolts: st.LevelVolts, ReadVolts: st.LevelVolts, Session: r.session}
 
 	r.at.stage = stageSettle
 	if err := r.clk.Sleep(ctx, seconds(t.DwellSeconds)); err != nil {

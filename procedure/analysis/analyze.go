@@ -558,6 +558,8 @@ func (a *analyzer) testOf(kind string) *plan.Test {
 type sweep struct {
 	x, y, t   []float64 // stimulus volts, meter volts, bench seconds
 	repeat    []int
+	session   []int // journal session of each point (journal.Reading.Session)
+	seg       []int // session, when the sweep spans more than one; else nil
 	line      fit.LineFit
 	coefLine  fit.LineFit // line with Slope at the centre of the sweep (atCentre)
 	drift     bool        // drift term fitted
@@ -596,6 +598,7 @@ func fitSweep(rs []journal.Reading, t *plan.Test) (sweep, error) {
 		s.y = append(s.y, r.MeterVolts)
 		s.t = append(s.t, r.BenchSeconds)
 		s.repeat = append(s.repeat, r.Repeat)
+		s.session = append(s.session, r.Session)
 		sumT += r.TemperatureC
 	}
 	s.points = len(s.x)
@@ -611,10 +614,22 @@ func fitSweep(rs []journal.Reading, t *plan.Test) (sweep, error) {
 	if s.points < 3 {
 		return s, fmt.Errorf("%d usable point(s); a line with an uncertainty needs at least 3", s.points)
 	}
-	line, drift, quad, notes, err := lineWithFallback(s.x, s.y, s.t, t.DriftTerm, t.QuadraticTerm)
+	s.seg = spanningSessions(s.session)
+	line, drift, quad, seg, notes, err := lineWithFallback(s.x, s.y, s.t, s.seg, t.DriftTerm, t.QuadraticTerm)
 	s.notes = append(s.notes, notes...)
 	if err != nil {
 		return s, err
+	}
+	s.seg = seg
+	if seg != nil {
+		steps := ""
+		for i, st := range line.Steps {
+			if i > 0 {
+				steps += ", "
+			}
+			steps += fmt.Sprintf("%+.3g ± %.2g µV", 1e6*st.Value, 1e6*st.StdErr)
+		}
+		s.notes = append(s.notes, fmt.Sprintf("the sweep spans a resume (bench restarted between its points): a separate offset was fitted for each session; offset step(s) at the meter %s", steps))
 	}
 	if !quad {
 		// The curvature test of fit.Nonlinear: when the quadratic term is
@@ -626,7 +641,7 @@ func fitSweep(rs []journal.Reading, t *plan.Test) (sweep, error) {
 			opt.Time = s.t
 		}
 		if nl, err := fit.Nonlinear(s.x, s.y, opt); err == nil && nl.QuadSignificant {
-			if ql, err := fitLine(s.x, s.y, s.t, drift, true); err == nil {
+			if ql, err := fitLine(s.x, s.y, s.t, s.seg, drift, true); err == nil {
 				line, quad = ql, true
 				s.curvature = true
 				s.notes = append(s.notes, fmt.Sprintf("significant curvature (t = %.1f): quadratic term fitted; the coefficient is the slope at the centre of the sweep (%s V)",
@@ -654,8 +669,8 @@ func fitSweep(rs []journal.Reading, t *plan.Test) (sweep, error) {
 const maxDriftVIF = 10
 
 // fitLine fits y against x with or without the drift and quadratic terms.
-func fitLine(x, y, t []float64, drift, quad bool) (fit.LineFit, error) {
-	opt := fit.LineOptions{Quadratic: quad}
+func fitLine(x, y, t []float64, seg []int, drift, quad bool) (fit.LineFit, error) {
+	opt := fit.LineOptions{Quadratic: quad, Segments: seg}
 	if drift {
 		opt.Time = t
 	}
@@ -678,33 +693,43 @@ func atCentre(l fit.LineFit) fit.LineFit {
 }
 
 // lineWithFallback fits y against x with the requested drift and quadratic
-// terms; when the design cannot carry them (too few points, or time
-// collinear with the stimulus as in an ascending order) it drops the drift
+// terms and the session offsets (seg, nil for none); when the design
+// cannot carry them (too few points, or time collinear with the stimulus
+// as in an ascending order) it drops the session offsets, then the drift
 // term, then the quadratic term, and says so.
-func lineWithFallback(x, y, t []float64, drift, quad bool) (fit.LineFit, bool, bool, []string, error) {
+func lineWithFallback(x, y, t []float64, seg []int, drift, quad bool) (fit.LineFit, bool, bool, []int, []string, error) {
 	var notes []string
-	try := func(d, q bool) (fit.LineFit, error) {
-		opt := fit.LineOptions{Quadratic: q}
-		if d {
-			opt.Time = t
-		}
-		return fit.Line(x, y, opt)
-	}
 	droppable := func(err error) bool {
 		return errors.Is(err, fit.ErrSingular) || errors.Is(err, fit.ErrTooFewPoints)
 	}
-	line, err := try(drift, quad)
+	line, err := fitLine(x, y, t, seg, drift, quad)
+	if err != nil && seg != nil && droppable(err) {
+		notes = append(notes, fmt.Sprintf("the sweep spans a resume, but a separate offset per session could not be fitted (%v): an offset step between sessions would bias the slope", err))
+		seg = nil
+		line, err = fitLine(x, y, t, seg, drift, quad)
+	}
 	if err != nil && drift && droppable(err) {
 		notes = append(notes, fmt.Sprintf("drift term dropped (%v): the result is not corrected for drift", err))
 		drift = false
-		line, err = try(drift, quad)
+		line, err = fitLine(x, y, t, seg, drift, quad)
 	}
 	if err != nil && quad && droppable(err) {
 		notes = append(notes, fmt.Sprintf("quadratic term dropped (%v)", err))
 		quad = false
-		line, err = try(drift, quad)
+		line, err = fitLine(x, y, t, seg, drift, quad)
 	}
-	return line, drift, quad, notes, err
+	return line, drift, quad, seg, notes, err
+}
+
+// spanningSessions returns the sessions of a sweep's points when they
+// come from more than one session, else nil.
+func spanningSessions(session []int) []int {
+	for _, v := range session {
+		if v != session[0] {
+			return session
+		}
+	}
+	return nil
 }
 
 // Budget row names of the inputs shared by every coefficient of one unit
@@ -813,11 +838,11 @@ func repeatValues(s sweep, coef func(fit.LineFit) float64) []RepeatValue {
 		if len(idx) < 3 {
 			continue
 		}
-		x, y, t := make([]float64, len(idx)), make([]float64, len(idx)), make([]float64, len(idx))
+		x, y, t, ses := make([]float64, len(idx)), make([]float64, len(idx)), make([]float64, len(idx)), make([]int, len(idx))
 		for j, i := range idx {
-			x[j], y[j], t[j] = s.x[i], s.y[i], s.t[i]
+			x[j], y[j], t[j], ses[j] = s.x[i], s.y[i], s.t[i], s.session[i]
 		}
-		line, _, _, _, err := lineWithFallback(x, y, t, s.drift, s.quad)
+		line, _, _, _, _, err := lineWithFallback(x, y, t, spanningSessions(ses), s.drift, s.quad)
 		if err != nil {
 			continue
 		}

@@ -4,6 +4,7 @@ import (
 	"encoding/json"
 	"math"
 	"math/rand/v2"
+	"slices"
 	"strings"
 	"testing"
 
@@ -839,5 +840,39 @@ func TestAnalyzeNoiseGainStageAOL(t *testing.T) {
 	}
 	if row == nil || math.Abs(row.StdUncertainty-1e-5/math.Sqrt(3)) > 1e-12 || math.Abs(row.Sensitivity+1000*c.Rejection.CoefficientUVPerV) > 1e-9 {
 		t.Errorf("budget row %+v", row)
+	}
+}
+
+// TestAnalyzeResumeOffsetStep: a sweep taken in ascending order is broken
+// by a resume after its third point, and the restarted bench reads 3 mV
+// higher at the meter (an offset step). One line puts the step into the
+// slope (and, as misfit, into an inflated U); a separate offset per
+// session (journal.Reading.Session) keeps the slope at the truth, within
+// a U at the noise level, and the result says so.
+func TestAnalyzeResumeOffsetStep(t *testing.T) {
+	p := azOpAmpPlan(plan.FixtureNullingLoop, plan.CMByInputDrive, plan.TestCMRR)
+	p.Tests[0].Order, p.Tests[0].DriftTerm = plan.OrderAscending, false
+	rs := azNewBench(p, 9, 0.2e-6).opAmpReadings(nil, "U1", 0, 25, azOpAmp{kc: 1e-6})
+	stepped := slices.Clone(rs)
+	for i := range stepped {
+		if i >= 3 {
+			stepped[i].MeterVolts += 3e-3
+		}
+	}
+	plain := azRatio(t, azAnalyze(t, p, stepped, Inputs{}), "U1", plan.TestCMRR, 0)
+	ePlain := plain.Rejection.CoefficientUVPerV - 1
+	for i := range stepped {
+		if i >= 3 {
+			stepped[i].Session = 1
+		}
+	}
+	c := azRatio(t, azAnalyze(t, p, stepped, Inputs{}), "U1", plan.TestCMRR, 0)
+	e := c.Rejection.CoefficientUVPerV - 1
+	t.Logf("error without sessions %.4f µV/V (U %.4f), with %.4f µV/V (U %.4f)", ePlain, plain.Rejection.ExpandedUUVPerV, e, c.Rejection.ExpandedUUVPerV)
+	if math.Abs(e) > c.Rejection.ExpandedUUVPerV || !(math.Abs(ePlain) > 10*math.Abs(e)) || !(plain.Rejection.ExpandedUUVPerV > 10*c.Rejection.ExpandedUUVPerV) {
+		t.Errorf("with a session offset: error %.4f µV/V, U %.4f; without: error %.4f, U %.4f", e, c.Rejection.ExpandedUUVPerV, ePlain, plain.Rejection.ExpandedUUVPerV)
+	}
+	if !azHasNote(c, "spans a resume") || len(c.Line.Steps) != 1 || math.Abs(c.Line.Steps[0].Value-3e-3) > 3*c.Line.Steps[0].StdErr {
+		t.Errorf("notes %q, steps %+v", c.Notes, c.Line.Steps)
 	}
 }

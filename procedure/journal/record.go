@@ -27,9 +27,13 @@ type Reading struct {
 	// psrr_sym) and both were read back (RailsReadBack). ReadVolts keeps
 	// only their combination along the level; these keep what it drops:
 	// the span change in a supply shift, the mean shift in psrr_sym.
-	PosRailVolts  float64  `json:"pos_rail_volts,omitempty"`
-	NegRailVolts  float64  `json:"neg_rail_volts,omitempty"`
-	RailsReadBack bool     `json:"rails_read_back,omitempty"`
+	PosRailVolts  float64 `json:"pos_rail_volts,omitempty"`
+	NegRailVolts  float64 `json:"neg_rail_volts,omitempty"`
+	RailsReadBack bool    `json:"rails_read_back,omitempty"`
+	// Session is the run of the journal that took the reading: 0 for the
+	// first, n after the n-th resume. A sweep whose readings come from two
+	// sessions may carry an offset step (the bench was restarted between).
+	Session       int      `json:"session,omitempty"`
 	MeterVolts    float64  `json:"meter_volts"`     // mean of the averaged meter readings
 	MeterSDVolts  float64  `json:"meter_sd_volts"`  // their standard deviation
 	N             int      `json:"n"`               // readings averaged
