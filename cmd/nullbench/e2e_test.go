@@ -127,6 +127,7 @@ case_tau_s = 90.0
 id = "E2E-%d"
 fixture = "nulling_loop"
 noise_gain = 1000.0
+noise_gain_tolerance = 0.001
 `, seed, seed)
 	for _, u := range units {
 		fmt.Fprintf(&b, "\n[[unit]]\nid = %q\ncmrr_db = %.6f\npsrr_pos_db = %.6f\npsrr_neg_db = %.6f\n", u.id, u.cmrr, u.psrrPos, u.psrrNeg)

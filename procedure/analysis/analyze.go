@@ -760,7 +760,13 @@ func (a *analyzer) coefficientBudget(line fit.LineFit, K, kTolRel float64, stim 
 			Value: 1, StdUncertainty: fit.RectangularStdUnc(a.acc.Meter.GainPPM * 1e-6), Unit: "1", Sensitivity: -k, DOF: fit.InfDOF})
 	}
 	b, err := fit.CoefficientBudget(line, fit.BudgetInputs{
-		NoiseGain: K, StimulusGainPPM: stim.GainPPM, StimulusOffsetVolts: stim.OffsetVolts,
+		// The stimulus offset error is constant during a sweep (a
+		// calibration offset of the source or of its read-back), so, like
+		// the meter's offset, it falls into the fit's intercept and does
+		// not change the slope: it is not a row (GUM 4.3 applied to the
+		// model y = b0 + b1·(x + e), e constant). What varies between
+		// settings (read-back noise) is in the fit's scatter.
+		NoiseGain: K, StimulusGainPPM: stim.GainPPM,
 		Extra: extra, Coverage: a.cov,
 	})
 	if err != nil {
