@@ -302,6 +302,7 @@ func writeSummary(f *excelize.File, st *styles, c *Campaign, temps []float64) er
 	w.heading("Decision and safety")
 	w.kv("Decision rule", c.DecisionRule, 0)
 	w.kv("Safety", c.SafetyNote, 0)
+	writeMethod(w, c.Method)
 
 	// Instruments: Name | Roles | Address (C:D) | Identity (E:I). Merged
 	// cells rule out an Excel table here, so the block gets an autofilter.
@@ -533,6 +534,19 @@ func writeResults(f *excelize.File, st *styles, c *Campaign) error {
 		d[20] = joinFlags(r.Flags)
 		d[21] = joinNotes(r.Notes)
 	})
+}
+
+// writeMethod writes the method statement under its own heading, one
+// paragraph per row (nothing when there is none).
+func writeMethod(w *summaryWriter, method []string) {
+	if len(method) == 0 {
+		return
+	}
+	w.heading("Method")
+	for _, p := range method {
+		w.row++
+		w.set(1, w.row, p, 0)
+	}
 }
 
 // joinNotes joins a result's notes for one cell (NotesSeparator, as in

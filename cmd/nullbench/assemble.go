@@ -40,6 +40,7 @@ func toReport(recs ...campaignRecord) *report.Campaign {
 			c.PlanFile, c.PlanHash = p.Source, "sha256:"+p.Hash
 			c.Fixture = fixtureInfo(p)
 			c.DecisionRule = ruleWords(r.Results)
+			c.Method = analysis.MethodText()
 			c.Started, c.Finished = r.Started, r.Finished
 		} else {
 			c.Part += ", " + p.Part.Number

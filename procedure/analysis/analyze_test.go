@@ -876,3 +876,21 @@ func TestAnalyzeResumeOffsetStep(t *testing.T) {
 		t.Errorf("notes %q, steps %+v", c.Notes, c.Line.Steps)
 	}
 }
+
+// TestMethodTextNamesWhatTheCodeDoes: the workbook's method statement
+// names the result names, fit rules and conventions the analysis uses
+// (each checked elsewhere against its source); a rename in the code that
+// is not carried to the text fails here.
+func TestMethodTextNamesWhatTheCodeDoes(t *testing.T) {
+	text := strings.Join(MethodText(), "\n")
+	for _, want := range []string{ResultCMRRUncorrected, plan.TestPSRRSym, plan.PsrrWorst, "aol_min_db",
+		"6.02 dB", "variance inflation exceeds 10", "slope at the centre of the sweep", "each session",
+		"97.5 %", "simple acceptance (w = 0) compares the measured value", "Welch–Satterthwaite", psrrSymNote[:28]} {
+		if !strings.Contains(text, want) {
+			t.Errorf("method text lacks %q", want)
+		}
+	}
+	if maxDriftVIF != 10 {
+		t.Errorf("the method text says 10, the code uses %g", float64(maxDriftVIF))
+	}
+}
