@@ -37,8 +37,8 @@ type Campaign struct {
 	DecisionRule string // in words, e.g. "guarded acceptance, w = U (ILAC-G8:09/2019 §4.2)"
 	// Method is the method statement, one paragraph per entry: what each
 	// figure is and how it was obtained (written on the Summary sheet).
-	Method []string
-	SafetyNote   string // what the bench did to stay safe, in words
+	Method     []string
+	SafetyNote string // what the bench did to stay safe, in words
 
 	Units       []UnitInfo   // optional: the lot's units with serials and notes
 	Results     []Result     // one per unit × test × temperature
