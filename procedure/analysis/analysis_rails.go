@@ -54,14 +54,21 @@ type railLeak struct {
 // of one unit × condition for unequal rail steps (see above), given the
 // indexes of its results (−1 when absent).
 func (a *analyzer) correctRailLeaks(cm, pos, neg, sym int) {
+	span := func(dp, dn float64) float64 { return dp - dn }
+	mean := func(dp, dn float64) float64 { return (dp + dn) / 2 }
 	if pos < 0 || neg < 0 {
-		for _, idx := range []int{cm, sym} {
-			if idx >= 0 && (idx != cm || a.p.Fixture.CommonMode == plan.CMBySupplyShift) {
-				if beta, ok := a.railSlope(idx, nil); ok && beta != 0 {
-					r := &a.res.Ratios[idx]
-					r.Notes = append(r.Notes, fmt.Sprintf("the rails did not step alike (read-back: %+.3g V per volt of level leaks through the other rail combination); "+
-						"not corrected: measure psrr_pos and psrr_neg at the same temperature to correct it", beta))
-				}
+		for _, c := range []struct {
+			idx  int
+			what string
+			z    func(dp, dn float64) float64
+		}{{cm, "span change", span}, {sym, "mean rail change", mean}} {
+			if c.idx < 0 || (c.idx == cm && a.p.Fixture.CommonMode != plan.CMBySupplyShift) {
+				continue
+			}
+			if beta, ok := a.railSlope(c.idx, c.z); ok && beta != 0 {
+				r := &a.res.Ratios[c.idx]
+				r.Notes = append(r.Notes, fmt.Sprintf("the rails did not step alike (read-back %s %+.3g V per volt of level, which leaks PSRR into this result); "+
+					"not corrected: measure psrr_pos and psrr_neg at the same temperature to correct it", c.what, beta))
 			}
 		}
 		return
@@ -71,27 +78,23 @@ func (a *analyzer) correctRailLeaks(cm, pos, neg, sym int) {
 	uSum := math.Hypot(p.CombinedStdUnc, n.CombinedStdUnc)
 	if cm >= 0 && a.p.Fixture.CommonMode == plan.CMBySupplyShift {
 		a.correctRailLeak(cm, railLeak{
-			what: "span change", z: func(dp, dn float64) float64 { return dp - dn },
+			what: "span change", z: span,
 			coefUV: (p.Value - n.Value) / 2, coefU: uSum / 2, coefDOF: dof,
 			coefText: "k_sym = (k_p − k_n)/2", rbScale: 1,
 		})
 	}
 	if sym >= 0 {
 		a.correctRailLeak(sym, railLeak{
-			what: "mean rail change", z: func(dp, dn float64) float64 { return (dp + dn) / 2 },
+			what: "mean rail change", z: mean,
 			coefUV: p.Value + n.Value, coefU: uSum, coefDOF: dof,
 			coefText: "k_p + k_n = −(k_c + k_o)", rbScale: 0.25,
 		})
 	}
 }
 
-// railSlope returns ∂z/∂L of a result's sweep for the span change (z nil)
-// or the given regressor, from the rails as read back; ok is false when
-// a reading lacks them.
+// railSlope returns ∂z/∂L of a result's sweep, z from the rail changes as
+// read back; ok is false when a reading lacks them.
 func (a *analyzer) railSlope(idx int, z func(dp, dn float64) float64) (float64, bool) {
-	if z == nil {
-		z = func(dp, dn float64) float64 { return dp - dn }
-	}
 	r := a.res.Ratios[idx]
 	rs := a.groups[groupKey{unit: r.Unit, test: r.Name, cond: r.Condition}]
 	x, zs, ok := a.railRegressor(rs, z)

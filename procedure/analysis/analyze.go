@@ -34,7 +34,9 @@ type Inputs struct {
 	Meter plan.Accuracy
 	// Stimulus is the accuracy of the stimulus values the fit uses (the
 	// read-back value when a reading was read back, else the programmed
-	// one), for every stimulus role not in StimulusByRole.
+	// one), for every stimulus role not in StimulusByRole. Its gain part is
+	// a budget row; its offset part is constant during a sweep and falls
+	// into the intercept, like the meter's, so it is not a row.
 	Stimulus plan.Accuracy
 	// StimulusByRole overrides Stimulus per role (RoleSupplyPos,
 	// RoleSupplyNeg, RoleSourceCM, RoleSourceDiff, RoleSourceRef). Tests that

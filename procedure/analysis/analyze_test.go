@@ -894,3 +894,45 @@ func TestMethodTextNamesWhatTheCodeDoes(t *testing.T) {
 		t.Errorf("the method text says 10, the code uses %g", float64(maxDriftVIF))
 	}
 }
+
+// TestAnalyzeRailLeak: supply channels whose steps differ by
+// g1 − g2 = 0.4 % move the span by −0.004·L in a supply shift of L, so the
+// offset moves by the extra k_sym·Δspan, k_sym = (k_p − k_n)/2
+// (superposition, derived, no published source). With both rails read
+// back and psrr_pos, psrr_neg measured, the cmrr_uncorrected result is
+// k_c + k_o again; with only the cmrr test the leak is noted, not
+// corrected.
+func TestAnalyzeRailLeak(t *testing.T) {
+	o := azOpAmp{kc: 1e-6, kp: 40e-6, ko: 0.5e-6} // k_n = −41.5 µV/V, k_sym = 40.75 µV/V
+	const g1, g2 = 2e-3, -2e-3
+	leaky := func(p *plan.Plan) []journal.Reading {
+		rs := azNewBench(p, 11, 0.2e-6).opAmpReadings(nil, "U1", 0, 25, o)
+		ksym := (o.kp - o.kn()) / 2
+		for i := range rs {
+			if rs[i].Test != plan.TestCMRR {
+				continue
+			}
+			L := rs[i].SetVolts
+			rs[i].PosRailVolts, rs[i].NegRailVolts, rs[i].RailsReadBack = 15-L*(1+g1), -15-L*(1+g2), true
+			rs[i].MeterVolts += p.Fixture.NoiseGain * ksym * (-(g1 - g2) * L)
+		}
+		return rs
+	}
+	want := (o.kc + o.ko) * 1e6
+	p := azOpAmpPlan(plan.FixtureNullingLoop, plan.CMBySupplyShift, plan.TestCMRR, plan.TestPSRRPos, plan.TestPSRRNeg)
+	c := azRatio(t, azAnalyze(t, p, leaky(p), Inputs{}), "U1", ResultCMRRUncorrected, 0)
+	if !c.RailLeakCorrected || !azHasNote(c, "corrected for unequal rail steps") {
+		t.Errorf("not corrected: notes %q", c.Notes)
+	}
+	azCheckCoef(t, c, want, 0.003)
+	// The uncorrected fit read k_sym·∂span/∂L = −k_sym·(g1 − g2) =
+	// −0.163 µV/V too low; the correction moves it up by as much.
+	if math.Abs(c.RailLeakUVPerV-(o.kp-o.kn())/2*(g1-g2)*1e6) > 0.003 {
+		t.Errorf("correction %.4f µV/V, want %.4f", c.RailLeakUVPerV, (o.kp-o.kn())/2*(g1-g2)*1e6)
+	}
+	p = azOpAmpPlan(plan.FixtureNullingLoop, plan.CMBySupplyShift, plan.TestCMRR)
+	c = azRatio(t, azAnalyze(t, p, leaky(p), Inputs{}), "U1", ResultCMRRUncorrected, 0)
+	if c.RailLeakCorrected || !azHasNote(c, "the rails did not step alike (read-back span change -0.004") {
+		t.Errorf("cmrr alone: corrected %v, notes %q", c.RailLeakCorrected, c.Notes)
+	}
+}
