@@ -1,8 +1,10 @@
 package main
 
 import (
+	"fmt"
 	"math"
 	"slices"
+	"strings"
 	"testing"
 
 	"nullbench/instrument/sim"
@@ -102,5 +104,74 @@ func TestEndToEndUnequalSupplyGains(t *testing.T) {
 	}
 	if n := outside(without[plan.TestCMRR]); n < len(units)/2 {
 		t.Errorf("cmrr: only %d of %d outside U without the correction: the test does not show the leak", n, len(units))
+	}
+}
+
+// e2eWithoutAOL is the demo's lot plan at 25 °C without its aol test and
+// with the part's rated minimum A_OL set to aolMinDB.
+func e2eWithoutAOL(t *testing.T, aolMinDB float64) func(b *sim.Bench, text string) string {
+	return func(b *sim.Bench, text string) string {
+		text = e2eOnly25(b, text)
+		i := strings.Index(text, "[[test]]\nkind = \"aol\"")
+		if i < 0 {
+			t.Fatal("the demo plan has no aol test to remove")
+		}
+		if j := strings.Index(text[i+1:], "\n["); j < 0 {
+			text = text[:i]
+		} else {
+			text = text[:i] + text[i+1+j+1:]
+		}
+		return strings.Replace(text, "[part]\n", fmt.Sprintf("[part]\naol_min_db = %g\n", aolMinDB), 1)
+	}
+}
+
+// TestEndToEndWithoutAOL runs the demo's lot plan without its aol test, at
+// 25 °C, on parts whose A_OL is 100–140 dB, with the rated minimum
+// aol_min_db = 100 in the plan. No result may be called cmrr (the
+// supply-shift figure is k_c + k_o); every cmrr_uncorrected result must
+// hold k_c + k_o within U (at most one miss in 12, a 95 % interval), and
+// the CMRR range its note states from the rated A_OL must contain the true
+// CMRR of every unit (k_c = k − k_o with |k_o| ≤ 1/A_OL,min; derived, no
+// published source).
+func TestEndToEndWithoutAOL(t *testing.T) {
+	if testing.Short() {
+		t.Skip("end-to-end campaign")
+	}
+	units := e2eLot(12, 85, 130)
+	run := runE2E(t, e2eDUT(7523, units), e2eWithoutAOL(t, 100), nil)
+	if run.plan.Part.AOLMinDB != 100 || slices.ContainsFunc(run.plan.Tests, func(x plan.Test) bool { return x.Kind == plan.TestAOL }) {
+		t.Fatalf("plan edit: aol_min_db %g, tests %v", run.plan.Part.AOLMinDB, run.plan.Tests)
+	}
+	misses, n := 0, 0
+	for _, r := range run.results.Ratios {
+		if r.Name == plan.TestCMRR {
+			t.Errorf("%s: a result is called cmrr without an aol test", r.Unit)
+		}
+		if r.Name != analysis.ResultCMRRUncorrected {
+			continue
+		}
+		n++
+		u := run.truth[r.Unit]
+		rj := r.Rejection
+		if math.Abs(rj.CoefficientUVPerV-(u.KcUVPerV+u.KoUVPerV)) > rj.ExpandedUUVPerV {
+			misses++
+		}
+		lo, hi := math.NaN(), math.Inf(1)
+		note := strings.Join(r.Notes, " ")
+		if i := strings.Index(note, "lies between "); i >= 0 {
+			fmt.Sscanf(note[i+len("lies between "):], "%g and %g dB", &lo, &hi)
+		} else if i := strings.Index(note, "only known to be ≥ "); i >= 0 {
+			fmt.Sscanf(note[i+len("only known to be ≥ "):], "%g dB", &lo)
+		}
+		if math.IsNaN(lo) {
+			t.Errorf("%s: no CMRR range in the notes %q", r.Unit, r.Notes)
+			continue
+		}
+		if u.CMRRdB < lo-0.05 || u.CMRRdB > hi+0.05 {
+			t.Errorf("%s: true CMRR %.2f dB outside the stated range %.2f…%.2f dB", r.Unit, u.CMRRdB, lo, hi)
+		}
+	}
+	if n != len(units) || misses > 1 {
+		t.Errorf("%d cmrr_uncorrected results (want %d), %d outside U", n, len(units), misses)
 	}
 }
