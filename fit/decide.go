@@ -75,11 +75,15 @@ func decideAsym(valueDB, wLow, wHigh, limitDB float64, rule Rule) (Decision, err
 // w' = UpperDB − RatioDB (both equal U_dB to first order), so the zones are
 // those of Decide with the interval [LowerDB, UpperDB].
 //
-// An unresolved result (|k| ≤ U) has no usable estimate; it is judged by its
-// lower bound L = LowerBoundDB, which already contains U (METHODS §5), so no
-// further guard band is applied:
-//   - RuleSimple: pass if L ≥ TL, else fail.
-//   - RuleGuarded: pass if L ≥ TL; otherwise the interval [L, ∞) straddles
+// An unresolved result (|k| ≤ U) is judged as follows:
+//   - RuleSimple (w = 0): ILAC-G8:09/2019 §4.2.1 judges the measured value
+//     itself, so the point estimate −20·log10|k| (+∞ for k = 0) is
+//     compared with TL: pass if it is at or above TL, else fail. Judging
+//     the bound instead would fail a better part (smaller |k|, larger
+//     relative U) and pass a worse one at the same limit.
+//   - RuleGuarded: judged by the lower bound L = LowerBoundDB, which already
+//     contains U (EURACHEM/CITAC CG4 Appendix F), so no further guard band
+//     is applied: pass if L ≥ TL; otherwise the interval [L, ∞) straddles
 //     the limit: conditional pass if the point estimate −20·log10|k| is at
 //     or above TL, conditional fail if not. An unresolved result is never
 //     "fail", since no upper bound exists.
@@ -92,18 +96,19 @@ func DecideRejection(r Rejection, limitDB float64, rule Rule) (Decision, error) 
 		return Decision{}, fmt.Errorf("fit: lower bound %v, limit %v: %w", L, limitDB, ErrBadInput)
 	}
 	d := Decision{Rule: rule, LimitDB: limitDB, AcceptanceLimitDB: limitDB, RejectionLimitDB: limitDB, JudgedDB: L, JudgedOnLowerBound: true}
+	est := math.Inf(1)
+	if r.CoefficientVPerV != 0 {
+		est = -20 * math.Log10(math.Abs(r.CoefficientVPerV))
+	}
 	switch rule {
 	case RuleSimple:
-		if L >= limitDB {
+		d.JudgedDB, d.JudgedOnLowerBound = est, false
+		if est >= limitDB {
 			d.State = StatePass
 		} else {
 			d.State = StateFail
 		}
 	case RuleGuarded:
-		est := math.Inf(1)
-		if r.CoefficientVPerV != 0 {
-			est = -20 * math.Log10(math.Abs(r.CoefficientVPerV))
-		}
 		switch {
 		case L >= limitDB:
 			d.State = StatePass

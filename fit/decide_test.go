@@ -2,6 +2,7 @@ package fit
 
 import (
 	"errors"
+	"math"
 	"testing"
 )
 
@@ -70,9 +71,7 @@ func TestDecideRejection(t *testing.T) {
 		rule Rule
 		want State
 	}{
-		{un(130, 1e-8), RuleSimple, StatePass},
 		{un(130, 1e-8), RuleGuarded, StatePass},
-		{un(80, 1e-8), RuleSimple, StateFail},             // bound below the limit
 		{un(80, 1e-8), RuleGuarded, StateConditionalPass}, // estimate 160 dB ≥ TL, bound below
 		{un(80, 1e-4), RuleGuarded, StateConditionalFail}, // estimate 80 dB < TL
 		{un(80, 0), RuleGuarded, StateConditionalPass},    // exactly zero estimate
@@ -84,6 +83,47 @@ func TestDecideRejection(t *testing.T) {
 		}
 		if d.State != c.want || !d.JudgedOnLowerBound || d.JudgedDB != c.r.LowerBoundDB || d.Rule != c.rule {
 			t.Errorf("case %d: %+v, want %s", i, d, c.want)
+		}
+	}
+}
+
+// TestDecideRejectionSimpleJudgesMeasuredValue: simple acceptance (w = 0,
+// ILAC-G8:09/2019 §4.2.1) compares the measured value with the limit, also
+// when the coefficient is not resolved. At a 120 dB limit (1 µV/V) a part
+// at 0.80 µV/V with U = 0.90 µV/V (unresolved, bound 115.4 dB) is better
+// than one at 0.86 µV/V with U = 0.80 µV/V (resolved, 121.3 dB): both pass,
+// where judging the bound failed the better one.
+func TestDecideRejectionSimpleJudgesMeasuredValue(t *testing.T) {
+	rej := func(kUV, UUV float64) Rejection {
+		b := Budget{Unit: "µV/V", Value: kUV, CombinedStdUnc: UUV / 2, ExpandedU: UUV, CoverageK: 2}
+		r, err := RejectionFromBudget(b)
+		if err != nil {
+			t.Fatal(err)
+		}
+		return r
+	}
+	better, worse := rej(0.80, 0.90), rej(0.86, 0.80)
+	if better.Resolved || !worse.Resolved {
+		t.Fatalf("setup: resolved %v %v", better.Resolved, worse.Resolved)
+	}
+	for _, c := range []struct {
+		name string
+		r    Rejection
+		lim  float64
+		want State
+		db   float64
+	}{
+		{"better, unresolved", better, 120, StatePass, 121.94}, // 20·log10(1/0.80e-6)
+		{"worse, resolved", worse, 120, StatePass, 121.31},     // 20·log10(1/0.86e-6)
+		{"better at 122 dB", better, 122, StateFail, 121.94},
+		{"zero estimate", rej(0, 0.5), 200, StatePass, math.Inf(1)},
+	} {
+		d, err := DecideRejection(c.r, c.lim, RuleSimple)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if d.State != c.want || d.JudgedOnLowerBound || !(math.Abs(d.JudgedDB-c.db) < 0.01 || d.JudgedDB == c.db) {
+			t.Errorf("%s: %+v, want %s judged on %.2f dB", c.name, d, c.want, c.db)
 		}
 	}
 }

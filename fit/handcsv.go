@@ -121,7 +121,7 @@ func HandFit(p Points, opt HandOptions) (HandResult, error) {
 		DriftFitted: lf.HasDrift, Slope: lf.Slope.Value, SlopeU: lf.Slope.StdErr,
 		Intercept: lf.Intercept.Value, DriftVoltsPerS: lf.Drift.Value,
 		ResidualSD: lf.ResidualSD, DOF: lf.DOF,
-		CoefficientUVPerV: rej.CoefficientUVPerV, CoefficientUUVPerV: rej.StdUncUVPerV,
+		CoefficientUVPerV: rej.CoefficientUVPerV, CoefficientStdUUVPerV: rej.StdUncUVPerV,
 		RatioDB: rej.RatioDB, ExpandedUDB: rej.ExpandedUDB, LowerDB: rej.LowerDB, UpperDB: rej.UpperDB,
 		CoverageK: rej.CoverageK, EffectiveDOF: rej.EffectiveDOF,
 		Resolved: rej.Resolved, LowerBoundDB: rej.LowerBoundDB, Budget: rej.Budget.Rows,
@@ -137,7 +137,7 @@ func (h HandResult) WriteText(w io.Writer) error {
 	}
 	fmt.Fprintln(tw, ")")
 	fmt.Fprintf(tw, "slope\t%.6g V/V\tu = %.3g V/V, residual SD %.3g V, %d dof\n", h.Slope, h.SlopeU, h.ResidualSD, h.DOF)
-	fmt.Fprintf(tw, "coefficient\t%.4g µV/V\tu = %.3g µV/V, ν_eff = %s\n", h.CoefficientUVPerV, h.CoefficientUUVPerV, dofText(h.EffectiveDOF))
+	fmt.Fprintf(tw, "coefficient\t%.4g µV/V\tu = %.3g µV/V, ν_eff = %s\n", h.CoefficientUVPerV, h.CoefficientStdUUVPerV, dofText(h.EffectiveDOF))
 	if h.Resolved {
 		fmt.Fprintf(tw, "%s\t%.2f dB\tU = %.2g dB (k = %.3f: %.3f to %.3f dB)\n", h.Quantity, h.RatioDB, h.ExpandedUDB, h.CoverageK, h.LowerDB, h.UpperDB)
 	} else {

@@ -3,6 +3,7 @@ package fit
 import (
 	"fmt"
 	"math"
+	"slices"
 	"strconv"
 
 	"gonum.org/v1/gonum/mat"
@@ -298,6 +299,27 @@ func Line(x, y []float64, opt LineOptions) (LineFit, error) {
 		cols = append(cols, x2)
 		names = append(names, "quad")
 	}
+	if opt.Segments != nil {
+		if len(opt.Segments) != len(x) {
+			panic(fmt.Sprintf("fit.Line: len(Segments) = %d, len(x) = %d", len(opt.Segments), len(x)))
+		}
+		var order []int
+		for _, s := range opt.Segments {
+			if !slices.Contains(order, s) {
+				order = append(order, s)
+			}
+		}
+		for j, seg := range order[1:] {
+			col := make([]float64, len(x))
+			for i, s := range opt.Segments {
+				if s == seg {
+					col[i] = 1
+				}
+			}
+			cols = append(cols, col)
+			names = append(names, fmt.Sprintf("offset step %d", j+1))
+		}
+	}
 	lf, err := Linear(y, cols, LinearOptions{NoIntercept: opt.NoIntercept, Names: names})
 	if err != nil {
 		if opt.Time != nil {
@@ -326,7 +348,9 @@ func Line(x, y []float64, opt LineOptions) (LineFit, error) {
 		out.QuadIndex = i
 		out.Quad = lf.Terms[i]
 		out.HasQuad = true
+		i++
 	}
+	out.Steps = append(out.Steps, lf.Terms[i:]...)
 	return out, nil
 }
 
@@ -521,4 +545,52 @@ func ddAdd(ah, al, bh, bl float64) (float64, float64) {
 	s, e := twoSum(ah, bh)
 	e += al + bl
 	return twoSum(s, e)
+}
+
+// VarianceInflation returns the variance inflation factor of a regressor
+// a against one other regressor b in a model with an intercept,
+//
+//	VIF = 1/(1 − r²),  r = Pearson correlation of a and b
+//
+// (Marquardt, Technometrics 12, 1970; Draper & Smith, Applied Regression
+// Analysis, ch. 16): how many times the variance of a's coefficient grows
+// because b is in the model. It is +Inf when a and b are collinear and
+// NaN when either does not vary. Values above 10 are the usual warning
+// threshold (common practice, no published source for the number).
+func VarianceInflation(a, b []float64) float64 {
+	if len(a) != len(b) {
+		panic(fmt.Sprintf("fit.VarianceInflation: len(a) = %d, len(b) = %d", len(a), len(b)))
+	}
+	ma, mb := mean(a), mean(b)
+	var saa, sbb, sab float64
+	for i := range a {
+		da, db := a[i]-ma, b[i]-mb
+		saa += da * da
+		sbb += db * db
+		sab += da * db
+	}
+	if saa == 0 || sbb == 0 {
+		return math.NaN()
+	}
+	r2 := sab * sab / (saa * sbb)
+	if r2 >= 1 {
+		return math.Inf(1)
+	}
+	return 1 / (1 - r2)
+}
+
+// SlopeAt returns the slope of the fitted curve at stimulus x0,
+//
+//	dy/dx(x0) = b1 + 2·b3·x0,  u² = u(b1)² + 4·x0²·u(b3)² + 4·x0·cov(b1, b3)
+//
+// (GUM 5.2.2, correlated inputs, with the covariances of the fit). Without
+// a quadratic term it is the slope itself.
+func (f LineFit) SlopeAt(x0 float64) Term {
+	if !f.HasQuad || f.QuadIndex < 0 || f.SlopeIndex < 0 {
+		return f.Slope
+	}
+	c := f.Model.Cov
+	i, j := f.SlopeIndex, f.QuadIndex
+	v := c[i][i] + 4*x0*x0*c[j][j] + 4*x0*c[i][j]
+	return Term{Name: f.Slope.Name, Value: f.Slope.Value + 2*f.Quad.Value*x0, StdErr: math.Sqrt(math.Max(v, 0))}
 }

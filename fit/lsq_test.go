@@ -182,3 +182,86 @@ func TestLineStdErrMatchesFormula(t *testing.T) {
 		t.Errorf("residuals sum to %v with an intercept", sum)
 	}
 }
+
+// TestVarianceInflation: VIF = 1/(1 − r²) (Marquardt 1970). Ascending
+// levels with time rising alongside are collinear (+Inf); a zigzag
+// 0, +1, −1, +2, −2 against time 0..4 has r = −0.3 by hand
+// (Σ(x−x̄)(t−t̄) = −3, Σ(x−x̄)² = 10, Σ(t−t̄)² = 10), so VIF = 1/0.91.
+func TestVarianceInflation(t *testing.T) {
+	tm := []float64{0, 1, 2, 3, 4}
+	if v := VarianceInflation([]float64{-2, -1, 0, 1, 2}, tm); !math.IsInf(v, 1) {
+		t.Errorf("ascending: VIF %g, want +Inf", v)
+	}
+	if v := VarianceInflation([]float64{0, 1, -1, 2, -2}, tm); math.Abs(v-1/0.91) > 1e-12 {
+		t.Errorf("zigzag: VIF %.15g, want %.15g", v, 1/0.91)
+	}
+	if v := VarianceInflation([]float64{1, 1, 1, 1, 1}, tm); !math.IsNaN(v) {
+		t.Errorf("constant: VIF %g, want NaN", v)
+	}
+}
+
+// TestSlopeAt: y = 1 + 2x + 0.5x² exactly has slope 2 + x: 2 at 0 and 5 at
+// 3 (calculus). With noise, the standard error at the centre of the data
+// equals that of the slope refitted on x − x̄ (the same model
+// reparametrised, so the same variance: GUM 5.2.2 with the fit's
+// covariance).
+func TestSlopeAt(t *testing.T) {
+	x := []float64{0, 1, 2, 3, 4, 5, 6}
+	y := make([]float64, len(x))
+	for i, v := range x {
+		y[i] = 1 + 2*v + 0.5*v*v + 1e-3*math.Sin(3*v)
+	}
+	f, err := Line(x, y, LineOptions{Quadratic: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if s := f.SlopeAt(3); math.Abs(s.Value-5) > 0.01 {
+		t.Errorf("slope at 3: %g, want 5", s.Value)
+	}
+	xc := make([]float64, len(x))
+	for i, v := range x {
+		xc[i] = v - 3
+	}
+	fc, err := Line(xc, y, LineOptions{Quadratic: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	s := f.SlopeAt(3)
+	if math.Abs(s.Value-fc.Slope.Value) > 1e-9 || math.Abs(s.StdErr-fc.Slope.StdErr) > 1e-9*fc.Slope.StdErr+1e-15 {
+		t.Errorf("slope at centre %g ± %g, centred refit %g ± %g", s.Value, s.StdErr, fc.Slope.Value, fc.Slope.StdErr)
+	}
+	lin, _ := Line(x, y, LineOptions{})
+	if lin.SlopeAt(3) != lin.Slope {
+		t.Errorf("no quadratic term: SlopeAt changed the slope")
+	}
+}
+
+// TestLineSegments: y = 2 + 3x with a step of +0.5 from the fourth point
+// on (a reading offset that changed between two sessions). A single line
+// puts part of the step into the slope; with a segment offset the slope is
+// exactly 3 and the step 0.5 (exact data, least squares reproduces them).
+func TestLineSegments(t *testing.T) {
+	x := []float64{-2, 0, 2, -1, 1, 3}
+	seg := []int{0, 0, 0, 1, 1, 1}
+	y := make([]float64, len(x))
+	for i, v := range x {
+		y[i] = 2 + 3*v
+		if seg[i] == 1 {
+			y[i] += 0.5
+		}
+	}
+	plain, err := Line(x, y, LineOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if math.Abs(plain.Slope.Value-3) < 0.01 {
+		t.Fatalf("setup: the step does not bias the plain slope (%g)", plain.Slope.Value)
+	}
+	f, err := Line(x, y, LineOptions{Segments: seg})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if math.Abs(f.Slope.Value-3) > 1e-12 || len(f.Steps) != 1 || math.Abs(f.Steps[0].Value-0.5) > 1e-12 || f.DOF != 3 {
+		t.Errorf("slope %g, steps %+v, dof %d", f.Slope.Value, f.Steps, f.DOF)
+	}
+}

@@ -132,6 +132,13 @@ type LineOptions struct {
 	Quadratic bool
 	// NoIntercept removes b0.
 	NoIntercept bool
+	// Segments, if not nil, gives each point's segment (any int, e.g. the
+	// session of a resumed run) and adds one offset term per segment other
+	// than the first point's, so that a step of the reading between
+	// segments falls into its own term and not into the slope. Terms are
+	// named "offset step 1", "offset step 2", … in order of first
+	// appearance. Must have the length of x.
+	Segments []int
 }
 
 // LineFit is a straight line y = b0 + b1·x [+ b2·t] [+ b3·x²] fitted by
@@ -145,6 +152,9 @@ type LineFit struct {
 	Quad      Term      `json:"quad"`
 	HasDrift  bool      `json:"has_drift"`
 	HasQuad   bool      `json:"has_quad"`
+	// Steps are the offset steps of LineOptions.Segments (y units), one per
+	// segment after the first.
+	Steps []Term `json:"steps,omitempty"`
 	// Index of each term in Model.Terms (−1 when absent).
 	InterceptIndex int `json:"intercept_index"`
 	SlopeIndex     int `json:"slope_index"`
@@ -478,26 +488,26 @@ type HandOptions struct {
 
 // HandResult is the analysis of hand-taken readings, ready for JSON.
 type HandResult struct {
-	Stimulus           string      `json:"stimulus"`
-	Quantity           string      `json:"quantity"` // "CMRR" or "PSRR"
-	N                  int         `json:"n"`
-	Gain               float64     `json:"gain"`
-	DriftFitted        bool        `json:"drift_fitted"`
-	Slope              float64     `json:"slope"`
-	SlopeU             float64     `json:"slope_u"`
-	Intercept          float64     `json:"intercept_volts"`
-	DriftVoltsPerS     float64     `json:"drift_volts_per_s"`
-	ResidualSD         float64     `json:"residual_sd"`
-	DOF                int         `json:"dof"`
-	CoefficientUVPerV  float64     `json:"coefficient_uV_per_V"`
-	CoefficientUUVPerV float64     `json:"coefficient_u_uV_per_V"`
-	RatioDB            float64     `json:"ratio_db"`
-	ExpandedUDB        float64     `json:"expanded_u_db"`
-	LowerDB            float64     `json:"lower_db"`
-	UpperDB            float64     `json:"upper_db"`
-	CoverageK          float64     `json:"coverage_k"`
-	EffectiveDOF       DOF         `json:"effective_dof"`
-	Resolved           bool        `json:"resolved"`
-	LowerBoundDB       float64     `json:"lower_bound_db"`
-	Budget             []BudgetRow `json:"budget"`
+	Stimulus              string      `json:"stimulus"`
+	Quantity              string      `json:"quantity"` // "CMRR" or "PSRR"
+	N                     int         `json:"n"`
+	Gain                  float64     `json:"gain"`
+	DriftFitted           bool        `json:"drift_fitted"`
+	Slope                 float64     `json:"slope"`
+	SlopeU                float64     `json:"slope_u"`
+	Intercept             float64     `json:"intercept_volts"`
+	DriftVoltsPerS        float64     `json:"drift_volts_per_s"`
+	ResidualSD            float64     `json:"residual_sd"`
+	DOF                   int         `json:"dof"`
+	CoefficientUVPerV     float64     `json:"coefficient_uV_per_V"`
+	CoefficientStdUUVPerV float64     `json:"coefficient_std_u_uV_per_V"`
+	RatioDB               float64     `json:"ratio_db"`
+	ExpandedUDB           float64     `json:"expanded_u_db"`
+	LowerDB               float64     `json:"lower_db"`
+	UpperDB               float64     `json:"upper_db"`
+	CoverageK             float64     `json:"coverage_k"`
+	EffectiveDOF          DOF         `json:"effective_dof"`
+	Resolved              bool        `json:"resolved"`
+	LowerBoundDB          float64     `json:"lower_bound_db"`
+	Budget                []BudgetRow `json:"budget"`
 }

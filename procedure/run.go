@@ -263,6 +263,10 @@ type position struct {
 
 // runner carries one run's state.
 type runner struct {
+	// session numbers the journal's runs: 0 fresh, n on the n-th resume
+	// (journal.Reading.Session).
+	session int
+
 	p      *plan.Plan
 	rig    *Rig
 	opt    RunOptions
@@ -310,6 +314,7 @@ func newRunner(p *plan.Plan, rig *Rig, opt RunOptions) *runner {
 	}
 	if c := opt.Resume; c != nil {
 		r.done = c.Done()
+		r.session = len(c.Resumes) + 1
 		r.out.Readings = append(r.out.Readings, c.Readings...)
 		r.out.Recovered = len(c.Readings)
 		// Continue the bench-time axis of the journal: its last bench time

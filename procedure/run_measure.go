@@ -114,7 +114,7 @@ func (r *runner) point(ctx context.Context, t *plan.Test, st plan.Step, key plan
 	}
 	stepAt := r.clk.Now()
 	rd := journal.Reading{Unit: key.Unit, Test: key.Test, Part: key.Part, TempIndex: key.TempIndex,
-		Repeat: key.Repeat, Step: key.Step, SetVolts: st.LevelVolts, ReadVolts: st.LevelVolts}
+		Repeat: key.Repeat, Step: key.Step, SetVolts: st.LevelVolts, ReadVolts: st.LevelVolts, Session: r.session}
 
 	r.at.stage = stageSettle
 	if err := r.clk.Sleep(ctx, seconds(t.DwellSeconds)); err != nil {
@@ -130,11 +130,14 @@ func (r *runner) point(ctx context.Context, t *plan.Test, st plan.Step, key plan
 	}
 
 	r.at.stage = stageReadBack
-	rv, ok, err := r.readBack(ctx, t, st)
+	rv, ok, rails, err := r.readBack(ctx, t, st)
 	if err != nil {
 		return rd, err
 	}
 	rd.ReadVolts, rd.ReadBack = rv, ok
+	if rails != nil {
+		rd.PosRailVolts, rd.NegRailVolts, rd.RailsReadBack = rails[0], rails[1], true
+	}
 
 	r.at.stage = stageMeasure
 	t0 := r.clk.Now()
@@ -272,11 +275,16 @@ func (r *runner) readN(ctx context.Context, n int) (vals []float64, overload boo
 // supply-shift cmrr, and the source's own reading for the source-driven
 // tests. A role whose driver cannot read back (errors.ErrUnsupported)
 // leaves ok false and the level as set; any other error stops the run.
-func (r *runner) readBack(ctx context.Context, t *plan.Test, st plan.Step) (float64, bool, error) {
+// When the level moves both rails, rails holds the two read-backs (V+, V−)
+// so that the analysis can use what L_read drops (the span change of a
+// supply shift, the mean shift of psrr_sym); it is nil otherwise.
+func (r *runner) readBack(ctx context.Context, t *plan.Test, st plan.Step) (float64, bool, *[2]float64, error) {
 	rs := stimulusRoles(r.p, t, st.Part)
 	if len(rs) == 0 {
-		return st.LevelVolts, false, nil
+		return st.LevelVolts, false, nil, nil
 	}
+	var rails [2]float64
+	var seen [2]bool
 	var num, den float64
 	for _, x := range rs {
 		var v float64
@@ -286,18 +294,27 @@ func (r *runner) readBack(ctx context.Context, t *plan.Test, st plan.Step) (floa
 		} else if s := r.source(x.role); s != nil {
 			v, err = s.ReadVolts(ctx)
 		} else {
-			return st.LevelVolts, false, nil
+			return st.LevelVolts, false, nil, nil
 		}
 		if errors.Is(err, errors.ErrUnsupported) {
-			return st.LevelVolts, false, nil
+			return st.LevelVolts, false, nil, nil
 		}
 		if err != nil {
-			return 0, false, fmt.Errorf("%s: read back: %w", x.role, err)
+			return 0, false, nil, fmt.Errorf("%s: read back: %w", x.role, err)
+		}
+		switch x.role {
+		case plan.RoleSupplyPos:
+			rails[0], seen[0] = v, true
+		case plan.RoleSupplyNeg:
+			rails[1], seen[1] = v, true
 		}
 		num += x.slope * (v - roleVolts(st.State, x.role))
 		den += x.slope * x.slope
 	}
-	return st.LevelVolts + num/den, true, nil
+	if seen[0] && seen[1] {
+		return st.LevelVolts + num/den, true, &rails, nil
+	}
+	return st.LevelVolts + num/den, true, nil, nil
 }
 
 // meanSD returns the mean and the sample standard deviation (n - 1 in the

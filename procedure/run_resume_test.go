@@ -190,6 +190,14 @@ func TestRunResumeAfterAbortGivesTheSamePoints(t *testing.T) {
 			}
 			out2, _ := resume(t, p, path, &recProgress{})
 			sameKeys(t, "resumed outcome", keySet(t, out2.Readings), want)
+			// Readings carry the session that took them: 0 before the
+			// break, 1 after the first resume.
+			for i, r := range out2.Readings {
+				if wantS := map[bool]int{true: 0, false: 1}[i < out2.Recovered]; r.Session != wantS {
+					t.Errorf("reading %d (recovered %d): session %d, want %d", i, out2.Recovered, r.Session, wantS)
+					break
+				}
+			}
 			jk, _ := journalKeys(t, path)
 			sameKeys(t, "resumed journal", jk, want)
 		})

@@ -51,7 +51,7 @@ func largeCampaign(units int, temps []float64) *Campaign {
 					verdict = VerdictConditionalPass
 				}
 				c.Results = append(c.Results, Result{Unit: id, Test: test, TemperatureC: temp,
-					CoefficientUVPerV: coef, CoefficientUUVPerV: 0.05 * coef, RatioDB: db, ExpandedUDB: 0.9,
+					CoefficientUVPerV: coef, CoefficientStdUUVPerV: 0.05 * coef, RatioDB: db, ExpandedUDB: 0.9,
 					ExpandedUDBLow: math.NaN(), ExpandedUDBHigh: math.NaN(), CoverageK: 2.1, DOFEffective: 17,
 					Resolved: true, LowerBoundDB: math.NaN(), LimitDB: 110, Verdict: verdict, Rule: "guarded"})
 				for k, comp := range []string{"slope (Type A)", "noise gain K", "meter gain", "stimulus read-back", "thermal EMF"} {

@@ -25,11 +25,15 @@ type CSVOptions struct {
 // resultCSVHeader is the header of WriteResultsCSV; the names match the
 // JSON-lines keys.
 var resultCSVHeader = []string{
-	"unit", "test", "temperature_c", "coefficient_uv_per_v", "coefficient_u_uv_per_v",
+	"unit", "test", "temperature_c", "coefficient_uv_per_v", "coefficient_std_u_uv_per_v", "coefficient_expanded_u_uv_per_v",
 	"ratio_db", "expanded_u_db", "expanded_u_low_db", "expanded_u_high_db", "coverage_k",
-	"dof_effective", "resolved", "lower_bound_db", "reported_db", "limit_db", "verdict", "rule", "flags",
+	"dof_effective", "resolved", "lower_bound_db", "reported_db", "limit_db", "verdict", "rule", "flags", "notes",
 	"campaign_incomplete", "missing_points",
 }
+
+// NotesSeparator joins a result's notes in the CSV notes column (notes are
+// sentences that may hold commas and semicolons).
+const NotesSeparator = " | "
 
 // readingCSVHeader is the header of WriteReadingsCSV.
 var readingCSVHeader = []string{
@@ -51,10 +55,11 @@ func WriteResultsCSV(w io.Writer, results []Result, opt CSVOptions) error {
 	for i := range results {
 		r := &results[i]
 		rec := []string{
-			t(r.Unit), t(r.Test), fnum(r.TemperatureC), fnum(r.CoefficientUVPerV), fnum(r.CoefficientUUVPerV),
+			t(r.Unit), t(r.Test), fnum(r.TemperatureC), fnum(r.CoefficientUVPerV), fnum(r.CoefficientStdUUVPerV), fnum(r.CoefficientExpandedUUVPerV),
 			fnum(r.RatioDB), fnum(r.ExpandedUDB), fnum(r.ExpandedUDBLow), fnum(r.ExpandedUDBHigh), fnum(r.CoverageK),
 			fnum(r.DOFEffective), strconv.FormatBool(r.Resolved), fnum(r.LowerBoundDB), fnum(r.ReportedDB()),
 			fnum(r.LimitDB), t(r.Verdict), t(r.Rule), t(strings.Join(r.Flags, ";")),
+			t(strings.Join(r.Notes, NotesSeparator)),
 			strconv.FormatBool(r.Incomplete), strconv.Itoa(r.MissingPoints),
 		}
 		if err := cw.Write(rec); err != nil {
@@ -135,24 +140,27 @@ func (v jnum) MarshalJSON() ([]byte, error) {
 
 // resultJSON is one line of WriteResultsJSONL.
 type resultJSON struct {
-	Unit               string   `json:"unit"`
-	Test               string   `json:"test"`
-	TemperatureC       jnum     `json:"temperature_c"`
-	CoefficientUVPerV  jnum     `json:"coefficient_uv_per_v"`
-	CoefficientUUVPerV jnum     `json:"coefficient_u_uv_per_v"`
-	RatioDB            jnum     `json:"ratio_db"`
-	ExpandedUDB        jnum     `json:"expanded_u_db"`
-	ExpandedUDBLow     jnum     `json:"expanded_u_low_db"`
-	ExpandedUDBHigh    jnum     `json:"expanded_u_high_db"`
-	CoverageK          jnum     `json:"coverage_k"`
-	DOFEffective       jnum     `json:"dof_effective"`
-	Resolved           bool     `json:"resolved"`
-	LowerBoundDB       jnum     `json:"lower_bound_db"`
-	ReportedDB         jnum     `json:"reported_db"`
-	LimitDB            jnum     `json:"limit_db"`
-	Verdict            string   `json:"verdict"`
-	Rule               string   `json:"rule"`
-	Flags              []string `json:"flags,omitempty"`
+	Unit                       string   `json:"unit"`
+	Test                       string   `json:"test"`
+	TemperatureC               jnum     `json:"temperature_c"`
+	CoefficientUVPerV          jnum     `json:"coefficient_uv_per_v"`
+	CoefficientStdUUVPerV      jnum     `json:"coefficient_std_u_uv_per_v"`
+	CoefficientExpandedUUVPerV jnum     `json:"coefficient_expanded_u_uv_per_v"`
+	RatioDB                    jnum     `json:"ratio_db"`
+	ExpandedUDB                jnum     `json:"expanded_u_db"`
+	ExpandedUDBLow             jnum     `json:"expanded_u_low_db"`
+	ExpandedUDBHigh            jnum     `json:"expanded_u_high_db"`
+	CoverageK                  jnum     `json:"coverage_k"`
+	DOFEffective               jnum     `json:"dof_effective"`
+	Resolved                   bool     `json:"resolved"`
+	LowerBoundDB               jnum     `json:"lower_bound_db"`
+	ReportedDB                 jnum     `json:"reported_db"`
+	LimitDB                    jnum     `json:"limit_db"`
+	Verdict                    string   `json:"verdict"`
+	Rule                       string   `json:"rule"`
+	Flags                      []string `json:"flags,omitempty"`
+	// Notes is always present (an empty list when the result has none).
+	Notes              []string `json:"notes"`
 	CampaignIncomplete bool     `json:"campaign_incomplete"`
 	MissingPoints      int      `json:"missing_points"`
 }
@@ -187,11 +195,12 @@ func WriteResultsJSONL(w io.Writer, results []Result) error {
 		r := &results[i]
 		if err := enc.Encode(resultJSON{
 			Unit: r.Unit, Test: r.Test, TemperatureC: jnum(r.TemperatureC),
-			CoefficientUVPerV: jnum(r.CoefficientUVPerV), CoefficientUUVPerV: jnum(r.CoefficientUUVPerV),
+			CoefficientUVPerV: jnum(r.CoefficientUVPerV), CoefficientStdUUVPerV: jnum(r.CoefficientStdUUVPerV),
 			RatioDB: jnum(r.RatioDB), ExpandedUDB: jnum(r.ExpandedUDB), ExpandedUDBLow: jnum(r.ExpandedUDBLow),
 			ExpandedUDBHigh: jnum(r.ExpandedUDBHigh), CoverageK: jnum(r.CoverageK), DOFEffective: jnum(r.DOFEffective),
 			Resolved: r.Resolved, LowerBoundDB: jnum(r.LowerBoundDB), ReportedDB: jnum(r.ReportedDB()),
 			LimitDB: jnum(r.LimitDB), Verdict: r.Verdict, Rule: r.Rule, Flags: r.Flags,
+			CoefficientExpandedUUVPerV: jnum(r.CoefficientExpandedUUVPerV), Notes: notesOrEmpty(r.Notes),
 			CampaignIncomplete: r.Incomplete, MissingPoints: r.MissingPoints,
 		}); err != nil {
 			return fmt.Errorf("report: results JSON line %d (unit %q): %w", i+1, r.Unit, err)
@@ -223,4 +232,13 @@ func WriteReadingsJSONL(w io.Writer, readings []Reading) error {
 		return fmt.Errorf("report: readings JSON lines: %w", err)
 	}
 	return nil
+}
+
+// notesOrEmpty returns notes, or an empty list for none, so that the JSON
+// key is always a list.
+func notesOrEmpty(n []string) []string {
+	if n == nil {
+		return []string{}
+	}
+	return n
 }

@@ -44,20 +44,21 @@ func golden(t *testing.T, name string, got []byte) {
 func exportResults() []Result {
 	nan := math.NaN()
 	return []Result{
-		{Unit: "U01", Test: "cmrr", TemperatureC: 25, CoefficientUVPerV: 0.5623413251903491, CoefficientUUVPerV: 0.028,
+		{Unit: "U01", Test: "cmrr", TemperatureC: 25, CoefficientUVPerV: 0.5623413251903491, CoefficientStdUUVPerV: 0.028, CoefficientExpandedUUVPerV: 0.0596,
 			RatioDB: 125, ExpandedUDB: 0.87, ExpandedUDBLow: nan, ExpandedUDBHigh: nan, CoverageK: 2.13, DOFEffective: 20,
 			Resolved: true, LowerBoundDB: nan, LimitDB: 110, Verdict: VerdictPass, Rule: "guarded"},
-		{Unit: "U07", Test: "cmrr", TemperatureC: 25, CoefficientUVPerV: 0.003, CoefficientUUVPerV: 0.05,
-			RatioDB: 170.46, ExpandedUDB: nan, ExpandedUDBLow: nan, ExpandedUDBHigh: nan, CoverageK: 2, DOFEffective: math.Inf(1),
-			Resolved: false, LowerBoundDB: 139.91, LimitDB: 110, Verdict: VerdictPass, Rule: "guarded", Flags: []string{"unresolved"}},
-		{Unit: "=1+2", Test: "psrr_pos", TemperatureC: -40, CoefficientUVPerV: 31.6, CoefficientUUVPerV: 3.2,
+		{Unit: "U07", Test: "cmrr", TemperatureC: 25, CoefficientUVPerV: 0.003, CoefficientStdUUVPerV: 0.05, CoefficientExpandedUUVPerV: 0.1,
+			RatioDB: nan, ExpandedUDB: nan, ExpandedUDBLow: nan, ExpandedUDBHigh: nan, CoverageK: 2, DOFEffective: math.Inf(1),
+			Resolved: false, LowerBoundDB: 139.91, LimitDB: 110, Verdict: VerdictPass, Rule: "guarded", Flags: []string{"unresolved"},
+			Notes: []string{"k_c + k_o, not CMRR; |k_o| ≤ 3.2 µV/V", "drift term dropped (too few levels)"}},
+		{Unit: "=1+2", Test: "psrr_pos", TemperatureC: -40, CoefficientUVPerV: 31.6, CoefficientStdUUVPerV: 3.2,
 			RatioDB: 90.0, ExpandedUDB: 0.9, ExpandedUDBLow: 0.85, ExpandedUDBHigh: 0.95, CoverageK: 2.05, DOFEffective: 50,
 			Resolved: true, LowerBoundDB: nan, LimitDB: nan, Verdict: VerdictNotJudged, Rule: "simple"},
-		{Unit: "@SUM(A1)", Test: "cmrr", TemperatureC: 85, CoefficientUVPerV: 3.3, CoefficientUUVPerV: 0.1,
+		{Unit: "@SUM(A1)", Test: "cmrr", TemperatureC: 85, CoefficientUVPerV: 3.3, CoefficientStdUUVPerV: 0.1,
 			RatioDB: 109.63, ExpandedUDB: 0.5, ExpandedUDBLow: nan, ExpandedUDBHigh: nan, CoverageK: 2, DOFEffective: 12.4,
 			Resolved: true, LowerBoundDB: nan, LimitDB: 110, Verdict: VerdictConditionalFail, Rule: "guarded",
 			Flags: []string{"settle-timeout", "note, with \"quotes\""}},
-		{Unit: "-y", Test: "cmrr", TemperatureC: 25, CoefficientUVPerV: -5.6, CoefficientUUVPerV: 0.2,
+		{Unit: "-y", Test: "cmrr", TemperatureC: 25, CoefficientUVPerV: -5.6, CoefficientStdUUVPerV: 0.2,
 			RatioDB: 105.04, ExpandedUDB: 0.3, ExpandedUDBLow: nan, ExpandedUDBHigh: nan, CoverageK: 2, DOFEffective: 8,
 			Resolved: true, LowerBoundDB: nan, LimitDB: 110, Verdict: VerdictFail, Rule: "guarded"},
 	}
@@ -125,6 +126,8 @@ func TestCSVIsRFC4180(t *testing.T) {
 		{1, "coefficient_uv_per_v", "0.5623413251903491"}, // shortest form that reads back exactly
 		{1, "expanded_u_low_db", ""},                      // NaN
 		{2, "resolved", "false"},
+		{2, "ratio_db", ""}, // unresolved: no ratio, only the bound
+		{2, "notes", "k_c + k_o, not CMRR; |k_o| ≤ 3.2 µV/V | drift term dropped (too few levels)"},
 		{2, "lower_bound_db", "139.91"},
 		{2, "reported_db", "139.91"},
 		{2, "dof_effective", "+Inf"},
@@ -188,7 +191,8 @@ func TestResultsJSONL(t *testing.T) {
 		if err := json.Unmarshal([]byte(line), &m); err != nil {
 			t.Fatalf("line %d is not one JSON object: %v\n%s", i+1, err, line)
 		}
-		for _, k := range []string{"unit", "test", "temperature_c", "ratio_db", "expanded_u_db", "coverage_k", "resolved", "lower_bound_db", "verdict"} {
+		for _, k := range []string{"unit", "test", "temperature_c", "ratio_db", "expanded_u_db", "coverage_k", "resolved", "lower_bound_db", "verdict",
+			"coefficient_std_u_uv_per_v", "coefficient_expanded_u_uv_per_v", "notes"} {
 			if _, ok := m[k]; !ok {
 				t.Errorf("line %d lacks %q", i+1, k)
 			}
@@ -200,12 +204,20 @@ func TestResultsJSONL(t *testing.T) {
 	var r2 map[string]any
 	json.Unmarshal([]byte(lines[1]), &r2)
 	// NaN and infinity have no JSON form (RFC 8259 §6): null.
-	if r2["expanded_u_db"] != nil || r2["dof_effective"] != nil || r2["resolved"] != false || r2["lower_bound_db"] != 139.91 {
+	// An unresolved result has no ratio: ratio_db is null, not 0.
+	if r2["ratio_db"] != nil || r2["expanded_u_db"] != nil || r2["dof_effective"] != nil || r2["resolved"] != false || r2["lower_bound_db"] != 139.91 {
 		t.Errorf("unresolved line: %s", lines[1])
+	}
+	// Notes travel as a list, and as an empty list when there are none.
+	if n, ok := r2["notes"].([]any); !ok || len(n) != 2 || n[1] != "drift term dropped (too few levels)" {
+		t.Errorf("notes of the unresolved line: %v", r2["notes"])
 	}
 	var r1 map[string]any
 	json.Unmarshal([]byte(lines[0]), &r1)
-	if r1["coefficient_uv_per_v"] != 0.5623413251903491 || r1["coverage_k"] != 2.13 {
+	if n, ok := r1["notes"].([]any); !ok || len(n) != 0 {
+		t.Errorf("notes of a result without notes: %v", r1["notes"])
+	}
+	if r1["coefficient_uv_per_v"] != 0.5623413251903491 || r1["coverage_k"] != 2.13 || r1["coefficient_expanded_u_uv_per_v"] != 0.0596 {
 		t.Errorf("numbers not exact: %s", lines[0])
 	}
 }

@@ -98,7 +98,7 @@ func fixtureCampaign(units []string, temps []float64) *Campaign {
 				coef := 1e6 / math.Pow(10, db/20) // µV/V
 				res := Result{
 					Unit: u, Test: test, TemperatureC: temp,
-					CoefficientUVPerV: coef, CoefficientUUVPerV: coef * 0.05,
+					CoefficientUVPerV: coef, CoefficientStdUUVPerV: coef * 0.05,
 					RatioDB: db, ExpandedUDB: 1, ExpandedUDBLow: math.NaN(), ExpandedUDBHigh: math.NaN(),
 					CoverageK: 2, DOFEffective: 18, Resolved: fr.resolved, LowerBoundDB: math.NaN(),
 					LimitDB: math.NaN(), Verdict: VerdictNotJudged, Rule: "guarded",

@@ -35,7 +35,10 @@ type Campaign struct {
 	Instruments  []InstrumentInfo
 	Fixture      FixtureInfo
 	DecisionRule string // in words, e.g. "guarded acceptance, w = U (ILAC-G8:09/2019 §4.2)"
-	SafetyNote   string // what the bench did to stay safe, in words
+	// Method is the method statement, one paragraph per entry: what each
+	// figure is and how it was obtained (written on the Summary sheet).
+	Method     []string
+	SafetyNote string // what the bench did to stay safe, in words
 
 	Units       []UnitInfo   // optional: the lot's units with serials and notes
 	Results     []Result     // one per unit × test × temperature
@@ -134,10 +137,14 @@ type Result struct {
 	Test         string  // test kind: "cmrr", "psrr_pos", ...
 	TemperatureC float64 // nominal temperature
 	// CoefficientUVPerV is the input-referred change per volt of stimulus
-	// (µV/V), CoefficientUUVPerV its standard uncertainty.
-	CoefficientUVPerV  float64
-	CoefficientUUVPerV float64
-	// RatioDB = 20·log10(10⁶ / |CoefficientUVPerV|) (METHODS.md §2).
+	// (µV/V), CoefficientStdUUVPerV its standard uncertainty u and
+	// CoefficientExpandedUUVPerV its expanded uncertainty U = k·u.
+	CoefficientUVPerV          float64
+	CoefficientStdUUVPerV      float64
+	CoefficientExpandedUUVPerV float64
+	// RatioDB = 20·log10(10⁶ / |CoefficientUVPerV|) (JEDEC JESD99B); NaN
+	// (null in JSON, empty in CSV and the workbook) when the result is not
+	// resolved: then only LowerBoundDB states something about the part.
 	RatioDB float64
 	// ExpandedUDB is U = k·u in dB; ExpandedUDBLow/High are the downward and
 	// upward half-widths when the interval is asymmetric (NaN: symmetric).
@@ -159,6 +166,10 @@ type Result struct {
 	// program reading one line cannot miss it.
 	Incomplete    bool
 	MissingPoints int
+	// Notes are the analysis's sentences about this result: what the
+	// figure contains (e.g. k_c + k_o), terms dropped or added, points
+	// flagged or left out, corrections applied.
+	Notes []string
 }
 
 // ReportedDB is the value the report states for r: the ratio when it was

@@ -316,6 +316,7 @@ func writeSummary(f *excelize.File, st *styles, c *Campaign, temps []float64) er
 	w.heading("Decision and safety")
 	w.kv("Decision rule", c.DecisionRule, 0)
 	w.kv("Safety", c.SafetyNote, 0)
+	writeMethod(w, c.Method)
 
 	if len(c.TestConditions) > 0 {
 		w.heading("Test conditions")
@@ -591,18 +592,19 @@ func incompleteMark(c *Campaign) string {
 
 // resultHeaders are the Results sheet headers, in order.
 var resultHeaders = []string{
-	"Unit", "Test", "Temperature (°C)", "Coefficient (µV/V)", "Std. uncertainty of coefficient (µV/V)",
+	"Unit", "Test", "Temperature (°C)", "Coefficient (µV/V)", "Standard uncertainty u of coefficient (µV/V)",
+	"Expanded uncertainty U of coefficient (µV/V)",
 	"Ratio (dB)", "Expanded uncertainty U (dB)", "U below (dB)", "U above (dB)", "Coverage factor k",
 	"Effective degrees of freedom", "Resolved", "Lower bound (dB)", "Reported (dB)", "Statement",
-	"Limit (dB)", "Margin to limit (dB)", "Verdict", "Decision rule", "Flags",
+	"Limit (dB)", "Margin to limit (dB)", "Verdict", "Decision rule", "Flags", "Notes",
 }
 
 func writeResults(f *excelize.File, st *styles, c *Campaign) error {
 	// Widths in characters hold the longest value each column shows
-	// ("no: lower bound", "COND. FAIL"); the rule and Flags wrap.
-	colStyles := []int{st.text, st.text, st.celsius, st.uvpv, st.uvpv, st.db, st.db, st.db, st.db, st.k,
-		st.dof, st.text, st.db, st.db, st.text, st.db, st.db, st.text, st.wrap, st.wrap}
-	widths := []float64{12, 14, 12, 14, 16, 11, 13, 10, 10, 10, 12, 16, 11, 11, 40, 10, 11, 13, 24, 30}
+	// ("no: lower bound", "COND. FAIL"); the rule, Flags and Notes wrap.
+	colStyles := []int{st.text, st.text, st.celsius, st.uvpv, st.uvpv, st.uvpv, st.db, st.db, st.db, st.db, st.k,
+		st.dof, st.text, st.db, st.db, st.text, st.db, st.db, st.text, st.wrap, st.wrap, st.wrap}
+	widths := []float64{12, 17, 12, 14, 16, 16, 11, 13, 10, 10, 10, 12, 16, 11, 11, 40, 10, 11, 13, 24, 30, 40}
 	spec := tableSpec{sheet: SheetResults, table: "tblResults", freezeCols: 2}
 	spec.key = append(verdictKey(),
 		KeyValue{"no: lower bound", "|coefficient| < k·u: the ratio is not resolved and only its one-sided lower bound is stated"},
@@ -618,36 +620,54 @@ func writeResults(f *excelize.File, st *styles, c *Campaign) error {
 	}
 	spec.rowLines = func(i int) int {
 		r := &c.Results[i]
-		return max(textLines(strings.Join(r.Flags, "; "), 30), textLines(r.Rule, 24), textLines(statement(r), 40))
+		return max(textLines(strings.Join(r.Flags, "; "), 30), textLines(r.Rule, 24), textLines(statement(r), 40), textLines(strings.Join(r.Notes, NotesSeparator), 40))
 	}
 	return streamTable(f, st, spec, len(c.Results), func(i int, d []any) {
 		r := &c.Results[i]
 		rep := r.ReportedDB()
 		d[0], d[1], d[2] = r.Unit, r.Test, num(r.TemperatureC)
-		d[3], d[4] = num(r.CoefficientUVPerV), num(r.CoefficientUUVPerV)
-		d[5], d[6], d[7], d[8] = num(r.RatioDB), num(r.ExpandedUDB), num(r.ExpandedUDBLow), num(r.ExpandedUDBHigh)
-		d[9], d[10] = num(r.CoverageK), num(r.DOFEffective)
-		d[11] = "yes"
+		d[3], d[4], d[5] = num(r.CoefficientUVPerV), num(r.CoefficientStdUUVPerV), num(r.CoefficientExpandedUUVPerV)
+		d[6], d[7], d[8], d[9] = num(r.RatioDB), num(r.ExpandedUDB), num(r.ExpandedUDBLow), num(r.ExpandedUDBHigh)
+		d[10], d[11] = num(r.CoverageK), num(r.DOFEffective)
+		d[12] = "yes"
 		if !r.Resolved {
-			d[11] = excelize.Cell{StyleID: st.attention, Value: "no: lower bound"}
-			d[12] = num(r.LowerBoundDB)
+			d[12] = excelize.Cell{StyleID: st.attention, Value: "no: lower bound"}
+			d[13] = num(r.LowerBoundDB)
 		}
-		d[13] = num(rep)
-		d[14] = statement(r)
-		d[15] = num(r.LimitDB)
+		d[14] = num(rep)
+		d[15] = statement(r)
+		d[16] = num(r.LimitDB)
 		if !math.IsNaN(r.LimitDB) {
-			d[16] = num(rep - r.LimitDB)
+			d[17] = num(rep - r.LimitDB)
 		}
 		k := VerdictClass(r.Verdict)
 		label := k.Label()
 		if k == KindOther {
 			label = r.Verdict
 		}
-		d[17] = excelize.Cell{StyleID: st.verdict[k], Value: label}
-		d[18] = r.Rule
-		d[19] = joinFlags(r.Flags)
+		d[18] = excelize.Cell{StyleID: st.verdict[k], Value: label}
+		d[19] = r.Rule
+		d[20] = joinFlags(r.Flags)
+		d[21] = joinNotes(r.Notes)
 	})
 }
+
+// writeMethod writes the method statement under its own heading, one
+// paragraph per row (nothing when there is none).
+func writeMethod(w *summaryWriter, method []string) {
+	if len(method) == 0 {
+		return
+	}
+	w.heading("Method")
+	for _, p := range method {
+		w.row++
+		w.set(1, w.row, p, 0)
+	}
+}
+
+// joinNotes joins a result's notes for one cell (NotesSeparator, as in
+// the CSV).
+func joinNotes(n []string) string { return strings.Join(n, NotesSeparator) }
 
 // statement is the result in words, e.g. "121.35 dB, U = 0.42 dB (k = 2.00)"
 // or "≥ 143.70 dB (not resolved)".

@@ -1203,3 +1203,51 @@ func TestWriteWorkbookReplaces(t *testing.T) {
 		t.Errorf("directory holds %d files, want 1 (no temporary left)", len(entries))
 	}
 }
+
+// TestWorkbookNotesAndMethod: a result's notes reach the Results sheet's
+// Notes column (joined as in the CSV), an unresolved result's ratio cell
+// is empty, the coefficient's standard and expanded uncertainties have
+// their own labelled columns, and the method statement is on the Summary
+// sheet under its heading.
+func TestWorkbookNotesAndMethod(t *testing.T) {
+	c := fixtureCampaign(defaultUnits, single)
+	c.Results[0].Notes = []string{"k_c + k_o, not CMRR", "drift term dropped (too few levels)"}
+	c.Results[0].CoefficientExpandedUUVPerV = 0.125
+	c.Method = []string{"Coefficient: least-squares slope.", "Unresolved: only the lower bound."}
+	var unresolved int = -1
+	for i := range c.Results {
+		if !c.Results[i].Resolved {
+			c.Results[i].RatioDB = math.NaN()
+			unresolved = i
+			break
+		}
+	}
+	_, f := writeBook(t, c, WorkbookOptions{NoCharts: true})
+	col := func(h string) string { return headerCol(t, f, SheetResults, h) }
+	if got := cellStr(t, f, SheetResults, col("Notes")+"2"); got != "k_c + k_o, not CMRR | drift term dropped (too few levels)" {
+		t.Errorf("notes cell %q", got)
+	}
+	if got := cellNum(t, f, SheetResults, col("Expanded uncertainty U of coefficient (µV/V)")+"2"); got != 0.125 {
+		t.Errorf("expanded U of the coefficient %v", got)
+	}
+	col("Standard uncertainty u of coefficient (µV/V)")
+	if unresolved < 0 {
+		t.Fatal("fixture has no unresolved result")
+	}
+	if got := cellStrRaw(f, SheetResults, col("Ratio (dB)")+strconv.Itoa(unresolved+2)); got != "" {
+		t.Errorf("unresolved ratio cell %q, want empty", got)
+	}
+	rows, err := f.GetRows(SheetSummary)
+	if err != nil {
+		t.Fatal(err)
+	}
+	at := -1
+	for i, r := range rows {
+		if len(r) > 0 && r[0] == "Method" {
+			at = i
+		}
+	}
+	if at < 0 || at+2 >= len(rows) || rows[at+1][0] != c.Method[0] || rows[at+2][0] != c.Method[1] {
+		t.Errorf("no method section with the paragraphs (heading at row %d)", at+1)
+	}
+}

@@ -54,6 +54,7 @@ func toReport(recs ...campaignRecord) *report.Campaign {
 			c.PlanFile, c.PlanHash = p.Source, "sha256:"+p.Hash
 			c.Fixture = fixtureInfo(p)
 			c.DecisionRule = ruleWords(r.Results)
+			c.Method = analysis.MethodText()
 			c.Started, c.Finished = r.Started, r.Finished
 		} else {
 			c.Part += ", " + p.Part.Number
@@ -110,7 +111,15 @@ func toReport(recs ...campaignRecord) *report.Campaign {
 	for i := range c.Results {
 		c.Results[i].Incomplete, c.Results[i].MissingPoints = c.Incomplete, c.MissingPoints
 	}
-	c.ReferenceTests = []string{analysis.ResultCMRRUncorrected}
+	// cmrr_uncorrected is kept for reference, out of the unit verdicts,
+	// where a corrected cmrr stands beside it (the plan measured aol);
+	// without one it is the campaign's only common-mode figure and judged.
+	for _, r := range c.Results {
+		if r.Test == plan.TestCMRR {
+			c.ReferenceTests = []string{analysis.ResultCMRRUncorrected}
+			break
+		}
+	}
 	return c
 }
 
@@ -331,11 +340,12 @@ func addResults(c *report.Campaign, res *analysis.Results) {
 		}
 		c.Results = append(c.Results, report.Result{
 			Unit: r.Unit, Test: r.Name, TemperatureC: t,
-			CoefficientUVPerV: rj.CoefficientUVPerV, CoefficientUUVPerV: rj.StdUncUVPerV,
-			RatioDB: rj.RatioDB, ExpandedUDB: rj.ExpandedUDB, ExpandedUDBLow: low, ExpandedUDBHigh: high,
+			CoefficientUVPerV: rj.CoefficientUVPerV, CoefficientStdUUVPerV: rj.StdUncUVPerV,
+			CoefficientExpandedUUVPerV: rj.ExpandedUUVPerV,
+			RatioDB:                    ratioOrNaN(rj), ExpandedUDB: rj.ExpandedUDB, ExpandedUDBLow: low, ExpandedUDBHigh: high,
 			CoverageK: rj.CoverageK, DOFEffective: float64(rj.EffectiveDOF),
 			Resolved: rj.Resolved, LowerBoundDB: rj.LowerBoundDB,
-			LimitDB: limit, Verdict: verdict, Rule: rule, Flags: flags,
+			LimitDB: limit, Verdict: verdict, Rule: rule, Flags: flags, Notes: r.Notes,
 		})
 		for _, b := range rj.Budget.Rows {
 			c.Budgets = append(c.Budgets, budgetRow(r.Unit, r.Name, t, b))
@@ -490,9 +500,19 @@ func addProblems(c *report.Campaign, p *plan.Plan, res *analysis.Results) {
 		nan := math.NaN()
 		c.Results = append(c.Results, report.Result{
 			Unit: pr.Unit, Test: pr.Test, TemperatureC: setPoint(p, pr.TempIndex),
-			CoefficientUVPerV: nan, CoefficientUUVPerV: nan, RatioDB: nan, ExpandedUDB: nan, ExpandedUDBLow: nan, ExpandedUDBHigh: nan,
+			CoefficientUVPerV: nan, CoefficientStdUUVPerV: nan, CoefficientExpandedUUVPerV: nan, RatioDB: nan, ExpandedUDB: nan, ExpandedUDBLow: nan, ExpandedUDBHigh: nan,
 			CoverageK: nan, DOFEffective: nan, LowerBoundDB: nan, LimitDB: nan,
 			Verdict: VerdictNoResult, Flags: []string{pr.Problem},
 		})
 	}
+}
+
+// ratioOrNaN is the ratio of a resolved result; an unresolved one has no
+// ratio (only its lower bound), which the report writes as null or an
+// empty cell rather than 0.
+func ratioOrNaN(r fit.Rejection) float64 {
+	if !r.Resolved {
+		return math.NaN()
+	}
+	return r.RatioDB
 }

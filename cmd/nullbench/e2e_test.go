@@ -16,6 +16,7 @@ import (
 	"nullbench/instrument"
 	"nullbench/instrument/sim"
 	"nullbench/procedure/analysis"
+	"nullbench/procedure/journal"
 	"nullbench/procedure/plan"
 )
 
@@ -45,9 +46,16 @@ func (c e2eClock) Sleep(ctx context.Context, d time.Duration) error {
 // bench closes and the returned context ends when the test does, or after
 // timeout.
 func startVirtualBench(t *testing.T, dut *sim.DUTFile, timeout time.Duration) (context.Context, *sim.Bench, *sim.ManualClock) {
+	return startVirtualBenchWith(t, sim.Config{DUT: dut}, timeout)
+}
+
+// startVirtualBenchWith is startVirtualBench with more of the bench's
+// configuration (cfg.Clock is replaced by the virtual clock).
+func startVirtualBenchWith(t *testing.T, cfg sim.Config, timeout time.Duration) (context.Context, *sim.Bench, *sim.ManualClock) {
 	t.Helper()
 	clk := sim.NewManualClock()
-	bench, err := sim.New(sim.Config{DUT: dut, Clock: clk})
+	cfg.Clock = clk
+	bench, err := sim.New(cfg)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -119,6 +127,7 @@ case_tau_s = 90.0
 id = "E2E-%d"
 fixture = "nulling_loop"
 noise_gain = 1000.0
+noise_gain_tolerance = 0.001
 `, seed, seed)
 	for _, u := range units {
 		fmt.Fprintf(&b, "\n[[unit]]\nid = %q\ncmrr_db = %.6f\npsrr_pos_db = %.6f\npsrr_neg_db = %.6f\n", u.id, u.cmrr, u.psrrPos, u.psrrNeg)
@@ -132,11 +141,12 @@ noise_gain = 1000.0
 
 // e2eRun is one campaign on a fresh simulated bench.
 type e2eRun struct {
-	plan    *plan.Plan
-	results *analysis.Results
-	truth   map[string]sim.UnitTruth
-	clock   *sim.ManualClock
-	bench   *sim.Bench
+	plan     *plan.Plan
+	results  *analysis.Results
+	truth    map[string]sim.UnitTruth
+	clock    *sim.ManualClock
+	bench    *sim.Bench
+	readings []journal.Reading
 }
 
 // runE2E starts a simulated bench with dutTOML on a virtual clock, writes
@@ -147,12 +157,20 @@ type e2eRun struct {
 // (e.g. to start a chamber ramp).
 func runE2E(t *testing.T, dutTOML string, editPlan func(b *sim.Bench, demoPlan string) string, before func(*e2eRun)) *e2eRun {
 	t.Helper()
+	return runE2EWith(t, sim.Config{}, dutTOML, editPlan, before)
+}
+
+// runE2EWith is runE2E on a bench with more configuration (cfg.DUT and
+// cfg.Clock are set here).
+func runE2EWith(t *testing.T, cfg sim.Config, dutTOML string, editPlan func(b *sim.Bench, demoPlan string) string, before func(*e2eRun)) *e2eRun {
+	t.Helper()
 	dir := t.TempDir()
 	dut, err := sim.ParseDUT([]byte(dutTOML), "e2e-dut.toml")
 	if err != nil {
 		t.Fatalf("DUT file: %v", err)
 	}
-	ctx, bench, clk := startVirtualBench(t, dut, 5*time.Minute)
+	cfg.DUT = dut
+	ctx, bench, clk := startVirtualBenchWith(t, cfg, 5*time.Minute)
 	paths, err := writeDemoPlans(dir, bench, dut, 1)
 	if err != nil {
 		t.Fatal(err)
@@ -194,6 +212,7 @@ func runE2E(t *testing.T, dutTOML string, editPlan func(b *sim.Bench, demoPlan s
 		t.Fatal(err)
 	}
 	run.results = res
+	run.readings = rec.Readings
 	return run
 }
 

@@ -302,6 +302,22 @@ func anyFailed(c *report.Campaign) bool {
 
 // printSummary writes the short summary a person reads after a campaign.
 func printSummary(w io.Writer, c *report.Campaign, book string) {
+	// cmrr_uncorrected is left out of the unit verdicts and the lowest
+	// figures where a corrected cmrr of the same unit and temperature
+	// stands beside it; without one it is the only common-mode figure.
+	type ut struct {
+		unit string
+		t    float64
+	}
+	hasCMRR := map[ut]bool{}
+	for _, r := range c.Results {
+		if r.Test == plan.TestCMRR {
+			hasCMRR[ut{r.Unit, r.TemperatureC}] = true
+		}
+	}
+	shadowed := func(r report.Result) bool {
+		return r.Test == analysis.ResultCMRRUncorrected && hasCMRR[ut{r.Unit, r.TemperatureC}]
+	}
 	counts := map[report.VerdictKind]int{}
 	for _, r := range c.Results {
 		counts[report.VerdictClass(r.Verdict)]++
@@ -358,7 +374,7 @@ func printSummary(w io.Writer, c *report.Campaign, book string) {
 			fmt.Fprintf(w, "  NO RESULT %s %s at %g °C: %s\n", r.Unit, r.Test, r.TemperatureC, strings.Join(r.Flags, "; "))
 			continue
 		}
-		if r.Test == analysis.ResultCMRRUncorrected {
+		if shadowed(r) {
 			continue
 		}
 		cur, ok := worst[r.Test]
@@ -381,7 +397,21 @@ func printSummary(w io.Writer, c *report.Campaign, book string) {
 		}
 		fmt.Fprintf(w, "  lowest %-16s %s%7.2f dB ± %.2f  unit %s at %.0f °C%s\n", t, mark, r.ReportedDB(), r.ExpandedUDB, r.Unit, r.TemperatureC, limit)
 	}
+	if n := notedResults(c); n > 0 {
+		fmt.Fprintf(w, "notes:   %d of %d results carry notes (the notes list in the JSON lines, the Notes column of the CSV and the Results sheet)\n", n, len(c.Results))
+	}
 	if book != "" {
 		fmt.Fprintf(w, "workbook: %s\n", book)
 	}
+}
+
+// notedResults counts the results that carry analysis notes.
+func notedResults(c *report.Campaign) int {
+	n := 0
+	for _, r := range c.Results {
+		if len(r.Notes) > 0 {
+			n++
+		}
+	}
+	return n
 }

@@ -3,6 +3,7 @@ package main
 import (
 	"context"
 	"encoding/csv"
+	"fmt"
 	"math"
 	"net"
 	"os"
@@ -120,7 +121,10 @@ func TestRunOnSimulatedBench(t *testing.T) {
 	section := b.BenchSection()
 	truth := map[string]map[string]float64{}
 	for _, u := range b.Truth() {
-		truth[u.ID] = map[string]float64{"cmrr": u.CMRRdB, "psrr_pos": u.PSRRPosdB}
+		// Without an aol test the supply-shift figure is k_c + k_o and is
+		// reported as cmrr_uncorrected.
+		truth[u.ID] = map[string]float64{"cmrr": u.CMRRdB, "psrr_pos": u.PSRRPosdB,
+			"cmrr_uncorrected": 20 * math.Log10(1e6/math.Abs(u.KcUVPerV+u.KoUVPerV))}
 		if u.Board != nil {
 			truth[u.ID] = map[string]float64{"board_cmrr": u.Board.CMRRdB, "board_psrr_pos": u.Board.PSRRPosdB}
 		}
@@ -134,12 +138,12 @@ func TestRunOnSimulatedBench(t *testing.T) {
 		verdict map[string]string
 	}{
 		{"nulling loop pass", strings.ReplaceAll(cliPlanBody, "%CMRR_LIMIT%", "90.0"), true, exitOK,
-			[]string{"U01/cmrr", "U01/psrr_pos", "U02/cmrr", "U02/psrr_pos"}, map[string]string{"cmrr": "pass", "psrr_pos": "pass"}},
+			[]string{"U01/cmrr_uncorrected", "U01/psrr_pos", "U02/cmrr_uncorrected", "U02/psrr_pos"}, map[string]string{"cmrr_uncorrected": "pass", "psrr_pos": "pass"}},
 		// A 130 dB CMRR limit that neither unit (112, 104 dB) meets.
 		{"nulling loop fails a limit", strings.ReplaceAll(cliPlanBody, "%CMRR_LIMIT%", "130.0"), true, exitOutOfLimits,
-			[]string{"U01/cmrr", "U01/psrr_pos", "U02/cmrr", "U02/psrr_pos"}, map[string]string{"cmrr": "fail", "psrr_pos": "pass"}},
+			[]string{"U01/cmrr_uncorrected", "U01/psrr_pos", "U02/cmrr_uncorrected", "U02/psrr_pos"}, map[string]string{"cmrr_uncorrected": "fail", "psrr_pos": "pass"}},
 		{"noise gain", cliNoiseGainBody, true, exitOK,
-			[]string{"N01/cmrr", "N01/psrr_pos"}, map[string]string{"cmrr": "pass", "psrr_pos": "pass"}},
+			[]string{"N01/cmrr_uncorrected", "N01/psrr_pos"}, map[string]string{"cmrr_uncorrected": "pass", "psrr_pos": "pass"}},
 		{"board, summary on stdout", cliBoardBody, false, exitOK,
 			[]string{"B01/board_cmrr", "B01/board_psrr_pos"}, map[string]string{"board_cmrr": "pass", "board_psrr_pos": "pass"}},
 	}
@@ -166,6 +170,9 @@ func TestRunOnSimulatedBench(t *testing.T) {
 			}
 			if !regexp.MustCompile(`results: \d+ pass, `).MatchString(summary) || !strings.Contains(summary, "workbook: "+filepath.Join(out, "campaign.xlsx")) {
 				t.Errorf("no summary where expected (json %v):\nstdout:\n%s\nstderr:\n%s", tt.json, r.out, r.err)
+			}
+			if strings.Contains(tt.results[0], "cmrr_uncorrected") && !regexp.MustCompile(`notes: +\d+ of \d+ results carry notes`).MatchString(summary) {
+				t.Errorf("summary does not count the noted results:\n%s", summary)
 			}
 			if tt.code == exitOutOfLimits && !strings.Contains(r.err, "did not pass their limits") {
 				t.Errorf("exit 5 without saying why:\n%s", r.err)
@@ -197,6 +204,10 @@ func TestRunOnSimulatedBench(t *testing.T) {
 				unit, test := m["unit"].(string), m["test"].(string)
 				if unit+"/"+test != tt.results[i] {
 					t.Errorf("result %d is %s/%s, want %s", i, unit, test, tt.results[i])
+				}
+				// A figure without aol says what it contains, in its notes.
+				if test == "cmrr_uncorrected" && !strings.Contains(fmt.Sprint(m["notes"]), "k_c + k_o, not CMRR") {
+					t.Errorf("%s/%s notes %v do not say the figure is k_c + k_o", unit, test, m["notes"])
 				}
 				if m["verdict"] != tt.verdict[test] {
 					t.Errorf("%s/%s verdict %v, want %s", unit, test, m["verdict"], tt.verdict[test])

@@ -48,6 +48,12 @@ type Config struct {
 	Seed int64
 	// AmbientC is the room temperature, °C; 0 means 25.
 	AmbientC float64
+	// SupplyGainErrors, when it has two values, replaces the drawn
+	// programming gain errors of supply channels 1 and 2 (relative: the
+	// output is programmed·(1 + g) + offset). Unequal values make a
+	// supply-shift step move the span by (g1 − g2)·L: a systematic error
+	// the read-backs must reveal. The read-back errors stay as drawn.
+	SupplyGainErrors []float64
 }
 
 // ServeOptions says where the instruments listen.
@@ -144,6 +150,12 @@ func New(cfg Config) (*Bench, error) {
 	psuRng, srcRng := rngFor(2), rngFor(3)
 	sup := newChannels(2, true, psuRng)
 	src := newChannels(3, false, srcRng)
+	if n := len(cfg.SupplyGainErrors); n != 0 && n != 2 {
+		return nil, fmt.Errorf("sim: SupplyGainErrors has %d values; give two (channel 1, channel 2) or none", n)
+	}
+	if len(cfg.SupplyGainErrors) == 2 {
+		sup[0].progGain, sup[1].progGain = cfg.SupplyGainErrors[0], cfg.SupplyGainErrors[1]
+	}
 	copy(m.supply[:], sup)
 	copy(m.source[:], src)
 	m.openOffsetVolts = (2 + 3*m.openRng.Float64()) * 1e-6
@@ -152,6 +164,9 @@ func New(cfg Config) (*Bench, error) {
 	for i, us := range dut.Units {
 		u := &unit{id: us.ID, fixture: us.Fixture, channel: us.Channel, k: us.NoiseGain,
 			amp: newOpamp(us.OpAmp, &part, amb, rngFor(uint64(100+i)))}
+		if tol := us.NoiseGainTolerance; tol > 0 {
+			u.k *= 1 + tol*(2*rngFor(uint64(300+i)).Float64()-1)
+		}
 		m.units = append(m.units, u)
 		m.byChan[u.channel] = u
 	}
@@ -400,30 +415,33 @@ func (b *Bench) ClearFaults(instrument string) error {
 // point; coefficients are signed, in µV/V, with kc+kp+kn+ko = 0. For a
 // board, the top-level ratios are its op-amp's and Board holds the board's.
 type UnitTruth struct {
-	ID           string      `json:"id"`
-	Kind         string      `json:"kind"` // "opamp" or "board"
-	Part         string      `json:"part"`
-	Fixture      string      `json:"fixture"`
-	Channel      string      `json:"channel"`
-	NoiseGain    float64     `json:"noise_gain,omitempty"`
-	CMRRdB       float64     `json:"cmrr_db"`
-	PSRRPosdB    float64     `json:"psrr_pos_db"`
-	PSRRNegdB    float64     `json:"psrr_neg_db"`
-	AOLdB        float64     `json:"aol_db"`
-	AOLDerived   bool        `json:"aol_derived"`
-	KcUVPerV     float64     `json:"kc_uv_per_v"`
-	KpUVPerV     float64     `json:"kp_uv_per_v"`
-	KnUVPerV     float64     `json:"kn_uv_per_v"`
-	KoUVPerV     float64     `json:"ko_uv_per_v"`
-	Signs        string      `json:"signs"` // signs of kc, kp, kn, ko, e.g. "+-++"
-	VosUV        float64     `json:"vos_uv"`
-	DriftUVPerC  float64     `json:"drift_uv_per_c"`
-	CMRRTCdBPerC float64     `json:"cmrr_tc_db_per_c"`
-	PSRRTCdBPerC float64     `json:"psrr_tc_db_per_c"`
-	AOLTCdBPerC  float64     `json:"aol_tc_db_per_c"`
-	Board        *BoardTruth `json:"board,omitempty"`
-	Notes        []string    `json:"notes,omitempty"`
-	Damage       string      `json:"damage,omitempty"`
+	ID        string  `json:"id"`
+	Kind      string  `json:"kind"` // "opamp" or "board"
+	Part      string  `json:"part"`
+	Fixture   string  `json:"fixture"`
+	Channel   string  `json:"channel"`
+	NoiseGain float64 `json:"noise_gain,omitempty"` // nominal K
+	// NoiseGainActual is the fixture's actual K (nominal unless the lot
+	// has a noise_gain_tolerance).
+	NoiseGainActual float64     `json:"noise_gain_actual,omitempty"`
+	CMRRdB          float64     `json:"cmrr_db"`
+	PSRRPosdB       float64     `json:"psrr_pos_db"`
+	PSRRNegdB       float64     `json:"psrr_neg_db"`
+	AOLdB           float64     `json:"aol_db"`
+	AOLDerived      bool        `json:"aol_derived"`
+	KcUVPerV        float64     `json:"kc_uv_per_v"`
+	KpUVPerV        float64     `json:"kp_uv_per_v"`
+	KnUVPerV        float64     `json:"kn_uv_per_v"`
+	KoUVPerV        float64     `json:"ko_uv_per_v"`
+	Signs           string      `json:"signs"` // signs of kc, kp, kn, ko, e.g. "+-++"
+	VosUV           float64     `json:"vos_uv"`
+	DriftUVPerC     float64     `json:"drift_uv_per_c"`
+	CMRRTCdBPerC    float64     `json:"cmrr_tc_db_per_c"`
+	PSRRTCdBPerC    float64     `json:"psrr_tc_db_per_c"`
+	AOLTCdBPerC     float64     `json:"aol_tc_db_per_c"`
+	Board           *BoardTruth `json:"board,omitempty"`
+	Notes           []string    `json:"notes,omitempty"`
+	Damage          string      `json:"damage,omitempty"`
 }
 
 // BoardTruth is a board's own behaviour at 25 °C, nominal rails:
@@ -470,8 +488,11 @@ func (b *Bench) Truth() []UnitTruth {
 		t := UnitTruth{ID: us.ID, Kind: "opamp", Part: b.dut.Part.Number, Fixture: us.Fixture,
 			Channel: strconv.Itoa(us.Channel), NoiseGain: us.NoiseGain}
 		ampTruth(&t, us.OpAmp)
-		if u := b.m.byChan[us.Channel]; u != nil && u.amp.damaged {
-			t.Damage = u.amp.damageReason
+		if u := b.m.byChan[us.Channel]; u != nil {
+			t.NoiseGainActual = u.k // drawn within noise_gain_tolerance
+			if u.amp.damaged {
+				t.Damage = u.amp.damageReason
+			}
 		}
 		out = append(out, t)
 	}

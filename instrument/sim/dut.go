@@ -95,8 +95,11 @@ type UnitSpec struct {
 	ID        string
 	Fixture   string  // FixtureNullingLoop or FixtureNoiseGain
 	Channel   int     // switch channel, 101..140
-	NoiseGain float64 // K = 1 + Rf/Ri
-	OpAmp     OpAmpSpec
+	NoiseGain float64 // K = 1 + Rf/Ri, nominal
+	// NoiseGainTolerance: the actual K is drawn uniformly within
+	// NoiseGain·(1 ± NoiseGainTolerance) when the bench is built.
+	NoiseGainTolerance float64
+	OpAmp              OpAmpSpec
 }
 
 // BoardSpec is one four-resistor difference amplifier board. Its resistors
@@ -140,18 +143,22 @@ type rawPart struct {
 }
 
 type rawLot struct {
-	ID            string   `toml:"id"`
-	Count         *int     `toml:"count"`
-	Fixture       string   `toml:"fixture"`
-	NoiseGain     *float64 `toml:"noise_gain"`
-	CMRRdBMean    *float64 `toml:"cmrr_db_mean"`
-	CMRRdBSD      *float64 `toml:"cmrr_db_sd"`
-	PSRRPosdBMean *float64 `toml:"psrr_pos_db_mean"`
-	PSRRPosdBSD   *float64 `toml:"psrr_pos_db_sd"`
-	PSRRNegdBMean *float64 `toml:"psrr_neg_db_mean"`
-	PSRRNegdBSD   *float64 `toml:"psrr_neg_db_sd"`
-	VosUVSD       *float64 `toml:"vos_uv_sd"`
-	DriftUVPerCSD *float64 `toml:"drift_uv_per_c_sd"`
+	ID        string   `toml:"id"`
+	Count     *int     `toml:"count"`
+	Fixture   string   `toml:"fixture"`
+	NoiseGain *float64 `toml:"noise_gain"`
+	// NoiseGainTolerance is the relative half-width within which each
+	// unit's actual K is drawn (uniform) about noise_gain: the fixture
+	// resistors' tolerance, which the tool only knows from the plan.
+	NoiseGainTolerance *float64 `toml:"noise_gain_tolerance"`
+	CMRRdBMean         *float64 `toml:"cmrr_db_mean"`
+	CMRRdBSD           *float64 `toml:"cmrr_db_sd"`
+	PSRRPosdBMean      *float64 `toml:"psrr_pos_db_mean"`
+	PSRRPosdBSD        *float64 `toml:"psrr_pos_db_sd"`
+	PSRRNegdBMean      *float64 `toml:"psrr_neg_db_mean"`
+	PSRRNegdBSD        *float64 `toml:"psrr_neg_db_sd"`
+	VosUVSD            *float64 `toml:"vos_uv_sd"`
+	DriftUVPerCSD      *float64 `toml:"drift_uv_per_c_sd"`
 }
 
 // rawAmp holds the keys shared by [[unit]] and [board.opamp].
@@ -375,7 +382,7 @@ func (r *resolver) resolve(raw *rawDUT) (*DUTFile, error) {
 		{"lot.psrr_neg_db_mean", lot.PSRRNegdBMean, 40, 200}, {"lot.cmrr_db_sd", lot.CMRRdBSD, 0, 30},
 		{"lot.psrr_pos_db_sd", lot.PSRRPosdBSD, 0, 30}, {"lot.psrr_neg_db_sd", lot.PSRRNegdBSD, 0, 30},
 		{"lot.vos_uv_sd", lot.VosUVSD, 0, 1e4}, {"lot.drift_uv_per_c_sd", lot.DriftUVPerCSD, 0, 100},
-		{"lot.noise_gain", lot.NoiseGain, 1, 1e5},
+		{"lot.noise_gain", lot.NoiseGain, 1, 1e5}, {"lot.noise_gain_tolerance", lot.NoiseGainTolerance, 0, 0.1},
 	} {
 		if c.v != nil && !(*c.v >= c.lo && *c.v <= c.hi) {
 			return nil, r.errAt(c.key, "%g is outside %g..%g", *c.v, c.lo, c.hi)
@@ -403,7 +410,8 @@ func (r *resolver) resolve(raw *rawDUT) (*DUTFile, error) {
 		}
 		key := fmt.Sprintf("unit.%d", i)
 		rng := rand.New(rand.NewPCG(uint64(d.Seed), uint64(1000+i)))
-		u := UnitSpec{ID: ru.ID, Fixture: ru.Fixture, NoiseGain: pick(ru.NoiseGain, pick(lot.NoiseGain, 1000))}
+		u := UnitSpec{ID: ru.ID, Fixture: ru.Fixture, NoiseGain: pick(ru.NoiseGain, pick(lot.NoiseGain, 1000)),
+			NoiseGainTolerance: pick(lot.NoiseGainTolerance, 0)}
 		if u.ID == "" {
 			u.ID = fmt.Sprintf("U%02d", i+1)
 		}

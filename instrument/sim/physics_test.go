@@ -328,3 +328,32 @@ func TestDemoLotCMRR(t *testing.T) {
 		}
 	}
 }
+
+// TestNoiseGainTolerance: with lot.noise_gain_tolerance = 0.01 each unit's
+// actual K is drawn within 1000·(1 ± 0.01) and the truth reports it;
+// without it K is the nominal value.
+func TestNoiseGainTolerance(t *testing.T) {
+	for _, tol := range []string{"", "noise_gain_tolerance = 0.01\n"} {
+		dut, err := ParseDUT([]byte("seed = 5\n[lot]\ncount = 6\nnoise_gain = 1000.0\n"+tol), "dut.toml")
+		if err != nil {
+			t.Fatal(err)
+		}
+		b, err := New(Config{DUT: dut, Clock: NewManualClock()})
+		if err != nil {
+			t.Fatal(err)
+		}
+		differ := 0
+		for _, u := range b.Truth() {
+			if math.Abs(u.NoiseGainActual-1000) > 10 || u.NoiseGain != 1000 {
+				t.Errorf("%q: K = %g (nominal %g), outside 1000 ± 1 %%", tol, u.NoiseGainActual, u.NoiseGain)
+			}
+			if u.NoiseGainActual != 1000 {
+				differ++
+			}
+		}
+		b.Close()
+		if (tol == "") != (differ == 0) {
+			t.Errorf("%q: %d of 6 units have K ≠ 1000", tol, differ)
+		}
+	}
+}

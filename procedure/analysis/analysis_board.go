@@ -174,9 +174,9 @@ func (a *analyzer) analyzeBoardCMRR(bp *boardPair) {
 		s, err := fitSweep(a.groups[*bp.diff], t)
 		var b fit.Budget
 		if err == nil {
-			b, err = a.coefficientBudget(s.line, 1, 0, a.stimulusAccuracy(conv.roles), 1)
+			b, err = a.coefficientBudget(s.coefLine, 1, 0, a.stimulusAccuracy(conv.roles), 1)
 		}
-		if err == nil && s.line.Slope.Value == 0 {
+		if err == nil && s.coefLine.Slope.Value == 0 {
 			err = fmt.Errorf("the differential gain fitted to exactly 0")
 		}
 		if err == nil {
@@ -197,7 +197,7 @@ func (a *analyzer) analyzeBoardCMRR(bp *boardPair) {
 		s, err := fitSweep(a.groups[*bp.cm], t)
 		var b fit.Budget
 		if err == nil {
-			b, err = a.coefficientBudget(s.line, 1, 0, a.stimulusAccuracy(conv.roles), 1)
+			b, err = a.coefficientBudget(s.coefLine, 1, 0, a.stimulusAccuracy(conv.roles), 1)
 		}
 		if err != nil {
 			a.problem(bp.unit, plan.TestBoardCMRR, plan.PartCM, cond, "no common-mode gain: "+err.Error())
@@ -313,7 +313,7 @@ func (a *analyzer) analyzeBoardPSRR(k groupKey, bp *boardPair) {
 		a.problem(k.unit, k.test, "", cond, "no fit: "+err.Error())
 		return
 	}
-	sb, err := a.coefficientBudget(s.line, 1, 0, a.stimulusAccuracy(conv.roles), conv.sign)
+	sb, err := a.coefficientBudget(s.coefLine, 1, 0, a.stimulusAccuracy(conv.roles), conv.sign)
 	if err != nil {
 		a.problem(k.unit, k.test, "", cond, "no coefficient: "+err.Error())
 		return

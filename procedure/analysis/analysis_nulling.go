@@ -97,8 +97,10 @@ func (a *analyzer) findIndex(unit, name string, cond int) int {
 // corrected coefficient k_c = k − k_o is the "cmrr" result (it is the
 // quantity CMRR is defined on: inputs moved, output held), and the
 // measured one is kept as "cmrr_uncorrected"; both are judged against the
-// cmrr limit. Without an aol result the measured one stays "cmrr" with a
-// note that it contains k_o.
+// cmrr limit. Without an aol result there is no CMRR proper: the measured
+// figure is reported only as "cmrr_uncorrected" (judged against the cmrr
+// limit), with a note bounding the open-loop term by the part's rated
+// A_OL (openLoopTermNote). No output calls k_c + k_o "cmrr".
 func (a *analyzer) analyzeNulling() {
 	type uc struct {
 		unit string
@@ -123,6 +125,10 @@ func (a *analyzer) analyzeNulling() {
 		aol := a.findIndex(pc.unit, plan.TestAOL, pc.cond)
 		cond := a.res.Conditions[pc.cond]
 
+		// Unequal rail steps (analysis_rails.go), before anything is
+		// formed from the two-rail results.
+		a.correctRailLeaks(cm, pos, neg, sym)
+
 		// Open-loop-gain correction.
 		hasCorr, kcCorr := false, 0.0
 		if cm >= 0 && moves {
@@ -138,8 +144,8 @@ func (a *analyzer) analyzeNulling() {
 					hasCorr, kcCorr = true, corr.Rejection.CoefficientUVPerV
 				}
 			} else {
-				a.res.Ratios[cm].Notes = append(a.res.Ratios[cm].Notes,
-					"not corrected for the open-loop gain (no aol result for this unit and temperature): the coefficient is k_c + k_o (the output moves against the rails with the common mode)")
+				a.res.Ratios[cm].Name = ResultCMRRUncorrected
+				a.res.Ratios[cm].Notes = append(a.res.Ratios[cm].Notes, a.openLoopTermNote(a.res.Ratios[cm]))
 			}
 		}
 
@@ -267,6 +273,28 @@ func (a *analyzer) correctAOL(m, o RatioResult) (RatioResult, error) {
 		}
 	}
 	return c, nil
+}
+
+// openLoopTermNote says what an uncorrected common-mode result contains and
+// how large the open-loop term can be: |k_o| = 1/A_OL ≤ 10^(−A_OL,min/20)
+// with the part's rated minimum open-loop gain (plan part.aol_min_db), and
+// the range of CMRR (of k_c alone) the measured k allows, |k| ± |k_o|max
+// (derived from k = k_c + k_o, no published source).
+func (a *analyzer) openLoopTermNote(m RatioResult) string {
+	const what = "k_c + k_o, not CMRR: the output moves against the rails with the common mode and no aol test separates the open-loop term"
+	aolDB := a.p.Part.AOLMinDB
+	if !(aolDB > 0) {
+		return what + "; give part.aol_min_db (the rated A_OL) to bound it, or add an aol test to correct it"
+	}
+	ko := fit.UVPerVFromDB(aolDB)
+	k := math.Abs(m.Rejection.CoefficientUVPerV)
+	s := fmt.Sprintf("%s; with the rated A_OL ≥ %.1f dB, |k_o| ≤ %.4g µV/V against |k| = %.4g µV/V", what, aolDB, ko, k)
+	if hi := k + ko; k > ko {
+		s += fmt.Sprintf(", so CMRR (k_c alone) lies between %.2f and %.2f dB", fit.DBFromUVPerV(hi), fit.DBFromUVPerV(k-ko))
+	} else {
+		s += fmt.Sprintf(", so CMRR (k_c alone) is only known to be ≥ %.2f dB", fit.DBFromUVPerV(hi))
+	}
+	return s
 }
 
 func cloneStrings(s []string) []string { return append([]string(nil), s...) }

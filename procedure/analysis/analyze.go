@@ -6,6 +6,7 @@ import (
 	"math"
 	"slices"
 	"sort"
+	"strconv"
 
 	"nullbench/fit"
 	"nullbench/procedure/journal"
@@ -33,7 +34,9 @@ type Inputs struct {
 	Meter plan.Accuracy
 	// Stimulus is the accuracy of the stimulus values the fit uses (the
 	// read-back value when a reading was read back, else the programmed
-	// one), for every stimulus role not in StimulusByRole.
+	// one), for every stimulus role not in StimulusByRole. Its gain part is
+	// a budget row; its offset part is constant during a sweep and falls
+	// into the intercept, like the meter's, so it is not a row.
 	Stimulus plan.Accuracy
 	// StimulusByRole overrides Stimulus per role (RoleSupplyPos,
 	// RoleSupplyNeg, RoleSourceCM, RoleSourceDiff, RoleSourceRef). Tests that
@@ -168,6 +171,11 @@ type RatioResult struct {
 	// aol result; AOLTermUVPerV = −k_o is what was added.
 	AOLCorrected  bool    `json:"aol_corrected"`
 	AOLTermUVPerV float64 `json:"aol_term_uv_per_v"`
+	// RailLeakCorrected: the two rails' read-backs showed unequal steps and
+	// the leak through the other rail combination (RailLeakUVPerV, the
+	// change of the coefficient) was taken out (analysis_rails.go).
+	RailLeakCorrected bool    `json:"rail_leak_corrected,omitempty"`
+	RailLeakUVPerV    float64 `json:"rail_leak_uv_per_v,omitempty"`
 	// DerivedFrom names the results a derived result was formed from.
 	DerivedFrom []string `json:"derived_from,omitempty"`
 	// Repeats: the result of each repeat fitted alone (repeats ≥ 2).
@@ -555,9 +563,13 @@ func (a *analyzer) testOf(kind string) *plan.Test {
 type sweep struct {
 	x, y, t   []float64 // stimulus volts, meter volts, bench seconds
 	repeat    []int
+	session   []int // journal session of each point (journal.Reading.Session)
+	seg       []int // session, when the sweep spans more than one; else nil
 	line      fit.LineFit
-	drift     bool // drift term fitted
-	quad      bool // quadratic term fitted
+	coefLine  fit.LineFit // line with Slope at the centre of the sweep (atCentre)
+	drift     bool        // drift term fitted
+	quad      bool        // quadratic term fitted
+	curvature bool        // quadratic term fitted because the curvature test fired
 	meanTempC float64
 
 	points, excluded, flagged, readBack int
@@ -591,6 +603,7 @@ func fitSweep(rs []journal.Reading, t *plan.Test) (sweep, error) {
 		s.y = append(s.y, r.MeterVolts)
 		s.t = append(s.t, r.BenchSeconds)
 		s.repeat = append(s.repeat, r.Repeat)
+		s.session = append(s.session, r.Session)
 		sumT += r.TemperatureC
 	}
 	s.points = len(s.x)
@@ -609,12 +622,52 @@ func fitSweep(rs []journal.Reading, t *plan.Test) (sweep, error) {
 	if err := Plausible(s.x, s.y); err != nil {
 		return s, err
 	}
-	line, drift, quad, notes, err := lineWithFallback(s.x, s.y, s.t, t.DriftTerm, t.QuadraticTerm)
+	s.seg = spanningSessions(s.session)
+	line, drift, quad, seg, notes, err := lineWithFallback(s.x, s.y, s.t, s.seg, t.DriftTerm, t.QuadraticTerm)
 	s.notes = append(s.notes, notes...)
 	if err != nil {
 		return s, err
 	}
+	s.seg = seg
+	if seg != nil {
+		steps := ""
+		for i, st := range line.Steps {
+			if i > 0 {
+				steps += ", "
+			}
+			steps += fmt.Sprintf("%+.3g ± %.2g µV", 1e6*st.Value, 1e6*st.StdErr)
+		}
+		s.notes = append(s.notes, fmt.Sprintf("the sweep spans a resume (bench restarted between its points): a separate offset was fitted for each session; offset step(s) at the meter %s", steps))
+	}
+	if !quad {
+		// The curvature test of fit.Nonlinear: when the quadratic term is
+		// significant, a straight line leaves it in the residuals (the
+		// Type A is inflated and the slope depends on the level mix), so
+		// it is fitted.
+		opt := fit.NonlinOptions{}
+		if drift {
+			opt.Time = s.t
+		}
+		if nl, err := fit.Nonlinear(s.x, s.y, opt); err == nil && nl.QuadSignificant {
+			if ql, err := fitLine(s.x, s.y, s.t, s.seg, drift, true); err == nil {
+				line, quad = ql, true
+				s.curvature = true
+				s.notes = append(s.notes, fmt.Sprintf("significant curvature (t = %.1f): quadratic term fitted; the coefficient is the slope at the centre of the sweep (%s V)",
+					nl.QuadT, strconv.FormatFloat(centreOf(line), 'g', 4, 64)))
+			}
+		}
+	} else {
+		s.notes = append(s.notes, fmt.Sprintf("quadratic term fitted (plan): the coefficient is the slope at the centre of the sweep (%s V)",
+			strconv.FormatFloat(centreOf(line), 'g', 4, 64)))
+	}
 	s.line, s.drift, s.quad = line, drift, quad
+	s.coefLine = atCentre(line)
+	if drift {
+		if vif := fit.VarianceInflation(s.x, s.t); vif > maxDriftVIF {
+			s.notes = append(s.notes, fmt.Sprintf("drift term nearly collinear with the level (variance inflation %.3g > %g): "+
+				"the slope's uncertainty is inflated that many times; take the levels in zigzag order", vif, float64(maxDriftVIF)))
+		}
+	}
 	return s, nil
 }
 
@@ -644,34 +697,73 @@ func Plausible(x, y []float64) error {
 	return nil
 }
 
-// lineWithFallback fits y against x with the requested drift and quadratic
-// terms; when the design cannot carry them (too few points, or time
-// collinear with the stimulus as in an ascending order) it drops the drift
-// term, then the quadratic term, and says so.
-func lineWithFallback(x, y, t []float64, drift, quad bool) (fit.LineFit, bool, bool, []string, error) {
-	var notes []string
-	try := func(d, q bool) (fit.LineFit, error) {
-		opt := fit.LineOptions{Quadratic: q}
-		if d {
-			opt.Time = t
-		}
-		return fit.Line(x, y, opt)
+// maxDriftVIF is the variance inflation of the drift term above which a
+// result is noted (fit.VarianceInflation; 10 is common practice, no
+// published source for the number).
+const maxDriftVIF = 10
+
+// fitLine fits y against x with or without the drift and quadratic terms.
+func fitLine(x, y, t []float64, seg []int, drift, quad bool) (fit.LineFit, error) {
+	opt := fit.LineOptions{Quadratic: quad, Segments: seg}
+	if drift {
+		opt.Time = t
 	}
+	return fit.Line(x, y, opt)
+}
+
+// centreOf is the centre of a fit's stimulus range, (x_min + x_max)/2.
+func centreOf(l fit.LineFit) float64 { return (l.XMin + l.XMax) / 2 }
+
+// atCentre returns the fit with its Slope replaced by the slope of the
+// fitted curve at the centre of the sweep (fit.LineFit.SlopeAt); a fit
+// without a quadratic term is returned as it is. The coefficient of a
+// curved transfer is this slope: the mean slope over a sweep symmetric
+// about its centre.
+func atCentre(l fit.LineFit) fit.LineFit {
+	if l.HasQuad {
+		l.Slope = l.SlopeAt(centreOf(l))
+	}
+	return l
+}
+
+// lineWithFallback fits y against x with the requested drift and quadratic
+// terms and the session offsets (seg, nil for none); when the design
+// cannot carry them (too few points, or time collinear with the stimulus
+// as in an ascending order) it drops the session offsets, then the drift
+// term, then the quadratic term, and says so.
+func lineWithFallback(x, y, t []float64, seg []int, drift, quad bool) (fit.LineFit, bool, bool, []int, []string, error) {
+	var notes []string
 	droppable := func(err error) bool {
 		return errors.Is(err, fit.ErrSingular) || errors.Is(err, fit.ErrTooFewPoints)
 	}
-	line, err := try(drift, quad)
+	line, err := fitLine(x, y, t, seg, drift, quad)
+	if err != nil && seg != nil && droppable(err) {
+		notes = append(notes, fmt.Sprintf("the sweep spans a resume, but a separate offset per session could not be fitted (%v): an offset step between sessions would bias the slope", err))
+		seg = nil
+		line, err = fitLine(x, y, t, seg, drift, quad)
+	}
 	if err != nil && drift && droppable(err) {
 		notes = append(notes, fmt.Sprintf("drift term dropped (%v): the result is not corrected for drift", err))
 		drift = false
-		line, err = try(drift, quad)
+		line, err = fitLine(x, y, t, seg, drift, quad)
 	}
 	if err != nil && quad && droppable(err) {
 		notes = append(notes, fmt.Sprintf("quadratic term dropped (%v)", err))
 		quad = false
-		line, err = try(drift, quad)
+		line, err = fitLine(x, y, t, seg, drift, quad)
 	}
-	return line, drift, quad, notes, err
+	return line, drift, quad, seg, notes, err
+}
+
+// spanningSessions returns the sessions of a sweep's points when they
+// come from more than one session, else nil.
+func spanningSessions(session []int) []int {
+	for _, v := range session {
+		if v != session[0] {
+			return session
+		}
+	}
+	return nil
 }
 
 // Budget row names of the inputs shared by every coefficient of one unit
@@ -687,7 +779,10 @@ const (
 // stimulus gain and offset, plus the shared rows (noise-gain tolerance,
 // meter gain) under fixed names. A negative sign negates the value and
 // every sensitivity, which leaves each contribution unchanged.
-func (a *analyzer) coefficientBudget(line fit.LineFit, K, kTolRel float64, stim plan.Accuracy, sign float64) (fit.Budget, error) {
+//
+// more are rows of the signed coefficient (their sensitivities are given
+// for the signed value and are not negated).
+func (a *analyzer) coefficientBudget(line fit.LineFit, K, kTolRel float64, stim plan.Accuracy, sign float64, more ...fit.BudgetRow) (fit.Budget, error) {
 	k := 1e6 * line.Slope.Value / K
 	var extra []fit.BudgetRow
 	if kTolRel > 0 {
@@ -699,7 +794,13 @@ func (a *analyzer) coefficientBudget(line fit.LineFit, K, kTolRel float64, stim 
 			Value: 1, StdUncertainty: fit.RectangularStdUnc(a.acc.Meter.GainPPM * 1e-6), Unit: "1", Sensitivity: -k, DOF: fit.InfDOF})
 	}
 	b, err := fit.CoefficientBudget(line, fit.BudgetInputs{
-		NoiseGain: K, StimulusGainPPM: stim.GainPPM, StimulusOffsetVolts: stim.OffsetVolts,
+		// The stimulus offset error is constant during a sweep (a
+		// calibration offset of the source or of its read-back), so, like
+		// the meter's offset, it falls into the fit's intercept and does
+		// not change the slope: it is not a row (GUM 4.3 applied to the
+		// model y = b0 + b1·(x + e), e constant). What varies between
+		// settings (read-back noise) is in the fit's scatter.
+		NoiseGain: K, StimulusGainPPM: stim.GainPPM,
 		Extra: extra, Coverage: a.cov,
 	})
 	if err != nil {
@@ -710,6 +811,9 @@ func (a *analyzer) coefficientBudget(line fit.LineFit, K, kTolRel float64, stim 
 		for i := range b.Rows {
 			b.Rows[i].Sensitivity = -b.Rows[i].Sensitivity
 		}
+	}
+	if len(more) > 0 {
+		return fit.Combine(b.Measurand, b.Unit, b.Value, append(b.Rows, more...), a.cov)
 	}
 	return b, nil
 }
@@ -774,15 +878,15 @@ func repeatValues(s sweep, coef func(fit.LineFit) float64) []RepeatValue {
 		if len(idx) < 3 {
 			continue
 		}
-		x, y, t := make([]float64, len(idx)), make([]float64, len(idx)), make([]float64, len(idx))
+		x, y, t, ses := make([]float64, len(idx)), make([]float64, len(idx)), make([]float64, len(idx)), make([]int, len(idx))
 		for j, i := range idx {
-			x[j], y[j], t[j] = s.x[i], s.y[i], s.t[i]
+			x[j], y[j], t[j], ses[j] = s.x[i], s.y[i], s.t[i], s.session[i]
 		}
-		line, _, _, _, err := lineWithFallback(x, y, t, s.drift, s.quad)
+		line, _, _, _, _, err := lineWithFallback(x, y, t, spanningSessions(ses), s.drift, s.quad)
 		if err != nil {
 			continue
 		}
-		out = append(out, newRepeatValue(r, len(idx), coef(line)))
+		out = append(out, newRepeatValue(r, len(idx), coef(atCentre(line))))
 	}
 	return out
 }
@@ -809,7 +913,8 @@ func (a *analyzer) nonlinearity(r *RatioResult, s sweep, divisor float64) {
 	}
 	r.Nonlinearity, r.NonlinearityChecked = nl, true
 	if nl.QuadSignificant {
-		r.Notes = append(r.Notes, fmt.Sprintf("significant curvature (t = %.1f): the coefficient is the slope at zero stimulus", nl.QuadT))
+		r.Notes = append(r.Notes, fmt.Sprintf("non-linearity: largest deviation from a straight line %.3g µV at the input, at %g V",
+			nl.MaxDeviationUV, nl.AtStimulusVolts))
 	}
 	if nl.SpanDependent {
 		r.Notes = append(r.Notes, fmt.Sprintf("slope differs between the lower and upper half of the span (z = %.1f)", nl.SlopeZ))
@@ -842,9 +947,7 @@ func joinRoles(roles []string) string {
 
 // analyzeOpAmp fits every sweep of a nulling-loop or noise-gain fixture.
 func (a *analyzer) analyzeOpAmp() {
-	K, tol := a.p.Fixture.NoiseGain, a.p.Fixture.NoiseGainTolerance
 	for _, k := range a.keys {
-		t := a.testOf(k.test)
 		c := a.res.Conditions[k.cond]
 		switch k.test {
 		case plan.TestCMRR, plan.TestPSRRPos, plan.TestPSRRNeg, plan.TestPSRRSym, plan.TestAOL:
@@ -852,28 +955,83 @@ func (a *analyzer) analyzeOpAmp() {
 			a.problem(k.unit, k.test, k.part, c, fmt.Sprintf("test %q is not analysed on a %s fixture", k.test, a.p.Fixture.Kind))
 			continue
 		}
-		conv := conventionFor(a.p, k.test, k.part)
-		s, err := fitSweep(a.groups[k], t)
+		r, err := a.opAmpRatio(k, a.groups[k], nil)
 		if err != nil {
-			a.problem(k.unit, k.test, k.part, c, "no fit: "+err.Error())
+			a.problem(k.unit, k.test, k.part, c, err.Error())
 			continue
 		}
-		r := a.newRatio(k, k.test, conv, s)
-		r.NoiseGain = K
-		b, err := a.coefficientBudget(s.line, K, tol, a.stimulusAccuracy(conv.roles), conv.sign)
-		if err == nil {
-			r.Rejection, err = fit.RejectionFromBudget(b)
-		}
-		if err != nil {
-			a.problem(k.unit, k.test, k.part, c, "no coefficient: "+err.Error())
-			continue
-		}
-		a.nonlinearity(&r, s, K)
-		sign := conv.sign
-		r.Repeats = repeatValues(s, func(l fit.LineFit) float64 { return sign * 1e6 * l.Slope.Value / K })
 		a.res.Ratios = append(a.res.Ratios, r)
 	}
 }
+
+// noiseGainStageAOL returns the budget row and note of the part's finite
+// open-loop gain in a noise-gain stage. The stage's output is K·V_IO, and
+// the output term k_o·ΔV_out feeds back into V_IO, so every coefficient is
+// measured as
+//
+//	k_measured = k/(1 − K·k_o)
+//
+// (derived from ΔV_IO = k·ΔS + k_o·K·ΔV_IO, no published source; 1 % at
+// K = 1000 and A_OL = 100 dB). An aol test needs the nulling loop, so k_o
+// is not measured on this fixture: with the rated minimum A_OL
+// (part.aol_min_db) the row is k_o = 0 ± 1/A_OL,min (rectangular, GUM
+// 4.3.7) with sensitivity ∂k/∂k_o = −K·k (µV/V per V/V); without it the
+// note says the scale is unbounded. kUV is the signed coefficient.
+func (a *analyzer) noiseGainStageAOL(kUV float64) (*fit.BudgetRow, string) {
+	K := a.p.Fixture.NoiseGain
+	aolDB := a.p.Part.AOLMinDB
+	if !(aolDB > 0) {
+		return nil, fmt.Sprintf("noise-gain stage: the coefficient is scaled by 1/(1 − K·k_o) with K = %g and k_o = ±1/A_OL not known; "+
+			"give part.aol_min_db (the rated A_OL) to put it in the budget", K)
+	}
+	koMax := math.Pow(10, -aolDB/20)
+	row := &fit.BudgetRow{
+		Name: "open-loop gain in the noise-gain stage: scale 1/(1 − K·k_o), |k_o| ≤ 1/A_OL,min (rated)", Kind: "B",
+		Distribution: fit.DistRectangular, Value: 0, StdUncertainty: fit.RectangularStdUnc(koMax), Unit: "V/V",
+		Sensitivity: -K * kUV, DOF: fit.InfDOF,
+	}
+	return row, fmt.Sprintf("noise-gain stage: the coefficient is scaled by 1/(1 − K·k_o); with the rated A_OL ≥ %.1f dB that is within ±%.3g %% (budget row, not corrected)",
+		aolDB, 100*K*koMax)
+}
+
+// opAmpRatio fits one op-amp sweep (readings rs of group k) and forms its
+// coefficient, budget (with the extra rows), nonlinearity and repeats.
+func (a *analyzer) opAmpRatio(k groupKey, rs []journal.Reading, extra []fit.BudgetRow) (RatioResult, error) {
+	K, tol := a.p.Fixture.NoiseGain, a.p.Fixture.NoiseGainTolerance
+	conv := conventionFor(a.p, k.test, k.part)
+	s, err := fitSweep(rs, a.testOf(k.test))
+	if err != nil {
+		return RatioResult{}, fmt.Errorf("no fit: %w", err)
+	}
+	r := a.newRatio(k, k.test, conv, s)
+	r.NoiseGain = K
+	if a.p.Fixture.Kind == plan.FixtureNoiseGain {
+		row, note := a.noiseGainStageAOL(conv.sign * 1e6 * s.coefLine.Slope.Value / K)
+		if row != nil {
+			extra = append(slices.Clone(extra), *row)
+		}
+		r.Notes = append(r.Notes, note)
+	}
+	b, err := a.coefficientBudget(s.coefLine, K, tol, a.stimulusAccuracy(conv.roles), conv.sign, extra...)
+	if err == nil {
+		r.Rejection, err = fit.RejectionFromBudget(b)
+	}
+	if err != nil {
+		return RatioResult{}, fmt.Errorf("no coefficient: %w", err)
+	}
+	a.nonlinearity(&r, s, K)
+	if k.test == plan.TestPSRRSym {
+		r.Notes = append(r.Notes, psrrSymNote)
+	}
+	sign := conv.sign
+	r.Repeats = repeatValues(s, func(l fit.LineFit) float64 { return sign * 1e6 * l.Slope.Value / K })
+	return r, nil
+}
+
+// psrrSymNote states psrr_sym's convention: per volt of total span. Each
+// rail moves by half the span, so per volt of one rail's move the
+// coefficient is twice as large and the ratio 20·log10(2) = 6.02 dB lower.
+const psrrSymNote = "per volt of total supply span V+ − V− (each rail moves half the span); a per-rail figure (per volt of each rail's move) is 6.02 dB lower"
 
 // sortResults orders ratios by unit (plan order), condition, then name,
 // and closures and boards by unit and condition.

@@ -4,6 +4,7 @@ import (
 	"encoding/json"
 	"math"
 	"math/rand/v2"
+	"slices"
 	"strings"
 	"testing"
 
@@ -160,6 +161,15 @@ func azRatio(t *testing.T, res *Results, unit, name string, cond int) *RatioResu
 	}
 	t.Fatalf("no %s result for %s at condition %d", name, unit, cond)
 	return nil
+}
+
+func azHasNote(r *RatioResult, sub string) bool {
+	for _, n := range r.Notes {
+		if strings.Contains(n, sub) {
+			return true
+		}
+	}
+	return false
 }
 
 func azHasRatio(res *Results, unit, name string) bool {
@@ -345,16 +355,36 @@ func TestAnalyzeSignConventions(t *testing.T) {
 				// coefficient by 1/(1 − ko·K): allow for it.
 				tol := func(want float64) float64 { return 0.002 + math.Abs(want)*math.Abs(o.ko)*1000 }
 				want := tc.cmrr(o) * 1e6
-				c := azRatio(t, res, "U1", plan.TestCMRR, 0)
+				// Where the output moves with the common mode and no aol
+				// test corrects it, the figure is k_c + k_o: it is only
+				// ever called cmrr_uncorrected, never cmrr.
+				onlyUncorrected := !tc.corrected && !(tc.fixture == plan.FixtureNullingLoop && tc.cm == plan.CMByInputDrive)
+				name := plan.TestCMRR
+				if onlyUncorrected {
+					name = ResultCMRRUncorrected
+					if azHasRatio(res, "U1", plan.TestCMRR) {
+						t.Errorf("k_c + k_o reported as cmrr")
+					}
+				}
+				c := azRatio(t, res, "U1", name, 0)
 				azCheckCoef(t, c, want, tol(want))
-				if c.AOLCorrected != tc.corrected || azHasRatio(res, "U1", ResultCMRRUncorrected) != tc.corrected {
+				if c.AOLCorrected != tc.corrected || azHasRatio(res, "U1", ResultCMRRUncorrected) != (tc.corrected || onlyUncorrected) {
 					t.Errorf("corrected %v, cmrr_uncorrected present %v; want %v", c.AOLCorrected, azHasRatio(res, "U1", ResultCMRRUncorrected), tc.corrected)
+				}
+				if onlyUncorrected && !azHasNote(c, "k_c + k_o, not CMRR") {
+					t.Errorf("notes %q do not say what the figure contains", c.Notes)
 				}
 				azCheckCoef(t, azRatio(t, res, "U1", plan.TestPSRRPos, 0), o.kp*1e6, tol(o.kp*1e6))
 				azCheckCoef(t, azRatio(t, res, "U1", plan.TestPSRRNeg, 0), o.kn()*1e6, tol(o.kn()*1e6))
 				if azHasRatio(res, "U1", plan.TestPSRRSym) {
 					w := (o.kp - o.kn()) / 2 * 1e6
-					azCheckCoef(t, azRatio(t, res, "U1", plan.TestPSRRSym, 0), w, tol(w))
+					sym := azRatio(t, res, "U1", plan.TestPSRRSym, 0)
+					azCheckCoef(t, sym, w, tol(w))
+					// Per volt of span; per volt of one rail 20·log10(2) =
+					// 6.02 dB lower (derived).
+					if !azHasNote(sym, "per volt of total supply span") || !azHasNote(sym, "6.02 dB lower") {
+						t.Errorf("psrr_sym notes %q do not state the convention", sym.Notes)
+					}
 				}
 				if azHasRatio(res, "U1", plan.TestAOL) && o.ko != 0 {
 					azCheckCoef(t, azRatio(t, res, "U1", plan.TestAOL, 0), o.ko*1e6, 0.002)
@@ -503,7 +533,9 @@ func TestAnalyzeDecisions(t *testing.T) {
 // TestAnalyzeUnresolved: a part whose common-mode coefficient is zero
 // cannot be told from zero; the result is a one-sided lower bound
 // (common practice, after EURACHEM/CITAC CG4 Appendix F on results near
-// the detection limit) and is judged on it.
+// the detection limit). Under simple acceptance (ILAC-G8:09/2019 §4.2.1,
+// w = 0) it is judged on the measured value; under guarded acceptance on
+// the bound.
 func TestAnalyzeUnresolved(t *testing.T) {
 	p := azOpAmpPlan(plan.FixtureNullingLoop, plan.CMByInputDrive, plan.TestCMRR)
 	p.Limits = plan.Limits{plan.TestCMRR: 120}
@@ -518,8 +550,14 @@ func TestAnalyzeUnresolved(t *testing.T) {
 	if !lb || db != c.Rejection.LowerBoundDB || db < 120 {
 		t.Errorf("value %.1f dB lower bound %v", db, lb)
 	}
-	if !c.Decision.JudgedOnLowerBound || c.Decision.State != fit.StatePass {
+	if c.Decision.JudgedOnLowerBound || c.Decision.State != fit.StatePass || c.Decision.JudgedDB < db {
 		t.Errorf("decision %+v", c.Decision)
+	}
+	p.Decision.Rule = plan.RuleGuarded
+	res = azAnalyze(t, p, rs, Inputs{})
+	c = azRatio(t, res, "U1", plan.TestCMRR, 0)
+	if !c.Decision.JudgedOnLowerBound || c.Decision.State != fit.StatePass {
+		t.Errorf("guarded decision %+v", c.Decision)
 	}
 }
 
@@ -601,6 +639,30 @@ func TestAnalyzeDriftTerm(t *testing.T) {
 	}
 }
 
+// TestAnalyzeDriftNearlyCollinear: ascending levels whose settle times
+// vary a little make time and level nearly, not exactly, collinear; the
+// fit then succeeds, but the drift term's variance inflation 1/(1 − r²)
+// (Marquardt 1970) is large and the result says so.
+func TestAnalyzeDriftNearlyCollinear(t *testing.T) {
+	p := azOpAmpPlan(plan.FixtureNullingLoop, plan.CMByInputDrive, plan.TestCMRR)
+	p.Tests[0].Order = plan.OrderAscending
+	sim := azNewBench(p, 4, 0.2e-6)
+	rs := sim.opAmpReadings(nil, "U1", 0, 25, azOpAmp{kc: 1e-6})
+	for i := range rs {
+		rs[i].BenchSeconds += 0.3 * math.Sin(7*float64(i)) // settle times vary by ±0.3 s
+	}
+	c := azRatio(t, azAnalyze(t, p, rs, Inputs{}), "U1", plan.TestCMRR, 0)
+	if !c.DriftFitted || !azHasNote(c, "nearly collinear") {
+		t.Errorf("drift fitted %v, notes %q", c.DriftFitted, c.Notes)
+	}
+	// The zigzag order of the same plan is not noted.
+	p.Tests[0].Order = plan.OrderZigzag
+	c = azRatio(t, azAnalyze(t, p, azNewBench(p, 4, 0.2e-6).opAmpReadings(nil, "U1", 0, 25, azOpAmp{kc: 1e-6}), Inputs{}), "U1", plan.TestCMRR, 0)
+	if !c.DriftFitted || azHasNote(c, "nearly collinear") {
+		t.Errorf("zigzag: drift fitted %v, notes %q", c.DriftFitted, c.Notes)
+	}
+}
+
 // TestAnalyzeTemperatureConditions: readings are grouped by temperature
 // index, with small measured wander kept together, and split where an
 // index holds readings far apart in temperature.
@@ -669,8 +731,11 @@ func TestAnalyzeRefusesBadPlans(t *testing.T) {
 // of the common mode, ΔV_IO = kc·L + q·L² with q = 0.05 µV/V². On the
 // symmetric levels −10 … 10 V the straight line misses the centre by
 // q·(mean of L²) = 0.05·50 = 2.5 µV at L = 0 (input referred); the
-// quadratic term is significant; with the plan's quadratic option the
-// coefficient is the slope at L = 0, i.e. kc.
+// quadratic term is significant, so the quadratic term is fitted whether
+// or not the plan asked for it, and the coefficient is the slope at the
+// centre of the sweep (L = 0), i.e. kc. The straight line would leave the
+// curvature in its residuals: its slope's standard error is larger than
+// the fitted curve's.
 func TestAnalyzeNonlinearity(t *testing.T) {
 	for _, quad := range []bool{false, true} {
 		p := azOpAmpPlan(plan.FixtureNullingLoop, plan.CMByInputDrive, plan.TestCMRR)
@@ -685,9 +750,189 @@ func TestAnalyzeNonlinearity(t *testing.T) {
 		if !c.NonlinearityChecked || !nl.QuadSignificant || math.Abs(nl.MaxDeviationUV-2.5) > 0.01 || nl.AtStimulusVolts != 0 {
 			t.Errorf("quadratic %v: nonlinearity %+v", quad, nl)
 		}
-		if c.QuadFitted != quad {
-			t.Errorf("quad fitted %v, want %v", c.QuadFitted, quad)
+		if !c.QuadFitted {
+			t.Errorf("plan quadratic %v: quad not fitted", quad)
+		}
+		if want := map[bool]string{false: "significant curvature", true: "quadratic term fitted (plan)"}[quad]; !azHasNote(c, want) || !azHasNote(c, "slope at the centre of the sweep (0 V)") {
+			t.Errorf("notes %q, want %q", c.Notes, want)
 		}
 		azCheckCoef(t, c, 10, 0.002) // symmetric levels: the line's slope is kc too
+		x, y := make([]float64, len(rs)), make([]float64, len(rs))
+		for i, r := range rs {
+			x[i], y[i] = r.SetVolts, r.MeterVolts
+		}
+		lin, err := fit.Line(x, y, fit.LineOptions{})
+		if err != nil {
+			t.Fatal(err)
+		}
+		if typeA := c.Rejection.Budget.Rows[0].StdUncertainty; !(typeA < lin.Slope.StdErr/2) {
+			t.Errorf("Type A of the curve %g V/V not below half the straight line's %g V/V", typeA, lin.Slope.StdErr)
+		}
+	}
+	// Levels 0 … 10 V: centre 5 V, slope there kc + 2q·5 V = 10.5 µV/V
+	// (calculus).
+	p := azOpAmpPlan(plan.FixtureNullingLoop, plan.CMByInputDrive, plan.TestCMRR)
+	p.Tests[0].Levels = []float64{0, 2.5, 5, 7.5, 10}
+	rs := azNewBench(p, 8, 0.5e-6).run(nil, "U1", plan.TestCMRR, 0, 25, func(_ int, s plan.BenchState) float64 {
+		return azWorked.meter(p, s) + p.Fixture.NoiseGain*0.05e-6*s.CMVolts*s.CMVolts
+	})
+	c := azRatio(t, azAnalyze(t, p, rs, Inputs{}), "U1", plan.TestCMRR, 0)
+	if !c.QuadFitted || !azHasNote(c, "centre of the sweep (5 V)") {
+		t.Errorf("0…10 V: quad %v notes %q", c.QuadFitted, c.Notes)
+	}
+	azCheckCoef(t, c, 10.5, 0.002)
+}
+
+// TestAnalyzeUncorrectedBoundByRatedAOL: a supply-shift common-mode result
+// without an aol test is k_c + k_o (derived from k_c + k_p + k_n + k_o = 0,
+// no published source); with the part's rated A_OL ≥ 100 dB, |k_o| ≤
+// 10 µV/V, so a measured 25 µV/V brackets CMRR between
+// 20·log10(10⁶/35) = 89.12 dB and 20·log10(10⁶/15) = 96.48 dB, and the
+// true 20·log10(10⁶/20) = 93.98 dB lies inside.
+func TestAnalyzeUncorrectedBoundByRatedAOL(t *testing.T) {
+	p := azOpAmpPlan(plan.FixtureNullingLoop, plan.CMBySupplyShift, plan.TestCMRR)
+	p.Part.AOLMinDB = 100
+	rs := azNewBench(p, 3, 1e-9).opAmpReadings(nil, "U1", 0, 25, azOpAmp{kc: 20e-6, kp: 1e-6, ko: 5e-6})
+	res := azAnalyze(t, p, rs, Inputs{})
+	c := azRatio(t, res, "U1", ResultCMRRUncorrected, 0)
+	if azHasRatio(res, "U1", plan.TestCMRR) {
+		t.Fatal("k_c + k_o reported as cmrr")
+	}
+	if !azHasNote(c, "|k_o| ≤ 10 µV/V against |k| = 25") || !azHasNote(c, "between 89.12 and 96.48 dB") {
+		t.Errorf("notes %q", c.Notes)
+	}
+	p.Part.AOLMinDB = 0
+	res = azAnalyze(t, p, rs, Inputs{})
+	if c := azRatio(t, res, "U1", ResultCMRRUncorrected, 0); !azHasNote(c, "give part.aol_min_db") {
+		t.Errorf("notes without a rated A_OL %q", c.Notes)
+	}
+}
+
+// TestAnalyzeNoiseGainStageAOL: in a noise-gain stage of K = 1000 a part
+// with A_OL = 100 dB (k_o = +10 µV/V) reads every coefficient
+// 1/(1 − K·k_o) = 1/0.99 too large (derived, no published source): k_p =
+// 20 µV/V reads 20.20 µV/V. Without the rated A_OL the budget does not see
+// it (the truth is outside U, and the note says so); with
+// part.aol_min_db = 100 a rectangular row of half-width K/A_OL = 1 %
+// brings the truth inside U.
+func TestAnalyzeNoiseGainStageAOL(t *testing.T) {
+	p := azOpAmpPlan(plan.FixtureNoiseGain, plan.CMByInputDrive, plan.TestPSRRPos)
+	o := azOpAmp{kc: 1e-6, kp: 20e-6, ko: 10e-6}
+	rs := azNewBench(p, 5, 1e-9).opAmpReadings(nil, "U1", 0, 25, o)
+	c := azRatio(t, azAnalyze(t, p, rs, Inputs{}), "U1", plan.TestPSRRPos, 0)
+	if got := c.Rejection.CoefficientUVPerV; math.Abs(got-20/0.99) > 0.005 {
+		t.Fatalf("measured %.4f µV/V, want 20/0.99 = %.4f", got, 20/0.99)
+	}
+	if math.Abs(c.Rejection.CoefficientUVPerV-20) <= c.Rejection.ExpandedUUVPerV || !azHasNote(c, "give part.aol_min_db") {
+		t.Errorf("without the rated A_OL: %.4f ± %.4f µV/V, notes %q", c.Rejection.CoefficientUVPerV, c.Rejection.ExpandedUUVPerV, c.Notes)
+	}
+	p.Part.AOLMinDB = 100
+	c = azRatio(t, azAnalyze(t, p, rs, Inputs{}), "U1", plan.TestPSRRPos, 0)
+	if math.Abs(c.Rejection.CoefficientUVPerV-20) > c.Rejection.ExpandedUUVPerV || !azHasNote(c, "within ±1 %") {
+		t.Errorf("with the rated A_OL: %.4f ± %.4f µV/V, notes %q", c.Rejection.CoefficientUVPerV, c.Rejection.ExpandedUUVPerV, c.Notes)
+	}
+	// The row: u = 1e-5/√3 V/V, sensitivity −K·k = −20.2e3 µV/V per V/V.
+	var row *fit.BudgetRow
+	for i := range c.Rejection.Budget.Rows {
+		if strings.HasPrefix(c.Rejection.Budget.Rows[i].Name, "open-loop gain in the noise-gain stage") {
+			row = &c.Rejection.Budget.Rows[i]
+		}
+	}
+	if row == nil || math.Abs(row.StdUncertainty-1e-5/math.Sqrt(3)) > 1e-12 || math.Abs(row.Sensitivity+1000*c.Rejection.CoefficientUVPerV) > 1e-9 {
+		t.Errorf("budget row %+v", row)
+	}
+}
+
+// TestAnalyzeResumeOffsetStep: a sweep taken in ascending order is broken
+// by a resume after its third point, and the restarted bench reads 3 mV
+// higher at the meter (an offset step). One line puts the step into the
+// slope (and, as misfit, into an inflated U); a separate offset per
+// session (journal.Reading.Session) keeps the slope at the truth, within
+// a U at the noise level, and the result says so.
+func TestAnalyzeResumeOffsetStep(t *testing.T) {
+	p := azOpAmpPlan(plan.FixtureNullingLoop, plan.CMByInputDrive, plan.TestCMRR)
+	p.Tests[0].Order, p.Tests[0].DriftTerm = plan.OrderAscending, false
+	rs := azNewBench(p, 9, 0.2e-6).opAmpReadings(nil, "U1", 0, 25, azOpAmp{kc: 1e-6})
+	stepped := slices.Clone(rs)
+	for i := range stepped {
+		if i >= 3 {
+			stepped[i].MeterVolts += 3e-3
+		}
+	}
+	plain := azRatio(t, azAnalyze(t, p, stepped, Inputs{}), "U1", plan.TestCMRR, 0)
+	ePlain := plain.Rejection.CoefficientUVPerV - 1
+	for i := range stepped {
+		if i >= 3 {
+			stepped[i].Session = 1
+		}
+	}
+	c := azRatio(t, azAnalyze(t, p, stepped, Inputs{}), "U1", plan.TestCMRR, 0)
+	e := c.Rejection.CoefficientUVPerV - 1
+	t.Logf("error without sessions %.4f µV/V (U %.4f), with %.4f µV/V (U %.4f)", ePlain, plain.Rejection.ExpandedUUVPerV, e, c.Rejection.ExpandedUUVPerV)
+	if math.Abs(e) > c.Rejection.ExpandedUUVPerV || !(math.Abs(ePlain) > 10*math.Abs(e)) || !(plain.Rejection.ExpandedUUVPerV > 10*c.Rejection.ExpandedUUVPerV) {
+		t.Errorf("with a session offset: error %.4f µV/V, U %.4f; without: error %.4f, U %.4f", e, c.Rejection.ExpandedUUVPerV, ePlain, plain.Rejection.ExpandedUUVPerV)
+	}
+	if !azHasNote(c, "spans a resume") || len(c.Line.Steps) != 1 || math.Abs(c.Line.Steps[0].Value-3e-3) > 3*c.Line.Steps[0].StdErr {
+		t.Errorf("notes %q, steps %+v", c.Notes, c.Line.Steps)
+	}
+}
+
+// TestMethodTextNamesWhatTheCodeDoes: the workbook's method statement
+// names the result names, fit rules and conventions the analysis uses
+// (each checked elsewhere against its source); a rename in the code that
+// is not carried to the text fails here.
+func TestMethodTextNamesWhatTheCodeDoes(t *testing.T) {
+	text := strings.Join(MethodText(), "\n")
+	for _, want := range []string{ResultCMRRUncorrected, plan.TestPSRRSym, plan.PsrrWorst, "aol_min_db",
+		"6.02 dB", "variance inflation exceeds 10", "slope at the centre of the sweep", "each session",
+		"97.5 %", "simple acceptance (w = 0) compares the measured value", "Welch–Satterthwaite", psrrSymNote[:28]} {
+		if !strings.Contains(text, want) {
+			t.Errorf("method text lacks %q", want)
+		}
+	}
+	if maxDriftVIF != 10 {
+		t.Errorf("the method text says 10, the code uses %g", float64(maxDriftVIF))
+	}
+}
+
+// TestAnalyzeRailLeak: supply channels whose steps differ by
+// g1 − g2 = 0.4 % move the span by −0.004·L in a supply shift of L, so the
+// offset moves by the extra k_sym·Δspan, k_sym = (k_p − k_n)/2
+// (superposition, derived, no published source). With both rails read
+// back and psrr_pos, psrr_neg measured, the cmrr_uncorrected result is
+// k_c + k_o again; with only the cmrr test the leak is noted, not
+// corrected.
+func TestAnalyzeRailLeak(t *testing.T) {
+	o := azOpAmp{kc: 1e-6, kp: 40e-6, ko: 0.5e-6} // k_n = −41.5 µV/V, k_sym = 40.75 µV/V
+	const g1, g2 = 2e-3, -2e-3
+	leaky := func(p *plan.Plan) []journal.Reading {
+		rs := azNewBench(p, 11, 0.2e-6).opAmpReadings(nil, "U1", 0, 25, o)
+		ksym := (o.kp - o.kn()) / 2
+		for i := range rs {
+			if rs[i].Test != plan.TestCMRR {
+				continue
+			}
+			L := rs[i].SetVolts
+			rs[i].PosRailVolts, rs[i].NegRailVolts, rs[i].RailsReadBack = 15-L*(1+g1), -15-L*(1+g2), true
+			rs[i].MeterVolts += p.Fixture.NoiseGain * ksym * (-(g1 - g2) * L)
+		}
+		return rs
+	}
+	want := (o.kc + o.ko) * 1e6
+	p := azOpAmpPlan(plan.FixtureNullingLoop, plan.CMBySupplyShift, plan.TestCMRR, plan.TestPSRRPos, plan.TestPSRRNeg)
+	c := azRatio(t, azAnalyze(t, p, leaky(p), Inputs{}), "U1", ResultCMRRUncorrected, 0)
+	if !c.RailLeakCorrected || !azHasNote(c, "corrected for unequal rail steps") {
+		t.Errorf("not corrected: notes %q", c.Notes)
+	}
+	azCheckCoef(t, c, want, 0.003)
+	// The uncorrected fit read k_sym·∂span/∂L = −k_sym·(g1 − g2) =
+	// −0.163 µV/V too low; the correction moves it up by as much.
+	if math.Abs(c.RailLeakUVPerV-(o.kp-o.kn())/2*(g1-g2)*1e6) > 0.003 {
+		t.Errorf("correction %.4f µV/V, want %.4f", c.RailLeakUVPerV, (o.kp-o.kn())/2*(g1-g2)*1e6)
+	}
+	p = azOpAmpPlan(plan.FixtureNullingLoop, plan.CMBySupplyShift, plan.TestCMRR)
+	c = azRatio(t, azAnalyze(t, p, leaky(p), Inputs{}), "U1", ResultCMRRUncorrected, 0)
+	if c.RailLeakCorrected || !azHasNote(c, "the rails did not step alike (read-back span change -0.004") {
+		t.Errorf("cmrr alone: corrected %v, notes %q", c.RailLeakCorrected, c.Notes)
 	}
 }

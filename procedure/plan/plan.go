@@ -148,6 +148,12 @@ type Part struct {
 	// bound unchecked.
 	SupplyAmpsMin float64 `toml:"supply_amps_min"`
 	SupplyAmpsMax float64 `toml:"supply_amps_max"`
+	// AOLMinDB is the part's rated (datasheet minimum) open-loop gain in
+	// dB, 0 when not given. The analysis uses it to bound the open-loop
+	// term k_o = ±1/A_OL where aol was not measured: in a supply-shift
+	// common-mode result (which measures k_c + k_o) and in the noise-gain
+	// stage's 1/(1 − K·k_o) scale.
+	AOLMinDB float64 `toml:"aol_min_db"`
 }
 
 // Limits are the minimum acceptable ratios in dB, by test kind (cmrr,

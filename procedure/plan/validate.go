@@ -330,6 +330,10 @@ func (c *planChecker) part() {
 		c.add("part.input_beyond_rail_volts", "give the absolute maximum of an input beyond a rail, e.g. 0.3",
 			"%g V is negative", pt.InputBeyondRailVolts)
 	}
+	if pt.AOLMinDB < 0 || pt.AOLMinDB > 250 || math.IsNaN(pt.AOLMinDB) {
+		c.add("part.aol_min_db", "give the datasheet's minimum open-loop gain in dB, e.g. 110, or leave it out",
+			"rated open-loop gain %g dB is out of range", pt.AOLMinDB)
+	}
 }
 
 func (c *planChecker) decision() {
@@ -383,6 +387,10 @@ func (c *planChecker) tests() {
 		case OrderZigzag, OrderSymmetric, OrderAscending:
 		default:
 			c.add(k+".order", `use "zigzag" (default), "symmetric" or "ascending"`, "unknown order %q", t.Order)
+		}
+		if t.Order == OrderAscending && t.DriftTerm && t.Repeats <= 1 {
+			c.add(k+".order", `use order = "zigzag" (or "symmetric"), whose time does not track the level, or set drift_term = false`,
+				"ascending order in one pass with drift_term: time rises with the level, so drift and slope cannot be told apart")
 		}
 		if t.Repeats < 1 || t.Repeats > 1000 {
 			c.add(k+".repeats", "give 1 to 1000 passes", "repeats %d is out of range", t.Repeats)

@@ -26,6 +26,11 @@ func TestValidateRefusals(t *testing.T) {
 	}{
 		{"two distinct levels", rep("levels = [-10.0, 0.0, 10.0]", "levels = [-10.0, 10.0]"),
 			"levels = [-10.0, 10.0]", "test[1].levels", []string{"n ≥ 3", "residual standard deviation"}},
+		// Ascending in one pass with a drift term: time and level are
+		// collinear (a design that cannot separate drift from slope:
+		// Draper & Smith, Applied Regression Analysis, on collinearity).
+		{"ascending with drift in one pass", rep("levels = [-10.0, 0.0, 10.0]", "levels = [-10.0, 0.0, 10.0]\norder = \"ascending\"\ndrift_term = true"),
+			"", "test[1].order", []string{"zigzag", "cannot be told apart"}},
 		{"duplicate level", rep("levels = [-10.0, 0.0, 10.0]", "levels = [-10.0, 0.0, 10.0, 0.0]"),
 			"levels = [-10.0, 0.0, 10.0, 0.0]", "test[1].levels", []string{"listed twice"}},
 		{"no levels", rep("levels = [-10.0, 0.0, 10.0]", "levels = []"),
