@@ -17,7 +17,8 @@ import (
 // single-time-constant networks). RatioDCDB is R_dc, PoleHz is f_p, with
 // standard uncertainties URatioDCDB and UPoleHz. When the data do not show
 // the corner (the pole lies above the measured frequencies, or its
-// uncertainty exceeds its value) Resolved is false and PoleLowerBoundHz is
+// uncertainty exceeds its value, or the flat model is not rejected at
+// 95 %) Resolved is false and PoleLowerBoundHz is
 // the one-sided 95 % lower bound from the profile χ² (Δχ² = 2.706 = z²_0.95;
 // Press et al., Numerical Recipes 3rd ed. §15.6.5).
 type PoleFit struct {
@@ -41,6 +42,10 @@ func poleDB(f, fp float64) float64 { return 10 * math.Log10(1+(f/fp)*(f/fp)) }
 
 // deltaChi95 is z²_{0.95} for a one-sided 95 % bound on one parameter.
 const deltaChi95 = 2.705543454095404
+
+// deltaChiSig is χ²_{0.95}(1), the 95 % point of chi-square with one degree
+// of freedom, for the likelihood-ratio test of the pole against a flat ratio.
+const deltaChiSig = 3.841458820694124
 
 // FitPole fits the single-pole model to ratios ratioDB (dB) with standard
 // uncertainties uRatioDB at freqHz by weighted nonlinear least squares,
@@ -163,7 +168,10 @@ func FitPole(freqHz, ratioDB, uRatioDB []float64) (PoleFit, error) {
 	ulnfp := math.Sqrt(scale * res.Cov.At(1, 1))
 	out.UPoleHz = out.PoleHz * ulnfp
 	out.CorrDCPole = res.Cov.At(0, 1) / math.Sqrt(res.Cov.At(0, 0)*res.Cov.At(1, 1))
-	out.Resolved = ulnfp < 1 && out.PoleHz < 10*fmax
+	// Resolved: the corner is significant (the flat model is rejected by a
+	// likelihood-ratio test, Δχ² > χ²_{0.95}(1) = 3.841; Wilks 1938) and
+	// determined to better than a factor e (u(ln f_p) < 1).
+	out.Resolved = ulnfp < 1 && out.PoleHz < 10*fmax && chiInf-res.RSS > deltaChiSig
 	if !out.Resolved {
 		out.PoleLowerBoundHz = poleLowerBound(prof, res.RSS, fmin/1e3, out.PoleHz)
 	} else {
