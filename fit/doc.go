@@ -33,6 +33,15 @@
 //     distribution (Owen 1963), whose CDF is evaluated by the Poisson-mixture
 //     series of Lenth (1989, Applied Statistics AS 243) summed outward from
 //     the Poisson mode as in Benton & Krishnamoorthy (2003).
+//   - Sine fits by IEEE Std 1057-2017 §4.1.3.1 (three-parameter) and
+//     §4.1.3.3 (four-parameter, seeded by an interpolated DFT peak),
+//     coherent sampling plans (IEEE Std 1241-2010 §4.1.4.5), the complex
+//     response/stimulus ratio with propagated uncertainty (JCGM 100 §5.1.2,
+//     JCGM 102 §6), checked against the published sine-fit vectors in
+//     testdata/reference and seeded noisy records.
+//   - A single-pole model of ratio against frequency fitted by
+//     Levenberg–Marquardt (Moré 1978), checked against NIST StRD nonlinear
+//     datasets (Misra1a, DanWood, Chwirut2).
 //   - Outliers by Rosner's generalized ESD test (Technometrics 25, 1983),
 //     as given in the NIST/SEMATECH e-Handbook §1.3.5.17.3.
 package fit

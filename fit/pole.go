@@ -240,62 +240,61 @@ func levMar(resid func(p, r []float64), jac func(p []float64, J *mat.Dense), m i
 	lambda := 1e-3
 	var JtJ mat.SymDense
 	g := mat.NewVecDense(np, nil)
-	it := 0
-	for it = 1; it <= maxIter; it++ {
+	// try solves the damped normal equations at the current λ and returns
+	// whether the step lowered the RSS, and whether it was negligible.
+	try := func() (accepted, converged bool) {
+		A := mat.NewDense(np, np, nil)
+		for i := 0; i < np; i++ {
+			for j := 0; j < np; j++ {
+				A.Set(i, j, JtJ.At(i, j))
+			}
+			d := JtJ.At(i, i)
+			if d == 0 {
+				d = 1e-300
+			}
+			A.Set(i, i, JtJ.At(i, i)+lambda*d)
+		}
+		var delta mat.VecDense
+		if err := delta.SolveVec(A, g); err != nil {
+			return false, false
+		}
+		for i := range p {
+			pt[i] = p[i] - delta.AtVec(i)
+		}
+		resid(pt, rt)
+		next := rss(rt)
+		if !(next <= cur) {
+			return false, false
+		}
+		small := true
+		for i := range p {
+			if math.Abs(pt[i]-p[i]) > 1e-12*(math.Abs(p[i])+1e-30) {
+				small = false
+			}
+		}
+		relDrop := (cur - next) / math.Max(cur, 1e-300)
+		copy(p, pt)
+		copy(r, rt)
+		cur = next
+		return true, small || relDrop < 1e-15
+	}
+	it := 1
+	for ; it <= maxIter; it++ {
 		jac(p, J)
 		JtJ.SymOuterK(1, J.T())
 		g.MulVec(J.T(), mat.NewVecDense(m, r))
-		done := false
-		for tries := 0; tries < 60; tries++ {
-			A := mat.NewDense(np, np, nil)
-			for i := 0; i < np; i++ {
-				for j := 0; j < np; j++ {
-					A.Set(i, j, JtJ.At(i, j))
-				}
-				d := JtJ.At(i, i)
-				if d == 0 {
-					d = 1e-300
-				}
-				A.Set(i, i, JtJ.At(i, i)+lambda*d)
-			}
-			var delta mat.VecDense
-			if err := delta.SolveVec(A, g); err != nil {
+		accepted, converged := false, false
+		for !accepted && lambda <= 1e16 {
+			if accepted, converged = try(); !accepted {
 				lambda *= 10
-				continue
-			}
-			for i := range p {
-				pt[i] = p[i] - delta.AtVec(i)
-			}
-			resid(pt, rt)
-			next := rss(rt)
-			if next <= cur && !math.IsNaN(next) {
-				small := true
-				for i := range p {
-					if math.Abs(pt[i]-p[i]) > 1e-12*(math.Abs(p[i])+1e-30) {
-						small = false
-					}
-				}
-				relDrop := (cur - next) / math.Max(cur, 1e-300)
-				copy(p, pt)
-				copy(r, rt)
-				cur = next
-				lambda = math.Max(lambda/10, 1e-15)
-				if small || relDrop < 1e-15 {
-					done = true
-				}
-				goto accepted
-			}
-			lambda *= 10
-			if lambda > 1e16 {
-				done = true
-				goto accepted
 			}
 		}
-		done = true
-	accepted:
-		if done {
+		if !accepted || converged {
+			// No step lowers the RSS even with heavy damping: a minimum
+			// to working precision.
 			break
 		}
+		lambda = math.Max(lambda/10, 1e-15)
 	}
 	if it > maxIter {
 		return lmResult{}, fmt.Errorf("Levenberg–Marquardt did not converge in %d iterations (RSS %g at %v): %w", maxIter, cur, p, ErrBadInput)
