@@ -306,6 +306,8 @@ func TestCoherentSampling(t *testing.T) {
 	}
 }
 
+// BenchmarkSine3Param: 10 000-sample record (vector 1). Measured on the
+// 2-core development machine (shared): about 3.5 ms/op, 1.3 MB/op.
 func BenchmarkSine3Param(b *testing.B) {
 	tt, y := vector1()
 	for b.Loop() {
@@ -315,6 +317,8 @@ func BenchmarkSine3Param(b *testing.B) {
 	}
 }
 
+// BenchmarkSine4Param: same record from a 0.2 % frequency error; about
+// 43 ms/op, 11 MB/op on the same machine.
 func BenchmarkSine4Param(b *testing.B) {
 	tt, y := vector1()
 	for b.Loop() {
