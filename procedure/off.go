@@ -35,6 +35,9 @@ func Off(ctx context.Context, p *plan.Plan, rig *Rig, opt OffOptions) (*OffRepor
 	if p == nil || rig == nil {
 		return nil, errors.New("off: no plan or no bench")
 	}
+	if err := checkTimeScale(p, rig); err != nil {
+		return nil, err
+	}
 	r := newRunner(p, rig, RunOptions{Clock: opt.Clock, Log: opt.Log, Timing: opt.Timing})
 	rep := &OffReport{}
 	var errs []error

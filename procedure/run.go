@@ -138,6 +138,9 @@ func Run(ctx context.Context, p *plan.Plan, rig *Rig, opt RunOptions) (*Outcome,
 	if err := rig.check(p); err != nil {
 		return nil, err
 	}
+	if err := checkTimeScale(p, rig); err != nil {
+		return nil, err
+	}
 	if why := NeedsOperator(p); why != "" && opt.Operator == nil {
 		return nil, fmt.Errorf("%s, but there is no operator to ask (run it from an interactive terminal)", why)
 	}
