@@ -101,6 +101,11 @@ func (r *runner) rampStart(ctx context.Context, role string, o voltReader, progr
 		cctx, cancel := context.WithTimeout(ctx, r.timing.SafeCallTimeout)
 		v, err := o.ReadVolts(cctx)
 		cancel()
+		if err != nil && r.redialOnce(ctx, role, err) {
+			cctx, cancel = context.WithTimeout(ctx, r.timing.SafeCallTimeout)
+			v, err = o.ReadVolts(cctx)
+			cancel()
+		}
 		switch {
 		case err != nil:
 			why = fmt.Sprintf("read-back failed: %v", err)

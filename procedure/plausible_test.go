@@ -12,6 +12,7 @@ import (
 	"time"
 
 	"nullbench/instrument"
+	"nullbench/instrument/sim"
 	"nullbench/procedure/journal"
 	"nullbench/procedure/plan"
 )
@@ -308,5 +309,36 @@ func TestRampToAbsurdStart(t *testing.T) {
 	}
 	if got := rampTo(15, 0, 1); len(got) != 15 || got[0] != 14 {
 		t.Errorf("rampTo(15, 0, 1) = %v", got)
+	}
+}
+
+// The supply's connection drops while the rails are shifted: the safe
+// state dials the supply again once and still ramps the rails down and
+// off, instead of leaving them on.
+func TestSafeStateRedialsALostSupply(t *testing.T) {
+	su := startSim(t, plan.CMBySupplyShift, false, 500*time.Millisecond)
+	armed := false
+	hook := progressHook{fn: func(i PointInfo) {
+		if !armed && i.Unit == "U01" && i.Test == plan.TestCMRR && i.LevelVolts == 5 {
+			armed = true
+			if err := su.bench.InjectFault(sim.NameSupply, sim.Fault{Kind: sim.FaultDrop, Match: "VOLT"}); err != nil {
+				t.Error(err)
+			}
+		}
+	}}
+	_, err, c, log := runJournalled(t, su, context.Background(), RunOptions{Progress: hook})
+	var re *RunError
+	if !errors.As(err, &re) || !errors.Is(err, instrument.ErrClosed) {
+		t.Fatalf("want a lost connection: %v", err)
+	}
+	if re.SafeState != nil {
+		t.Errorf("safe state not reached: %v", re.SafeState)
+	}
+	checkSimBench(t, su.bench, true)
+	if !strings.Contains(log, "connection lost, dialed psu again") {
+		t.Errorf("the log does not say the supply was dialed again:\n%s", log)
+	}
+	if c.End == nil {
+		t.Error("no end record")
 	}
 }

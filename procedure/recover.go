@@ -5,6 +5,8 @@ import (
 	"errors"
 	"fmt"
 	"runtime/debug"
+
+	"nullbench/instrument"
 )
 
 // ErrPanic is wrapped by the error of a run step that panicked: the panic
@@ -33,4 +35,41 @@ func (r *runner) safeStateGuarded(ctx context.Context) error {
 			r.state.PosVolts, r.state.NegVolts, err)
 	}
 	return err
+}
+
+// redialOnce dials the instrument behind role again after err, a lost
+// connection (instrument.ErrClosed, or a session that could not re-sync
+// over it: instrument.ErrOutOfSync), at most once per instrument and run,
+// and reports whether the call should be tried again. The safe state uses
+// it so that a dropped socket does not leave the supplies on.
+func (r *runner) redialOnce(ctx context.Context, role string, err error) bool {
+	if !errors.Is(err, instrument.ErrClosed) && !errors.Is(err, instrument.ErrOutOfSync) {
+		return false
+	}
+	var o any
+	if isSourceRole(role) {
+		o = r.source(role)
+	} else {
+		o = r.supply(role)
+	}
+	d, ok := o.(interface{ Session() *instrument.Session })
+	if !ok || d.Session() == nil {
+		return false
+	}
+	s := d.Session()
+	if r.redialed == nil {
+		r.redialed = map[string]bool{}
+	}
+	if r.redialed[s.Name()] {
+		return false
+	}
+	r.redialed[s.Name()] = true
+	cctx, cancel := context.WithTimeout(ctx, r.timing.SafeCallTimeout)
+	defer cancel()
+	if rerr := s.Redial(cctx); rerr != nil {
+		r.note("safe state: %s: connection lost, dialing again failed: %v", role, rerr)
+		return false
+	}
+	r.note("safe state: %s: connection lost, dialed %s again", role, s.Name())
+	return true
 }

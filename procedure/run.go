@@ -289,6 +289,7 @@ type runner struct {
 	// the safe state reads them back before ramping down.
 	unsure   map[string]bool
 	tried    map[string]float64 // role -> largest magnitude of a failed set command (plausible.go)
+	redialed map[string]bool    // sessions the safe state dialed again (recover.go)
 	powered  bool               // a supply output may be on
 	chamber  bool               // the chamber's set point was changed
 	at       position

@@ -291,6 +291,11 @@ func (r *runner) safeState(runCtx context.Context) error {
 		cctx, ccancel := context.WithTimeout(ctx, r.timing.SafeCallTimeout)
 		err := r.do(cctx, a)
 		ccancel()
+		if err != nil && r.redialOnce(ctx, a.Role, err) {
+			cctx, ccancel = context.WithTimeout(ctx, r.timing.SafeCallTimeout)
+			err = r.do(cctx, a)
+			ccancel()
+		}
 		if err != nil {
 			failed[a.Role] = true
 			errs = append(errs, err)
