@@ -267,6 +267,10 @@ func (m *MeterDriver) ReadN(ctx context.Context, n int) ([]float64, error) {
 	case nan > 0:
 		return readings, m.errorf("%d of %d readings not a number: %w", nan, n, ErrNotANumber)
 	}
+	if k, v := beyondRange(readings, rng); k > 0 {
+		return readings, m.errorf("%q: %d of %d readings beyond %g × the %g V range (first %g V) and not the overload code: %w",
+			readCmd, k, n, MeterOverRangeFactor, rng, v, ErrImplausible)
+	}
 	return readings, nil
 }
 

@@ -63,6 +63,16 @@ func OpenWith(ctx context.Context, name string, addr Address, p *Profile, opts O
 		return nil, fmt.Errorf("instrument %s: %w", name, err)
 	}
 	s := NewSession(name, c, p.SessionOptions())
+	s.SetRedial(func(ctx context.Context) (Conn, error) {
+		nc, err := Dial(ctx, addr, dopts)
+		if err == nil {
+			if err = nc.Drain(ctx); err != nil {
+				_ = nc.Close()
+				return nil, err
+			}
+		}
+		return nc, err
+	})
 	in := &Instrument{Name: name, Address: addr, Profile: p, Session: s}
 	fail := func(err error) (*Instrument, error) {
 		_ = c.Close()

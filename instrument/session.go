@@ -147,7 +147,8 @@ type Session struct {
 	term string
 	sem  chan struct{} // holds one token while a caller owns the connection
 
-	resync bool // guarded by sem: a stale reply may be pending
+	resync bool                                // guarded by sem: a stale reply may be pending
+	redial func(context.Context) (Conn, error) // redial.go; nil: cannot
 
 	idMu sync.Mutex
 	id   *Identity

@@ -178,4 +178,17 @@ func (r *runner) connectUnit(ctx context.Context, ti int, u plan.Unit) error {
 	return nil
 }
 
-func seconds(s float64) time.Duration { return time.Duration(s * float64(time.Second)) }
+// seconds converts plan seconds to a duration without overflow: a value
+// beyond what a Duration holds (about 292 years; Validate refuses more than
+// a week) saturates instead of wrapping to a negative time, and a negative
+// or NaN value is 0.
+func seconds(s float64) time.Duration {
+	const maxSeconds = float64(math.MaxInt64 / int64(time.Second))
+	switch {
+	case !(s > 0):
+		return 0
+	case s >= maxSeconds:
+		return time.Duration(math.MaxInt64)
+	}
+	return time.Duration(s * float64(time.Second))
+}

@@ -35,6 +35,9 @@ func Off(ctx context.Context, p *plan.Plan, rig *Rig, opt OffOptions) (*OffRepor
 	if p == nil || rig == nil {
 		return nil, errors.New("off: no plan or no bench")
 	}
+	if err := checkTimeScale(p, rig); err != nil {
+		return nil, err
+	}
 	r := newRunner(p, rig, RunOptions{Clock: opt.Clock, Log: opt.Log, Timing: opt.Timing})
 	rep := &OffReport{}
 	var errs []error
@@ -54,14 +57,18 @@ func Off(ctx context.Context, p *plan.Plan, rig *Rig, opt OffOptions) (*OffRepor
 		return f(cctx)
 	}
 	down := func(role string, o output, supply bool) {
-		var v float64
-		err := call(func(c context.Context) (err error) { v, err = o.ReadVolts(c); return err })
-		if err != nil {
-			// Without a read-back the ramp cannot start from the output's
-			// value; switching the output off is still safer than leaving it.
-			errs = append(errs, fmt.Errorf("%s: read back: %w (switched off without a ramp)", role, err))
+		v, ok, how := r.rampStart(ctx, role, o, 0, false)
+		var err error
+		if !ok {
+			// Without a plausible read-back the ramp cannot start from
+			// the output's value; switching the output off is still
+			// safer than leaving it.
+			errs = append(errs, fmt.Errorf("%s: %s", role, how))
 		} else {
-			for _, step := range rampTo(v, 0, p.Safety.RampStepVolts) {
+			if v != 0 {
+				note("%s: ramping to 0 V %s", role, how)
+			}
+			for _, step := range rampTo(v, 0, plan.RampStep(p)) {
 				if err = call(func(c context.Context) error { return o.SetVolts(c, step) }); err != nil {
 					errs = append(errs, fmt.Errorf("%s: ramp to 0 V at %s: %w", role, plan.FormatVolts(step), err))
 					break

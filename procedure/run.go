@@ -138,6 +138,9 @@ func Run(ctx context.Context, p *plan.Plan, rig *Rig, opt RunOptions) (*Outcome,
 	if err := rig.check(p); err != nil {
 		return nil, err
 	}
+	if err := checkTimeScale(p, rig); err != nil {
+		return nil, err
+	}
 	if why := NeedsOperator(p); why != "" && opt.Operator == nil {
 		return nil, fmt.Errorf("%s, but there is no operator to ask (run it from an interactive terminal)", why)
 	}
@@ -285,8 +288,10 @@ type runner struct {
 	// may have applied it all the same (a reply lost after the change), so
 	// the safe state reads them back before ramping down.
 	unsure   map[string]bool
-	powered  bool // a supply output may be on
-	chamber  bool // the chamber's set point was changed
+	tried    map[string]float64 // role -> largest magnitude of a failed set command (plausible.go)
+	redialed map[string]bool    // sessions the safe state dialed again (recover.go)
+	powered  bool               // a supply output may be on
+	chamber  bool               // the chamber's set point was changed
 	at       position
 	tempC    float64 // temperature recorded with readings when not read per point
 	eta      etaEstimator
@@ -357,15 +362,17 @@ func (r *runner) run(ctx context.Context) (*Outcome, error) {
 	if r.opt.Resume != nil {
 		r.logf("resuming: %d of %d points already in the journal", done, total)
 	}
+	// Every step runs guarded (recover.go): a panic becomes an error, so
+	// the bench still reaches its safe state and the journal its end.
 	err := r.journalIdentities()
 	if err == nil {
-		err = r.benchOff(ctx)
+		err = guarded(ctx, r.benchOff)
 	}
 	if err == nil {
-		err = r.campaign(ctx)
+		err = guarded(ctx, r.campaign)
 	}
 	if err == nil {
-		err = r.finish(ctx)
+		err = guarded(ctx, r.finish)
 	}
 	r.out.BenchSeconds = r.clk.Now().Seconds()
 	if err != nil {
@@ -520,7 +527,7 @@ func (r *runner) abort(ctx context.Context, err error) error {
 	r.prog.Note("stopping: bringing the bench to its safe state")
 	r.event(journal.Event{Type: journal.EventAbort, Reason: fmt.Sprintf("%s: %v", at.stage, e.Err), Unit: at.unit,
 		TempIndex: max(at.tempIndex, 0), TemperatureC: at.tempPoint})
-	e.SafeState = r.safeState(ctx)
+	e.SafeState = r.safeStateGuarded(ctx)
 	detail := "reached: sources at 0 V and off, then supplies ramped down and off"
 	if e.SafeState != nil {
 		detail = "NOT reached: " + e.SafeState.Error()

@@ -302,6 +302,9 @@ func (r *runner) readBack(ctx context.Context, t *plan.Test, st plan.Step) (floa
 		if err != nil {
 			return 0, false, nil, fmt.Errorf("%s: read back: %w", x.role, err)
 		}
+		if err := r.plausibleReadBack(x.role, v, roleVolts(st.State, x.role)); err != nil {
+			return 0, false, nil, err
+		}
 		switch x.role {
 		case plan.RoleSupplyPos:
 			rails[0], seen[0] = v, true

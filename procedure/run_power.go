@@ -79,11 +79,13 @@ func (r *runner) benchOff(ctx context.Context) error {
 		ReadVolts(context.Context) (float64, error)
 	}
 	down := func(role string, o output, supply bool) error {
-		v, err := o.ReadVolts(ctx)
-		if err != nil {
-			return fmt.Errorf("%s: read back before the first unit: %w", role, err)
+		v, ok, how := r.rampStart(ctx, role, o, 0, false)
+		if !ok {
+			r.note("%s: %s", role, how)
+		} else if v != 0 {
+			r.note("%s: ramping to 0 V %s", role, how)
 		}
-		for _, step := range rampTo(v, 0, r.p.Safety.RampStepVolts) {
+		for _, step := range rampTo(v, 0, plan.RampStep(r.p)) {
 			if err := o.SetVolts(ctx, step); err != nil {
 				return fmt.Errorf("%s: ramp to 0 V before the first unit: %w", role, err)
 			}
@@ -126,11 +128,18 @@ func (r *runner) benchOff(ctx context.Context) error {
 // rampTo lists the set points from v to target in steps of at most step
 // volts, ending exactly at target; nothing when v is already there (within
 // 1 mV, a supply's resolution).
+//
+// It never allocates by an instrument's answer: a start that is not finite
+// or would take more than maxRampPoints steps returns nothing (callers pass
+// starts bounded by the plan; see rampStart).
 func rampTo(v, target, step float64) []float64 {
-	if step <= 0 {
+	if !(step > 0) || math.IsInf(step, 0) {
 		step = plan.DefaultRampStepVolts
 	}
 	d := target - v
+	if math.IsNaN(d) || math.IsInf(d, 0) || math.Abs(d)/step > maxRampPoints {
+		return nil
+	}
 	if math.Abs(d) < 1e-3 {
 		return nil
 	}
@@ -240,6 +249,7 @@ func (r *runner) do(ctx context.Context, a plan.PowerAction) error {
 	if err != nil {
 		if a.Op == plan.PowerSetVolts {
 			r.unsure[a.Role] = true
+			r.noteTried(a)
 		}
 		return fmt.Errorf("%s: %w", a, err)
 	}
@@ -281,6 +291,11 @@ func (r *runner) safeState(runCtx context.Context) error {
 		cctx, ccancel := context.WithTimeout(ctx, r.timing.SafeCallTimeout)
 		err := r.do(cctx, a)
 		ccancel()
+		if err != nil && r.redialOnce(ctx, a.Role, err) {
+			cctx, ccancel = context.WithTimeout(ctx, r.timing.SafeCallTimeout)
+			err = r.do(cctx, a)
+			ccancel()
+		}
 		if err != nil {
 			failed[a.Role] = true
 			errs = append(errs, err)
@@ -294,28 +309,10 @@ func (r *runner) safeState(runCtx context.Context) error {
 	}
 	// A set command that failed may still have taken effect: start the
 	// ramp from what the output reads, so no step exceeds the ramp step.
-	for role := range r.unsure {
-		var o interface {
-			ReadVolts(context.Context) (float64, error)
-		}
-		if isSourceRole(role) {
-			if src := r.source(role); src != nil {
-				o = src
-			}
-		} else if sup := r.supply(role); sup != nil {
-			o = sup
-		}
-		if o == nil {
-			continue
-		}
-		cctx, ccancel := context.WithTimeout(ctx, r.timing.SafeCallTimeout)
-		v, err := o.ReadVolts(cctx)
-		ccancel()
-		if err == nil {
-			r.state = plan.ApplyAction(r.state, plan.PowerAction{Op: plan.PowerSetVolts, Role: role, Volts: v})
-			delete(r.unsure, role)
-		}
-	}
+	// The read-back is checked against what the runner programmed (the
+	// last good value and the failed one): an implausible answer is not
+	// used, the ramp starts from the programmed value instead (rampStart).
+	r.resolveUnsure(ctx)
 	acts := plan.PowerDownFrom(r.p, r.state)
 	i := 0
 	for ; i < len(acts) && isSourceRole(acts[i].Role); i++ {

@@ -4,6 +4,7 @@ import (
 	"errors"
 	"fmt"
 	"image/color"
+	"io"
 	"math"
 	"os"
 	"path/filepath"
@@ -37,6 +38,9 @@ func WritePlotsWith(dir string, c *Campaign, opt ChartOptions) ([]string, error)
 		return nil, errors.New("report: no campaign to plot")
 	}
 	if err := os.MkdirAll(dir, 0o755); err != nil {
+		return nil, fmt.Errorf("report: plot directory %q: %w", dir, err)
+	}
+	if _, err := RemoveStaleTemps(dir); err != nil {
 		return nil, fmt.Errorf("report: plot directory %q: %w", dir, err)
 	}
 	plan := planCharts(c, opt)
@@ -91,16 +95,7 @@ func savePNG(p *plot.Plot, path string) (err error) {
 	if err != nil {
 		return fmt.Errorf("report: plot %q: %w", path, err)
 	}
-	f, err := os.Create(path)
-	if err != nil {
-		return fmt.Errorf("report: plot %q: %w", path, err)
-	}
-	defer func() {
-		if cerr := f.Close(); cerr != nil && err == nil {
-			err = fmt.Errorf("report: plot %q: %w", path, cerr)
-		}
-	}()
-	if _, err := wt.WriteTo(f); err != nil {
+	if err := WriteFileAtomic(path, func(w io.Writer) error { _, err := wt.WriteTo(w); return err }); err != nil {
 		return fmt.Errorf("report: plot %q: %w", path, err)
 	}
 	return nil

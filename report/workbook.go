@@ -46,7 +46,10 @@ func WriteWorkbook(path string, c *Campaign, opt WorkbookOptions) (err error) {
 	if !strings.EqualFold(filepath.Ext(path), ".xlsx") {
 		return fmt.Errorf("report: workbook %q: the file name must end in .xlsx", path)
 	}
-	tmp, err := os.CreateTemp(filepath.Dir(path), ".nullbench-*.xlsx")
+	if err := RefuseSymlink(path); err != nil {
+		return fmt.Errorf("report: workbook: %w", err)
+	}
+	tmp, err := os.CreateTemp(filepath.Dir(path), tempPrefix+"*.xlsx")
 	if err != nil {
 		return fmt.Errorf("report: workbook %q: %w", path, err)
 	}

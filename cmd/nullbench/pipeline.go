@@ -104,16 +104,22 @@ func writeOutputs(std streams, o outputOptions, c *report.Campaign) (string, err
 	if err := os.MkdirAll(o.Out, 0o755); err != nil {
 		return "", withCode(exitFailure, err)
 	}
+	if _, err := report.RemoveStaleTemps(o.Out); err != nil {
+		return "", withCode(exitFailure, err)
+	}
 	book := filepath.Join(o.Out, "campaign.xlsx")
 	if err := report.WriteWorkbook(book, c, report.WorkbookOptions{NoCharts: o.NoCharts, Charts: chartOptions()}); err != nil {
 		return "", withCode(exitFailure, fmt.Errorf("write the workbook %s: %w", book, err))
 	}
+	// User text that a spreadsheet would run as a formula (a leading =,
+	// +, - or @) is neutralised in the CSV exports, as in the workbook.
+	csvOpt := report.CSVOptions{GuardFormulas: true}
 	files := []struct {
 		name  string
 		write func(io.Writer) error
 	}{
-		{"results.csv", func(w io.Writer) error { return report.WriteResultsCSV(w, c.Results, report.CSVOptions{}) }},
-		{"readings.csv", func(w io.Writer) error { return report.WriteReadingsCSV(w, c.Readings, report.CSVOptions{}) }},
+		{"results.csv", func(w io.Writer) error { return report.WriteResultsCSV(w, c.Results, csvOpt) }},
+		{"readings.csv", func(w io.Writer) error { return report.WriteReadingsCSV(w, c.Readings, csvOpt) }},
 		{"results.jsonl", func(w io.Writer) error { return report.WriteResultsJSONL(w, c.Results) }},
 		{"readings.jsonl", func(w io.Writer) error { return report.WriteReadingsJSONL(w, c.Readings) }},
 	}
@@ -135,21 +141,10 @@ func writeOutputs(std streams, o outputOptions, c *report.Campaign) (string, err
 	return book, nil
 }
 
+// writeFile writes through a temporary file renamed into place, refusing
+// an existing symbolic link (report.WriteFileAtomic).
 func writeFile(path string, write func(io.Writer) error) error {
-	f, err := os.Create(path)
-	if err != nil {
-		return err
-	}
-	bw := bufio.NewWriter(f)
-	if err := write(bw); err != nil {
-		f.Close()
-		return fmt.Errorf("write %s: %w", path, err)
-	}
-	if err := bw.Flush(); err != nil {
-		f.Close()
-		return err
-	}
-	return f.Close()
+	return report.WriteFileAtomic(path, write)
 }
 
 // consent asks for permission to run a hazardous plan. It returns an error

@@ -167,7 +167,7 @@ func Resume(path string, p *plan.Plan, h Header) (*Writer, *Contents, error) {
 	}
 	if c.End != nil && c.End.Status == EndComplete {
 		f.Close()
-		return nil, nil, fmt.Errorf("journal %s: the run already ended complete; nothing to resume (start a new journal to measure again)", path)
+		return nil, nil, fmt.Errorf("journal %s: the run already ended complete; nothing to resume. If the workbook is missing or damaged (a kill while it was written), run `nullbench report %s` to write it again; start a new journal to measure again", path, path)
 	}
 	if c.Truncated {
 		if err := f.Truncate(c.ValidBytes); err != nil {

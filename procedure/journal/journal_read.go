@@ -19,11 +19,13 @@ type Contents struct {
 	Resumes    []Header // one per resume record
 	Identities []Identity
 	Readings   []Reading
-	Events     []Event
-	Passes     []plan.WorkKey // pass-done markers
-	Tests      []plan.WorkKey // test-done markers
-	End        *End           // the last end record, if no resume followed it
-	Records    int            // complete records read
+	// ReadingLines holds the journal line of each of Readings.
+	ReadingLines []int
+	Events       []Event
+	Passes       []plan.WorkKey // pass-done markers
+	Tests        []plan.WorkKey // test-done markers
+	End          *End           // the last end record, if no resume followed it
+	Records      int            // complete records read
 
 	// Chained says the records carry running hashes (chain.go); LastChain
 	// is the last record's, ChainBreakLine the first line whose hash does
@@ -127,6 +129,7 @@ func Read(r io.Reader) (*Contents, error) {
 			c.Identities = append(c.Identities, *rec.Identity)
 		case RecordReading:
 			c.Readings = append(c.Readings, *rec.Reading)
+			c.ReadingLines = append(c.ReadingLines, line)
 		case RecordEvent:
 			c.Events = append(c.Events, *rec.Event)
 		case RecordPassDone:
@@ -199,7 +202,7 @@ func (w WorkSet) Points() int { return len(w.points) }
 // counts, since a changed level or limit would mix two campaigns).
 func CheckPlanMatch(p *plan.Plan, c *Contents) error {
 	if p.Hash == c.Header.PlanHash {
-		return nil
+		return CheckReadings(p, c)
 	}
 	return fmt.Errorf("this journal belongs to plan %s (sha256 %s), but the plan given is %s (sha256 %s): "+
 		"resume with the plan the run started from, unchanged, or start a new journal",

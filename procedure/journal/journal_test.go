@@ -207,7 +207,7 @@ func TestResumeJournalRefusals(t *testing.T) {
 	}
 	w.End(End{Status: EndComplete})
 	w.Close()
-	if _, _, err := Resume(done, p, testHeader(p)); err == nil || !strings.Contains(err.Error(), "ended complete") {
+	if _, _, err := Resume(done, p, testHeader(p)); err == nil || !strings.Contains(err.Error(), "ended complete") || !strings.Contains(err.Error(), "nullbench report "+done) {
 		t.Errorf("complete run: %v", err)
 	}
 	// Open never overwrites.

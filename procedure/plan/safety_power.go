@@ -91,7 +91,12 @@ func PowerDownOrder(p *Plan) []PowerAction { return PowerDownFrom(p, NominalStat
 // switched off (inputs first: common practice, no published source; JEDEC
 // JESD78 latch-up); then both rails ramped to 0 V,
 // the span shrinking at every step; then the supply outputs off.
+//
+// A state beyond what the plan could program (a bad read-back) is first
+// clamped to it (boundedDown): the list never panics and never commands
+// more than the plan's largest voltage on a role.
 func PowerDownFrom(p *Plan, from BenchState) []PowerAction {
+	from = boundedDown(p, from)
 	step := RampStep(p)
 	var a []PowerAction
 	srcs := SourceRoles(p)

@@ -131,6 +131,7 @@ func Validate(p *Plan) error {
 	c.temperature()
 	c.limits()
 	c.calibrationDates()
+	c.bounds()
 	if r := p.Safety.RampStepVolts; r < 0.01 || r > 10 {
 		c.add("safety.ramp_step_volts", "give a step between 0.01 and 10 V, e.g. 1 (steps ≤ 1 V with settling are common practice)",
 			"ramp step %g V is out of range", r)
@@ -466,11 +467,11 @@ func (c *planChecker) units() {
 		}
 		if u.Channel != "" {
 			with++
-			if j, ok := chans[u.Channel]; ok {
+			if j, ok := chans[CanonicalChannel(u.Channel)]; ok {
 				c.add(k+".channel", "give each unit its own switch channel (closing two parallels the units)",
 					"channel %s already used by %s", u.Channel, unitKey(j))
 			} else {
-				chans[u.Channel] = i
+				chans[CanonicalChannel(u.Channel)] = i
 			}
 		}
 	}

@@ -2,6 +2,7 @@ package plan
 
 import (
 	"errors"
+	"fmt"
 	"strings"
 	"testing"
 )
@@ -72,6 +73,17 @@ func TestValidateRefusals(t *testing.T) {
 		{"channels without switch", func(s string) string {
 			return strings.Replace(s, "id = \"U01\"\n", "id = \"U01\"\nchannel = \"101\"\n", 1)
 		}, "", "bench.roles.switch", []string{"switch channels"}},
+		// Bounds (issue: a dwell beyond a week is a typo, not a plan).
+		{"dwell beyond a week", rep("levels = [-10.0, 0.0, 10.0]", "levels = [-10.0, 0.0, 10.0]\ndwell_s = 1e12"),
+			"dwell_s = 1e12", "test[1].dwell_s", []string{"longer than a week"}},
+		{"settle time-out beyond a week", rep("levels = [-10.0, 0.0, 10.0]", "levels = [-10.0, 0.0, 10.0]\nsettle_timeout_s = 604801.0"),
+			"settle_timeout_s = 604801.0", "test[1].settle_timeout_s", []string{"longer than a week"}},
+		{"too many levels", rep("levels = [-10.0, 0.0, 10.0]", "levels = ["+manyLevels(1001)+"]"),
+			"levels = [0.0,", "test[1].levels", []string{"1001 levels"}},
+		{"one relay written twice", func(s string) string {
+			s = strings.Replace(s, "id = \"U01\"\n", "id = \"U01\"\nchannel = \"101\"\n", 1)
+			return s + "\n[[unit]]\nid = \"U02\"\nchannel = \"0101\"\n"
+		}, "", "unit[2].channel", []string{"already used by unit[1]"}},
 		{"unknown limit", rep("cmrr = 100.0", "cmrr = 100.0\ncmr = 90.0"),
 			"cmr = 90.0", "limits.cmr", []string{`did you mean "cmrr"`}},
 		{"psrr_worst without the psrr tests", rep("cmrr = 100.0", "cmrr = 100.0\npsrr_worst = 90.0"),
@@ -215,5 +227,30 @@ func TestValidateCalibrationDue(t *testing.T) {
 	err := Validate(p)
 	if err == nil || !strings.Contains(err.Error(), `bench.instrument.dmm.calibration_due`) {
 		t.Fatalf("err %v", err)
+	}
+}
+
+// manyLevels writes n distinct levels for a TOML array.
+func manyLevels(n int) string {
+	var b strings.Builder
+	for i := range n {
+		if i > 0 {
+			b.WriteString(", ")
+		}
+		fmt.Fprintf(&b, "%d.0", i)
+	}
+	return b.String()
+}
+
+func TestSameChannel(t *testing.T) {
+	// SCPI channel lists are numbers (IEEE 488.2 7.7.2 decimal numeric
+	// program data): leading zeros do not name another relay.
+	for _, c := range []struct {
+		a, b string
+		same bool
+	}{{"0101", "101", true}, {"101", "101", true}, {"102", "101", false}, {"000", "0", true}, {"a1", "A1", true}, {"01a", "1a", false}} {
+		if got := SameChannel(c.a, c.b); got != c.same {
+			t.Errorf("SameChannel(%q, %q) = %v", c.a, c.b, got)
+		}
 	}
 }

@@ -1,0 +1,177 @@
+package procedure
+
+import (
+	"context"
+	"fmt"
+	"math"
+
+	"nullbench/instrument"
+	"nullbench/procedure/plan"
+)
+
+// Read-backs are never trusted blindly. A supply or source answers with
+// the voltage at its terminals; a working one stays within its set-point
+// accuracy of the programmed value (a few mV for a bench supply). The
+// runner refuses any read-back that is not finite or lies further than
+// readBackSlackVolts + readBackSlackRel·|programmed| from the programmed
+// value, or beyond the largest voltage the plan could have programmed on
+// that role. The bounds are generous on purpose (common practice, no
+// published source): they catch a transport or instrument fault (1E300,
+// 30 V from a 15 V rail), not an accuracy problem.
+const (
+	readBackSlackVolts = 0.1
+	readBackSlackRel   = 0.02
+)
+
+// readBackSlack is the allowed distance of a read-back from bound.
+func readBackSlack(bound float64) float64 {
+	return readBackSlackVolts + readBackSlackRel*math.Abs(bound)
+}
+
+// plausibleReadBack checks a read-back v of role against the value the
+// runner programmed and against the plan's largest voltage for the role.
+// The error names the role, the value and the bound; it wraps
+// instrument.ErrImplausible.
+func (r *runner) plausibleReadBack(role string, v, programmed float64) error {
+	if math.IsNaN(v) || math.IsInf(v, 0) {
+		return fmt.Errorf("%s: read-back %g V is not a number: %w", role, v, instrument.ErrImplausible)
+	}
+	if d := math.Abs(v - programmed); d > readBackSlack(programmed) {
+		return fmt.Errorf("%s: read-back %s is %.3g V from the programmed %s (more than %.3g V): %w",
+			role, plan.FormatVolts(v), d, plan.FormatVolts(programmed), readBackSlack(programmed), instrument.ErrImplausible)
+	}
+	if lim := plan.MaxProgrammedVolts(r.p, role); math.Abs(v) > lim+readBackSlack(lim) {
+		return fmt.Errorf("%s: read-back %s exceeds the largest voltage the plan programs on it (%s): %w",
+			role, plan.FormatVolts(v), plan.FormatVolts(lim), instrument.ErrImplausible)
+	}
+	return nil
+}
+
+// voltReader is the read-back half of a supply or source.
+type voltReader interface {
+	ReadVolts(context.Context) (float64, error)
+}
+
+// rampStart decides where a ramp of role to 0 V starts, with no value from
+// the instrument used unchecked:
+//
+//   - known true (the runner programmed the role; programmed is the
+//     largest magnitude it may have set, a failed set command included):
+//     the read-back when it is within readBackSlack of programmed or
+//     below it in magnitude with the same sign, else programmed itself;
+//   - known false (the bench as a crash left it): the read-back when it
+//     is finite and within the plan's largest voltage for the role (for
+//     a source: or the part's maximum supply span). An
+//     implausible answer is read once more (a transient glitch); when it
+//     stays implausible a supply starts from its nominal rail — the level
+//     the bench rests at between tests, never more than the plan
+//     programs — and a source is switched off without a ramp (ok false).
+//
+// how says which value was used, in words for the log and journal. The
+// start is always finite and within what the plan could program, so the
+// ramp's length is bounded by the plan, never by an answer.
+func (r *runner) rampStart(ctx context.Context, role string, o voltReader, programmed float64, known bool) (start float64, ok bool, how string) {
+	lim := plan.MaxProgrammedVolts(r.p, role)
+	if !known && isSourceRole(role) {
+		// A source the operator left on by hand may sit at a level the
+		// plan never programs; it is plausible up to the part's supply
+		// span (no input can be further from ground on a powered part).
+		lim = math.Max(lim, r.p.Part.MaxSupplySpanVolts)
+	}
+	accept := func(v float64) bool {
+		if math.IsNaN(v) || math.IsInf(v, 0) || math.Abs(v) > lim+readBackSlack(lim) {
+			return false
+		}
+		if !known {
+			return true
+		}
+		if math.Abs(v-programmed) <= readBackSlack(programmed) {
+			return true
+		}
+		// Between 0 V and the programmed value: a set command that half
+		// worked, or an output already coming down.
+		return v*programmed >= 0 && math.Abs(v) <= math.Abs(programmed)
+	}
+	var why string
+	tries := 2
+	if known {
+		tries = 1
+	}
+	for range tries {
+		cctx, cancel := context.WithTimeout(ctx, r.timing.SafeCallTimeout)
+		v, err := o.ReadVolts(cctx)
+		cancel()
+		if err != nil && r.redialOnce(ctx, role, err) {
+			cctx, cancel = context.WithTimeout(ctx, r.timing.SafeCallTimeout)
+			v, err = o.ReadVolts(cctx)
+			cancel()
+		}
+		switch {
+		case err != nil:
+			why = fmt.Sprintf("read-back failed: %v", err)
+		case accept(v):
+			return v, true, "from its read-back " + plan.FormatVolts(v)
+		default:
+			why = fmt.Sprintf("read-back %g V implausible (plan's largest %s)", v, plan.FormatVolts(lim))
+		}
+	}
+	if known {
+		return programmed, true, fmt.Sprintf("from the programmed %s (%s)", plan.FormatVolts(programmed), why)
+	}
+	switch role {
+	case plan.RoleSupplyPos:
+		v := math.Min(math.Abs(r.p.Part.NominalPosVolts), lim)
+		return v, true, fmt.Sprintf("from the nominal rail %s (%s)", plan.FormatVolts(v), why)
+	case plan.RoleSupplyNeg:
+		v := -math.Min(math.Abs(r.p.Part.NominalNegVolts), lim)
+		return v, true, fmt.Sprintf("from the nominal rail %s (%s)", plan.FormatVolts(v), why)
+	}
+	return 0, false, "switched off without a ramp (" + why + ")"
+}
+
+// maxRampPoints bounds a ramp built by rampTo; starts come from rampStart,
+// bounded by the plan, so a longer ramp means an unchecked value.
+const maxRampPoints = 100000
+
+// noteTried records the voltage of a failed set command: the instrument
+// may have applied it, so the safe state treats the larger of it and the
+// last good value as programmed.
+func (r *runner) noteTried(a plan.PowerAction) {
+	if r.tried == nil {
+		r.tried = map[string]float64{}
+	}
+	if old, ok := r.tried[a.Role]; !ok || math.Abs(a.Volts) > math.Abs(old) {
+		r.tried[a.Role] = a.Volts
+	}
+}
+
+// resolveUnsure sets the programmed state of every role whose last set
+// command failed to where its ramp down starts (rampStart with the
+// programmed value known), and notes which value it used.
+func (r *runner) resolveUnsure(ctx context.Context) {
+	for _, role := range []string{plan.RoleSourceRef, plan.RoleSourceCM, plan.RoleSourceDiff, plan.RoleSupplyPos, plan.RoleSupplyNeg} {
+		if !r.unsure[role] {
+			continue
+		}
+		var o voltReader
+		if isSourceRole(role) {
+			if src := r.source(role); src != nil {
+				o = src
+			}
+		} else if sup := r.supply(role); sup != nil {
+			o = sup
+		}
+		if o == nil {
+			continue
+		}
+		programmed := roleVolts(r.state, role)
+		if t, ok := r.tried[role]; ok && math.Abs(t) > math.Abs(programmed) {
+			programmed = t
+		}
+		v, _, how := r.rampStart(ctx, role, o, programmed, true)
+		r.note("safe state: %s ramps down %s", role, how)
+		r.state = plan.ApplyAction(r.state, plan.PowerAction{Op: plan.PowerSetVolts, Role: role, Volts: v})
+		delete(r.unsure, role)
+		delete(r.tried, role)
+	}
+}
