@@ -80,11 +80,14 @@ func (t Timing) withDefaults() Timing {
 			*v = d
 		}
 	}
-	def(&t.RampDwell, 50*time.Millisecond)
-	def(&t.RelaySettle, 50*time.Millisecond)
-	def(&t.SettleInterval, time.Second)
-	def(&t.SoakInterval, 10*time.Second)
-	def(&t.ChamberTick, 30*time.Second)
+	// The defaults are the duration model's (plan.DefaultSequencerWaits),
+	// so that check predicts the waits the runner makes.
+	w := plan.DefaultSequencerWaits()
+	def(&t.RampDwell, seconds(w.RampDwellSeconds))
+	def(&t.RelaySettle, seconds(w.RelaySettleSeconds))
+	def(&t.SettleInterval, seconds(w.SettleIntervalSeconds))
+	def(&t.SoakInterval, seconds(w.SoakIntervalSeconds))
+	def(&t.ChamberTick, seconds(w.ChamberTickSeconds))
 	def(&t.SafeStateTimeout, 2*time.Minute)
 	def(&t.SafeCallTimeout, 10*time.Second)
 	return t
