@@ -60,6 +60,8 @@ func (pr Prediction) Warnings() []string {
 // resolve, from the meter's noise figures:
 //
 //	σ_pt² = (noise(NPLC)·range)²/readings + (floor·range)²     one point at the meter
+//	        + (K·e_n)²·(f_H + f_c·ln(f_H/f_L))                 the part's noise, f_H = 1/(2·readings·NPLC/f_line),
+//	                                                           f_L = 1/(the test's length), f_c = part.flicker_corner_hz
 //	u(b)  = σ_pt / √(Σ (x_i − x̄)²)                            slope of a straight-line fit (GUM H.3)
 //	u(k)  = 10⁶·u(b) / K                                        µV/V at the input
 //	U     = t_0.975(ν)·u(k),  ν = n − p                         (GUM G.3, G.6.4)
@@ -69,7 +71,7 @@ func (pr Prediction) Warnings() []string {
 // noise gain, or the board's gain for board tests (board_cmrr: its
 // common-mode sweep). Near zero the Type B terms (noise-gain tolerance,
 // meter and stimulus gain) vanish because they scale with the coefficient,
-// so U is the resolution limit; the part's own noise is not counted.
+// so U is the resolution limit; drift and thermal tails are not counted.
 func Predict(p *Plan, f Figures) Prediction {
 	tl := f.Timeline(p)
 	pr := Prediction{Timeline: tl, TotalSeconds: tl.TotalSeconds, WallSeconds: tl.TotalSeconds}
@@ -103,6 +105,29 @@ func Predict(p *Plan, f Figures) Prediction {
 		}
 		tp.DOF = tp.Points - params
 		tp.NoiseVolts = f.PointNoiseVolts(t.NPLC, t.RangeVolts, t.Readings)
+		if en := p.Part.NoiseNVPerRtHz; en > 0 && tp.Divisor > 0 {
+			// The part's white input noise, gained by K (or the board's
+			// gain) and averaged over the point's integration time
+			// n·NPLC/f_line: a boxcar average of length T has a noise
+			// bandwidth 1/(2T) (common result of sampling theory, e.g.
+			// Horowitz & Hill, The Art of Electronics, 3rd ed., §8.1).
+			hz := f.LineHz
+			if !(hz > 0) {
+				hz = LineFrequencyHz
+			}
+			T := float64(max(t.Readings, 1)) * t.NPLC / hz
+			band := 1 / (2 * T)
+			// Its 1/f part between the test's length and that bandwidth:
+			// e_n²·f_c·ln(f_H/f_L) (Motchenbacher & Connelly, Low-Noise
+			// Electronic System Design, Wiley 1993, ch. 1; from memory).
+			if fc := p.Part.FlickerCornerHz; fc > 0 && tp.UnitSeconds > 0 {
+				if fl := 1 / tp.UnitSeconds; band > fl {
+					band += fc * math.Log(band/fl)
+				}
+			}
+			part := math.Abs(tp.Divisor) * en * 1e-9 * math.Sqrt(band)
+			tp.NoiseVolts = math.Hypot(tp.NoiseVolts, part)
+		}
 		if sxx > 0 && tp.Divisor > 0 && tp.DOF > 0 {
 			tp.StdUncUVPerV = 1e6 * tp.NoiseVolts / math.Sqrt(sxx) / math.Abs(tp.Divisor)
 			tp.CoverageK = StudentT975(float64(tp.DOF))
