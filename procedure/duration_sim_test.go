@@ -20,8 +20,10 @@ type timedProgress struct {
 	starts map[string]float64 // "unit/test index/temp" -> bench s
 	ends   map[string]float64
 	temp   int
-	last   map[int]float64
 	cur    string
+	// lefts: at each point, the bench time then and the estimate of the
+	// time left.
+	lefts [][2]float64
 }
 
 var testNote = regexp.MustCompile(`^unit (\S+): test\[(\d+)\]`)
@@ -37,13 +39,17 @@ func (p *timedProgress) Note(msg string) {
 		p.temp++
 	}
 }
-func (p *timedProgress) Point(PointInfo) { p.ends[p.cur] = p.clk.Now().Seconds() }
+func (p *timedProgress) Point(pi PointInfo) {
+	now := p.clk.Now().Seconds()
+	p.ends[p.cur] = now
+	p.lefts = append(p.lefts, [2]float64{now, pi.Left.Seconds()})
+}
 
 // runTimed runs planText's tests (its [bench] section replaced by the
 // simulated bench's) on a virtual clock shared with the bench, and returns
 // the plan, the whole run's bench seconds and the measured span of every
 // test of every unit and temperature (from its start to its last point).
-func runTimed(t *testing.T, dut *sim.DUTFile, planText string) (*plan.Plan, float64, map[string]float64) {
+func runTimed(t *testing.T, dut *sim.DUTFile, planText string) (*plan.Plan, float64, map[string]float64, [][2]float64) {
 	t.Helper()
 	mc := sim.NewManualClock()
 	b, err := sim.New(sim.Config{Clock: mc, DUT: dut})
@@ -80,7 +86,7 @@ func runTimed(t *testing.T, dut *sim.DUTFile, planText string) (*plan.Plan, floa
 	for k, s := range pr.starts {
 		spans[k] = pr.ends[k] - s
 	}
-	return p, out.BenchSeconds, spans
+	return p, out.BenchSeconds, spans, pr.lefts
 }
 
 // TestDurationModelOnSimulatedBench runs the shipped plans on the
@@ -143,7 +149,7 @@ resistor_tolerance = 0.001
 					t.Fatal(err)
 				}
 			}
-			p, total, spans := runTimed(t, dut, string(text))
+			p, total, spans, lefts := runTimed(t, dut, string(text))
 			f := plan.DefaultFigures()
 			tl := f.Timeline(p)
 			if r := tl.TotalSeconds / total; math.Abs(r-1) > 0.15 {
@@ -167,6 +173,15 @@ resistor_tolerance = 0.001
 				}
 			}
 			t.Logf("%d test spans, worst |model/measured - 1| = %.3f", len(spans), worst)
+			// The progress bar's remaining time at a quarter, half and
+			// three quarters of the points, against what was left.
+			for _, frac := range []float64{0.25, 0.5, 0.75} {
+				l := lefts[int(frac*float64(len(lefts)))]
+				actual := total - l[0]
+				if r := l[1] / actual; math.Abs(r-1) > 0.15 {
+					t.Errorf("at %.0f %% of the points: %.0f s left estimated, %.0f s actually (ratio %.3f)", 100*frac, l[1], actual, r)
+				}
+			}
 		})
 	}
 }
