@@ -104,30 +104,7 @@ func Predict(p *Plan, f Figures) Prediction {
 			params++
 		}
 		tp.DOF = tp.Points - params
-		tp.NoiseVolts = f.PointNoiseVolts(t.NPLC, t.RangeVolts, t.Readings)
-		if en := p.Part.NoiseNVPerRtHz; en > 0 && tp.Divisor > 0 {
-			// The part's white input noise, gained by K (or the board's
-			// gain) and averaged over the point's integration time
-			// n·NPLC/f_line: a boxcar average of length T has a noise
-			// bandwidth 1/(2T) (common result of sampling theory, e.g.
-			// Horowitz & Hill, The Art of Electronics, 3rd ed., §8.1).
-			hz := f.LineHz
-			if !(hz > 0) {
-				hz = LineFrequencyHz
-			}
-			T := float64(max(t.Readings, 1)) * t.NPLC / hz
-			band := 1 / (2 * T)
-			// Its 1/f part between the test's length and that bandwidth:
-			// e_n²·f_c·ln(f_H/f_L) (Motchenbacher & Connelly, Low-Noise
-			// Electronic System Design, Wiley 1993, ch. 1; from memory).
-			if fc := p.Part.FlickerCornerHz; fc > 0 && tp.UnitSeconds > 0 {
-				if fl := 1 / tp.UnitSeconds; band > fl {
-					band += fc * math.Log(band/fl)
-				}
-			}
-			part := math.Abs(tp.Divisor) * en * 1e-9 * math.Sqrt(band)
-			tp.NoiseVolts = math.Hypot(tp.NoiseVolts, part)
-		}
+		tp.NoiseVolts = pointNoise(p, &f, t, tp.Divisor, tp.UnitSeconds)
 		if sxx > 0 && tp.Divisor > 0 && tp.DOF > 0 {
 			tp.StdUncUVPerV = 1e6 * tp.NoiseVolts / math.Sqrt(sxx) / math.Abs(tp.Divisor)
 			tp.CoverageK = StudentT975(float64(tp.DOF))
@@ -210,4 +187,34 @@ func StudentT975(nu float64) float64 {
 	g3 := (3*z7 + 19*z5 + 17*z3 - 15*z) / 384
 	g4 := (79*z9 + 776*z7 + 1482*z5 - 1920*z3 - 945*z) / 92160
 	return z + g1/nu + g2/(nu*nu) + g3/(nu*nu*nu) + g4/(nu*nu*nu*nu)
+}
+
+// pointNoise is the predicted standard deviation of one point of t at the
+// meter, for a test lasting testSeconds (the low end of the 1/f band):
+// the meter's noise and floor (PointNoiseVolts) and the part's input noise
+// gained by divisor. The part's white noise is averaged over the point's
+// integration time n·NPLC/f_line, a boxcar with noise bandwidth 1/(2T)
+// (a standard result, e.g. Horowitz & Hill, The Art of Electronics, 3rd
+// ed., §8.1; from memory); its 1/f part adds e_n²·f_c·ln(f_H/f_L) between
+// f_L = 1/testSeconds and f_H = 1/(2T) (Motchenbacher & Connelly,
+// Low-Noise Electronic System Design, Wiley 1993, ch. 1; from memory).
+func pointNoise(p *Plan, f *Figures, t *Test, divisor, testSeconds float64) float64 {
+	v := f.PointNoiseVolts(t.NPLC, t.RangeVolts, t.Readings)
+	en := p.Part.NoiseNVPerRtHz
+	if !(en > 0) || !(divisor > 0) {
+		return v
+	}
+	hz := f.LineHz
+	if !(hz > 0) {
+		hz = LineFrequencyHz
+	}
+	T := float64(max(t.Readings, 1)) * t.NPLC / hz
+	fh := 1 / (2 * T)
+	band := fh
+	if fc := p.Part.FlickerCornerHz; fc > 0 && testSeconds > 0 {
+		if fl := 1 / testSeconds; fh > fl {
+			band += fc * math.Log(fh/fl)
+		}
+	}
+	return math.Hypot(v, math.Abs(divisor)*en*1e-9*math.Sqrt(band))
 }
