@@ -42,11 +42,12 @@ const sizeMaxRepeats = 1000
 
 // Size proposes, for every test, the levels, NPLC, readings and repeats
 // that reach target in the least bench time per unit, by the same
-// prediction check makes (Predict). Levels: the two ends of the test's
-// symmetric safe range (SafeLevels, shrunk by 2 %), or the ends and the
-// centre — a straight-line fit's slope variance is least with the points
-// at the ends of the range (the Cramér–Rao bound, fit.SlopeCRBPoints); the
-// centre adds a check of the straight line. Then every NPLC of the noise table, number of readings
+// prediction check makes (Predict). Levels: four, at the ends of the
+// test's symmetric safe range (SafeLevels, shrunk to 80 %) and at 90 % of
+// them, or three, the ends and the centre — a straight-line fit's slope
+// variance is least with the points at the ends of the range (the
+// Cramér–Rao bound, fit.SlopeCRBPoints), and a plan needs three distinct
+// levels at least (Validate). Then every NPLC of the noise table, number of readings
 // and of repeats is tried and the quickest that reaches the target kept
 // (or, if none does, the one with the least U). Other settings (dwell,
 // settle, order) are the plan's.
@@ -66,15 +67,25 @@ func Size(p *Plan, f Figures, target SizeTarget) (*Plan, []SizedTest) {
 			res = append(res, st)
 			continue
 		}
-		half := math.Min(math.Abs(lo), math.Abs(hi)) * 0.98
+		// 80 % of the safe range: near the edges of the input range an
+		// offset bends by far more than the rejection moves it (within
+		// ~0.5–1 V of the limit; common practice, no published source).
+		half := math.Min(math.Abs(lo), math.Abs(hi)) * 0.8
 		// A symmetric range keeps the nominal state in the middle.
 		st.SafeLoVolts, st.SafeHiVolts = -half, half
 		r3 := func(x float64) float64 { return math.Round(x*1000) / 1000 }
-		designs := [][]float64{{r3(-half), r3(half)}, {r3(-half), 0, r3(half)}}
+		designs := [][]float64{{r3(-half), r3(-0.9 * half), r3(0.9 * half), r3(half)}, {r3(-half), 0, r3(half)}}
 		bestSecs, bestU := math.Inf(1), math.Inf(1)
 		var best SizedTest
 		for _, levels := range designs {
 			for _, nplc := range f.NoiseNPLC {
+				if nplc < 1 {
+					// Below one power-line cycle the integration no
+					// longer rejects mains pickup (normal-mode rejection
+					// needs whole cycles: common practice, no published
+					// source), which the noise figures do not describe.
+					continue
+				}
 				for _, n := range sizeReadings {
 					// One and two repeats predicted in full; more repeats add
 					// the same time each and divide u by √repeats (with the t
