@@ -332,9 +332,10 @@ func addResults(c *report.Campaign, res *analysis.Results, predicted map[string]
 		if r.FlaggedPoints > 0 {
 			flags = append(flags, fmt.Sprintf("%d flagged points", r.FlaggedPoints))
 		}
+		notes := r.Notes
 		if pu := predicted[r.Name]; pu > 0 && rj.ExpandedUUVPerV > excessFactor*pu {
-			flags = append(flags, fmt.Sprintf("U %.1f× the predicted %.3g µV/V: a noisy bench, a loose connection or drift?",
-				rj.ExpandedUUVPerV/pu, pu))
+			notes = append(append([]string(nil), notes...), fmt.Sprintf("U = %.3g µV/V is %.1f × the %.3g µV/V check predicted: a noisy bench, a loose connection or drift?",
+				rj.ExpandedUUVPerV, rj.ExpandedUUVPerV/pu, pu))
 		}
 		if r.AOLCorrected {
 			flags = append(flags, "A_OL corrected")
@@ -349,7 +350,7 @@ func addResults(c *report.Campaign, res *analysis.Results, predicted map[string]
 			RatioDB:                    ratioOrNaN(rj), ExpandedUDB: rj.ExpandedUDB, ExpandedUDBLow: low, ExpandedUDBHigh: high,
 			CoverageK: rj.CoverageK, DOFEffective: float64(rj.EffectiveDOF),
 			Resolved: rj.Resolved, LowerBoundDB: rj.LowerBoundDB,
-			LimitDB: limit, Verdict: verdict, Rule: rule, Flags: flags, Notes: r.Notes,
+			LimitDB: limit, Verdict: verdict, Rule: rule, Flags: flags, Notes: notes,
 			PredictedUUVPerV: nanIfZero(predicted[r.Name]),
 		})
 		for _, b := range rj.Budget.Rows {
