@@ -4,6 +4,7 @@ import (
 	"sort"
 	"testing"
 
+	"nullbench/instrument/sim"
 	"nullbench/procedure/plan"
 )
 
@@ -31,8 +32,19 @@ func TestPredictedUncertaintyMatchesAchieved(t *testing.T) {
 	if len(problems) > 0 {
 		t.Fatal(problems)
 	}
-	f.Roles = plan.DefaultFigures().Roles // timing is not under test here
+	// The virtual clock moves only with the waits: exchanges take no
+	// bench time, as in plan.DefaultFigures.
+	f.Roles = plan.DefaultFigures().Roles
 	pred := plan.Predict(run.plan, f)
+	// The demo lot plan's duration against the bench time the run took
+	// (±15 %, the project's requirement; the clock starts at the bench
+	// epoch when the bench starts).
+	measured := run.clock.Now().Sub(sim.NewManualClock().Now()).Seconds()
+	if r := pred.TotalSeconds / measured; r < 0.85 || r > 1.15 {
+		t.Errorf("demo lot plan: predicted %.0f s, took %.0f s (ratio %.3f)", pred.TotalSeconds, measured, r)
+	} else {
+		t.Logf("demo lot plan: predicted %.0f s, took %.0f s (ratio %.3f)", pred.TotalSeconds, measured, r)
+	}
 	achieved := map[string][]float64{}
 	for _, r := range run.results.Ratios {
 		achieved[r.Name] = append(achieved[r.Name], r.Rejection.ExpandedUUVPerV)
