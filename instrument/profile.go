@@ -56,6 +56,10 @@ type Profile struct {
 	Chamber     *ChamberCommands
 	Thermometer *ThermometerCommands
 
+	// Figures are the optional [figures] table: timing and noise figures
+	// for predictions before a run (check, size). They drive nothing.
+	Figures ProfileFigures
+
 	// File is where the profile came from, for messages: a path, or
 	// "builtin:NAME".
 	File string
@@ -219,6 +223,18 @@ type profileDoc struct {
 	Switch      *switchDoc      `toml:"switch"`
 	Chamber     *chamberDoc     `toml:"chamber"`
 	Thermometer *thermometerDoc `toml:"thermometer"`
+	Figures     *figuresDoc     `toml:"figures"`
+}
+
+type figuresDoc struct {
+	ExchangeSeconds *float64  `toml:"exchange_s"`
+	ReadingOverhead *float64  `toml:"reading_overhead"`
+	TriggerSeconds  *float64  `toml:"trigger_s"`
+	LineHz          *float64  `toml:"line_hz"`
+	NoiseNPLC       []float64 `toml:"noise_nplc"`
+	NoiseRelOfRange []float64 `toml:"noise_rel_of_range"`
+	FloorRelOfRange *float64  `toml:"floor_rel_of_range"`
+	AirTauSeconds   *float64  `toml:"air_tau_s"`
 }
 
 type meterDoc struct {
@@ -377,6 +393,7 @@ func ParseProfile(data []byte, file string) (*Profile, error) {
 			p.Thermometer.AccuracyCelsius = *d.AccuracyCelsius
 		}
 	}
+	p.Figures = pr.figures(doc.Figures)
 	p.validate(pr)
 	if err := pr.err(); err != nil {
 		return nil, err

@@ -43,6 +43,10 @@ type RunOptions struct {
 	// cracked). Each is journalled as a unit-skipped event when the run
 	// reaches it, and stays skipped on resume (see skip.go).
 	Skip map[string]string
+	// Figures are the instruments' timing figures for the remaining-time
+	// estimate (cmd fills them from the profiles); nil takes
+	// plan.DefaultFigures.
+	Figures *plan.Figures
 }
 
 // Timing holds the waits that are the sequencer's, not the plan's. The
@@ -80,11 +84,14 @@ func (t Timing) withDefaults() Timing {
 			*v = d
 		}
 	}
-	def(&t.RampDwell, 50*time.Millisecond)
-	def(&t.RelaySettle, 50*time.Millisecond)
-	def(&t.SettleInterval, time.Second)
-	def(&t.SoakInterval, 10*time.Second)
-	def(&t.ChamberTick, 30*time.Second)
+	// The defaults are the duration model's (plan.DefaultSequencerWaits),
+	// so that check predicts the waits the runner makes.
+	w := plan.DefaultSequencerWaits()
+	def(&t.RampDwell, seconds(w.RampDwellSeconds))
+	def(&t.RelaySettle, seconds(w.RelaySettleSeconds))
+	def(&t.SettleInterval, seconds(w.SettleIntervalSeconds))
+	def(&t.SoakInterval, seconds(w.SoakIntervalSeconds))
+	def(&t.ChamberTick, seconds(w.ChamberTickSeconds))
 	def(&t.SafeStateTimeout, 2*time.Minute)
 	def(&t.SafeCallTimeout, 10*time.Second)
 	return t
@@ -311,6 +318,14 @@ func newRunner(p *plan.Plan, rig *Rig, opt RunOptions) *runner {
 	if r.log == nil {
 		r.log = io.Discard
 	}
+	figs := plan.DefaultFigures()
+	if opt.Figures != nil {
+		figs = *opt.Figures
+	}
+	t := r.timing
+	figs.Waits = plan.SequencerWaits{RampDwellSeconds: t.RampDwell.Seconds(), RelaySettleSeconds: t.RelaySettle.Seconds(),
+		SettleIntervalSeconds: t.SettleInterval.Seconds(), SoakIntervalSeconds: t.SoakInterval.Seconds(), ChamberTickSeconds: t.ChamberTick.Seconds()}
+	r.eta = newETA(figs.Timeline(p))
 	if r.prog == nil {
 		r.prog = NopProgress{}
 	}

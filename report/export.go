@@ -163,6 +163,7 @@ type resultJSON struct {
 	Notes              []string `json:"notes"`
 	CampaignIncomplete bool     `json:"campaign_incomplete"`
 	MissingPoints      int      `json:"missing_points"`
+	PredictedUUVPerV   jnum     `json:"predicted_u_uv_per_v"`
 }
 
 // readingJSON is one line of WriteReadingsJSONL.
@@ -202,6 +203,7 @@ func WriteResultsJSONL(w io.Writer, results []Result) error {
 			LimitDB: jnum(r.LimitDB), Verdict: r.Verdict, Rule: r.Rule, Flags: r.Flags,
 			CoefficientExpandedUUVPerV: jnum(r.CoefficientExpandedUUVPerV), Notes: notesOrEmpty(r.Notes),
 			CampaignIncomplete: r.Incomplete, MissingPoints: r.MissingPoints,
+			PredictedUUVPerV: jnum(r.PredictedUUVPerV),
 		}); err != nil {
 			return fmt.Errorf("report: results JSON line %d (unit %q): %w", i+1, r.Unit, err)
 		}

@@ -170,6 +170,10 @@ type Result struct {
 	// figure contains (e.g. k_c + k_o), terms dropped or added, points
 	// flagged or left out, corrections applied.
 	Notes []string
+	// PredictedUUVPerV is the expanded uncertainty (95 %) of the
+	// coefficient check predicted for the test before the run (µV/V),
+	// beside the achieved CoefficientExpandedUUVPerV; NaN: not available.
+	PredictedUUVPerV float64
 }
 
 // ReportedDB is the value the report states for r: the ratio when it was

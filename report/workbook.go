@@ -600,14 +600,15 @@ var resultHeaders = []string{
 	"Ratio (dB)", "Expanded uncertainty U (dB)", "U below (dB)", "U above (dB)", "Coverage factor k",
 	"Effective degrees of freedom", "Resolved", "Lower bound (dB)", "Reported (dB)", "Statement",
 	"Limit (dB)", "Margin to limit (dB)", "Verdict", "Decision rule", "Flags", "Notes",
+	"Predicted U of coefficient (µV/V)", "Achieved / predicted U",
 }
 
 func writeResults(f *excelize.File, st *styles, c *Campaign) error {
 	// Widths in characters hold the longest value each column shows
 	// ("no: lower bound", "COND. FAIL"); the rule, Flags and Notes wrap.
 	colStyles := []int{st.text, st.text, st.celsius, st.uvpv, st.uvpv, st.uvpv, st.db, st.db, st.db, st.db, st.k,
-		st.dof, st.text, st.db, st.db, st.text, st.db, st.db, st.text, st.wrap, st.wrap, st.wrap}
-	widths := []float64{12, 17, 12, 14, 16, 16, 11, 13, 10, 10, 10, 12, 16, 11, 11, 40, 10, 11, 13, 24, 30, 40}
+		st.dof, st.text, st.db, st.db, st.text, st.db, st.db, st.text, st.wrap, st.wrap, st.wrap, st.uvpv, st.k}
+	widths := []float64{12, 17, 12, 14, 16, 16, 11, 13, 10, 10, 10, 12, 16, 11, 11, 40, 10, 11, 13, 24, 30, 40, 16, 12}
 	spec := tableSpec{sheet: SheetResults, table: "tblResults", freezeCols: 2}
 	spec.key = append(verdictKey(),
 		KeyValue{"no: lower bound", "|coefficient| < k·u: the ratio is not resolved and only its one-sided lower bound is stated"},
@@ -652,6 +653,10 @@ func writeResults(f *excelize.File, st *styles, c *Campaign) error {
 		d[19] = r.Rule
 		d[20] = joinFlags(r.Flags)
 		d[21] = joinNotes(r.Notes)
+		d[22] = num(r.PredictedUUVPerV)
+		if r.PredictedUUVPerV > 0 && !math.IsNaN(r.CoefficientExpandedUUVPerV) {
+			d[23] = num(r.CoefficientExpandedUUVPerV / r.PredictedUUVPerV)
+		}
 	})
 }
 

@@ -2,8 +2,11 @@ package main
 
 import (
 	"context"
+	"encoding/json"
 	"errors"
 	"fmt"
+	"io"
+	"math"
 
 	"github.com/spf13/cobra"
 
@@ -14,6 +17,7 @@ import (
 type checkOptions struct {
 	Plan           string
 	AllowHazardous bool
+	JSON           bool
 }
 
 func newCheckCmd(std streams, run func(context.Context, streams, checkOptions) error) *cobra.Command {
@@ -24,7 +28,13 @@ func newCheckCmd(std streams, run func(context.Context, streams, checkOptions) e
 		Long: `check reads and validates a plan, then prints for every test and level the
 stimulus, the resulting rails, the common-mode voltage and its margin to each
 rail, the highest voltage any terminal sees, and the estimated duration, then
-the power sequence and the safety verdict. It exits non-zero when the plan
+the power sequence and the safety verdict. Per test it predicts, from the
+profiles' [figures] (meter noise at the plan's NPLC, its floor, timing), the
+standard and expanded uncertainty of the coefficient and the largest ratio
+the plan can resolve, and warns when a limit is above it. --json prints
+the duration and these predictions as one JSON object with the fields
+duration_s and tests (test, duration_s, predicted_u_uv_per_v,
+resolvable_db), which scripts may rely on. It exits non-zero when the plan
 is invalid (2) or would be refused as unsafe (4).`,
 		Args: cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
@@ -32,6 +42,7 @@ is invalid (2) or would be refused as unsafe (4).`,
 			return failed(run(cmd.Context(), std, o))
 		},
 	}
+	cmd.Flags().BoolVar(&o.JSON, "json", false, "print the predicted duration and uncertainty per test as one JSON object instead of the step table")
 	cmd.Flags().BoolVar(&o.AllowHazardous, "allow-hazardous", false, "judge the plan as if a hazardous-voltage run had been allowed and confirmed")
 	return cmd
 }
@@ -41,7 +52,18 @@ func runCheck(std streams, o checkOptions) error {
 	if err != nil {
 		return withCode(exitUsage, err)
 	}
-	if err := plan.WriteCheck(std.Out, p); err != nil {
+	figs, problems := planFigures(p)
+	for _, pr := range problems {
+		fmt.Fprintf(std.Err, "check: %s\n", pr)
+	}
+	if o.JSON {
+		if err := plan.Validate(p); err != nil {
+			return withCode(exitUsage, err)
+		}
+		if err := writeCheckJSON(std.Out, p, figs); err != nil {
+			return err
+		}
+	} else if err := plan.WriteCheck(std.Out, p, figs); err != nil {
 		return err
 	}
 	if err := checkBench(p); err != nil {
@@ -102,3 +124,52 @@ func checkBench(p *plan.Plan) error {
 	}
 	return nil
 }
+
+// checkJSON is `check --json`: field names are fixed so that scripts can
+// rely on them.
+type checkJSON struct {
+	Plan        string          `json:"plan"`
+	DurationS   float64         `json:"duration_s"`
+	WallS       float64         `json:"wall_s"`
+	Tests       []checkTestJSON `json:"tests"`
+	Warnings    []string        `json:"warnings"`
+	SafetyError string          `json:"safety_error,omitempty"`
+}
+
+type checkTestJSON struct {
+	Test string `json:"test"`
+	// DurationS is the test's share of the campaign (every unit and
+	// temperature).
+	DurationS float64 `json:"duration_s"`
+	// PredictedUUVPerV is the expanded uncertainty (95 %) of the
+	// coefficient near zero, µV/V.
+	PredictedUUVPerV    float64  `json:"predicted_u_uv_per_v"`
+	PredictedStdUUVPerV float64  `json:"predicted_std_u_uv_per_v"`
+	ResolvableDB        float64  `json:"resolvable_db"`
+	LimitDB             *float64 `json:"limit_db,omitempty"`
+}
+
+func writeCheckJSON(w io.Writer, p *plan.Plan, f plan.Figures) error {
+	pr := plan.Predict(p, f)
+	out := checkJSON{Plan: p.Source, DurationS: round3(pr.TotalSeconds), WallS: round3(pr.WallSeconds), Warnings: pr.Warnings()}
+	if out.Warnings == nil {
+		out.Warnings = []string{}
+	}
+	for _, t := range pr.Tests {
+		tj := checkTestJSON{Test: t.Kind, DurationS: round3(t.Seconds), PredictedUUVPerV: t.ExpandedUUVPerV,
+			PredictedStdUUVPerV: t.StdUncUVPerV, ResolvableDB: round3(t.ResolvableDB)}
+		if t.HasLimit {
+			l := t.LimitDB
+			tj.LimitDB = &l
+		}
+		out.Tests = append(out.Tests, tj)
+	}
+	if err := plan.CheckSafety(p); err != nil {
+		out.SafetyError = err.Error()
+	}
+	enc := json.NewEncoder(w)
+	enc.SetIndent("", "  ")
+	return enc.Encode(out)
+}
+
+func round3(x float64) float64 { return math.Round(x*1000) / 1000 }

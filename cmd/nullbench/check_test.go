@@ -1,12 +1,16 @@
 package main
 
 import (
+	"bytes"
+	"encoding/json"
 	"flag"
 	"os"
 	"path/filepath"
 	"strconv"
 	"strings"
 	"testing"
+
+	"nullbench/procedure/plan"
 )
 
 var cliUpdate = flag.Bool("update", false, "rewrite the golden files under testdata/ from the present output")
@@ -182,5 +186,51 @@ func TestCheckInvalidPlan(t *testing.T) {
 				t.Errorf("an invalid plan was laid out:\n%s", r.out)
 			}
 		})
+	}
+}
+
+// TestCheckJSONFields: `check --json` keeps its fixed field names (the
+// contract scripts rely on) and warns when a limit is above what the plan
+// resolves: the lot plan resolves about 177 dB on cmrr with the built-in
+// meter figures, so a 200 dB limit must warn and its 100 dB must not.
+func TestCheckJSONFields(t *testing.T) {
+	p, err := plan.Load("../../testdata/plans/lot.toml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	var buf bytes.Buffer
+	if err := writeCheckJSON(&buf, p, plan.DefaultFigures()); err != nil {
+		t.Fatal(err)
+	}
+	var got map[string]any
+	if err := json.Unmarshal(buf.Bytes(), &got); err != nil {
+		t.Fatal(err)
+	}
+	if d, ok := got["duration_s"].(float64); !ok || d <= 0 {
+		t.Errorf("duration_s = %v", got["duration_s"])
+	}
+	tests, _ := got["tests"].([]any)
+	if len(tests) != len(p.Tests) {
+		t.Fatalf("%d tests, want %d", len(tests), len(p.Tests))
+	}
+	for _, x := range tests {
+		m := x.(map[string]any)
+		for _, k := range []string{"test", "duration_s", "predicted_u_uv_per_v", "resolvable_db"} {
+			if _, ok := m[k]; !ok {
+				t.Errorf("test entry %v lacks %q", m, k)
+			}
+		}
+	}
+	if w, _ := got["warnings"].([]any); len(w) != 0 {
+		t.Errorf("the lot plan resolves its limits, warnings %v", w)
+	}
+
+	p.Limits[plan.TestCMRR] = 200
+	buf.Reset()
+	if err := writeCheckJSON(&buf, p, plan.DefaultFigures()); err != nil {
+		t.Fatal(err)
+	}
+	if !strings.Contains(buf.String(), "the limit 200 dB is above") {
+		t.Errorf("no warning for a 200 dB limit:\n%s", buf.String())
 	}
 }

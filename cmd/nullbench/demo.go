@@ -153,7 +153,9 @@ func writeDemoPlans(dir string, bench *sim.Bench, dut *sim.DUTFile, timeScale fl
 		iqMin, iqMax := part.QuiescentAmps/4, math.Min(5*part.QuiescentAmps, 0.015)
 		fmt.Fprintf(&b, "\n[part]\nnumber = %q\nnominal_pos_volts = %s\nnominal_neg_volts = %s\nmax_supply_span_volts = %s\n"+
 			"cm_headroom_pos_volts = %s\ncm_headroom_neg_volts = %s\ncm_margin_volts = 0.5\ncurrent_limit_amps = 0.02\ninput_beyond_rail_volts = %s\n"+
-			"supply_amps_min = %s\nsupply_amps_max = %s\n",
+			"supply_amps_min = %s\nsupply_amps_max = %s\n"+
+			"noise_nv_per_rthz = 10.0   # input noise density of the (invented) part's data sheet, for check's prediction\n"+
+			"flicker_corner_hz = 3.0    # its 1/f corner (same data sheet)\n",
 			part.Number, num(part.NominalPosVolts), num(part.NominalNegVolts), num(part.MaxSupplySpanVolts),
 			num(part.CMHeadroomPosVolts), num(part.CMHeadroomNegVolts), num(part.InputBeyondRailVolts),
 			num(iqMin), num(iqMax))

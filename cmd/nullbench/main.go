@@ -121,6 +121,7 @@ type verbs struct {
 	report func(context.Context, streams, reportOptions) error
 	fit    func(context.Context, streams, fitOptions) error
 	off    func(context.Context, streams, offOptions) error
+	size   func(context.Context, streams, sizeOptions) error
 }
 
 func defaultVerbs() verbs {
@@ -134,6 +135,7 @@ func defaultVerbs() verbs {
 		report: func(_ context.Context, std streams, o reportOptions) error { return runReport(std, o) },
 		fit:    func(_ context.Context, std streams, o fitOptions) error { return runFit(std, o) },
 		off:    runOff,
+		size:   func(_ context.Context, std streams, o sizeOptions) error { return runSize(std, o) },
 	}
 }
 
@@ -167,6 +169,7 @@ Start with "nullbench demo": it runs a whole campaign on a simulated bench.`,
 		newReportCmd(std, v.report),
 		newFitCmd(std, v.fit),
 		newOffCmd(std, v.off),
+		newSizeCmd(std, v.size),
 	)
 	return root
 }

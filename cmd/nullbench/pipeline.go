@@ -261,8 +261,9 @@ func measure(ctx context.Context, std streams, o measureOptions) (campaignRecord
 	if op == nil && std.IsTerm {
 		op = &procedure.LineOperator{In: in, Out: std.Err}
 	}
+	figs, _ := planFigures(p) // problems were reported by open already
 	out, runErr := procedure.Run(ctx, p, rig, procedure.RunOptions{
-		Journal: jw, Resume: resume, Clock: clock, Operator: op,
+		Journal: jw, Resume: resume, Clock: clock, Operator: op, Figures: &figs,
 		Progress: newProgress(std.Err, std.IsTerm), Log: o.Log, Consent: hc, Skip: o.Skip,
 	})
 	rec.Finished = time.Now().UTC()

@@ -15,12 +15,6 @@ import (
 // the integration is shorter, so the estimate errs long.
 const LineFrequencyHz = 50.0
 
-// MeterOverhead multiplies a reading's integration time to allow for
-// auto-zero, conversion and transfer (common practice, no published
-// source: auto-zero alone roughly doubles a reading at high NPLC, while a
-// fixed range and trigger count trim the rest).
-const MeterOverhead = 1.5
-
 // Step is one point of one pass of a test, as StepTable lays it out.
 type Step struct {
 	Test       int     // index into Plan.Tests
@@ -40,7 +34,6 @@ type Step struct {
 	ToPosVolts       float64
 	ToNegVolts       float64
 	MaxToGroundVolts float64 // the highest |voltage| any pin or source sees
-	Seconds          float64 // estimated bench seconds for this point
 }
 
 // Key is the work key of this step for one temperature, unit and repeat.
@@ -52,7 +45,6 @@ func (s Step) Key(tempIndex int, unit string, repeat int) WorkKey {
 // the order it is visited.
 func TestSteps(p *Plan, i int) []Step {
 	t := &p.Tests[i]
-	pt := PointSeconds(t)
 	var out []Step
 	for _, sw := range Sweeps(t) {
 		for j, l := range sw.Levels {
@@ -66,7 +58,6 @@ func TestSteps(p *Plan, i int) []Step {
 				ToPosVolts:       s.PosVolts - pins.InHighVolts,
 				ToNegVolts:       pins.InLowVolts - s.NegVolts,
 				MaxToGroundVolts: pins.MaxToGroundVolts(s),
-				Seconds:          pt,
 			})
 		}
 	}
@@ -80,79 +71,6 @@ func StepTable(p *Plan) []Step {
 		out = append(out, TestSteps(p, i)...)
 	}
 	return out
-}
-
-// PointSeconds estimates one point of t in bench seconds:
-//
-//	dwell + readings·(NPLC/f_line)·overhead + 2·(NPLC/f_line)·overhead
-//
-// the last term being the settling check's two successive readings when
-// the output has already settled (the settle time-out bounds it).
-func PointSeconds(t *Test) float64 {
-	reading := t.NPLC / LineFrequencyHz * MeterOverhead
-	return t.DwellSeconds + float64(t.Readings)*reading + 2*reading
-}
-
-// TestEstimate is the estimated duration of one test for one unit at one
-// temperature.
-type TestEstimate struct {
-	Test        int
-	Kind        string
-	Points      int     // points per pass
-	PassSeconds float64 // one pass
-	Seconds     float64 // all repeats
-}
-
-// Estimate is the estimated duration of a campaign, in bench seconds.
-type Estimate struct {
-	Tests        []TestEstimate
-	UnitSeconds  float64 // every test of one unit at one temperature
-	Units        int
-	Temperatures int
-	// MeasureSeconds = UnitSeconds × Units × Temperatures.
-	MeasureSeconds float64
-	// SoakSeconds is the chamber ramps (|ΔT| / ramp_max_c_per_min, from
-	// the ambient temperature) and soaks (soak_s per point).
-	SoakSeconds  float64
-	TotalSeconds float64
-	// WallSeconds = TotalSeconds / time_scale (the waits run that much
-	// faster on a simulated bench).
-	WallSeconds float64
-}
-
-// EstimateDuration adds up the points of every test, unit and temperature
-// and the soaks. Hand swaps and prompts are not counted.
-func EstimateDuration(p *Plan) Estimate {
-	e := Estimate{Units: len(p.Units), Temperatures: len(p.TemperaturePoints())}
-	for i := range p.Tests {
-		t := &p.Tests[i]
-		te := TestEstimate{Test: i, Kind: t.Kind}
-		for _, s := range TestSteps(p, i) {
-			te.Points++
-			te.PassSeconds += s.Seconds
-		}
-		te.Seconds = te.PassSeconds * float64(t.Repeats)
-		e.UnitSeconds += te.Seconds
-		e.Tests = append(e.Tests, te)
-	}
-	e.MeasureSeconds = e.UnitSeconds * float64(e.Units) * float64(e.Temperatures)
-	tp := &p.Temperature
-	if tp.Mode != TempNone && len(tp.PointsCelsius) > 0 {
-		prev := tp.AmbientCelsius
-		for _, c := range tp.PointsCelsius {
-			if tp.Mode == TempChamber && tp.RampMaxCPerMinute > 0 {
-				e.SoakSeconds += math.Abs(c-prev) / tp.RampMaxCPerMinute * 60
-			}
-			e.SoakSeconds += tp.SoakSeconds
-			prev = c
-		}
-	}
-	e.TotalSeconds = e.MeasureSeconds + e.SoakSeconds
-	e.WallSeconds = e.TotalSeconds
-	if p.Bench.TimeScale > 0 {
-		e.WallSeconds = e.TotalSeconds / p.Bench.TimeScale
-	}
-	return e
 }
 
 // FormatSeconds writes a duration in seconds as "1h02m03s", "2m05s" or
@@ -200,8 +118,10 @@ func describeTest(p *Plan, t *Test) string {
 // sequence, the hazard assessment and the safety verdict (CheckSafety's
 // refusals, if any). An invalid plan gets its validation errors instead.
 // It returns only write errors: the caller asks CheckSafety for the
-// verdict that sets the exit status.
-func WriteCheck(w io.Writer, p *Plan) error {
+// verdict that sets the exit status. f holds the instruments' timing and
+// noise figures (from the profiles) for the duration and uncertainty
+// predictions (Predict).
+func WriteCheck(w io.Writer, p *Plan, f Figures) error {
 	ew := &checkWriter{w: w}
 	pf := ew.printf
 	if err := Validate(p); err != nil {
@@ -244,6 +164,15 @@ func WriteCheck(w io.Writer, p *Plan) error {
 	pf("decision  %s\n", p.Decision.Rule)
 	pf("limits    %s\n", describeLimits(p))
 
+	pred := Predict(p, f)
+	firstPass := map[WorkKey]float64{}
+	if len(p.Units) > 0 {
+		for _, tp := range pred.Timeline.Points {
+			if tp.Key.TempIndex == 0 && tp.Key.Unit == p.Units[0].ID && tp.Key.Repeat == 0 {
+				firstPass[tp.Key] = tp.Seconds
+			}
+		}
+	}
 	for i := range p.Tests {
 		t := &p.Tests[i]
 		pf("\n%s %s: %s\n", testKey(i), t.Kind, describeTest(p, t))
@@ -269,27 +198,40 @@ func WriteCheck(w io.Writer, p *Plan) error {
 			if part == "" {
 				part = "-"
 			}
+			sec := firstPass[s.Key(0, firstUnit(p), 0)]
 			fmt.Fprintf(tw, "  %d\t%s\t%+.3f\t%+.3f\t%+.3f\t%+.3f\t%.3f\t%.3f\t%.3f\t%.2f\t\n",
 				s.Index, part, noNegZero(s.LevelVolts), noNegZero(s.State.PosVolts), noNegZero(s.State.NegVolts), noNegZero(s.CMVolts),
-				noNegZero(s.ToPosVolts), noNegZero(s.ToNegVolts), noNegZero(s.MaxToGroundVolts), s.Seconds)
-			pass += s.Seconds
+				noNegZero(s.ToPosVolts), noNegZero(s.ToNegVolts), noNegZero(s.MaxToGroundVolts), sec)
+			pass += sec
 		}
 		if err := tw.Flush(); err != nil {
 			return err
 		}
-		pf("  one pass %s × %d repeat(s) = %s per unit and temperature\n", FormatSeconds(pass), t.Repeats, FormatSeconds(pass*float64(t.Repeats)))
+		tp := pred.Tests[i]
+		pf("  one pass %s; all repeats %s per unit and temperature; %s in the campaign\n",
+			FormatSeconds(pass), FormatSeconds(tp.UnitSeconds), FormatSeconds(tp.Seconds))
+		writeTestPrediction(pf, p, tp)
 	}
 
-	e := EstimateDuration(p)
+	tl := pred.Timeline
 	pf("\nduration (bench time)\n")
-	pf("  per unit and temperature %s; × %d unit(s) × %d temperature(s) = %s\n",
-		FormatSeconds(e.UnitSeconds), e.Units, e.Temperatures, FormatSeconds(e.MeasureSeconds))
-	pf("  chamber ramps and soaks %s\n", FormatSeconds(e.SoakSeconds))
-	pf("  total %s", FormatSeconds(e.TotalSeconds))
-	if p.Bench.TimeScale != 1 {
-		pf("; at time_scale %g about %s of wall time", p.Bench.TimeScale, FormatSeconds(e.WallSeconds))
+	for _, tp := range pred.Tests {
+		pf("  %s %-14s %s\n", testKey(tp.Test), tp.Kind, FormatSeconds(tp.Seconds))
 	}
-	pf("\n  (per point: dwell + (readings + 2)·NPLC/%g Hz·%g; unit swaps by hand not counted)\n", LineFrequencyHz, MeterOverhead)
+	pf("  bench off %s; units connected %s; power up/down %s; chamber ramps and soaks %s; finish %s\n",
+		FormatSeconds(tl.BenchOffSeconds), FormatSeconds(tl.ConnectSeconds), FormatSeconds(tl.PowerSeconds),
+		FormatSeconds(tl.ChamberSeconds), FormatSeconds(tl.FinishSeconds))
+	pf("  total %s", FormatSeconds(pred.TotalSeconds))
+	if p.Bench.TimeScale != 1 {
+		pf("; at time_scale %g about %s of wall time", p.Bench.TimeScale, FormatSeconds(pred.WallSeconds))
+	}
+	pf("\n  (every ramp step, dwell, settling reading, read-back, power-up and down, relay, chamber ramp and soak, from the profiles' [figures]; unit swaps by hand not counted)\n")
+	if warns := pred.Warnings(); len(warns) > 0 {
+		pf("\nwarnings\n")
+		for _, w := range warns {
+			pf("  %s\n", w)
+		}
+	}
 
 	up := PowerUpOrder(p)
 	pf("\npower-up   %d actions: sources off at 0 V; current limits %g A; supplies on at 0 V; rails ramped to %s / %s in steps ≤ %g V; then sources on\n",
@@ -317,6 +259,32 @@ func WriteCheck(w io.Writer, p *Plan) error {
 		pf("safety    not checked: %v\n", err)
 	}
 	return ew.err
+}
+
+func firstUnit(p *Plan) string {
+	if len(p.Units) == 0 {
+		return ""
+	}
+	return p.Units[0].ID
+}
+
+// writeTestPrediction prints a test's predicted uncertainty and the
+// largest ratio it resolves, beside its limit.
+func writeTestPrediction(pf func(string, ...any), p *Plan, tp TestPrediction) {
+	if tp.ExpandedUUVPerV <= 0 {
+		pf("  predicted uncertainty: not available (too few points for the fit, or no gain to refer the meter to the input)\n")
+		return
+	}
+	pf("  predicted u = %.3g µV/V, U = %.3g µV/V (k = %.2f, ν = %d; meter noise %.3g µV per point, divisor %g)\n",
+		tp.StdUncUVPerV, tp.ExpandedUUVPerV, tp.CoverageK, tp.DOF, 1e6*tp.NoiseVolts, tp.Divisor)
+	lim := "no limit"
+	if tp.HasLimit {
+		lim = fmt.Sprintf("limit %g dB", tp.LimitDB)
+		if tp.LimitDB > tp.ResolvableDB {
+			lim += ": ABOVE what the plan resolves"
+		}
+	}
+	pf("  %s: resolves up to %.1f dB; %s\n", tp.Kind, tp.ResolvableDB, lim)
 }
 
 // noNegZero turns a negative zero into zero, so that tables never print "-0.000".

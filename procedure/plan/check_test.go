@@ -20,7 +20,7 @@ func TestWriteCheckGolden(t *testing.T) {
 		t.Run(name, func(t *testing.T) {
 			p := loadExamplePlan(t, name)
 			var buf bytes.Buffer
-			if err := WriteCheck(&buf, p); err != nil {
+			if err := WriteCheck(&buf, p, DefaultFigures()); err != nil {
 				t.Fatal(err)
 			}
 			golden := filepath.Join("testdata", "check_"+name+".golden")
@@ -44,52 +44,48 @@ func TestWriteCheckGolden(t *testing.T) {
 	}
 }
 
-// TestEstimateDurationLot works the lot plan's estimate out by hand:
-// one point = dwell 2 s + (5 readings + 2 settle readings) × 1 NPLC / 50 Hz
-// × 1.5 = 2 + 7 × 0.03 = 2.21 s for cmrr and aol, and 16 + 0.21 = 16.21 s
-// for the three supply tests (dwell 16 s); a zigzag pass of 5 levels is
-// 10 points, so a unit takes 2 × 22.1 + 3 × 162.1 = 530.5 s at a
-// temperature; × 10 units × 3 temperatures = 15915 s. Chamber: 25 °C from
-// ambient 25 °C (0 s) + 300 s soak; to -40 °C: 65 °C at 5 °C/min = 780 s +
-// 300 s; to 85 °C: 125 °C = 1500 s + 300 s; 3180 s in all. Total 19095 s of
-// bench time, 95.475 s of wall time at time_scale 200.
-func TestEstimateDurationLot(t *testing.T) {
-	e := EstimateDuration(loadExamplePlan(t, "lot"))
-	near := func(name string, got, want float64) {
-		t.Helper()
-		if math.Abs(got-want) > 1e-9*math.Max(1, want) {
-			t.Errorf("%s = %.6f, want %.6f", name, got, want)
-		}
-	}
-	near("point", e.Tests[0].PassSeconds/float64(e.Tests[0].Points), 2.21)
-	if e.Tests[0].Points != 10 {
-		t.Errorf("points per pass %d, want 10", e.Tests[0].Points)
-	}
-	near("unit", e.UnitSeconds, 530.5)
-	near("measure", e.MeasureSeconds, 15915)
-	near("soak", e.SoakSeconds, 3180)
-	near("total", e.TotalSeconds, 19095)
-	near("wall", e.WallSeconds, 95.475)
-	if e.Units != 10 || e.Temperatures != 3 {
-		t.Errorf("units %d temperatures %d", e.Units, e.Temperatures)
-	}
-}
-
-// TestEstimateDurationBoard: the board_cmrr test has two sweeps (cm and
-// diff) of 5 levels, 20 points per pass; with dwell 1 s and 1 NPLC a point
-// is 1 + 7 × 0.03 = 1.21 s; repeats multiply.
-func TestEstimateDurationBoard(t *testing.T) {
+// TestTimelineBoardByHand works one point of the board plan out by hand
+// with the built-in figures on a virtual clock (exchanges free): the
+// first point of board_cmrr is the centre level, reached without a ramp;
+// dwell 1 s, then the settling check's two triggers of 5 readings at
+// 1 NPLC (5 × 20 ms = 0.1 s each) started 1 s apart, then the measuring
+// trigger: 1 + 1 + 0.1 + 0.1 = 2.2 s. Every later point adds its ramp
+// steps, at least the 50 ms ramp dwell each.
+func TestTimelineBoardByHand(t *testing.T) {
 	p := loadExamplePlan(t, "board")
 	p.Tests[0].Repeats = 3
-	e := EstimateDuration(p)
-	if e.Tests[0].Points != 20 {
-		t.Fatalf("points %d, want 20", e.Tests[0].Points)
+	f := DefaultFigures()
+	tl := f.Timeline(p)
+	var first []TimedPoint
+	for _, tp := range tl.Points {
+		if tp.Test == 0 && tp.Key.Unit == p.Units[0].ID {
+			first = append(first, tp)
+		}
 	}
-	if math.Abs(e.Tests[0].Seconds-3*20*1.21) > 1e-9 {
-		t.Errorf("board_cmrr %g s, want %g", e.Tests[0].Seconds, 3*20*1.21)
+	if len(first) != 3*20 {
+		t.Fatalf("%d board_cmrr points for one unit, want 60", len(first))
 	}
-	if e.SoakSeconds != 0 || e.Temperatures != 1 {
-		t.Errorf("no temperature plan: soak %g, temperatures %d", e.SoakSeconds, e.Temperatures)
+	if math.Abs(first[0].Seconds-2.2) > 1e-9 {
+		t.Errorf("first point %g s, want 2.2", first[0].Seconds)
+	}
+	ramped := 0
+	for _, tp := range first[1:] {
+		switch {
+		case tp.Seconds < 2.2-1e-9:
+			t.Errorf("point %+v: %g s, want at least 2.2 s", tp.Key, tp.Seconds)
+		case tp.Seconds >= 2.2+0.05-1e-9:
+			ramped++
+		}
+	}
+	if ramped < 40 {
+		t.Errorf("%d points with a ramp step, want most of the 59 after the first (a zigzag returns to the centre)", ramped)
+	}
+	if tl.ChamberSeconds != 0 {
+		t.Errorf("no temperature plan, chamber %g s", tl.ChamberSeconds)
+	}
+	last := tl.Points[len(tl.Points)-1]
+	if !(tl.TotalSeconds > last.EndsAt) {
+		t.Errorf("total %g s does not include the power-down after the last point (ends %g s)", tl.TotalSeconds, last.EndsAt)
 	}
 }
 
@@ -140,7 +136,7 @@ func (w *failingWriter) Write(b []byte) (int, error) {
 func TestWriteCheckReportsWriteErrors(t *testing.T) {
 	p := loadExamplePlan(t, "lot")
 	for _, n := range []int{0, 3, 20} {
-		if err := WriteCheck(&failingWriter{n: n}, p); err == nil {
+		if err := WriteCheck(&failingWriter{n: n}, p, DefaultFigures()); err == nil {
 			t.Errorf("write error after %d writes not reported", n)
 		}
 	}
@@ -150,7 +146,7 @@ func TestWriteCheckInvalidPlan(t *testing.T) {
 	p := loadExamplePlan(t, "lot")
 	p.Tests[0].Order = "spiral"
 	var buf bytes.Buffer
-	if err := WriteCheck(&buf, p); err != nil {
+	if err := WriteCheck(&buf, p, DefaultFigures()); err != nil {
 		t.Fatal(err)
 	}
 	if !bytes.Contains(buf.Bytes(), []byte(`unknown order "spiral"`)) {

@@ -154,6 +154,13 @@ type Part struct {
 	// common-mode result (which measures k_c + k_o) and in the noise-gain
 	// stage's 1/(1 − K·k_o) scale.
 	AOLMinDB float64 `toml:"aol_min_db"`
+	// NoiseNVPerRtHz is the part's input voltage noise density (white,
+	// nV/√Hz, from its data sheet). Only check's uncertainty prediction
+	// uses it; 0 counts the meter's noise alone.
+	NoiseNVPerRtHz float64 `toml:"noise_nv_per_rthz"`
+	// FlickerCornerHz is the corner below which that noise rises as 1/f
+	// (data sheet); 0: white only.
+	FlickerCornerHz float64 `toml:"flicker_corner_hz"`
 }
 
 // Limits are the minimum acceptable ratios in dB, by test kind (cmrr,

@@ -1,0 +1,338 @@
+package plan
+
+import (
+	"math"
+)
+
+// SequencerWaits are the runner's own waits (procedure.Timing): the
+// duration model counts them exactly as the runner makes them. Seconds of
+// bench time.
+type SequencerWaits struct {
+	// RampDwellSeconds: least time from one ramp step of a supply or
+	// source to the next action (steps ≤ 1 V with settling: common
+	// practice, no published source).
+	RampDwellSeconds float64
+	// RelaySettleSeconds: waited after closing a unit's switch channel
+	// (relay operate and bounce, common practice).
+	RelaySettleSeconds float64
+	// SettleIntervalSeconds separates the starts of the settling check's
+	// successive readings.
+	SettleIntervalSeconds float64
+	// SoakIntervalSeconds separates the temperature readings while
+	// soaking (at most a fifth of soak_s, not under 1 s).
+	SoakIntervalSeconds float64
+	// ChamberTickSeconds is the period of a chamber ramp's set-point steps.
+	ChamberTickSeconds float64
+}
+
+// DefaultSequencerWaits are the runner's defaults (procedure.Timing).
+func DefaultSequencerWaits() SequencerWaits {
+	return SequencerWaits{RampDwellSeconds: 0.05, RelaySettleSeconds: 0.05, SettleIntervalSeconds: 1,
+		SoakIntervalSeconds: 10, ChamberTickSeconds: 30}
+}
+
+// RoleFigures is what one role's instrument costs in bench time.
+type RoleFigures struct {
+	// SetSeconds is one set command's exchanges (the command, a channel
+	// select, the error-queue check), QuerySeconds one query's; both in
+	// bench seconds (wall time × time_scale on a simulated bench).
+	SetSeconds, QuerySeconds float64
+	// SettleSeconds is the driver's wait after every set command (the
+	// profile's settle).
+	SettleSeconds float64
+}
+
+// Figures are the instruments' timing and noise figures the predictions
+// need. cmd fills them from the profiles the plan names
+// (instrument.ProfileFigures); the plan package reads no file.
+type Figures struct {
+	// Roles by role name (RoleMeter, RoleSupplyPos, ...). A missing role
+	// costs nothing.
+	Roles map[string]RoleFigures
+	// Meter: a reading lasts NPLC/LineHz × ReadingOverhead; each trigger
+	// costs TriggerSeconds more.
+	LineHz, ReadingOverhead, TriggerSeconds float64
+	// Meter noise: rms of one reading relative to the range at each of
+	// NoiseNPLC (ascending), and the low-frequency floor relative to the
+	// range, which averaging does not reduce.
+	NoiseNPLC, NoiseRelOfRange []float64
+	FloorRelOfRange            float64
+	// Meter accuracy, ± (GainPPM × reading + OffsetPPMOfRange × range).
+	MeterGainPPM, MeterOffsetPPMOfRange float64
+	// ChamberAirTauSeconds: the chamber air follows the set point with
+	// this first-order time constant (0: at once).
+	ChamberAirTauSeconds float64
+	Waits                SequencerWaits
+}
+
+// DefaultFigures are the built-in profiles' figures with exchanges taking
+// no time: what a virtual clock sees (the simulated bench run in tests).
+func DefaultFigures() Figures {
+	r := map[string]RoleFigures{
+		RoleMeter: {}, RoleSupplyPos: {SettleSeconds: 0.1}, RoleSupplyNeg: {SettleSeconds: 0.1},
+		RoleSourceCM: {SettleSeconds: 0.05}, RoleSourceDiff: {SettleSeconds: 0.05}, RoleSourceRef: {SettleSeconds: 0.05},
+		RoleSwitch: {SettleSeconds: 0.02}, RoleChamber: {}, RoleThermometer: {},
+	}
+	return Figures{Roles: r, LineHz: 50, ReadingOverhead: 1,
+		NoiseNPLC: []float64{0.02, 0.2, 1, 10, 100}, NoiseRelOfRange: []float64{1e-4, 1e-5, 3e-6, 1e-6, 3e-7},
+		FloorRelOfRange: 1.5e-7, MeterGainPPM: 15, MeterOffsetPPMOfRange: 4,
+		ChamberAirTauSeconds: 240, Waits: DefaultSequencerWaits()}
+}
+
+// readingSeconds is one meter reading at nplc.
+func (f *Figures) readingSeconds(nplc float64) float64 {
+	hz := f.LineHz
+	if !(hz > 0) {
+		hz = LineFrequencyHz
+	}
+	ovh := f.ReadingOverhead
+	if !(ovh > 0) {
+		ovh = 1
+	}
+	return nplc / hz * ovh
+}
+
+// Timeline is the duration model's account of a campaign in run order.
+type Timeline struct {
+	// Points lists every point of the campaign in the order the runner
+	// measures it, with its predicted bench seconds (the ramp to its
+	// level, dwell, settling, read-back, readings, temperature reading) and
+	// the predicted bench time at which it ends.
+	Points []TimedPoint
+	// TestSeconds[i] is test i's measuring time for one unit at one
+	// temperature (its points, all repeats); TestCampaignSeconds[i] the
+	// same over every unit and temperature, with the meter's configuration
+	// and the return to the nominal rails.
+	TestSeconds, TestCampaignSeconds []float64
+	// Overheads: bench switched off at the start, unit connections,
+	// power-ups and downs, chamber ramps and soaks, the finish.
+	BenchOffSeconds, ConnectSeconds, PowerSeconds, ChamberSeconds, FinishSeconds float64
+	TotalSeconds                                                                 float64
+}
+
+// TimedPoint is one point of the Timeline.
+type TimedPoint struct {
+	Key     WorkKey
+	Test    int
+	Seconds float64
+	EndsAt  float64
+}
+
+// Timeline walks the plan exactly as the runner does (bench off; per
+// temperature the chamber ramp in ticks and the soak; per unit the relay,
+// the power-up sequence and current check; per test the meter's
+// configuration, every point and the return to nominal; the power-down;
+// the chamber back to ambient) and adds up every wait and exchange:
+//
+//	set command      = exchanges + driver settle; a voltage step at least the ramp dwell
+//	meter trigger    = query + trigger + n·(NPLC/f_line)·overhead
+//	point            = ramp + dwell + settling (two triggers, SettleInterval apart) + read-back + trigger + thermometer
+//	chamber ramp     = ⌈|ΔT| / (rate·tick)⌉ ticks of ChamberTick
+//	soak             = the air's first-order approach (air_tau_s) until within tolerance, + soak_s, polled
+//
+// The settling check is taken to pass at its first comparison, and hand
+// swaps and operator prompts take no time.
+func (f *Figures) Timeline(p *Plan) Timeline {
+	w := f.Waits
+	if w == (SequencerWaits{}) {
+		w = DefaultSequencerWaits()
+	}
+	tl := Timeline{TestSeconds: make([]float64, len(p.Tests)), TestCampaignSeconds: make([]float64, len(p.Tests))}
+	role := func(r string) RoleFigures { return f.Roles[r] }
+	now := 0.0
+	setCost := func(r string) float64 { rf := role(r); return rf.SetSeconds + rf.SettleSeconds }
+	actCost := func(a PowerAction) float64 {
+		c := setCost(a.Role)
+		if a.Op == PowerSetVolts {
+			c = math.Max(c, w.RampDwellSeconds)
+		}
+		return c
+	}
+	actsCost := func(acts []PowerAction) float64 {
+		s := 0.0
+		for _, a := range acts {
+			s += actCost(a)
+		}
+		return s
+	}
+	query := func(r string) float64 { return role(r).QuerySeconds }
+
+	// Bench off: every source and supply read back and switched off (and
+	// the supplies programmed to 0 V), from outputs assumed at 0 V.
+	srcs := SourceRoles(p)
+	for _, r := range srcs {
+		tl.BenchOffSeconds += query(r) + setCost(r)
+	}
+	for _, r := range []string{RoleSupplyPos, RoleSupplyNeg} {
+		tl.BenchOffSeconds += query(r) + setCost(r) + math.Max(setCost(r), w.RampDwellSeconds)
+	}
+	now += tl.BenchOffSeconds
+
+	tp := &p.Temperature
+	air := tp.AmbientCelsius
+	temps := p.TemperaturePoints()
+	nominal := NominalState(p)
+	for ti := range temps {
+		point := temps[ti]
+		if tp.Mode == TempChamber {
+			start := now
+			now += rampChamberAt(f, p, w, &air, point)
+			now += soakTime(f, p, w, &air, point)
+			tl.ChamberSeconds += now - start
+		}
+		for _, u := range p.Units {
+			if u.Channel != "" {
+				c := 2*setCost(RoleSwitch) + w.RelaySettleSeconds
+				tl.ConnectSeconds += c
+				now += c
+			}
+			pw := actsCost(PowerUpOrder(p))
+			if p.Part.SupplyAmpsMin > 0 || p.Part.SupplyAmpsMax > 0 {
+				pw += query(RoleSupplyPos) + query(RoleSupplyNeg)
+			}
+			tl.PowerSeconds += pw
+			now += pw
+			state := nominal
+			for i := range p.Tests {
+				t := &p.Tests[i]
+				testStart := now
+				now += 2 * setCost(RoleMeter) // configure, NPLC
+				countSent := false
+				trigger := func() float64 {
+					c := query(RoleMeter) + f.TriggerSeconds + float64(max(t.Readings, 1))*f.readingSeconds(t.NPLC)
+					if !countSent {
+						c += role(RoleMeter).SetSeconds
+						countSent = true
+					}
+					return c
+				}
+				steps := TestSteps(p, i)
+				for rep := 0; rep < t.Repeats; rep++ {
+					for _, st := range steps {
+						ps := 0.0
+						if acts, err := Transition(p, state, st.State); err == nil {
+							ps += actsCost(acts)
+						}
+						state = st.State
+						ps += t.DwellSeconds
+						first := trigger()
+						ps += math.Max(first, w.SettleIntervalSeconds) + trigger()
+						for _, r := range stimulusRoleNames(p, t, st.Part) {
+							ps += query(r)
+						}
+						ps += trigger()
+						if tp.Mode == TempChamber || tp.Mode == TempThermometer {
+							ps += query(RoleThermometer)
+						}
+						now += ps
+						tl.TestSeconds[i] += ps
+						tl.Points = append(tl.Points, TimedPoint{Key: st.Key(ti, u.ID, rep), Test: i, Seconds: ps, EndsAt: now})
+					}
+				}
+				if acts, err := Transition(p, state, nominal); err == nil {
+					now += actsCost(acts)
+				}
+				state = nominal
+				tl.TestCampaignSeconds[i] += now - testStart
+			}
+			pd := actsCost(PowerDownFrom(p, nominal))
+			tl.PowerSeconds += pd
+			now += pd
+		}
+	}
+	// TestSeconds so far summed every unit and temperature: per unit and
+	// temperature is the mean.
+	if n := float64(len(p.Units) * len(temps)); n > 0 {
+		for i := range tl.TestSeconds {
+			tl.TestSeconds[i] /= n
+		}
+	}
+	if tp.Mode == TempChamber {
+		tl.FinishSeconds += rampChamberAt(f, p, w, &air, tp.AmbientCelsius)
+	}
+	if len(p.Units) > 0 && p.Units[0].Channel != "" {
+		tl.FinishSeconds += setCost(RoleSwitch)
+	}
+	now += tl.FinishSeconds
+	tl.TotalSeconds = now
+	return tl
+}
+
+// airAfter is the chamber air after d seconds of following set point sp
+// from a, as a first-order lag of time constant tau (0: at once).
+func airAfter(a, sp, d, tau float64) float64 {
+	if tau <= 0 {
+		return sp
+	}
+	return sp + (a-sp)*math.Exp(-d/tau)
+}
+
+// rampChamberAt is the runner's chamber ramp from the present reading
+// (*air) to target: one reading, then ⌈|Δ|/step⌉ ticks each followed by a
+// set point; *air follows the staircase.
+func rampChamberAt(f *Figures, p *Plan, w SequencerWaits, air *float64, target float64) float64 {
+	set := f.Roles[RoleChamber].SetSeconds + f.Roles[RoleChamber].SettleSeconds
+	t := f.Roles[RoleChamber].QuerySeconds
+	rate := p.Temperature.RampMaxCPerMinute
+	from := *air
+	if !(rate > 0) || from == target {
+		return t + set
+	}
+	step := rate * w.ChamberTickSeconds / 60
+	sp := from
+	for sp != target {
+		t += w.ChamberTickSeconds + set
+		*air = airAfter(*air, sp, w.ChamberTickSeconds, f.ChamberAirTauSeconds)
+		sp = StepToward(sp, target, step)
+	}
+	return t
+}
+
+// soakTime is the runner's soak at point: read every poll interval until
+// the reading has stayed within ±soak_tolerance_c for soak_s (or the
+// time-out); *air approaches point meanwhile.
+func soakTime(f *Figures, p *Plan, w SequencerWaits, air *float64, point float64) float64 {
+	tp := &p.Temperature
+	q := f.Roles[RoleThermometer].QuerySeconds
+	poll := w.SoakIntervalSeconds
+	if tp.SoakSeconds > 0 && poll > tp.SoakSeconds/5 {
+		poll = math.Max(tp.SoakSeconds/5, 1)
+	}
+	t, inSince := 0.0, -1.0
+	for {
+		t += q
+		if math.Abs(*air-point) <= tp.SoakToleranceC {
+			if inSince < 0 {
+				inSince = t
+			}
+			if t-inSince >= tp.SoakSeconds {
+				return t
+			}
+		} else {
+			inSince = -1
+		}
+		if t >= tp.SoakTimeoutSeconds {
+			return t
+		}
+		t += poll
+		*air = airAfter(*air, point, poll, f.ChamberAirTauSeconds)
+	}
+}
+
+// stimulusRoleNames lists the roles a level of test t moves (the runner
+// reads each back after settling).
+func stimulusRoleNames(p *Plan, t *Test, part string) []string {
+	s0, s1 := StateAt(p, t, part, 0), StateAt(p, t, part, 1)
+	var out []string
+	add := func(role string, a, b float64) {
+		if math.Abs(b-a) > 1e-12 {
+			out = append(out, role)
+		}
+	}
+	add(RoleSupplyPos, s0.PosVolts, s1.PosVolts)
+	add(RoleSupplyNeg, s0.NegVolts, s1.NegVolts)
+	add(RoleSourceCM, s0.CMVolts, s1.CMVolts)
+	add(RoleSourceDiff, s0.DiffVolts, s1.DiffVolts)
+	add(RoleSourceRef, s0.RefVolts, s1.RefVolts)
+	return out
+}
