@@ -9,6 +9,7 @@ import (
 	"strconv"
 	"strings"
 	"sync"
+	"syscall"
 	"testing"
 	"time"
 	"unicode/utf8"
@@ -204,7 +205,9 @@ func TestCloseLeavesNoGoroutines(t *testing.T) {
 	}
 	for _, c := range conns {
 		_ = c.SetReadDeadline(time.Now().Add(ioGuard))
-		if _, err := io.ReadAll(c); err != nil {
+		// A close seen as EOF or as a reset (the bench closed with unread
+		// bytes in its buffer) both mean closed; a time-out does not.
+		if _, err := io.ReadAll(c); err != nil && !errors.Is(err, syscall.ECONNRESET) {
 			t.Errorf("connection not closed by the bench: %v", err)
 		}
 		_ = c.Close()
