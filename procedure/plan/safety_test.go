@@ -10,7 +10,7 @@ import (
 )
 
 // TestStateAtMILM38510Table checks the level semantics against MIL-M-38510/114
-// Table III (Group A; read from a public transcription of the
+// Table III (Group A; read from a public copy of the
 // specification): with ±20 V nominal rails
 // and the inputs at ground, tests 1 and 2 shift both rails to +35/-5 V and
 // +5/-35 V (equivalent V_CM = -(V+ + V-)/2 = -15 and +15 V); test 14 is
