@@ -12,7 +12,7 @@ import (
 const DefaultCoverage = 0.95
 
 // dBPerRel is 20/ln10 = 8.6859, the dB change per unit relative change of
-// a ratio (first order): u_dB = (20/ln 10)·u_rel (METHODS §5, derived).
+// a ratio (first order): u_dB = (20/ln 10)·u_rel (JCGM 100:2008 (GUM), derived).
 var dBPerRel = 20 / math.Ln10
 
 // Distribution names for budget rows.
@@ -212,13 +212,13 @@ func CoefficientBudget(f LineFit, in BudgetInputs) (Budget, error) {
 // into a rejection ratio with uncertainty (see Rejection):
 //
 //	ratio_dB = −20·log10|k|
-//	u_dB = (20/ln10)·u_c/|k|,  U_dB = (20/ln10)·U/|k|   (METHODS §5, first order)
+//	u_dB = (20/ln10)·u_c/|k|,  U_dB = (20/ln10)·U/|k|   (JCGM 100:2008 (GUM), first order)
 //	limits: −20·log10(|k| + U) and −20·log10(|k| − U)  (exact)
 //
 // When |k| ≤ U the coefficient is not distinguishable from zero at the
 // coverage probability and only the one-sided bound
-// ratio ≥ 1/(|k| + U) is reported (EURACHEM/CITAC CG4 Appendix F; METHODS
-// §5: ΔV_CM = 20 V, ΔV_OS = 0.3 µV, U = 2·0.5 µV → ≥ 143.7 dB). A
+// ratio ≥ 1/(|k| + U) is reported (EURACHEM/CITAC CG4 Appendix F; worked
+// example: ΔV_CM = 20 V, ΔV_OS = 0.3 µV, U = 2·0.5 µV → ≥ 143.7 dB). A
 // coefficient and uncertainty both zero return ErrBadInput: nothing can be
 // said.
 func RejectionFromBudget(b Budget) (Rejection, error) {
@@ -271,5 +271,5 @@ func CoefficientRejection(f LineFit, in BudgetInputs) (Rejection, error) {
 }
 
 // DBFromRel returns the first-order dB uncertainty of a ratio with relative
-// standard uncertainty uRel: (20/ln10)·uRel = 8.686·uRel (METHODS §5).
+// standard uncertainty uRel: (20/ln10)·uRel = 8.686·uRel (JCGM 100:2008 (GUM)).
 func DBFromRel(uRel float64) float64 { return dBPerRel * uRel }

@@ -48,16 +48,16 @@ func mustFloat(t *testing.T, s string) float64 {
 	return v
 }
 
-// TestCoverageFactorMETHODS checks k = t_p(ν) at 95.45 % and 95 % against
-// GUM Table G.2 as quoted in METHODS §5, to the 2 decimals given.
-func TestCoverageFactorMETHODS(t *testing.T) {
+// TestCoverageFactorGUMTableG2 checks k = t_p(ν) at 95.45 % and 95 % against
+// GUM Table G.2, to the 2 decimals given.
+func TestCoverageFactorGUMTableG2(t *testing.T) {
 	cases := []struct {
 		nu   DOF
 		p    float64
 		want float64
 	}{
-		{5, 0.9545, 2.65}, {10, 0.9545, 2.28}, {20, 0.9545, 2.13}, {50, 0.9545, 2.05}, {InfDOF, 0.9545, 2.00}, // GUM Table G.2 (METHODS §5)
-		{10, 0.95, 2.23}, {InfDOF, 0.95, 1.96}, // GUM Table G.2 (METHODS §5)
+		{5, 0.9545, 2.65}, {10, 0.9545, 2.28}, {20, 0.9545, 2.13}, {50, 0.9545, 2.05}, {InfDOF, 0.9545, 2.00}, // GUM Table G.2 (JCGM 100:2008 (GUM))
+		{10, 0.95, 2.23}, {InfDOF, 0.95, 1.96}, // GUM Table G.2 (JCGM 100:2008 (GUM))
 	}
 	for _, c := range cases {
 		if got := CoverageFactor(c.nu, c.p); math.Abs(got-c.want) > 0.005 {
@@ -69,12 +69,12 @@ func TestCoverageFactorMETHODS(t *testing.T) {
 	}
 }
 
-// TestDBFromRel: u_dB = (20/ln10)·u_rel; METHODS §5: 1 % → 0.087 dB,
+// TestDBFromRel: u_dB = (20/ln10)·u_rel; JCGM 100:2008 (GUM): 1 % → 0.087 dB,
 // 5 % → 0.434 dB, 10 % → 0.869 dB (to the 3 decimals given).
 func TestDBFromRel(t *testing.T) {
 	for _, c := range []struct{ rel, db float64 }{{0.01, 0.087}, {0.05, 0.434}, {0.10, 0.869}} {
 		if got := DBFromRel(c.rel); math.Abs(got-c.db) > 0.0005 {
-			t.Errorf("%v → %.4f dB, METHODS §5 %.3f", c.rel, got, c.db)
+			t.Errorf("%v → %.4f dB, JCGM 100:2008 (GUM) %.3f", c.rel, got, c.db)
 		}
 	}
 }
@@ -266,7 +266,7 @@ func TestRejectionFromBudget(t *testing.T) {
 	}
 	t.Run("resolved small u", func(t *testing.T) {
 		// k = −10 µV/V (sign kept), u = 0.1 µV/V, ν = ∞ → 100 dB,
-		// U_dB = 8.686·1.96·0.01 (METHODS §5 first order).
+		// U_dB = 8.686·1.96·0.01 (JCGM 100:2008 (GUM) first order).
 		r, err := RejectionFromBudget(mk(-10, 0.1, InfDOF))
 		if err != nil {
 			t.Fatal(err)
@@ -297,8 +297,8 @@ func TestRejectionFromBudget(t *testing.T) {
 			t.Error("upper side should be wider in dB")
 		}
 	})
-	t.Run("unresolved METHODS §5", func(t *testing.T) {
-		// METHODS §5 (EURACHEM/CITAC CG4 App. F): ΔV_CM = 20 V, ΔV_OS = 0.3 µV,
+	t.Run("unresolved JCGM 100:2008 (GUM)", func(t *testing.T) {
+		// JCGM 100:2008 (GUM) (EURACHEM/CITAC CG4 App. F): ΔV_CM = 20 V, ΔV_OS = 0.3 µV,
 		// u = 0.5 µV, k = 2 → CMRR ≥ 20/(1.3 µV) = 1.54e7 = 143.7 dB.
 		// As a coefficient: k = 0.3/20 µV/V, U = 2·0.5/20 µV/V.
 		b := Budget{Unit: "µV/V", Value: 0.3 / 20, CombinedStdUnc: 0.5 / 20, CoverageK: 2, ExpandedU: 1.0 / 20, EffectiveDOF: InfDOF}
@@ -310,7 +310,7 @@ func TestRejectionFromBudget(t *testing.T) {
 			t.Errorf("unresolved result carries a ratio: %+v", r)
 		}
 		if math.Abs(r.LowerBoundDB-143.7) > 0.05 {
-			t.Errorf("lower bound %.3f dB, METHODS §5 143.7", r.LowerBoundDB)
+			t.Errorf("lower bound %.3f dB, JCGM 100:2008 (GUM) 143.7", r.LowerBoundDB)
 		}
 		if js, err := json.Marshal(r); err != nil || strings.Contains(string(js), "Inf") {
 			t.Errorf("json %s %v", js, err)

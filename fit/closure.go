@@ -5,7 +5,7 @@ import (
 	"math"
 )
 
-// CheckClosure tests superposition on a nulling-loop bench (METHODS §8): the
+// CheckClosure tests superposition on a nulling-loop bench (the identity derived in fit/doc.go): the
 // coefficient of a shift of both rails must equal the sum of the
 // single-rail coefficients,
 //
@@ -39,7 +39,7 @@ func CheckClosure(shift, pos, neg Quantity, coverage float64) (Closure, error) {
 }
 
 // CorrectShift corrects a supply-shift common-mode measurement for finite
-// open-loop gain (METHODS §8, derived from kc + kp + kn + ko = 0): shifting
+// open-loop gain (the identity derived in fit/doc.go, derived from kc + kp + kn + ko = 0): shifting
 // both rails with the inputs and the output held measures
 // k_shift = k_p + k_n = −(k_c + k_o), so
 //
@@ -48,7 +48,7 @@ func CheckClosure(shift, pos, neg Quantity, coverage float64) (Closure, error) {
 //
 // where k_o is the signed input-referred coefficient per volt of output
 // (1/A_OL with its sign) from the open-loop-gain test. Both results are
-// returned as Rejections (µV/V in, CMRR out). Example (METHODS §8):
+// returned as Rejections (µV/V in, CMRR out). Example (the identity derived in fit/doc.go):
 // k_shift = −10.01 µV/V, k_o = +0.01 µV/V → 99.99 dB uncorrected,
 // 100.00 dB corrected.
 func CorrectShift(shift, ko Quantity, coverage float64) (ShiftCorrection, error) {
@@ -81,12 +81,12 @@ func CorrectShift(shift, ko Quantity, coverage float64) (ShiftCorrection, error)
 //
 //	ΔV_IO/Δ = (k_p − k_n)/2
 //
-// (METHODS §8; example k_p = +4, k_n = −14.01 µV/V → 9.005 µV/V).
+// (the identity derived in fit/doc.go; example k_p = +4, k_n = −14.01 µV/V → 9.005 µV/V).
 func SymmetricSupplyUVPerV(kpUVPerV, knUVPerV float64) float64 {
 	return (kpUVPerV - knUVPerV) / 2
 }
 
 // FourthCoefficient returns the coefficient fixed by the other three
-// through k_c + k_p + k_n + k_o = 0 (METHODS §8: moving every terminal
+// through k_c + k_p + k_n + k_o = 0 (the identity derived in fit/doc.go: moving every terminal
 // together changes nothing).
 func FourthCoefficient(a, b, c float64) float64 { return -(a + b + c) }

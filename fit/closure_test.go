@@ -5,15 +5,15 @@ import (
 	"testing"
 )
 
-// METHODS §8 worked example (invented numbers): k_c = +10, k_p = +4,
+// worked example of fit/doc.go (invented numbers): k_c = +10, k_p = +4,
 // k_o = +0.01 µV/V → k_n = −14.01; CMRR 100.00 dB, PSRR+ 107.96 dB,
 // PSRR− 97.07 dB, A_OL 160 dB; supply shift reads 99.99 dB; symmetric
 // supply change 9.005 µV/V.
-func TestMETHODS8WorkedExample(t *testing.T) {
+func TestFourCoefficientWorkedExample(t *testing.T) {
 	kc, kp, ko := 10.0, 4.0, 0.01
 	kn := FourthCoefficient(kc, kp, ko)
 	if math.Abs(kn-(-14.01)) > 1e-12 {
-		t.Fatalf("k_n = %v, METHODS §8 −14.01", kn)
+		t.Fatalf("k_n = %v, the identity derived in fit/doc.go −14.01", kn)
 	}
 	for _, c := range []struct {
 		name  string
@@ -24,21 +24,21 @@ func TestMETHODS8WorkedExample(t *testing.T) {
 		{"CMRR", kc, 100.00, 0.005}, {"PSRR+", kp, 107.96, 0.005}, {"PSRR−", kn, 97.07, 0.005}, {"A_OL", ko, 160, 0.5},
 	} {
 		if got := DBFromUVPerV(c.uv); math.Abs(got-c.want) > c.digit {
-			t.Errorf("%s %.4f dB, METHODS §8 %v", c.name, got, c.want)
+			t.Errorf("%s %.4f dB, the identity derived in fit/doc.go %v", c.name, got, c.want)
 		}
 	}
 	if got := SymmetricSupplyUVPerV(kp, kn); math.Abs(got-9.005) > 1e-12 {
-		t.Errorf("symmetric supply %v µV/V, METHODS §8 9.005", got)
+		t.Errorf("symmetric supply %v µV/V, the identity derived in fit/doc.go 9.005", got)
 	}
 	shift := kp + kn // = −(kc + ko) = −10.01
 	sc, err := CorrectShift(Quantity{Value: shift, StdUnc: 0.01, DOF: 30}, Quantity{Value: ko, StdUnc: 0.001, DOF: 30}, 0)
 	if err != nil {
 		t.Fatal(err)
 	}
-	if math.Abs(sc.Uncorrected.RatioDB-99.99) > 0.005 { // METHODS §8: supply shift reads 99.99 dB
+	if math.Abs(sc.Uncorrected.RatioDB-99.99) > 0.005 { // the identity derived in fit/doc.go: supply shift reads 99.99 dB
 		t.Errorf("uncorrected %.4f dB", sc.Uncorrected.RatioDB)
 	}
-	if math.Abs(sc.Corrected.RatioDB-100.00) > 0.005 { // METHODS §8: CMRR 100.00 dB
+	if math.Abs(sc.Corrected.RatioDB-100.00) > 0.005 { // the identity derived in fit/doc.go: CMRR 100.00 dB
 		t.Errorf("corrected %.4f dB", sc.Corrected.RatioDB)
 	}
 	if sc.Corrected.StdUncUVPerV <= sc.Uncorrected.StdUncUVPerV || math.Abs(sc.Corrected.StdUncUVPerV-math.Hypot(0.01, 0.001)) > 1e-15 {

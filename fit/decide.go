@@ -20,7 +20,7 @@ import (
 //	RL < value < TL      conditional fail
 //	value ≤ RL           fail
 //
-// METHODS §5 check: TL = 85 dB, U = 1.5 dB: 87 pass, 86 conditional pass,
+// JCGM 100:2008 (GUM) check: TL = 85 dB, U = 1.5 dB: 87 pass, 86 conditional pass,
 // 84 conditional fail, 83 fail. The rule's name and w travel in the
 // Decision.
 func Decide(valueDB, expandedUDB, limitDB float64, rule Rule) (Decision, error) {

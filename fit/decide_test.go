@@ -6,7 +6,7 @@ import (
 	"testing"
 )
 
-// METHODS §5 / ILAC-G8:09/2019 §4.2: CMRR ≥ 85 dB with U = 1.5 dB:
+// JCGM 100:2008 (GUM) / ILAC-G8:09/2019 §4.2: CMRR ≥ 85 dB with U = 1.5 dB:
 // 87 → pass; 86 → conditional pass; 84 → conditional fail; 83 → fail.
 func TestDecideILACG8(t *testing.T) {
 	cases := []struct {
@@ -14,10 +14,10 @@ func TestDecideILACG8(t *testing.T) {
 		rule Rule
 		want State
 	}{
-		{87, RuleGuarded, StatePass},            // ILAC-G8 §4.2 via METHODS §5
-		{86, RuleGuarded, StateConditionalPass}, // ILAC-G8 §4.2 via METHODS §5
-		{84, RuleGuarded, StateConditionalFail}, // ILAC-G8 §4.2 via METHODS §5
-		{83, RuleGuarded, StateFail},            // ILAC-G8 §4.2 via METHODS §5
+		{87, RuleGuarded, StatePass},            // ILAC-G8 §4.2
+		{86, RuleGuarded, StateConditionalPass}, // ILAC-G8 §4.2
+		{84, RuleGuarded, StateConditionalFail}, // ILAC-G8 §4.2
+		{83, RuleGuarded, StateFail},            // ILAC-G8 §4.2
 		{86.5, RuleGuarded, StatePass},          // at AL = TL + w
 		{85, RuleGuarded, StateConditionalPass}, // at TL
 		{83.5, RuleGuarded, StateFail},          // at RL = TL − w

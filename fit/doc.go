@@ -44,4 +44,27 @@
 //     datasets (Misra1a, DanWood, Chwirut2).
 //   - Outliers by Rosner's generalized ESD test (Technometrics 25, 1983),
 //     as given in the NIST/SEMATECH e-Handbook §1.3.5.17.3.
+//
+// # Why CMRR, PSRR+, PSRR− and the open-loop gain are tied
+//
+// An op-amp has no ground pin: its input offset V_IO can depend only on
+// voltages between its own terminals. Write its change as signed
+// coefficients, each "ΔV_IO per volt moved, everything else held":
+// k_c (both inputs moved; CMRR = 1/|k_c|), k_p (V+ alone; PSRR+ = 1/|k_p|),
+// k_n (V− alone; PSRR− = 1/|k_n|) and k_o (the output; A_OL = 1/|k_o|).
+// Moving every terminal together by the same voltage changes nothing, so
+//
+//	k_c + k_p + k_n + k_o = 0
+//
+// (derived here; the ratios are those of JEDEC JESD99B, k_CMR and k_SVR).
+// Consequences used in this package: shifting both rails by s with the
+// inputs and output held (the nulling loop of MIL-STD-883 Method 4003)
+// gives ΔV_IO = (k_p + k_n)·s = −(k_c + k_o)·s, so it measures CMRR only up
+// to the open-loop term; the shift coefficient equals the sum of the two
+// single-rail coefficients (the closure check, CheckClosure); a symmetric
+// supply change (V+ up by Δ/2, V− down by Δ/2) gives ΔV_IO = (k_p − k_n)·Δ/2.
+// Worked example (invented numbers, used by the tests): k_c = +10 µV/V,
+// k_p = +4 µV/V, k_o = +0.01 µV/V give k_n = −14.01 µV/V; CMRR 100.00 dB,
+// PSRR+ 107.96 dB, PSRR− 97.07 dB, A_OL 160 dB; the supply-shift method
+// reads 99.99 dB and the symmetric supply change gives 9.005 µV/V.
 package fit

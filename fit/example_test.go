@@ -24,7 +24,7 @@ func ExampleLine() {
 	// k = -0.04 µV/V
 }
 
-// METHODS §2: a 20 V common-mode step moving the offset by 20 µV.
+// JEDEC JESD99B: a 20 V common-mode step moving the offset by 20 µV.
 func ExampleRatioFromSteps() {
 	r, err := fit.RatioFromSteps(20, 20e-6)
 	if err != nil {
@@ -53,7 +53,7 @@ func ExampleDecide() {
 	// 83 dB: fail (AL 86.5 dB)
 }
 
-// METHODS §5: ΔV_CM = 20 V, ΔV_OS = 0.3 µV with u = 0.5 µV (k = 2) cannot be
+// JCGM 100:2008 (GUM): ΔV_CM = 20 V, ΔV_OS = 0.3 µV with u = 0.5 µV (k = 2) cannot be
 // told from zero, so only a lower bound is stated.
 func ExampleRejectionFromBudget() {
 	rows := []fit.BudgetRow{{Name: "offset step", Kind: "A", Distribution: fit.DistNormal,

@@ -151,7 +151,7 @@ func TestLinePanicsOnMismatch(t *testing.T) {
 }
 
 // TestLineStdErrMatchesFormula: for a straight line, se(b1) = s/√Σ(x−x̄)²
-// (GUM H.3, METHODS §5), and the covariance is symmetric.
+// (GUM H.3, JCGM 100:2008 (GUM)), and the covariance is symmetric.
 func TestLineStdErrMatchesFormula(t *testing.T) {
 	rng := rand.New(rand.NewPCG(7, 7))
 	x := zigzag(4, 8, 2)

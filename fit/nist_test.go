@@ -65,7 +65,7 @@ var (
 )
 
 // parseRef reads a reference file in the layout described by
-// /work/shared/reference/README.txt: '#' header lines (NIST certified values
+// the reference files' format: '#' header lines (NIST certified values
 // among them), one line naming the columns, then rows of numbers. Values
 // that are not numbers ("inf" is accepted) are errors naming the line.
 func parseRef(r io.Reader) (refTable, error) {

@@ -11,7 +11,7 @@ import (
 //
 // from a fitted slope b1 of meter volts against stimulus volts and the
 // fixture's noise gain K (nulling loop: E0 = K·V_IO, so ΔV_IO = ΔE0/K;
-// MIL-STD-883 Method 4001/4003 as restated in METHODS §1). K must be > 0.
+// MIL-STD-883 Method 4001/4003). K must be > 0.
 func InputReferred(slopeVPerV, noiseGain float64) (float64, error) {
 	if !(noiseGain > 0) || math.IsInf(noiseGain, 0) {
 		return 0, fmt.Errorf("fit: noise gain %v must be > 0: %w", noiseGain, ErrBadInput)
@@ -28,7 +28,7 @@ func InputReferred(slopeVPerV, noiseGain float64) (float64, error) {
 //	µV/V = 10⁶·k (sign kept),  ratio = 1/|k|,  dB = 20·log10(ratio)
 //
 // (JEDEC JESD99B: k_CMR = ΔV_IC/ΔV_IO, k_SVR = ΔV_S/ΔV_IO and its
-// reciprocal k_SVS; METHODS §1-2). k = 0 returns ErrBadInput: an exactly
+// reciprocal k_SVS; MIL-STD-883 Methods 4001.1/4003). k = 0 returns ErrBadInput: an exactly
 // zero coefficient has no finite ratio, use a Rejection's lower bound.
 func RatioFromCoefficient(kVPerV float64) (Ratio, error) {
 	if kVPerV == 0 || math.IsNaN(kVPerV) || math.IsInf(kVPerV, 0) {
@@ -66,7 +66,7 @@ func RatioFromSteps(deltaStimulusVolts, deltaOffsetVolts float64) (Ratio, error)
 //
 //	ratio = K·ΔV_stimulus/|ΔE0|
 //
-// (METHODS §1, derived from MIL-STD-883 Method 4001/4003; e.g.
+// (derived from MIL-STD-883 Method 4001/4003; e.g.
 // MIL-M-38510/114: E1 − E2 = 0.300 V, K = 1000, ΔV_CM = 30 V → 100.0 dB).
 func RatioFromNullLoop(deltaStimulusVolts, deltaE0Volts, noiseGain float64) (Ratio, error) {
 	k, err := InputReferred(deltaE0Volts, noiseGain)
@@ -83,7 +83,7 @@ func DBFromRatio(ratio float64) float64 { return 20 * math.Log10(ratio) }
 func RatioFromDB(db float64) float64 { return math.Pow(10, db/20) }
 
 // DBFromUVPerV returns the rejection in dB of a coefficient in µV/V,
-// 20·log10(10⁶/|µV/V|) (JESD99B k_SVS ↔ k_SVR; METHODS §2: 10 µV/V = 100 dB).
+// 20·log10(10⁶/|µV/V|) (JESD99B k_SVS ↔ k_SVR: 10 µV/V = 100 dB).
 func DBFromUVPerV(uvPerV float64) float64 { return 20 * math.Log10(1e6/math.Abs(uvPerV)) }
 
 // UVPerVFromDB returns |k| in µV/V for a rejection in dB: 10⁶·10^(−dB/20).

@@ -13,8 +13,8 @@ func TestRatioWorkedExamples(t *testing.T) {
 		wantDB     float64
 		tol        float64
 	}{
-		{"5 V / 0.5 mV", 5, 0.5e-3, 80.0, 0.05},  // METHODS §2 worked example [sec]: 10⁴ = 80.0 dB
-		{"20 V / 20 µV", 20, 20e-6, 120.0, 0.05}, // METHODS §2 worked example: 120.0 dB
+		{"5 V / 0.5 mV", 5, 0.5e-3, 80.0, 0.05},  // JEDEC JESD99B worked example [sec]: 10⁴ = 80.0 dB
+		{"20 V / 20 µV", 20, 20e-6, 120.0, 0.05}, // JEDEC JESD99B worked example: 120.0 dB
 		{"negative offset step keeps magnitude", 20, -20e-6, 120.0, 0.05},
 	}
 	for _, c := range cases {
@@ -31,12 +31,12 @@ func TestRatioWorkedExamples(t *testing.T) {
 	}
 }
 
-// PSRR in µV/V ↔ dB: METHODS §2 (JESD99B k_SVS/k_SVR):
+// PSRR in µV/V ↔ dB: JEDEC JESD99B (k_SVS/k_SVR):
 // 1 / 10 / 31.6 / 100 µV/V = 120 / 100 / 90.0 / 80 dB.
 func TestPSRRUVPerV(t *testing.T) {
 	for _, c := range []struct{ uv, db, tol float64 }{{1, 120, 1e-9}, {10, 100, 1e-9}, {31.6, 90.0, 0.05}, {100, 80, 1e-9}} {
 		if got := DBFromUVPerV(c.uv); math.Abs(got-c.db) > c.tol {
-			t.Errorf("%v µV/V → %.4f dB, METHODS §2 %v", c.uv, got, c.db)
+			t.Errorf("%v µV/V → %.4f dB, JEDEC JESD99B %v", c.uv, got, c.db)
 		}
 		r, err := RatioFromCoefficient(-c.uv * 1e-6)
 		if err != nil || math.Abs(r.RatioDB-c.db) > c.tol || math.Abs(r.CoefficientUVPerV+c.uv) > 1e-12*c.uv {
@@ -51,7 +51,7 @@ func TestPSRRUVPerV(t *testing.T) {
 	}
 }
 
-// MIL-M-38510/114 Table III via METHODS §1: E1 − E2 = 0.300 V is 1000·ΔV_IO
+// MIL-M-38510/114 Table III: E1 − E2 = 0.300 V is 1000·ΔV_IO
 // for ΔV_CM = 30 V → CMR = 20·log10(3×10⁴/0.300) = 100.0 dB;
 // 1.687 V → 85.0 dB; supply: E3 − E15 = 0.100 V for 10 V → 100.0 dB.
 func TestMIL38510NullLoop(t *testing.T) {

@@ -59,7 +59,7 @@ func TestSineFitVector1(t *testing.T) {
 	if s3.DOF != 9997 || s4.DOF != 9996 || s4.Iterations < 2 {
 		t.Errorf("DOF %d/%d iterations %d", s3.DOF, s4.DOF, s4.Iterations)
 	}
-	// METHODS check restated from IEEE 1057 practice: the 4-parameter fit
+	// IEEE 1057 practice (common practice, no published check value): the 4-parameter fit
 	// also converges from the DFT seed (freqGuess 0).
 	s0, err := Sine4Param(tt, y, 0)
 	if err != nil || relErr(s0.FrequencyHz, 100) > tol {

@@ -173,7 +173,7 @@ type LineFit struct {
 
 // Ratio is a rejection ratio formed from a signed input-referred
 // coefficient k (V/V): ratio = 1/|k|, dB = 20·log10(ratio) (JEDEC JESD99B
-// k_CMR, k_SVR; METHODS §2). It carries no uncertainty; see Rejection.
+// k_CMR, k_SVR; JEDEC JESD99B). It carries no uncertainty; see Rejection.
 type Ratio struct {
 	CoefficientVPerV  float64 `json:"coefficient_v_per_v"`
 	CoefficientUVPerV float64 `json:"coefficient_uv_per_v"`
@@ -249,12 +249,12 @@ type BudgetInputs struct {
 // input referred; the ratio uses |k|.
 //
 // If |k| ≥ U the result is resolved: RatioDB = −20·log10|k| with a
-// symmetric expanded uncertainty ExpandedUDB = (20/ln10)·U/|k| (METHODS §5)
+// symmetric expanded uncertainty ExpandedUDB = (20/ln10)·U/|k| (JCGM 100:2008 (GUM))
 // and the exact asymmetric limits LowerDB = −20·log10(|k|+U),
 // UpperDB = −20·log10(|k|−U); Asymmetric is set when U/|k| > 0.1.
 // If |k| < U the coefficient cannot be told from zero at the coverage
 // probability: Resolved is false, RatioDB, ExpandedUDB and UpperDB are zero,
-// and only LowerBoundDB = −20·log10(|k|+U) is meaningful (METHODS §5;
+// and only LowerBoundDB = −20·log10(|k|+U) is meaningful (JCGM 100:2008 (GUM);
 // EURACHEM/CITAC CG4 Appendix F). LowerBoundDB is set in both cases.
 type Rejection struct {
 	CoefficientVPerV  float64 `json:"coefficient_v_per_v"`
@@ -285,7 +285,7 @@ type BoardRatio struct {
 	Rejection Rejection `json:"rejection"`
 }
 
-// Closure is the superposition check k_shift = k_pos + k_neg (METHODS §8).
+// Closure is the superposition check k_shift = k_pos + k_neg (the identity derived in fit/doc.go).
 // Values in µV/V.
 type Closure struct {
 	ShiftUVPerV     float64 `json:"shift_uv_per_v"`
@@ -300,7 +300,7 @@ type Closure struct {
 }
 
 // ShiftCorrection is the open-loop-gain correction of a supply-shift
-// common-mode measurement (METHODS §8): shifting both rails measures
+// common-mode measurement (the identity derived in fit/doc.go): shifting both rails measures
 // k_p + k_n = −(k_c + k_o), so k_c = −k_shift − k_o.
 type ShiftCorrection struct {
 	// Uncorrected: k_c taken as −k_shift (A_OL ignored).

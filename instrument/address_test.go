@@ -21,7 +21,7 @@ func TestParseAddress(t *testing.T) {
 		str  string // String(); "" means same as in
 	}{
 		// 5025 is the LXI "scpi-raw" port (LXI Consortium, "LXI Ports,
-		// Protocols, and Services", METHODS.md §3).
+		// Protocols, and Services", SCPI-99; IEEE 488.2).
 		{"tcp://192.0.2.50", tcp("192.0.2.50", 5025), "tcp://192.0.2.50:5025"},
 		{"tcp://127.0.0.1:40001", tcp("127.0.0.1", 40001), ""},
 		{"tcp://bench-dmm.local:9221", tcp("bench-dmm.local", 9221), ""},

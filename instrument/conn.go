@@ -53,7 +53,7 @@ var (
 type DialOptions struct {
 	// Terminator ends each response message: "\n" (the default), "\r\n"
 	// or "\r". Raw sockets carry no END signal, so LF ends a message
-	// (IEEE 488.2 response terminator NL^END; METHODS.md §3).
+	// (IEEE 488.2 response terminator NL^END).
 	Terminator string
 	// ConnectTimeout bounds Dial when ctx has no deadline (default 5 s).
 	ConnectTimeout time.Duration

@@ -41,8 +41,8 @@
 //     numeric response forms NR1/NR2/NR3; arbitrary block responses,
 //     definite "#<n><len><bytes>" and indefinite "#0<bytes>NL^END"
 //     (§8.7.9-10); the Standard Event Status Register bit each error
-//     class sets. Clause numbers are those of METHODS.md §3, which lists
-//     them among its values still to verify.
+//     class sets. Clause numbers are from a secondary restatement and
+//     are still to be checked against the standard.
 //   - SCPI-99 (SCPI Consortium, 1999): command forms of Vol 2 (CONFigure,
 //     READ?, [SENSe:]VOLTage:DC:NPLCycles, SAMPle:COUNt, INSTrument:NSELect,
 //     [SOURce:]VOLTage, OUTPut, MEASure, ROUTe:CLOSe/OPEN, TEMPerature);
@@ -53,9 +53,8 @@
 //     port 5025 ("scpi-raw").
 //   - On a raw socket there is no END signal: LF ends a message and an
 //     optional CR before it is dropped (common practice, no published
-//     source; METHODS.md §3).
+//     source).
 //
-// Numbers, codes and forms are collected with their sources in
-// /work/shared/METHODS.md §3; the bench contract shared with the simulated
-// bench (instrument/sim) is BENCH.md.
+// The command forms and identities the simulated bench answers are
+// described in instrument/sim/doc.go.
 package instrument

@@ -205,8 +205,7 @@ const assumedNPLC = 10
 // ReadN sets the sample count (count template, e.g. SAMP:COUN n) and
 // triggers with the read template (READ?), in one transaction, and returns
 // the n readings in volts. The exchange may take the session time-out plus
-// twice n × NPLC × 20 ms (one power-line cycle at 50 Hz is 20 ms, METHODS.md
-// §7), unless ctx has an earlier deadline.
+// twice n × NPLC × 20 ms (one power-line cycle at 50 Hz is 20 ms), unless ctx has an earlier deadline.
 func (m *MeterDriver) ReadN(ctx context.Context, n int) ([]float64, error) {
 	if n < 1 {
 		return nil, m.errorf("asked for %d readings; need at least 1", n)

@@ -13,7 +13,7 @@ import (
 	pb "nullbench/instrument/instrumenttest"
 )
 
-// Driver tests play back SCPI exchanges in the forms of BENCH.md, so each
+// Driver tests play back SCPI exchanges in the forms of instrument/sim/doc.go, so each
 // reads like the bench log of the operation.
 
 // noErr is the empty error-queue answer (SCPI-99 Vol 2 §21.8).
@@ -81,7 +81,7 @@ func TestMeterDriver(t *testing.T) {
 	if err != nil || len(v) != 3 || v[0] != 1e-3 || v[1] != 1.1e-3 || v[2] != 9e-4 {
 		t.Errorf("ReadN(3) = %v, %v", v, err)
 	}
-	// Overload (METHODS.md §3: 9.9E37 = +INF): +Inf and ErrOverload.
+	// Overload (SCPI-99; IEEE 488.2: 9.9E37 = +INF): +Inf and ErrOverload.
 	r, err := m.Read(ctx)
 	if !math.IsInf(r, 1) || !errors.Is(err, instrument.ErrOverload) || !strings.Contains(err.Error(), "range 10 V") {
 		t.Errorf("Read on overload = %v, %v", r, err)
@@ -369,7 +369,7 @@ func TestMeterReadTimeoutGrowsWithIntegration(t *testing.T) {
 		t.Fatal(err)
 	}
 	// 50 readings × 100 PLC × 20 ms = 100 s of integration (one PLC at
-	// 50 Hz is 20 ms, METHODS.md §7); the exchange may take 5 s + 2 × 100 s.
+	// 50 Hz is 20 ms, typical data-sheet figures, common practice); the exchange may take 5 s + 2 × 100 s.
 	if conn.readBudget < 200*time.Second || conn.readBudget > 205*time.Second {
 		t.Errorf("READ? budget %v, want about 205 s", conn.readBudget)
 	}

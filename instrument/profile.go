@@ -82,7 +82,7 @@ type MeterCommands struct {
 // MeterAccuracy is a DMM's DC accuracy specification in the usual
 // two-term form, ± (gain × reading + offset × range). The offset is given
 // in ppm of range because that is how DMM specifications state it
-// (METHODS.md §7: "~15 ppm reading + 4 ppm range", published DMM specs).
+// (typical data-sheet figures, common practice: "~15 ppm reading + 4 ppm range", published DMM specs).
 type MeterAccuracy struct {
 	GainPPM          float64 // ppm of reading
 	OffsetPPMOfRange float64 // ppm of the range in use
@@ -100,7 +100,7 @@ func (a MeterAccuracy) HalfWidthVolts(readingVolts, rangeVolts float64) float64 
 
 // SupplyAccuracy is a supply or source's programming and read-back
 // accuracy, each ± (gain × |value| + offset). Typical bench figures are
-// 0.03-0.1 % + 5-20 mV (METHODS.md §7, common practice and datasheets).
+// 0.03-0.1 % + 5-20 mV (typical data-sheet figures, common practice).
 type SupplyAccuracy struct {
 	ProgramGainPPM      float64
 	ProgramOffsetVolts  float64

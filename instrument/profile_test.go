@@ -11,7 +11,7 @@ import (
 	"nullbench/instrument"
 )
 
-// benchIdentities are the *IDN? answers of the simulated bench (BENCH.md).
+// benchIdentities are the *IDN? answers of the simulated bench (instrument/sim/doc.go).
 var benchIdentities = map[string]string{
 	"dmm":     "NULLBENCH-SIM,DMM-65,SIM0001,1.0",
 	"supply2": "NULLBENCH-SIM,PSU-2CH,SIM0002,1.0",
@@ -22,7 +22,7 @@ var benchIdentities = map[string]string{
 
 func TestBuiltinProfiles(t *testing.T) {
 	names := instrument.BuiltinProfileNames()
-	if strings.Join(names, ",") != "chamber,dmm,source3,supply2,switch" { // BENCH.md built-in names
+	if strings.Join(names, ",") != "chamber,dmm,source3,supply2,switch" { // the built-in profile files
 		t.Fatalf("built-in profiles = %v", names)
 	}
 	all, err := instrument.BuiltinProfiles()
@@ -55,7 +55,7 @@ func TestBuiltinProfiles(t *testing.T) {
 
 	dmm, _ := instrument.BuiltinProfile("dmm")
 	// 15 ppm of reading + 4 ppm of range: a 6.5-digit DMM's 10 V figure
-	// (METHODS.md §7, published DMM specifications). At 5 V on 10 V:
+	// (typical data-sheet figures, common practice, published DMM specifications). At 5 V on 10 V:
 	// 75 µV + 40 µV = 115 µV.
 	if got := dmm.Meter.Accuracy.HalfWidthVolts(5, 10); !near(got, 115e-6, 1e-12) {
 		t.Errorf("dmm half-width at 5 V on 10 V = %g, want 115e-6", got)
@@ -64,7 +64,7 @@ func TestBuiltinProfiles(t *testing.T) {
 		t.Errorf("dmm settings: %+v", dmm)
 	}
 	psu, _ := instrument.BuiltinProfile("supply2")
-	// 0.05 % + 10 mV, inside METHODS.md §7's 0.03-0.1 % + 5-20 mV: at 15 V
+	// 0.05 % + 10 mV, inside the typical data-sheet range 0.03-0.1 % + 5-20 mV: at 15 V
 	// 7.5 mV + 10 mV = 17.5 mV.
 	if got := psu.Supply.Accuracy.ProgramHalfWidthVolts(-15); !near(got, 17.5e-3, 1e-12) {
 		t.Errorf("supply2 program half-width at -15 V = %g, want 17.5e-3", got)

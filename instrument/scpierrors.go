@@ -11,7 +11,7 @@ import (
 type ErrorClass int
 
 // Error classes. The first four ranges and their ESR bits are as in
-// METHODS.md §3 (SCPI-99 Vol 2 §21.8): -1xx CME bit 5, -2xx EXE bit 4,
+// SCPI-99 Vol 2 §21.8 and IEEE 488.2 §11.5.1: -1xx CME bit 5, -2xx EXE bit 4,
 // -3xx DDE bit 3, -4xx QYE bit 2; it also gives OPC as bit 0 and PON as
 // bit 7. The event ranges -5xx (power on, PON), -6xx (user request, URQ
 // bit 6), -7xx (request control, RQC bit 1) and -8xx (operation complete,
@@ -105,7 +105,7 @@ func ClassOf(code int) ErrorClass {
 type StandardError struct {
 	Code       int
 	Meaning    string
-	FromMemory bool // true: recalled from SCPI-99 §21.8, not in METHODS.md §3
+	FromMemory bool // true: recalled from SCPI-99 §21.8, not checked against a copy
 }
 
 // Class is the class of the code's range.
@@ -113,10 +113,10 @@ func (s StandardError) Class() ErrorClass { return ClassOf(s.Code) }
 
 // StandardErrors returns the SCPI-99 standard error/event numbers (SCPI-99
 // Vol 2 §21.8), sorted by code, descending (0, -100, -101, ...). Entries with
-// FromMemory false are exactly those listed in METHODS.md §3; the others
+// FromMemory false are exactly those checked against a restatement of §21.8; the others
 // are from memory of §21.8 and should be checked against the standard before
 // being relied on. Instruments vary in capitals and wording, so compare
-// codes, not text (METHODS.md, "Values still unsure" 6).
+// codes, not text (common practice: instruments vary).
 func StandardErrors() []StandardError {
 	out := make([]StandardError, len(standardErrors))
 	copy(out, standardErrors)
@@ -133,7 +133,7 @@ func LookupStandardError(code int) (StandardError, bool) {
 }
 
 // standardErrors is sorted by code, descending. recalled(...) marks an entry
-// from memory of SCPI-99 Vol 2 §21.8; listed(...) one in METHODS.md §3.
+// from memory of SCPI-99 Vol 2 §21.8; listed(...) one checked against a restatement of §21.8.
 var standardErrors = []StandardError{
 	listed(0, "No error"),
 	listed(-100, "Command error"),
@@ -259,7 +259,7 @@ var standardErrors = []StandardError{
 	recalled(-800, "Operation complete"),
 }
 
-// listed makes an entry listed in METHODS.md §3 (SCPI-99 Vol 2 §21.8).
+// listed makes an entry checked against a restatement of SCPI-99 Vol 2 §21.8.
 func listed(code int, meaning string) StandardError {
 	return StandardError{Code: code, Meaning: meaning}
 }

@@ -50,7 +50,7 @@ func TestSessionQueries(t *testing.T) {
 	tests := []struct {
 		name, cmd, want string
 	}{
-		{"CR before LF is stripped (common practice, METHODS.md §3)", "CRLF?", "7"},
+		{"CR before LF is stripped (common practice)", "CRLF?", "7"},
 		{"reply split across two TCP writes", "SPLIT?", "1234"},
 		{"*OPC? answers 1 (IEEE 488.2 §10)", "*OPC?", "1"},
 	}
@@ -110,7 +110,7 @@ func TestSessionErrorQueue(t *testing.T) {
 	ctx := context.Background()
 
 	// A set command out of range: -222 is an execution error, ESR bit 4
-	// EXE (SCPI-99 Vol 2 §21.8 via METHODS.md §3).
+	// EXE (SCPI-99 Vol 2 §21.8).
 	err := s.Write(ctx, "VOLT 50")
 	var ie *instrument.InstrumentError
 	if !errors.As(err, &ie) {
@@ -389,7 +389,7 @@ func TestQueryFloatOverload(t *testing.T) {
 	f := newFakeInstrument(t)
 	s := dialFake(t, f, instrument.SessionOptions{})
 	// VOLT stores the text as given, so VOLT? can return an SCPI
-	// overload (9.9E37 = +INF, METHODS.md §3).
+	// overload (9.9E37 = +INF, SCPI-99; IEEE 488.2).
 	if err := s.Write(context.Background(), "VOLT -9.9E37"); err != nil {
 		t.Fatal(err)
 	}

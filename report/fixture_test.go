@@ -11,7 +11,7 @@ import (
 // up for the test; readings follow a known model per unit so the residuals
 // the report computes are known exactly (the deviation pattern devVolts).
 
-var fixtureLevels = []float64{0, 5, -5, 10, -10} // zigzag, METHODS.md-style drift cancelling order
+var fixtureLevels = []float64{0, 5, -5, 10, -10} // zigzag, drift cancelling order
 
 const (
 	fixtureK       = 1000.0 // noise gain
@@ -21,7 +21,7 @@ const (
 
 // fixtureRatios are each unit's cmrr at 25 °C and the verdict a guarded
 // rule with U = 1 dB gives against 110 dB (ILAC-G8:09/2019 §4.2 zones, as
-// worked in METHODS.md §5): 118 pass, 110.5 conditional pass, 109.5
+// worked in JCGM 100:2008 (GUM)): 118 pass, 110.5 conditional pass, 109.5
 // conditional fail, 105 fail; U07 is unresolved (lower bound 140 dB).
 var fixtureRatios = []struct {
 	db       float64

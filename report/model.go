@@ -47,7 +47,7 @@ type Campaign struct {
 	Readings    []Reading    // every averaged point, in acquisition order
 	LotStats    []LotRow     // one per test × temperature
 	Temperature []TempRow    // ratio against temperature, per unit and for the lot
-	Closures    []ClosureRow // CMRR/PSRR closure checks (METHODS.md §8), optional
+	Closures    []ClosureRow // CMRR/PSRR closure checks (the identity derived in fit/doc.go), optional
 	Boards      []BoardRow   // finished-board CMRR against worst-case limits, optional
 
 	// ReportID identifies this report (e.g. the plan hash and journal seal
@@ -154,7 +154,7 @@ type Result struct {
 	CoverageK       float64
 	DOFEffective    float64 // Welch–Satterthwaite ν_eff (GUM G.2b); +Inf allowed
 	// Resolved is false when |coefficient| < k·u: then only LowerBoundDB is
-	// a statement about the part (METHODS.md §5, unresolved rejection).
+	// a statement about the part (JCGM 100:2008 (GUM), unresolved rejection).
 	Resolved     bool
 	LowerBoundDB float64
 	LimitDB      float64 // minimum acceptable ratio; NaN: not judged
@@ -286,7 +286,7 @@ type TempRow struct {
 // LotUnit is the TempRow.Unit value for the lot as a whole.
 const LotUnit = "lot"
 
-// ClosureRow is the closure check kc + kp + kn + ko = 0 of METHODS.md §8 for
+// ClosureRow is the closure check kc + kp + kn + ko = 0 of the identity derived in fit/doc.go for
 // one unit: the supply-shift coefficient against the sum of the two
 // single-rail coefficients.
 type ClosureRow struct {
@@ -304,7 +304,7 @@ type ClosureRow struct {
 // BoardRow compares a finished board's measured CMRR with the worst case
 // its resistor tolerance allows: CMRR_R ≈ (1+G)/(4t) (Sedra & Smith,
 // difference amplifier) and, with the op-amp's own CMRR,
-// 1/CMRR = 1/CMRR_R + 1/CMRR_OA (Franco; METHODS.md §2).
+// 1/CMRR = 1/CMRR_R + 1/CMRR_OA (Franco).
 type BoardRow struct {
 	Unit            string
 	TemperatureC    float64

@@ -14,7 +14,7 @@
 // left unused. A Recorder wraps a real Conn and writes down what passed, in
 // the same form; WriteScript and ParseScript keep scripts in text files.
 //
-// Scripts use the SCPI forms of the bench contract (BENCH.md); the
+// Scripts use the SCPI forms of the bench contract (instrument/sim/doc.go); the
 // terminator is LF, and a CR before it is accepted, as on a raw socket
-// (METHODS.md §3).
+// (SCPI-99; IEEE 488.2).
 package instrumenttest

@@ -15,7 +15,7 @@ import (
 )
 
 // Instrument names on the simulated bench, in serving order, with their
-// roles, built-in profile names and identities (BENCH.md).
+// roles, built-in profile names and identities (instrument/sim/doc.go).
 const (
 	NameDMM     = "dmm"
 	NameSupply  = "psu"
@@ -24,7 +24,7 @@ const (
 	NameChamber = "chamber"
 )
 
-// Identities answered to *IDN? (BENCH.md, "Identities").
+// Identities answered to *IDN? (invented identities of the simulated bench).
 const (
 	IDNDMM     = "NULLBENCH-SIM,DMM-65,SIM0001,1.0"
 	IDNSupply  = "NULLBENCH-SIM,PSU-2CH,SIM0002,1.0"
@@ -360,7 +360,7 @@ func tomlFloat(v float64) string {
 }
 
 // BenchSection returns the plan's [bench] TOML section for this bench, in
-// the exact shape of BENCH.md (sim --bench-out writes it). Call after Start.
+// the exact shape of instrument/sim/doc.go (sim --bench-out writes it). Call after Start.
 func (b *Bench) BenchSection() string {
 	var sb strings.Builder
 	sb.WriteString("[bench]\n")

@@ -28,7 +28,7 @@ var benchEpoch = time.Date(2026, 1, 1, 0, 0, 0, 0, time.UTC)
 //
 //	bench time = epoch + N × (wall time − wall time at start)
 //
-// and Sleep(d) waits d/N of wall time (BENCH.md, "Time").
+// and Sleep(d) waits d/N of wall time (common practice for simulated clocks).
 type ScaledClock struct {
 	scale     float64
 	wallStart time.Time

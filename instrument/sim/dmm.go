@@ -16,7 +16,7 @@ var (
 )
 
 // dmmNoiseRel is the rms noise of one reading relative to the range, by
-// NPLC: 6½-digit DMM resolution against NPLC (METHODS §7, published DMM
+// NPLC: 6½-digit DMM resolution against NPLC (typical data-sheet figures, common practice, published DMM
 // manuals): 0.02: 1e-4, 0.2: 1e-5, 1: 3e-6, 10: 1e-6, 100: 3e-7.
 var dmmNoiseRel = map[float64]float64{0.02: 1e-4, 0.2: 1e-5, 1: 3e-6, 10: 1e-6, 100: 3e-7}
 
@@ -25,11 +25,11 @@ var dmmNoiseRel = map[float64]float64{0.02: 1e-4, 0.2: 1e-5, 1: 3e-6, 10: 1e-6, 
 // 6½-digit meter, no published source: a fraction of a ppm of range).
 const dmmFloorRel = 1.5e-7
 
-// dmmOverloadFactor: |v| above 1.2 × range reads ±9.9E37 (BENCH.md).
+// dmmOverloadFactor: |v| above 1.2 × range reads ±9.9E37 (instrument/sim/doc.go).
 const dmmOverloadFactor = 1.2
 
 // powerLineHz: one power-line cycle is 20 ms (50 Hz), so a reading
-// integrates NPLC/50 s of bench time (METHODS §7: 1 PLC = 20 / 16.7 ms).
+// integrates NPLC/50 s of bench time (typical data-sheet figures, common practice: 1 PLC = 20 / 16.7 ms).
 const powerLineHz = 50.0
 
 type dmm struct {
@@ -71,7 +71,7 @@ func newDMM(b *Bench, rng *rand.Rand) *dmm {
 	for i, r := range dmmRanges {
 		// Gain error within ±8 ppm; offset within ±1 µV on 0.1 V, growing
 		// as 1e-5 of range on the higher ranges (common practice, no
-		// published source; in line with METHODS §7's 15 ppm + 4 ppm).
+		// published source; in line with typical data-sheet figures of 15 ppm + 4 ppm).
 		d.gain[i] = 8e-6 * (2*rng.Float64() - 1)
 		d.offset[i] = 1e-5 * r * (2*rng.Float64() - 1)
 	}

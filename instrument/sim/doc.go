@@ -10,19 +10,19 @@
 // # Instruments
 //
 // Each instrument has its own server-side SCPI parser (SCPI-99 Vol 1 §6,
-// IEEE 488.2 §7–8, §10; METHODS §3): LF-terminated lines with an optional
+// IEEE 488.2 §7–8, §10): LF-terminated lines with an optional
 // CR, ';' chaining with the SCPI path rule (a header without a leading ':'
 // continues the previous header's path; ";:" returns to the root, so
 // "INST:NSEL 2;:VOLT 5" is right and "INST:NSEL 2;VOLT 5" is −113), short
 // and long forms, optional nodes, numeric suffixes (SOUR2:VOLT, OUTP3),
 // case-insensitive; the IEEE 488.2 common commands; a 10-entry FIFO error
 // queue with the standard codes, −350 on overflow, cleared by *CLS and not by
-// *RST. The command forms and identities are those of BENCH.md.
+// *RST. The command forms and identities are those of instrument/sim/doc.go.
 //
 // # Physics
 //
 // The part's input offset depends only on its own terminal voltages (an
-// op-amp has no ground pin; METHODS §8):
+// op-amp has no ground pin; the identity derived in fit/doc.go):
 //
 //	Vio = Vos(T) + kc·ΔVcm + kp_e·Δ(V+ − V−) + ko·ΔVout (each to V−) + …
 //
@@ -55,7 +55,7 @@
 // A unit inserted or pulled out while any contact of the socket is farther
 // from 0 V than the part's input_beyond_rail_volts is damaged for good (a
 // hand makes the pins in no set order, so an input goes beyond a floating
-// rail; METHODS §6), and the call says so (ErrLiveSocket). `nullbench sim
+// rail; JEDEC JESD78; common practice), and the call says so (ErrLiveSocket). `nullbench sim
 // --socket` puts these hands on the command's standard input.
 //
 // # Time

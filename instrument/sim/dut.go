@@ -14,7 +14,7 @@ import (
 	"github.com/pelletier/go-toml/v2"
 )
 
-// Fixture kinds a unit may sit in (BENCH.md, "Wiring").
+// Fixture kinds a unit may sit in (instrument/sim/doc.go, Physics).
 const (
 	FixtureNullingLoop = "nulling_loop" // auxiliary-amplifier loop, MIL-STD-883 Method 4003
 	FixtureNoiseGain   = "noise_gain"   // closed-loop stage with noise gain K, output free
@@ -59,7 +59,7 @@ type PartSpec struct {
 	CMHeadroomPosVolts    float64 // input range top = V+ − this (default 2)
 	CMHeadroomNegVolts    float64 // input range bottom = V− + this (default 2)
 	OutputHeadroomVolts   float64 // output swing to each rail (default 1.5)
-	InputBeyondRailVolts  float64 // absolute maximum input beyond a rail (default 0.3, METHODS §6)
+	InputBeyondRailVolts  float64 // absolute maximum input beyond a rail (default 0.3, JEDEC JESD78; common practice)
 	MinOperatingSpanVolts float64 // below this span the part does not work (default 4)
 	QuiescentAmps         float64 // supply current (default 2 mA)
 	ThetaCPerWatt         float64 // die-to-case thermal resistance (default 100 °C/W)
@@ -70,7 +70,7 @@ type PartSpec struct {
 // OpAmpSpec is one op-amp's DC error model. The ratios are magnitudes in dB
 // at 25 °C, DC, at the reference operating point (nominal rails, mid
 // common-mode, output at 0 V); the signed coefficients Kc, Kp, Kn, Ko are
-// in V/V with Kc+Kp+Kn+Ko = 0 exactly (METHODS §8).
+// in V/V with Kc+Kp+Kn+Ko = 0 exactly (the identity derived in fit/doc.go).
 type OpAmpSpec struct {
 	CMRRdB, PSRRPosdB, PSRRNegdB, AOLdB float64
 	Kc, Kp, Kn, Ko                      float64
@@ -442,7 +442,7 @@ func (r *resolver) resolve(raw *rawDUT) (*DUTFile, error) {
 		}
 		u.OpAmp = amp
 		if u.Fixture == FixtureNoiseGain && u.NoiseGain*amp.Ko > 0.1 {
-			return nil, r.errAt(key+".noise_gain", "unit %s: noise gain K = %g exceeds 0.1·A_OL = %g (A_OL %.1f dB); the stage's gain error would not be small (keep K ≤ 0.1·A_OL, MIL-STD-883 Method 4001 figure note, secondary source per METHODS §1)",
+			return nil, r.errAt(key+".noise_gain", "unit %s: noise gain K = %g exceeds 0.1·A_OL = %g (A_OL %.1f dB); the stage's gain error would not be small (keep K ≤ 0.1·A_OL, MIL-STD-883 Method 4001 figure note, secondary source per MIL-STD-883 Methods 4001.1/4003)",
 				u.ID, u.NoiseGain, 0.1/amp.Ko, amp.AOLdB)
 		}
 		d.Units = append(d.Units, u)
@@ -561,7 +561,7 @@ type lotDefaults struct{ cmrr, psrrPos, psrrNeg float64 }
 
 // opamp resolves one op-amp: ratios given, drawn from the lot, or defaults;
 // then the signed coefficients (deriveCoefficients) and the secondary
-// parameters (given or drawn from seeded typical ranges, METHODS §7).
+// parameters (given or drawn from seeded typical ranges, typical data-sheet figures, common practice).
 func (r *resolver) opamp(key string, ra *rawAmp, lot *rawLot, rng *rand.Rand, def lotDefaults) (OpAmpSpec, error) {
 	var a OpAmpSpec
 	for _, c := range []struct {
@@ -573,7 +573,7 @@ func (r *resolver) opamp(key string, ra *rawAmp, lot *rawLot, rng *rand.Rand, de
 		}
 	}
 	if ra.AOLdB != nil && (ra.CMRRdB == nil || ra.PSRRPosdB == nil || ra.PSRRNegdB == nil) {
-		return a, r.errAt(key+".aol_db", "aol_db needs cmrr_db, psrr_pos_db and psrr_neg_db in the same table: the four are tied by kc+kp+kn+ko = 0 (METHODS §8), so A_OL alone cannot be combined with drawn ratios")
+		return a, r.errAt(key+".aol_db", "aol_db needs cmrr_db, psrr_pos_db and psrr_neg_db in the same table: the four are tied by kc+kp+kn+ko = 0 (the identity derived in fit/doc.go), so A_OL alone cannot be combined with drawn ratios")
 	}
 	draw := func(given *float64, mean *float64, sd *float64, dflt float64) float64 {
 		if given != nil {
@@ -650,7 +650,7 @@ func (r *resolver) opamp(key string, ra *rawAmp, lot *rawLot, rng *rand.Rand, de
 }
 
 // ratioDB converts a coefficient (V/V) to a rejection ratio in dB:
-// 20·log10(1/|k|) (JESD99B k_SVR/k_SVS; METHODS §2).
+// 20·log10(1/|k|) (JESD99B k_SVR/k_SVS).
 func ratioDB(k float64) float64 { return -20 * math.Log10(math.Abs(k)) }
 
 // coefFromDB converts a ratio in dB to a coefficient magnitude (V/V).
@@ -663,10 +663,10 @@ type coefficients struct {
 }
 
 // deriveCoefficients settles the signed coefficients from the ratios
-// (METHODS §8: kc + kp + kn + ko = 0).
+// (the identity derived in fit/doc.go: kc + kp + kn + ko = 0).
 //
 // Sign convention: ko = +1/A_OL > 0 (the input offset needed to hold the
-// output rises with the output, as in the METHODS §8 worked example).
+// output rises with the output, as in the worked example of fit/doc.go).
 //
 // Three ratios (aol nil): among the sign choices of kc, kp, kn, take the one
 // that leaves the smallest positive ko = −(kc + kp + kn), i.e. the highest
@@ -699,7 +699,7 @@ func deriveCoefficients(cmrrDB, psrrPosDB, psrrNegDB float64, aolDB *float64) (c
 		out.ko = best
 		out.derived = true
 		if best > coefFromDB(MinAOLdB) {
-			return out, fmt.Errorf("CMRR %.2f dB, PSRR+ %.2f dB and PSRR− %.2f dB can hold together only with A_OL ≤ %.1f dB (kc+kp+kn+ko = 0, METHODS §8: |ko| ≥ the smallest |±kc±kp±kn| = %.3g µV/V); the sim's op-amps need A_OL ≥ %.0f dB — raise the smallest ratio or lower the others",
+			return out, fmt.Errorf("CMRR %.2f dB, PSRR+ %.2f dB and PSRR− %.2f dB can hold together only with A_OL ≤ %.1f dB (kc+kp+kn+ko = 0, the identity derived in fit/doc.go: |ko| ≥ the smallest |±kc±kp±kn| = %.3g µV/V); the sim's op-amps need A_OL ≥ %.0f dB — raise the smallest ratio or lower the others",
 				cmrrDB, psrrPosDB, psrrNegDB, ratioDB(best), best*1e6, MinAOLdB)
 		}
 		capK := coefFromDB(MaxAOLdB)
@@ -732,7 +732,7 @@ func deriveCoefficients(cmrrDB, psrrPosDB, psrrNegDB float64, aolDB *float64) (c
 	out.ko = mo
 	sum := mc + mp + mn + mo
 	if bestRes > identityTolerance*sum {
-		return out, fmt.Errorf("CMRR %.3f dB, PSRR+ %.3f dB, PSRR− %.3f dB and A_OL %.3f dB break kc+kp+kn+ko = 0 (METHODS §8) for every sign choice: the best leaves %.4g µV/V, more than %.1g of Σ|k| = %.4g µV/V; drop aol_db to derive it, or correct one ratio",
+		return out, fmt.Errorf("CMRR %.3f dB, PSRR+ %.3f dB, PSRR− %.3f dB and A_OL %.3f dB break kc+kp+kn+ko = 0 (the identity derived in fit/doc.go) for every sign choice: the best leaves %.4g µV/V, more than %.1g of Σ|k| = %.4g µV/V; drop aol_db to derive it, or correct one ratio",
 			cmrrDB, psrrPosDB, psrrNegDB, *aolDB, bestRes*1e6, identityTolerance, sum*1e6)
 	}
 	spreadResidual(&out)

@@ -19,7 +19,7 @@ func identityHolds(c coefficients) bool {
 	return math.Abs(s) <= 4e-16*m
 }
 
-// TestDeriveWorkedExample: METHODS §8 worked example (invented numbers):
+// TestDeriveWorkedExample: worked example of fit/doc.go (invented numbers):
 // kc = +10, kp = +4, ko = +0.01 µV/V → kn = −14.01 µV/V; CMRR 100.00 dB,
 // PSRR+ 107.96 dB, PSRR− 97.07 dB, A_OL 160 dB.
 func TestDeriveWorkedExample(t *testing.T) {
@@ -33,7 +33,7 @@ func TestDeriveWorkedExample(t *testing.T) {
 	}{
 		// Three ratios at full precision: A_OL derived = 160 dB.
 		{"three exact", exact(10), exact(4), exact(14.01), nil, 160, 1e-6},
-		// The same written to 0.01 dB as printed in METHODS §8: the
+		// The same written to 0.01 dB as printed in the worked example of fit/doc.go: the
 		// derived A_OL is ill-conditioned (ko is a small difference of
 		// large terms), so only its order is fixed: 0.01 dB on PSRR− is
 		// 0.115 % of 14.01 = 0.016 µV/V, more than ko itself.
@@ -57,7 +57,7 @@ func TestDeriveWorkedExample(t *testing.T) {
 			if got := ratioDB(c.ko); math.Abs(got-tc.wantAOL) > tc.aolTol {
 				t.Errorf("A_OL %.4f dB, want %.2f ± %g", got, tc.wantAOL, tc.aolTol)
 			}
-			// Published check values (METHODS §8), to 0.01 dB.
+			// Published check values (the identity derived in fit/doc.go), to 0.01 dB.
 			for _, chk := range []struct {
 				name string
 				k    float64

@@ -76,7 +76,7 @@ func (in *instrument) pushError(e *scpiError) {
 }
 
 // stb is the status byte: bit 2 error queue not empty, bit 5 ESB, bit 6 MSS
-// (IEEE 488.2 §11.2; SCPI-99; METHODS §3).
+// (IEEE 488.2 §11.2; SCPI-99).
 func (in *instrument) stb() byte {
 	var s byte
 	if len(in.errq.entries) > 0 {

@@ -25,7 +25,7 @@ type outputChannel struct {
 	cc    bool    // in constant-current mode
 }
 
-// Output dynamics of supply and source channels (METHODS §7; common practice).
+// Output dynamics of supply and source channels (typical data-sheet figures; common practice).
 const (
 	slewVoltsPerSecond = 1000  // 1 V/ms
 	settleTauSeconds   = 2e-3  // first-order settling
@@ -84,7 +84,7 @@ type chamberModel struct {
 }
 
 // relayPath is a closed switch path: a thermal EMF that depends on the
-// temperature difference across the chamber wall (Cu–Cu order, METHODS §7)
+// temperature difference across the chamber wall (Cu–Cu order, typical data-sheet figures, common practice)
 // and wanders slowly, and a settling tail after the relay closes.
 type relayPath struct {
 	emfVolts  float64 // at no gradient
@@ -314,7 +314,7 @@ func (m *model) step(dt float64, conn []*unit) {
 
 // checkDamage applies the absolute maximum ratings to the connected units:
 // supply span over the maximum, or an input beyond a rail by more than the
-// allowed margin (METHODS §6), which includes any input drive while the part
+// allowed margin (JEDEC JESD78; common practice), which includes any input drive while the part
 // is unpowered. Damage is permanent.
 func (m *model) checkDamage(conn []*unit) {
 	if len(conn) == 0 {

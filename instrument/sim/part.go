@@ -26,7 +26,7 @@ type terminals struct {
 // values at the reference operating point (nominal rails, Vcm at mid-rail,
 // output at 0 V). Every term depends on differences of its own terminals, so
 // moving all of them together changes nothing and kc+kp+kn+ko = 0
-// (METHODS §8).
+// (the identity derived in fit/doc.go).
 //
 // Self-heating: the die sits θ·P above its case, P = s·Iq, with time
 // constant τ_die. In steady state drift·θ·Iq·(s − s0) adds to the supply

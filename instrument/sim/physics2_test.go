@@ -32,7 +32,7 @@ func unitSnap(t testing.TB, b *Bench, id string) UnitSnapshot {
 	return UnitSnapshot{}
 }
 
-// TestDamage applies the absolute maximum ratings (METHODS §6: span over
+// TestDamage applies the absolute maximum ratings (JEDEC JESD78; common practice: span over
 // its maximum; an input beyond a rail by more than 0.3 V, including any
 // input drive while unpowered) and checks that safe sequences do no harm.
 func TestDamage(t *testing.T) {
@@ -69,7 +69,7 @@ func TestDamage(t *testing.T) {
 		}, ""},
 		{"safe sequence", func(t *testing.T, tb *testBench) {
 			// Supplies up in 1 V steps with inputs at 0 V, then common
-			// mode, then down in reverse order (METHODS §6).
+			// mode, then down in reverse order (JEDEC JESD78; common practice).
 			tb.src.set("SOUR1:VOLT 0;:OUTP1 ON;:SOUR3:VOLT 0;:OUTP3 ON")
 			tb.mux.set("ROUT:CLOS (@101)")
 			tb.psu.set("OUTP1 ON;:OUTP2 ON;:CURR 0.05;:SOUR1:CURR 0.05")
@@ -173,7 +173,7 @@ func TestCurrentLimit(t *testing.T) {
 }
 
 // TestMeterNoiseVsNPLC: the rms noise of single readings against NPLC is
-// the METHODS §7 table (6½-digit DMM resolution × range, published DMM
+// the typical data-sheet figures, common practice table (6½-digit DMM resolution × range, published DMM
 // manuals); each reading integrates NPLC/50 s of bench time; longer
 // averaging stops helping at the 1/f floor.
 func TestMeterNoiseVsNPLC(t *testing.T) {
@@ -193,9 +193,9 @@ func TestMeterNoiseVsNPLC(t *testing.T) {
 			s2 += (vs[i] - vs[i-1]) * (vs[i] - vs[i-1])
 		}
 		sd := math.Sqrt(s2 / 2 / float64(len(vs)-1))
-		t.Logf("NPLC %-5g: rms %.3g of range (METHODS §7: %.0e); 200 readings took %.2f s of bench time", tc.nplc, sd/10, tc.rel, elapsed)
+		t.Logf("NPLC %-5g: rms %.3g of range (typical data-sheet figures, common practice: %.0e); 200 readings took %.2f s of bench time", tc.nplc, sd/10, tc.rel, elapsed)
 		if r := sd / 10 / tc.rel; r < 0.8 || r > 1.25 {
-			t.Errorf("NPLC %g: rms %.3g of range, METHODS §7 says %.0e", tc.nplc, sd/10, tc.rel)
+			t.Errorf("NPLC %g: rms %.3g of range, typical data-sheet figure %.0e", tc.nplc, sd/10, tc.rel)
 		}
 		if want := 200 * tc.nplc / powerLineHz; math.Abs(elapsed-want) > 1e-6*want {
 			t.Errorf("NPLC %g: 200 readings took %.6f s of bench time, want %.6f", tc.nplc, elapsed, want)
@@ -221,7 +221,7 @@ func TestMeterNoiseVsNPLC(t *testing.T) {
 	}
 }
 
-// TestOverloadAndAutorange: |v| > 1.2 × range reads +9.9E37 (BENCH.md);
+// TestOverloadAndAutorange: |v| > 1.2 × range reads +9.9E37 (instrument/sim/doc.go);
 // MEAS? autoranges. An unpowered part leaves the nulling loop's auxiliary
 // amplifier at its rail (14 V).
 func TestOverloadAndAutorange(t *testing.T) {
@@ -277,8 +277,8 @@ func TestChamberLag(t *testing.T) {
 }
 
 // TestTemperatureDependence: the offset drifts with temperature at the
-// unit's drift (plus the relay path's thermal EMF, ≤ 0.2 µV/°C, METHODS
-// §7), and CMRR falls by its tempco × ΔT.
+// unit's drift (plus the relay path's thermal EMF, ≤ 0.2 µV/°C for Cu–Cu,
+// typical handbook figure), and CMRR falls by its tempco × ΔT.
 func TestTemperatureDependence(t *testing.T) {
 	tb := startBench(t, Config{DUT: identityDUT(t)})
 	tr := truthOf(t, tb.b, "EX")
@@ -384,7 +384,7 @@ func TestRelayTail(t *testing.T) {
 }
 
 // TestCommonModeEdge: within ~1 V of the input common-mode limit Vio
-// departs non-linearly, by hundreds of µV at the limit (METHODS §7).
+// departs non-linearly, by hundreds of µV at the limit (typical data-sheet figures, common practice).
 func TestCommonModeEdge(t *testing.T) {
 	d, err := ParseDUT([]byte("seed = 3\n[[unit]]\nid = \"E\"\ncmrr_db = 110\ncm_edge_uv = 300.0\ncurvature_uv_per_v2 = 0.0\n"), "edge.toml")
 	if err != nil {

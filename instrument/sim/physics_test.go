@@ -14,7 +14,7 @@ import (
 // every run is repeatable for a given seed.
 
 // identityDUT holds:
-//   - EX: the METHODS §8 worked example (kc = +10, kp = +4, ko = +0.01 µV/V,
+//   - EX: the worked example of fit/doc.go (kc = +10, kp = +4, ko = +0.01 µV/V,
 //     kn = −14.01 µV/V), given as three ratios so A_OL is derived;
 //   - LOW: the same kc, kp with A_OL = 110 dB (four ratios given), so the
 //     open-loop-gain term is large enough to see;
@@ -94,20 +94,20 @@ func truthOf(t testing.TB, b *Bench, id string) UnitTruth {
 	return UnitTruth{}
 }
 
-// TestIdentitiesThroughSCPI checks METHODS §8 on the simulated part, by
+// TestIdentitiesThroughSCPI checks the identity kc + kp + kn + ko = 0 (fit/doc.go) on the simulated part, by
 // measurement through the nulling loop:
 //   - kc + kp + kn + ko = 0 (moving every terminal together changes nothing);
 //   - superposition: shifting both rails by s gives (kp + kn)·s;
 //   - shifting both rails with inputs and output at ground differs from
 //     driving the inputs by −s only by the open-loop-gain term −ko·s;
-//   - each measured coefficient equals Truth() (the METHODS §8 worked
+//   - each measured coefficient equals Truth() (the fit/doc.go worked
 //     example numbers for EX).
 func TestIdentitiesThroughSCPI(t *testing.T) {
 	// Tolerances: the part's 1/f noise leaves σ ≈ 0.005 µV/V on each
 	// measured coefficient with this procedure (found over 40 noise seeds:
 	// rms 0.004–0.005, worst 0.013); the checks allow about 5σ, plus 0.1 %
 	// for the programming gain errors of the supply and source (≤ 0.05 %
-	// each, METHODS §7). Sums of n coefficients allow √n times more.
+	// each, typical data-sheet figures, common practice). Sums of n coefficients allow √n times more.
 	for _, tc := range []struct {
 		id  string
 		ch  int
@@ -138,7 +138,7 @@ func TestIdentitiesThroughSCPI(t *testing.T) {
 			t.Logf("%s measured µV/V: kc %.4f kp %.4f kn %.4f ko %.4f shift %.4f (truth kc %.4f kp %.4f kn %.4f ko %.4f)",
 				tc.id, kc, kp, kn, ko, sh, tr.KcUVPerV, tr.KpUVPerV, tr.KnUVPerV, tr.KoUVPerV)
 			// Relative allowance for the source/supply programming gain
-			// errors (≤ 0.05 % each, METHODS §7) on top of the noise.
+			// errors (≤ 0.05 % each, typical data-sheet figures, common practice) on top of the noise.
 			near := func(name string, got, want float64, terms int, scale float64) {
 				t.Helper()
 				if d := math.Abs(got - want); d > tc.tol*math.Sqrt(float64(terms))+1e-3*scale {
@@ -150,7 +150,7 @@ func TestIdentitiesThroughSCPI(t *testing.T) {
 			near("kp", kp, tr.KpUVPerV, 1, math.Abs(kp))
 			near("kn", kn, tr.KnUVPerV, 1, math.Abs(kn))
 			near("ko", ko, tr.KoUVPerV, 1, math.Abs(ko))
-			near("kc+kp+kn+ko (METHODS §8)", kc+kp+kn+ko, 0, 4, sum)
+			near("kc+kp+kn+ko (the identity derived in fit/doc.go)", kc+kp+kn+ko, 0, 4, sum)
 			near("superposition: shift vs kp+kn", sh, kp+kn, 3, math.Abs(kp)+math.Abs(kn))
 			near("shift − drive = −ko", sh-drive, -ko, 3, math.Abs(kc)+math.Abs(ko))
 			near("shift − drive = −ko (truth)", sh-drive, -tr.KoUVPerV, 2, math.Abs(kc))
@@ -158,7 +158,7 @@ func TestIdentitiesThroughSCPI(t *testing.T) {
 	}
 }
 
-// TestWorkedExampleThroughSCPI reproduces the METHODS §8 worked example
+// TestWorkedExampleThroughSCPI reproduces the worked example of fit/doc.go
 // (invented numbers, kc = +10, kp = +4, ko = +0.01 µV/V → CMRR 100.00 dB,
 // PSRR+ 107.96 dB, PSRR− 97.07 dB; the supply-shift method reads 99.99 dB;
 // the symmetric supply change gives 9.005 µV/V) on the simulated EX unit.
@@ -177,17 +177,17 @@ func TestWorkedExampleThroughSCPI(t *testing.T) {
 	t.Logf("supply-shift CMRR %.3f dB, symmetric change %.4f µV/V", shiftDB, sym*1e6)
 	// σ ≈ 0.006 µV/V on the shift slope (0.005 dB); 0.02 dB ≈ 4σ.
 	if math.Abs(shiftDB-99.99) > 0.02 {
-		t.Errorf("supply-shift method reads %.3f dB, METHODS §8 says 99.99 dB", shiftDB)
+		t.Errorf("supply-shift method reads %.3f dB, the fit/doc.go worked example says 99.99 dB", shiftDB)
 	}
 	// Symmetric change: ΔVio = (kp − kn)·Δ/2 = (4 + 14.01)/2 = 9.005 µV/V.
 	if math.Abs(sym*1e6-9.005) > 0.025 {
-		t.Errorf("symmetric supply change %.4f µV/V, METHODS §8 says 9.005", sym*1e6)
+		t.Errorf("symmetric supply change %.4f µV/V, the fit/doc.go worked example says 9.005", sym*1e6)
 	}
 }
 
 // TestNoiseGainFixture: in a noise-gain stage the output moves with the
 // common mode, so driving Vcm measures (kc + ko)/(1 − K·ko), not kc alone
-// (derived from Vout − Vcm = K·Vio(Vout), BENCH.md fixture 2).
+// (derived from Vout − Vcm = K·Vio(Vout), the noise-gain stage of instrument/sim/doc.go).
 func TestNoiseGainFixture(t *testing.T) {
 	tb := startBench(t, Config{DUT: identityDUT(t)})
 	tr := truthOf(t, tb.b, "NG")
@@ -210,7 +210,7 @@ func TestNoiseGainFixture(t *testing.T) {
 
 // boardDUT: an HB-220-like board with worst-case resistor errors, so the
 // textbook numbers apply: G = 10, t = 0.1 % → CMRR_R ≈ (1+G)/(4t) = 2750
-// (68.8 dB) [Sedra & Smith, difference amplifier (K+1)/(4ε); METHODS §2].
+// (68.8 dB) [Sedra & Smith, difference amplifier (K+1)/(4ε)].
 // opampCMRRdB sets its op-amp (kc > 0 adds to the resistor term).
 func boardDUT(t testing.TB, opampCMRRdB float64) *DUTFile {
 	t.Helper()
@@ -258,9 +258,9 @@ func TestBoardCMRR(t *testing.T) {
 		source  string
 	}{
 		// Resistors dominate: (1+G)/(4t) = 2750 → 68.79 dB, first order.
-		{"resistors", 180, 68.79, 0.06, "Sedra & Smith (K+1)/(4ε), METHODS §2"},
+		{"resistors", 180, 68.79, 0.06, "Sedra & Smith (K+1)/(4ε)"},
 		// Op-amp CMRR 100 dB adding: 1/(1/2750 + 1e-5) = 2676 → 68.55 dB.
-		{"combined", 100, 68.55, 0.06, "Franco, 1/CMRR_tot = 1/CMRR_R + 1/CMRR_OA, METHODS §2 (unverified)"},
+		{"combined", 100, 68.55, 0.06, "Franco, 1/CMRR_tot = 1/CMRR_R + 1/CMRR_OA (unverified)"},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			tb := startBench(t, Config{DUT: boardDUT(t, tc.opampDB)})
@@ -276,7 +276,7 @@ func TestBoardCMRR(t *testing.T) {
 				t.Errorf("truth %.3f dB, %s gives %.2f dB", tr.Board.CMRRdB, tc.source, tc.wantDB)
 			}
 			// The differential source's programming gain error is up to
-			// 0.05 % (METHODS §7); Ad is taken from its programmed steps.
+			// 0.05 % (typical data-sheet figures, common practice); Ad is taken from its programmed steps.
 			if math.Abs(ad-tr.Board.GainVPerV) > 1e-3*tr.Board.GainVPerV {
 				t.Errorf("Ad measured %.5f, truth %.5f", ad, tr.Board.GainVPerV)
 			}

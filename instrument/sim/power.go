@@ -10,7 +10,7 @@ import (
 )
 
 // powerDevice is the 2-channel supply or the 3-channel DC source: the same
-// command set (BENCH.md), except that only the supply has a current limit
+// command set (instrument/sim/doc.go), except that only the supply has a current limit
 // command. Channels are selected by INST:NSEL or by a SOURn/OUTPn suffix.
 type powerDevice struct {
 	b        *Bench

@@ -8,7 +8,7 @@ import (
 )
 
 // This file is the instruments' own server-side SCPI parser (SCPI-99 Vol 1
-// §6, IEEE 488.2 §7–8 as restated in METHODS §3). It is deliberately
+// §6, IEEE 488.2 §7–8). It is deliberately
 // independent of the tool's client code so that each checks the other.
 //
 // A program message is one line (LF-terminated, an optional CR stripped).
@@ -33,7 +33,7 @@ func (e *scpiError) Error() string {
 	return fmt.Sprintf("%d,\"%s;%s\"", e.code, e.msg, e.info)
 }
 
-// Standard codes (SCPI-99 Vol 2 §21.8, METHODS §3).
+// Standard codes (SCPI-99 Vol 2 §21.8).
 const (
 	errCommand         = -100
 	errSyntax          = -102
@@ -107,7 +107,7 @@ func cleanInfo(s string) string {
 }
 
 // esrBit returns the Standard Event Status Register bit an error sets
-// (IEEE 488.2; METHODS §3): −1xx CME 32, −2xx EXE 16, −3xx and device DDE 8,
+// (IEEE 488.2): −1xx CME 32, −2xx EXE 16, −3xx and device DDE 8,
 // −4xx QYE 4.
 func esrBit(code int) byte {
 	switch {
@@ -123,7 +123,7 @@ func esrBit(code int) byte {
 }
 
 // errorQueue is the FIFO error queue; on overflow the newest entry becomes
-// −350 Queue overflow (SCPI-99; METHODS §3).
+// −350 Queue overflow (SCPI-99).
 type errorQueue struct {
 	entries []*scpiError
 	limit   int

@@ -10,7 +10,7 @@ import (
 )
 
 // Short forms: SCPI-99 Vol 1 §6 rules and the check values listed in
-// METHODS §3 (MEASure→MEAS, VOLTage→VOLT, …); only exact short or long
+// SCPI-99; IEEE 488.2 (MEASure→MEAS, VOLTage→VOLT, …); only exact short or long
 // forms are valid (VOLTA, MEA → −113).
 func TestShortLongForms(t *testing.T) {
 	cases := []struct {
@@ -109,7 +109,7 @@ func strconvInts(a []int) string {
 }
 
 // TestErrorQueue: FIFO; on overflow the newest entry becomes −350 (SCPI-99
-// Vol 2 §21.8, METHODS §3).
+// Vol 2 §21.8, SCPI-99; IEEE 488.2).
 func TestErrorQueue(t *testing.T) {
 	q := errorQueue{limit: 4}
 	for i := 1; i <= 6; i++ {
@@ -207,7 +207,7 @@ func TestCommandForms(t *testing.T) {
 			{"OUTP3 ON", "", errSuffixRange}, {"OUTP MAYBE", "", errIllegalValue},
 			{"MEAS:VOLT?", nr3, 0}, {"MEAS:CURR?", nr3, 0}, {"MEASure:SCALar:VOLTage:DC?", nr3, 0}, {"MEAS:SCAL:CURR:DC?", nr3, 0},
 			// The SCPI path rule: after INST:NSEL the path is INST, so a
-			// following VOLT needs ";:" (METHODS §3).
+			// following VOLT needs ";:" (SCPI-99; IEEE 488.2).
 			{"INST:NSEL 1;VOLT 5", "", errUndefHeader}, {"INST:NSEL 1;:VOLT 5", "", 0},
 			{"VOLT 1;CURR 0.1", "", 0}, {"*RST", "", 0}, {"VOLT?;CURR?;OUTP?", "+0.00000000E+00;+1.00000000E-01;0", 0},
 		}...),
@@ -265,7 +265,7 @@ func TestCommandForms(t *testing.T) {
 
 // TestStatusAndQueueOverTCP: −1xx sets ESR bit 5 (32), −2xx bit 4 (16); the
 // STB has bit 2 (4) while the queue holds errors; the queue overflows to
-// −350; *RST leaves it, *CLS clears it (IEEE 488.2; SCPI-99; METHODS §3).
+// −350; *RST leaves it, *CLS clears it (IEEE 488.2; SCPI-99).
 func TestStatusAndQueueOverTCP(t *testing.T) {
 	tb := startBench(t, Config{})
 	c := tb.psu

@@ -305,7 +305,7 @@ func TestStartOptions(t *testing.T) {
 	}
 }
 
-// TestBenchSection checks the exact shape of BENCH.md's [bench] section.
+// TestBenchSection checks the exact shape of the [bench] section sim --bench-out writes.
 func TestBenchSection(t *testing.T) {
 	b, err := New(Config{TimeScale: 100})
 	if err != nil {

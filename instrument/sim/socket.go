@@ -22,14 +22,14 @@ import (
 //
 // Contacts. In place of a relay path the socket's contacts add a thermal
 // EMF of the same size and slow wander as a relay path's (Cu–Cu order,
-// METHODS §7), with no settling tail (there is no relay coil).
+// typical data-sheet figures, common practice), with no settling tail (there is no relay coil).
 //
 // Hot swapping. A hand never makes or breaks a part's pins all at once,
 // and in no set order: while some pins touch the socket, the others float,
 // and a floating rail follows the connected pins through the part's input
 // protection, so an input ends up beyond a rail — the absolute maximum
 // rating that forward-biases the ESD diodes, back-powers the chip and can
-// latch it up (METHODS §6, JEDEC JESD78). The model keeps this simple:
+// latch it up (JEDEC JESD78; common practice, JEDEC JESD78). The model keeps this simple:
 // a part inserted into, or pulled out of, a socket with any bus farther
 // from 0 V than the part's input_beyond_rail_volts is damaged for good
 // (honestly reported in Inspect and Truth). A real part may survive some
@@ -37,7 +37,7 @@ import (
 // unit's lines together and is not a hot swap in this sense.
 //
 // Temperature. Every unit, wherever it is, sits in the chamber air (one
-// chamber, BENCH.md); a unit on the bench mat is not modelled apart.
+// chamber, instrument/sim/doc.go); a unit on the bench mat is not modelled apart.
 
 // socketPathKey keys the socket's contact EMF draw (switch channels are
 // 101.. and 201.., so it never collides with a relay path's).

@@ -13,7 +13,7 @@ import (
 // it; Insert and Remove are the person at the bench.
 
 // socketPowerUp sets ±15 V rails with a 50 mA limit and the sources on at
-// 0 V, closing no switch channel (METHODS §6 order: supplies up with the
+// 0 V, closing no switch channel (common practice, JEDEC JESD78 on latch-up; order: supplies up with the
 // inputs at 0 V), and lets the rails settle.
 func (tb *testBench) socketPowerUp(t testing.TB) {
 	t.Helper()
@@ -23,7 +23,7 @@ func (tb *testBench) socketPowerUp(t testing.TB) {
 	tb.wait(time.Second)
 }
 
-// socketPowerDown is the reverse (METHODS §6: inputs first, then the
+// socketPowerDown is the reverse (JEDEC JESD78; common practice: inputs first, then the
 // supplies), ending with every output off and the rails discharged.
 func (tb *testBench) socketPowerDown(t testing.TB) {
 	t.Helper()
@@ -51,7 +51,7 @@ func (tb *testBench) measureKcKp(t testing.TB, k float64) (kc, kp float64) {
 // unit (demo lot U01 and U02) measured both ways on benches of the same
 // seed gives the truth within the tolerance TestIdentitiesThroughSCPI
 // established for a channel (σ ≈ 0.005 µV/V from the part's 1/f noise, plus
-// 0.05 % programming gain of the source and supply, METHODS §7), and the
+// 0.05 % programming gain of the source and supply, typical data-sheet figures, common practice), and the
 // two ways agree with each other. The supply current read over SCPI is
 // the part's quiescent current (2 mA, the demo part) with a unit in the
 // socket and about 0 with the socket empty, which is what the tool's
@@ -134,8 +134,8 @@ func newIdleBench(t testing.TB) *Bench {
 }
 
 // An empty socket with no channel closed is an open meter input (a few µV
-// of offset, BENCH.md "Wiring") and draws no supply current; a swap with
-// the bench powered down in the METHODS §6 order harms nothing.
+// of offset, instrument/sim/doc.go, Hand socket) and draws no supply current; a swap with
+// the bench powered down in that order harms nothing.
 func TestSocketEmptyAndSwaps(t *testing.T) {
 	tb := startBench(t, Config{})
 	tb.socketPowerUp(t)
@@ -158,7 +158,7 @@ func TestSocketEmptyAndSwaps(t *testing.T) {
 		}
 		tb.socketPowerUp(t)
 		tb.wait(10 * time.Second)
-		// Nulling loop, K = 1000: E0 − Vcm = K·Vio (BENCH.md fixture 1).
+		// Nulling loop, K = 1000: E0 − Vcm = K·Vio (the nulling loop of instrument/sim/doc.go).
 		v := tb.meanRead(t, 4)
 		vio := unitSnap(t, tb.b, id).VioUV * 1e-6
 		t.Logf("%s in the socket: meter %.3f mV, K·Vio %.3f mV", id, 1e3*v, 1e3*1000*vio)
@@ -176,7 +176,7 @@ func TestSocketEmptyAndSwaps(t *testing.T) {
 }
 
 // Hot swaps (socket.go: any contact farther from 0 V than the part's
-// input_beyond_rail_volts, 0.3 V for the demo part, METHODS §6) damage the
+// input_beyond_rail_volts, 0.3 V for the demo part, JEDEC JESD78; common practice) damage the
 // unit moved, and only it; the error wraps ErrLiveSocket.
 func TestSocketHotSwap(t *testing.T) {
 	cases := []struct {
@@ -320,7 +320,7 @@ func TestSocketRefusals(t *testing.T) {
 
 // Closing a switch channel while a unit is in the socket parallels the two
 // (the socket is wired onto the buses): the meter reads the mean of the
-// two fixture outputs, as with two closed channels (BENCH.md "Wiring").
+// two fixture outputs, as with two closed channels (instrument/sim/doc.go, Hand socket).
 // Closing the socket unit's own channel connects nothing more: that unit
 // has left its matrix position.
 func TestSocketParallelsAClosedChannel(t *testing.T) {
