@@ -10,7 +10,7 @@ import (
 
 // TestStudentTTable checks StudentTQuantile against the NIST/SEMATECH
 // e-Handbook §1.3.6.7.2 table of Student's t critical values (via the
-// reproduction named in shared/reference/student_t_quantiles.txt), every
+// reproduction named in fit/testdata/reference/student_t_quantiles.txt), every
 // row and column, to the 3 decimals printed.
 func TestStudentTTable(t *testing.T) {
 	tab := loadRef(t, "student_t_quantiles.txt")
@@ -154,7 +154,7 @@ func TestCombineRSS(t *testing.T) {
 
 // TestGUMH3 checks the straight-line calibration of GUM (JCGM 100:2008)
 // Annex H.3 (data and published results via the reproductions named in
-// shared/reference/gum_h3_thermometer_calibration.txt): b(t) = y1 + y2·(t − t0),
+// fit/testdata/reference/gum_h3_thermometer_calibration.txt): b(t) = y1 + y2·(t − t0),
 // t0 = 20 °C. Each value must round to the digits the GUM prints.
 func TestGUMH3(t *testing.T) {
 	tab := loadRef(t, "gum_h3_thermometer_calibration.txt")

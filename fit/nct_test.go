@@ -11,7 +11,7 @@ import (
 // TestToleranceFactorTable checks k against the one-sided normal tolerance
 // factors of Montgomery & Runger, Applied Statistics and Probability for
 // Engineers, 7th ed., Table XII, γ = 0.95 (via the secondary copy named in
-// shared/reference/tolerance_k_onesided_normal.txt), to the 3 decimals the
+// fit/testdata/reference/tolerance_k_onesided_normal.txt), to the 3 decimals the
 // table prints.
 func TestToleranceFactorTable(t *testing.T) {
 	tab := loadRef(t, "tolerance_k_onesided_normal.txt")

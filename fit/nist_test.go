@@ -14,7 +14,7 @@ import (
 	"testing"
 )
 
-// refDir holds copies of ../shared/reference (published reference data;
+// refDir holds copies of (published reference data;
 // each file's header names its source), kept here so a clean clone tests alone.
 const refDir = "testdata/reference"
 
