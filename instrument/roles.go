@@ -68,3 +68,42 @@ type Chamber interface {
 type Identifier interface {
 	Identity() string
 }
+
+// Generator is one output of a function generator used as a sine stimulus
+// (SCPI-99 SOURce subsystem forms: function, frequency, amplitude, offset,
+// output state). Amplitudes are peak volts (half the peak-to-peak value)
+// into the load the profile names; the driver converts to the instrument's
+// own unit.
+type Generator interface {
+	// SetSine selects a sine of frequencyHz with peakVolts amplitude about
+	// offsetVolts. It does not turn the output on.
+	SetSine(ctx context.Context, frequencyHz, peakVolts, offsetVolts float64) error
+	SetOutput(ctx context.Context, on bool) error
+}
+
+// Waveform is one channel's record from a Digitizer: samples in volts taken
+// at a uniform interval of 1/RateHz seconds from the same trigger on every
+// channel of the record.
+type Waveform struct {
+	RateHz float64
+	Volts  []float64
+}
+
+// Digitizer is a sampling instrument with at least two simultaneously
+// sampled channels (an oscilloscope or a data-acquisition digitizer).
+type Digitizer interface {
+	// Configure sets the sample rate, the number of samples per record and
+	// each channel's full-scale range in volts (peak). The instrument may
+	// round the rate; Capture reports the rate it used.
+	Configure(ctx context.Context, rateHz float64, samples int, rangeVolts []float64) error
+	// Capture triggers one record and returns one waveform per configured
+	// channel, in channel order.
+	Capture(ctx context.Context) ([]Waveform, error)
+}
+
+// ACVoltmeter reads the RMS magnitude of an AC voltage (no phase): the
+// lower-grade alternative to a Digitizer for frequency response.
+type ACVoltmeter interface {
+	ConfigureACVolts(ctx context.Context, rangeVolts, frequencyHz float64) error
+	ReadRMS(ctx context.Context) (float64, error)
+}
