@@ -42,6 +42,8 @@ type ProfileFigures struct {
 	NoiseRelOfRange []float64 // same length as NoiseNPLC
 	FloorRelOfRange float64
 	AirTauSeconds   float64
+	// AC holds the frequency-response figures (figures_ac.go).
+	AC ACFigures
 }
 
 // Defaults of ProfileFigures (see its doc comment for their basis).
@@ -90,8 +92,10 @@ func (pr *problems) figures(d *figuresDoc) ProfileFigures {
 		AirTauSeconds:   DefaultAirTauSeconds,
 	}
 	if d == nil {
+		f.AC = pr.acFigures(nil)
 		return f
 	}
+	f.AC = pr.acFigures(&d.acFiguresDoc)
 	num := func(key string, v *float64, dst *float64, positive bool) {
 		if v == nil {
 			return

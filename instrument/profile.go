@@ -55,6 +55,9 @@ type Profile struct {
 	Switch      *SwitchCommands
 	Chamber     *ChamberCommands
 	Thermometer *ThermometerCommands
+	Generator   *GeneratorCommands // [generator], profile_freq.go
+	Digitizer   *DigitizerCommands // [digitizer]
+	ACMeter     *ACMeterCommands   // [ac_meter]
 
 	// Figures are the optional [figures] table: timing and noise figures
 	// for predictions before a run (check, size). They drive nothing.
@@ -223,6 +226,9 @@ type profileDoc struct {
 	Switch      *switchDoc      `toml:"switch"`
 	Chamber     *chamberDoc     `toml:"chamber"`
 	Thermometer *thermometerDoc `toml:"thermometer"`
+	Generator   *generatorDoc   `toml:"generator"`
+	Digitizer   *digitizerDoc   `toml:"digitizer"`
+	ACMeter     *acMeterDoc     `toml:"ac_meter"`
 	Figures     *figuresDoc     `toml:"figures"`
 }
 
@@ -235,6 +241,7 @@ type figuresDoc struct {
 	NoiseRelOfRange []float64 `toml:"noise_rel_of_range"`
 	FloorRelOfRange *float64  `toml:"floor_rel_of_range"`
 	AirTauSeconds   *float64  `toml:"air_tau_s"`
+	acFiguresDoc
 }
 
 type meterDoc struct {
@@ -393,6 +400,7 @@ func ParseProfile(data []byte, file string) (*Profile, error) {
 			p.Thermometer.AccuracyCelsius = *d.AccuracyCelsius
 		}
 	}
+	pr.parseFreqTables(p, &doc)
 	p.Figures = pr.figures(doc.Figures)
 	p.validate(pr)
 	if err := pr.err(); err != nil {
@@ -582,9 +590,11 @@ func (p *Profile) validate(pr *problems) {
 			pr.add("idn_pattern", "not a Go regular expression: %v", err)
 		}
 	}
-	if p.Meter == nil && p.Supply == nil && p.Source == nil && p.Switch == nil && p.Chamber == nil && p.Thermometer == nil {
-		pr.add("", "no role table: give at least one of [meter], [supply], [source], [switch], [chamber], [thermometer]")
+	if p.Meter == nil && p.Supply == nil && p.Source == nil && p.Switch == nil && p.Chamber == nil && p.Thermometer == nil &&
+		p.Generator == nil && p.Digitizer == nil && p.ACMeter == nil {
+		pr.add("", "no role table: give at least one of [meter], [supply], [source], [switch], [chamber], [thermometer], [generator], [digitizer], [ac_meter]")
 	}
+	p.validateFreqTables(pr)
 	if m := p.Meter; m != nil {
 		checkTemplates(pr, "meter", "", nil, []tplSpec{
 			{key: "configure", value: &m.Configure, allowed: []string{PhRange, PhNPLC, PhUnit}, must: []string{PhRange}},
@@ -757,7 +767,8 @@ func (p *Profile) Roles() []string {
 		name string
 		ok   bool
 	}{{"meter", p.Meter != nil}, {"supply", p.Supply != nil}, {"source", p.Source != nil},
-		{"switch", p.Switch != nil}, {"chamber", p.Chamber != nil}, {"thermometer", p.Thermometer != nil}} {
+		{"switch", p.Switch != nil}, {"chamber", p.Chamber != nil}, {"thermometer", p.Thermometer != nil},
+		{"generator", p.Generator != nil}, {"digitizer", p.Digitizer != nil}, {"ac_meter", p.ACMeter != nil}} {
 		if x.ok {
 			r = append(r, x.name)
 		}

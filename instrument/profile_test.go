@@ -13,16 +13,19 @@ import (
 
 // benchIdentities are the *IDN? answers of the simulated bench (instrument/sim/doc.go).
 var benchIdentities = map[string]string{
-	"dmm":     "NULLBENCH-SIM,DMM-65,SIM0001,1.0",
-	"supply2": "NULLBENCH-SIM,PSU-2CH,SIM0002,1.0",
-	"source3": "NULLBENCH-SIM,SRC-3CH,SIM0003,1.0",
-	"switch":  "NULLBENCH-SIM,MUX-40,SIM0004,1.0",
-	"chamber": "NULLBENCH-SIM,CHAMBER-1,SIM0005,1.0",
+	"dmm":       "NULLBENCH-SIM,DMM-65,SIM0001,1.0",
+	"supply2":   "NULLBENCH-SIM,PSU-2CH,SIM0002,1.0",
+	"source3":   "NULLBENCH-SIM,SRC-3CH,SIM0003,1.0",
+	"switch":    "NULLBENCH-SIM,MUX-40,SIM0004,1.0",
+	"chamber":   "NULLBENCH-SIM,CHAMBER-1,SIM0005,1.0",
+	"generator": "NULLBENCH-SIM,GEN-3CH,SIM0006,1.0",
+	"digitizer": "NULLBENCH-SIM,DIG-2CH,SIM0007,1.0",
+	"acvm":      "NULLBENCH-SIM,ACV-2,SIM0008,1.0",
 }
 
 func TestBuiltinProfiles(t *testing.T) {
 	names := instrument.BuiltinProfileNames()
-	if strings.Join(names, ",") != "chamber,dmm,source3,supply2,switch" { // the built-in profile files
+	if strings.Join(names, ",") != "acvm,chamber,digitizer,dmm,generator,source3,supply2,switch" { // the built-in profile files
 		t.Fatalf("built-in profiles = %v", names)
 	}
 	all, err := instrument.BuiltinProfiles()
@@ -86,7 +89,7 @@ func TestResolveProfile(t *testing.T) {
 		t.Fatalf("ResolveProfile(switch) = %v, %v", p, err)
 	}
 	_, err = instrument.ResolveProfile("dmm7")
-	if err == nil || !strings.Contains(err.Error(), "chamber, dmm, source3, supply2, switch") {
+	if err == nil || !strings.Contains(err.Error(), "acvm, chamber, digitizer, dmm, generator, source3, supply2, switch") {
 		t.Errorf("unknown name: %v (should list the built-in names)", err)
 	}
 	dir := t.TempDir()

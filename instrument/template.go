@@ -14,17 +14,21 @@ import (
 //	{unit}    the SI unit of {value} as an SCPI suffix: V, A or CEL
 //	{range}   the meter range in volts
 //	{nplc}    the integration time in power-line cycles
-//	{count}   readings per trigger
+//	{count}   readings per trigger (samples per record for a digitizer)
+//	{rate}    a digitizer's sample rate in Hz
+//	{interval} a digitizer's sample interval in seconds
 const (
-	PhChannel = "channel"
-	PhValue   = "value"
-	PhUnit    = "unit"
-	PhRange   = "range"
-	PhNPLC    = "nplc"
-	PhCount   = "count"
+	PhChannel  = "channel"
+	PhValue    = "value"
+	PhUnit     = "unit"
+	PhRange    = "range"
+	PhNPLC     = "nplc"
+	PhCount    = "count"
+	PhRate     = "rate"
+	PhInterval = "interval"
 )
 
-var knownPlaceholders = []string{PhChannel, PhValue, PhUnit, PhRange, PhNPLC, PhCount}
+var knownPlaceholders = []string{PhChannel, PhValue, PhUnit, PhRange, PhNPLC, PhCount, PhRate, PhInterval}
 
 // segment is a literal or a placeholder of a template.
 type segment struct {

@@ -18,7 +18,7 @@ import (
 // simInstrumentNames are the instruments of the simulated bench, any of
 // which --serial may put on a pseudo-terminal.
 func simInstrumentNames() []string {
-	return []string{sim.NameDMM, sim.NameSupply, sim.NameSource, sim.NameSwitch, sim.NameChamber}
+	return []string{sim.NameDMM, sim.NameSupply, sim.NameSource, sim.NameSwitch, sim.NameChamber, sim.NameGen, sim.NameDig, sim.NameACVM}
 }
 
 type simOptions struct {
@@ -71,7 +71,7 @@ the bench powered down.`,
 	f := cmd.Flags()
 	f.IntVar(&o.Port, "port", 0, "TCP port of the first instrument (the others follow); 0 picks free ports")
 	f.StringVar(&o.Listen, "listen", "127.0.0.1", "address to bind (loopback by default)")
-	f.StringVar(&o.Serial, "serial", "", `serve this instrument on a pseudo-terminal instead of TCP ("dmm", "psu", "src", "mux" or "chamber")`)
+	f.StringVar(&o.Serial, "serial", "", `serve this instrument on a pseudo-terminal instead of TCP ("dmm", "psu", "src", "mux", "chamber", "gen", "dig" or "acvm")`)
 	f.StringVar(&o.BenchOut, "bench-out", "", "write the matching [bench] section of a plan to this file")
 	f.StringVar(&o.DUTFile, "dut", "", "DUT file (TOML) with the true values of the simulated parts; default: the built-in demo lot")
 	f.BoolVar(&o.Truth, "truth", false, "print each unit's true values as JSON lines and exit")

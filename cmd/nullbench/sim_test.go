@@ -71,6 +71,9 @@ var cliBenchInstruments = []cliEndpoint{
 	{"src", "source", "", "source3", "NULLBENCH-SIM,SRC-3CH,SIM0003,1.0"},
 	{"mux", "switch", "", "switch", "NULLBENCH-SIM,MUX-40,SIM0004,1.0"},
 	{"chamber", "chamber", "", "chamber", "NULLBENCH-SIM,CHAMBER-1,SIM0005,1.0"},
+	{"gen", "generator", "", "generator", "NULLBENCH-SIM,GEN-3CH,SIM0006,1.0"},
+	{"dig", "digitizer", "", "digitizer", "NULLBENCH-SIM,DIG-2CH,SIM0007,1.0"},
+	{"acvm", "ac_meter", "", "acvm", "NULLBENCH-SIM,ACV-2,SIM0008,1.0"},
 }
 
 // cliCheckEndpoints compares what sim printed with cliBenchInstruments;

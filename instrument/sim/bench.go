@@ -22,6 +22,9 @@ const (
 	NameSource  = "src"
 	NameSwitch  = "mux"
 	NameChamber = "chamber"
+	NameGen     = "gen"
+	NameDig     = "dig"
+	NameACVM    = "acvm"
 )
 
 // Identities answered to *IDN? (invented identities of the simulated bench).
@@ -31,6 +34,9 @@ const (
 	IDNSource  = "NULLBENCH-SIM,SRC-3CH,SIM0003,1.0"
 	IDNSwitch  = "NULLBENCH-SIM,MUX-40,SIM0004,1.0"
 	IDNChamber = "NULLBENCH-SIM,CHAMBER-1,SIM0005,1.0"
+	IDNGen     = "NULLBENCH-SIM,GEN-3CH,SIM0006,1.0"
+	IDNDig     = "NULLBENCH-SIM,DIG-2CH,SIM0007,1.0"
+	IDNACVM    = "NULLBENCH-SIM,ACV-2,SIM0008,1.0"
 )
 
 // Config configures a simulated bench.
@@ -54,6 +60,10 @@ type Config struct {
 	// supply-shift step move the span by (g1 − g2)·L: a systematic error
 	// the read-backs must reveal. The read-back errors stay as drawn.
 	SupplyGainErrors []float64
+	// DigitizerMismatch adds a gain and phase to the digitizer's channel 2
+	// relative to channel 1 (beyond its drawn errors), e.g. {1, 5} for
+	// 1 dB and 5°: what a through calibration must remove.
+	DigitizerMismatch DigitizerMismatch
 }
 
 // ServeOptions says where the instruments listen.
@@ -61,23 +71,24 @@ type ServeOptions struct {
 	// ListenHost is the address to bind; "" means 127.0.0.1 (loopback only).
 	ListenHost string
 	// FirstPort is the DMM's TCP port; the others follow in the order dmm,
-	// psu, src, mux, chamber. 0 means ephemeral ports.
+	// psu, src, mux, chamber, gen, dig, acvm. 0 means ephemeral ports.
 	FirstPort int
-	// SerialInstrument names one instrument ("dmm", "psu", "src", "mux" or
-	// "chamber") to serve on a pseudo-terminal instead of TCP; "" for none.
+	// SerialInstrument names one instrument ("dmm", "psu", "src", "mux",
+	// "chamber", "gen", "dig" or "acvm") to serve on a pseudo-terminal
+	// instead of TCP; "" for none.
 	SerialInstrument string
 }
 
 // Endpoint is one served instrument.
 type Endpoint struct {
 	Name    string // "dmm"
-	Role    string // "meter", "supply", "source", "switch", "chamber"
+	Role    string // "meter", "supply", "source", "switch", "chamber", "generator", "digitizer", "ac_meter"
 	Address string // "tcp://127.0.0.1:40001" or "serial:///dev/pts/N?baud=115200"
-	Profile string // built-in profile name: dmm, supply2, source3, switch, chamber
+	Profile string // built-in profile name: dmm, supply2, source3, switch, chamber, generator, digitizer, acvm
 	IDN     string
 }
 
-// Bench is the simulated bench: five SCPI instruments around a physical
+// Bench is the simulated bench: eight SCPI instruments around a physical
 // model of the parts. Create it with New, serve it with Start, stop it with
 // Close. Truth and Inspect are for tests and the `sim --truth` printout;
 // Insert, Remove, Socket and SocketState are the hands of the person at the
@@ -158,6 +169,11 @@ func New(cfg Config) (*Bench, error) {
 	}
 	copy(m.supply[:], sup)
 	copy(m.source[:], src)
+	genRng := rngFor(7)
+	for i := range m.gen {
+		m.gen[i] = newGenChannel(genRng)
+	}
+	m.inj = newInjectionPaths(rngFor(8))
 	m.openOffsetVolts = (2 + 3*m.openRng.Float64()) * 1e-6
 	m.openPink = newPinkFromSigma(200e-9)
 	part := dut.Part
@@ -189,6 +205,9 @@ func New(cfg Config) (*Bench, error) {
 		newInstrument(NameSource, "source", "source3", IDNSource, srcDev).withSystem(),
 		newInstrument(NameSwitch, "switch", "switch", IDNSwitch, &switchDevice{b: b}).withSystem(),
 		newInstrument(NameChamber, "chamber", "chamber", IDNChamber, &chamberDevice{b: b}).withSystem(),
+		newInstrument(NameGen, "generator", "generator", IDNGen, &genDevice{b: b}).withSystem(),
+		newInstrument(NameDig, "digitizer", "digitizer", IDNDig, newDigitizer(b, rngFor(9), cfg.DigitizerMismatch)).withSystem(),
+		newInstrument(NameACVM, "ac_meter", "acvm", IDNACVM, newACVM(b, rngFor(10))).withSystem(),
 	}
 	b.byName = map[string]*instrument{}
 	for _, in := range b.insts {
@@ -234,7 +253,7 @@ func (b *Bench) Start(ctx context.Context, opt ServeOptions) error {
 	}
 	if opt.SerialInstrument != "" {
 		if _, ok := b.byName[opt.SerialInstrument]; !ok {
-			return fmt.Errorf("sim: serial instrument %q is not on the bench (want one of dmm, psu, src, mux, chamber)", opt.SerialInstrument)
+			return fmt.Errorf("sim: serial instrument %q is not on the bench (want one of dmm, psu, src, mux, chamber, gen, dig, acvm)", opt.SerialInstrument)
 		}
 	}
 	if opt.FirstPort < 0 || opt.FirstPort > 65535-len(b.insts) {
@@ -423,25 +442,31 @@ type UnitTruth struct {
 	NoiseGain float64 `json:"noise_gain,omitempty"` // nominal K
 	// NoiseGainActual is the fixture's actual K (nominal unless the lot
 	// has a noise_gain_tolerance).
-	NoiseGainActual float64     `json:"noise_gain_actual,omitempty"`
-	CMRRdB          float64     `json:"cmrr_db"`
-	PSRRPosdB       float64     `json:"psrr_pos_db"`
-	PSRRNegdB       float64     `json:"psrr_neg_db"`
-	AOLdB           float64     `json:"aol_db"`
-	AOLDerived      bool        `json:"aol_derived"`
-	KcUVPerV        float64     `json:"kc_uv_per_v"`
-	KpUVPerV        float64     `json:"kp_uv_per_v"`
-	KnUVPerV        float64     `json:"kn_uv_per_v"`
-	KoUVPerV        float64     `json:"ko_uv_per_v"`
-	Signs           string      `json:"signs"` // signs of kc, kp, kn, ko, e.g. "+-++"
-	VosUV           float64     `json:"vos_uv"`
-	DriftUVPerC     float64     `json:"drift_uv_per_c"`
-	CMRRTCdBPerC    float64     `json:"cmrr_tc_db_per_c"`
-	PSRRTCdBPerC    float64     `json:"psrr_tc_db_per_c"`
-	AOLTCdBPerC     float64     `json:"aol_tc_db_per_c"`
-	Board           *BoardTruth `json:"board,omitempty"`
-	Notes           []string    `json:"notes,omitempty"`
-	Damage          string      `json:"damage,omitempty"`
+	NoiseGainActual float64 `json:"noise_gain_actual,omitempty"`
+	CMRRdB          float64 `json:"cmrr_db"`
+	PSRRPosdB       float64 `json:"psrr_pos_db"`
+	PSRRNegdB       float64 `json:"psrr_neg_db"`
+	AOLdB           float64 `json:"aol_db"`
+	AOLDerived      bool    `json:"aol_derived"`
+	KcUVPerV        float64 `json:"kc_uv_per_v"`
+	KpUVPerV        float64 `json:"kp_uv_per_v"`
+	KnUVPerV        float64 `json:"kn_uv_per_v"`
+	KoUVPerV        float64 `json:"ko_uv_per_v"`
+	Signs           string  `json:"signs"` // signs of kc, kp, kn, ko, e.g. "+-++"
+	VosUV           float64 `json:"vos_uv"`
+	DriftUVPerC     float64 `json:"drift_uv_per_c"`
+	CMRRTCdBPerC    float64 `json:"cmrr_tc_db_per_c"`
+	PSRRTCdBPerC    float64 `json:"psrr_tc_db_per_c"`
+	AOLTCdBPerC     float64 `json:"aol_tc_db_per_c"`
+	// Frequency dependence (DUT-file keys; 0 or absent: none): the ratio's
+	// single pole and the part's gain-bandwidth (instrument/sim/ac.go).
+	CMRRPoleHz    float64     `json:"cmrr_pole_hz,omitempty"`
+	PSRRPosPoleHz float64     `json:"psrr_pos_pole_hz,omitempty"`
+	PSRRNegPoleHz float64     `json:"psrr_neg_pole_hz,omitempty"`
+	GBWHz         float64     `json:"gbw_hz,omitempty"`
+	Board         *BoardTruth `json:"board,omitempty"`
+	Notes         []string    `json:"notes,omitempty"`
+	Damage        string      `json:"damage,omitempty"`
 }
 
 // BoardTruth is a board's own behaviour at 25 °C, nominal rails:
@@ -477,6 +502,7 @@ func ampTruth(t *UnitTruth, a OpAmpSpec) {
 	t.VosUV, t.DriftUVPerC = a.VosUV, a.DriftUVPerC
 	t.CMRRTCdBPerC, t.PSRRTCdBPerC, t.AOLTCdBPerC = a.CMRRTCdBPerC, a.PSRRTCdBPerC, a.AOLTCdBPerC
 	t.Notes = append([]string(nil), a.Notes...)
+	t.CMRRPoleHz, t.PSRRPosPoleHz, t.PSRRNegPoleHz, t.GBWHz = a.CMRRPoleHz, a.PSRRPosPoleHz, a.PSRRNegPoleHz, a.GBWHz
 }
 
 // Truth returns the true values of every unit, op-amps first.

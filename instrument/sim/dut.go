@@ -65,6 +65,7 @@ type PartSpec struct {
 	ThetaCPerWatt         float64 // die-to-case thermal resistance (default 100 °C/W)
 	DieTauSeconds         float64 // die thermal time constant (default 2 s)
 	CaseTauSeconds        float64 // case-to-chamber-air time constant (default 90 s)
+	GBWHz                 float64 // gain-bandwidth of the type, for units that give none (0: none)
 }
 
 // OpAmpSpec is one op-amp's DC error model. The ratios are magnitudes in dB
@@ -88,6 +89,19 @@ type OpAmpSpec struct {
 	OutEdgeUV        float64 // Vio departure at the output swing limits
 	NoiseNVPerRtHz   float64 // white input noise density
 	FlickerCornerHz  float64 // 1/f corner
+
+	// Frequency dependence (optional keys cmrr_pole_hz, psrr_pos_pole_hz,
+	// psrr_neg_pole_hz, gbw_hz; 0 = none). Above its pole a coefficient
+	// rises 20 dB per decade, k(f) = k_dc·(1 + j·f/f_p), so
+	// |k(f)| = |k_dc|·√(1 + (f/f_p)²) and the ratio in dB falls by
+	// 10·log10(1 + (f/f_p)²) (a single pole of the ratio; Sedra & Smith,
+	// Microelectronic Circuits, single-time-constant networks). GBWHz is
+	// the part's gain-bandwidth product: a fixture of noise gain K has the
+	// closed-loop response 1/(1 + j·f·K/GBW) (ibid., frequency response of
+	// the non-inverting amplifier). The output term ko keeps its DC value
+	// (the open-loop gain's own roll-off is not modelled).
+	CMRRPoleHz, PSRRPosPoleHz, PSRRNegPoleHz float64
+	GBWHz                                    float64
 }
 
 // UnitSpec is one op-amp of the lot and where it sits.
@@ -140,6 +154,7 @@ type rawPart struct {
 	ThetaCPerWatt         *float64 `toml:"theta_c_per_w"`
 	DieTauSeconds         *float64 `toml:"die_tau_s"`
 	CaseTauSeconds        *float64 `toml:"case_tau_s"`
+	GBWHz                 *float64 `toml:"gbw_hz"`
 }
 
 type rawLot struct {
@@ -178,6 +193,10 @@ type rawAmp struct {
 	OutEdgeUV        *float64 `toml:"out_edge_uv"`
 	NoiseNVPerRtHz   *float64 `toml:"noise_nv_per_rthz"`
 	FlickerCornerHz  *float64 `toml:"flicker_corner_hz"`
+	CMRRPoleHz       *float64 `toml:"cmrr_pole_hz"`
+	PSRRPosPoleHz    *float64 `toml:"psrr_pos_pole_hz"`
+	PSRRNegPoleHz    *float64 `toml:"psrr_neg_pole_hz"`
+	GBWHz            *float64 `toml:"gbw_hz"`
 }
 
 type rawUnit struct {
@@ -320,8 +339,9 @@ func (kl *keyLocator) line(key string) int {
 }
 
 type resolver struct {
-	name string
-	loc  *keyLocator
+	name    string
+	loc     *keyLocator
+	partGBW float64 // [part] gbw_hz, the default of each op-amp's
 }
 
 // errAt formats a value error with file, line and key.
@@ -360,7 +380,12 @@ func (r *resolver) resolve(raw *rawDUT) (*DUTFile, error) {
 		ThetaCPerWatt:         pick(p.ThetaCPerWatt, 100),
 		DieTauSeconds:         pick(p.DieTauSeconds, 2),
 		CaseTauSeconds:        pick(p.CaseTauSeconds, 90),
+		GBWHz:                 pick(p.GBWHz, 0),
 	}
+	if g := d.Part.GBWHz; !(g >= 0 && g <= 1e10) {
+		return nil, r.errAt("part.gbw_hz", "%g Hz is outside 0..1e10 Hz", g)
+	}
+	r.partGBW = d.Part.GBWHz
 	if d.Part.Number == "" {
 		d.Part.Number = "HX-4107"
 	}
@@ -630,6 +655,10 @@ func (r *resolver) opamp(key string, ra *rawAmp, lot *rawLot, rng *rand.Rand, de
 	a.OutEdgeUV = pick(ra.OutEdgeUV, signed(20, 60))
 	a.NoiseNVPerRtHz = pick(ra.NoiseNVPerRtHz, 10)
 	a.FlickerCornerHz = pick(ra.FlickerCornerHz, 3)
+	a.CMRRPoleHz = pick(ra.CMRRPoleHz, 0)
+	a.PSRRPosPoleHz = pick(ra.PSRRPosPoleHz, 0)
+	a.PSRRNegPoleHz = pick(ra.PSRRNegPoleHz, 0)
+	a.GBWHz = pick(ra.GBWHz, r.partGBW)
 	for _, c := range []struct {
 		k      string
 		v      float64
@@ -641,6 +670,8 @@ func (r *resolver) opamp(key string, ra *rawAmp, lot *rawLot, rng *rand.Rand, de
 		{"aol_tc_db_per_c", a.AOLTCdBPerC, -1, 1}, {"curvature_uv_per_v2", a.CurvatureUVPerV2, -10, 10},
 		{"cm_edge_uv", a.CMEdgeUV, -1e4, 1e4}, {"out_edge_uv", a.OutEdgeUV, -1e4, 1e4},
 		{"noise_nv_per_rthz", a.NoiseNVPerRtHz, 0, 1000}, {"flicker_corner_hz", a.FlickerCornerHz, 0, 1000},
+		{"cmrr_pole_hz", a.CMRRPoleHz, 0, 1e9}, {"psrr_pos_pole_hz", a.PSRRPosPoleHz, 0, 1e9},
+		{"psrr_neg_pole_hz", a.PSRRNegPoleHz, 0, 1e9}, {"gbw_hz", a.GBWHz, 0, 1e10},
 	} {
 		if !(c.v >= c.lo && c.v <= c.hi) {
 			return a, r.errAt(key+"."+c.k, "%g is outside %g..%g", c.v, c.lo, c.hi)

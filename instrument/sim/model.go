@@ -123,6 +123,8 @@ type model struct {
 
 	supply [2]*outputChannel // ch1 → V+, ch2 → V− (floating, + on ground)
 	source [3]*outputChannel // ch1 → Vcm, ch2 → Vd, ch3 → loop reference
+	gen    [3]*genChannel    // function generator outputs (ac.go)
+	inj    injectionPaths    // from the generator's outputs to their nodes
 
 	chamber chamberModel
 
@@ -226,7 +228,7 @@ func (m *model) supplyTargets(conn []*unit) (tp, tn float64, ccP, ccN bool) {
 // nodes returns the node voltages the units see.
 func (m *model) nodes() (vp, vn, vcm, vd, vref float64) {
 	vp, vn = m.rails()
-	return vp, vn, m.source[0].volts, m.source[1].volts, m.source[2].volts
+	return vp, vn, m.source[0].volts + m.genCMOffset(), m.source[1].volts, m.source[2].volts
 }
 
 // electricalMoving reports whether any output is still far from its target.
@@ -321,19 +323,22 @@ func (m *model) checkDamage(conn []*unit) {
 		return
 	}
 	vp, vn, vcm, vd, vref := m.nodes()
+	// The generator's sine peaks count: the rails at their widest and the
+	// input at its farthest (ac.go).
+	cmPk, vpPk, vnPk := m.acPeaks()
 	for _, u := range conn {
 		o := u.amp
 		if o.damaged {
 			continue
 		}
 		p := o.part
-		if span := vp - vn; span > p.MaxSupplySpanVolts {
-			o.markDamaged(m.t, "supply span %.3f V (V+ %.3f V, V− %.3f V) exceeded the absolute maximum %.3g V", span, vp, vn, p.MaxSupplySpanVolts)
+		if span := vp + vpPk - (vn - vnPk); span > p.MaxSupplySpanVolts {
+			o.markDamaged(m.t, "supply span %.3f V (V+ %.3f V, V− %.3f V, ripple peaks %.3g V and %.3g V) exceeded the absolute maximum %.3g V", span, vp, vn, vpPk, vnPk, p.MaxSupplySpanVolts)
 			continue
 		}
 		_, pins := u.meterAndPins(vp, vn, vcm, vd, vref, 0)
 		lim := p.InputBeyondRailVolts
-		if pins.vin > vp+lim || pins.vin < vn-lim {
+		if pins.vin+cmPk > vp-vpPk+lim || pins.vin-cmPk < vn+vnPk-lim {
 			state := "powered"
 			if !o.operating(vp, vn) {
 				state = "unpowered"

@@ -254,7 +254,7 @@ func (p *powerDevice) commands() []command {
 type switchDevice struct{ b *Bench }
 
 func validSwitchChannel(ch int) bool {
-	return (ch >= opampBankFirst && ch <= opampBankLast) || (ch >= boardBankFirst && ch <= boardBankLast)
+	return (ch >= opampBankFirst && ch <= opampBankLast) || (ch >= boardBankFirst && ch <= boardBankLast) || ch == ThroughChannel
 }
 
 func switchList(p string) ([]int, error) {
@@ -264,7 +264,7 @@ func switchList(p string) ([]int, error) {
 	}
 	for _, ch := range chs {
 		if !validSwitchChannel(ch) {
-			return nil, newErr(errOutOfRange, fmt.Sprintf("channel %d (banks %d..%d and %d..%d)", ch, opampBankFirst, opampBankLast, boardBankFirst, boardBankLast))
+			return nil, newErr(errOutOfRange, fmt.Sprintf("channel %d (banks %d..%d and %d..%d, through relay %d)", ch, opampBankFirst, opampBankLast, boardBankFirst, boardBankLast, ThroughChannel))
 		}
 	}
 	return chs, nil

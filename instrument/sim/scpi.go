@@ -401,7 +401,9 @@ var unitMultipliers = map[string]float64{
 	"V": 1, "MV": 1e-3, "UV": 1e-6, "KV": 1e3,
 	"A": 1, "MA": 1e-3, "UA": 1e-6,
 	"CEL": 1, "C": 1,
-	"S": 1, "MS": 1e-3,
+	"S": 1, "MS": 1e-3, "US": 1e-6, "NS": 1e-9,
+	// MHZ is megahertz, an exception to M = milli (IEEE 488.2 §7.7.3.5).
+	"HZ": 1, "KHZ": 1e3, "MHZ": 1e6,
 }
 
 // parseDecimal parses decimal numeric program data (NR1, NR2, NR3) with an

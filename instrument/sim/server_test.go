@@ -273,7 +273,7 @@ func TestStartOptions(t *testing.T) {
 		}
 		p := ln.Addr().(*net.TCPAddr).Port
 		_ = ln.Close()
-		if p+5 < 65535 {
+		if p+8 < 65535 {
 			first = p
 		}
 	}
@@ -292,6 +292,10 @@ func TestStartOptions(t *testing.T) {
 	want := []struct{ name, role, profile, idn string }{
 		{"dmm", "meter", "dmm", IDNDMM}, {"psu", "supply", "supply2", IDNSupply}, {"src", "source", "source3", IDNSource},
 		{"mux", "switch", "switch", IDNSwitch}, {"chamber", "chamber", "chamber", IDNChamber},
+		{"gen", "generator", "generator", IDNGen}, {"dig", "digitizer", "digitizer", IDNDig}, {"acvm", "ac_meter", "acvm", IDNACVM},
+	}
+	if n := len(b.Endpoints()); n != len(want) {
+		t.Fatalf("%d endpoints, want %d", n, len(want))
 	}
 	for i, ep := range b.Endpoints() {
 		w := want[i]
