@@ -6,6 +6,7 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"strconv"
 	"sync"
 	"time"
 )
@@ -187,7 +188,9 @@ func (d *DigitizerDriver) Configure(ctx context.Context, rateHz float64, samples
 	}
 	actual := got
 	if c.RateReply == "interval" {
-		actual = 1 / got
+		// The reply carries a dozen digits at most: 1/1E-05 is 1E5, not
+		// 99999.99999999999.
+		actual, _ = strconv.ParseFloat(strconv.FormatFloat(1/got, 'g', 12, 64), 64)
 	}
 	if !finite(actual) || actual <= 0 || actual > rateHz*RateReadbackFactor || actual < rateHz/RateReadbackFactor {
 		return d.errorf("%q answered %v (%s): a rate of %v Hz for %v Hz asked: %w", c.ReadRate, got, c.RateReply, actual, rateHz, ErrImplausible)

@@ -386,3 +386,31 @@ func (m *model) acSense(fs float64) acChannels {
 	a.fixtureOutput = a.ph[1]
 	return a
 }
+
+// ACSnapshot is a test-only view of the sensing lines' true AC signals
+// (before the digitizer's or voltmeter's own errors). Never reachable over
+// SCPI.
+type ACSnapshot struct {
+	Output      int        // generator output on (1..3), 0 for none
+	FrequencyHz float64    // its true frequency
+	Sense       complex128 // stimulus-sense line phasor, peak volts (digitizer ch1)
+	Fixture     complex128 // fixture output phasor (ch2 without the through relay)
+	Channel2    complex128 // what ch2 sees (Sense when the through relay is closed)
+	SenseDC     float64
+	FixtureDC   float64
+}
+
+// ACInspect returns the sensing lines' true AC signals now.
+func (b *Bench) ACInspect() ACSnapshot {
+	b.mu.Lock()
+	defer b.mu.Unlock()
+	b.m.advance(b.benchSeconds())
+	a := b.m.acSense(DigitizerClockHz)
+	s := ACSnapshot{Output: a.activeOutput + 1, FrequencyHz: a.f, Sense: a.ph[0], Channel2: a.ph[1],
+		SenseDC: a.dc[0], FixtureDC: a.dc[1]}
+	s.Fixture = a.fixtureOutput
+	if !b.m.closed[ThroughChannel] {
+		s.Fixture = a.ph[1]
+	}
+	return s
+}
