@@ -108,6 +108,7 @@ type testBench struct {
 	b                           *Bench
 	clock                       *ManualClock
 	dmm, psu, src, mux, chamber *client
+	gen, dig, acvm              *client
 }
 
 func startBench(t testing.TB, cfg Config) *testBench {
@@ -140,6 +141,12 @@ func startBench(t testing.TB, cfg Config) *testBench {
 			tb.mux = c
 		case NameChamber:
 			tb.chamber = c
+		case NameGen:
+			tb.gen = c
+		case NameDig:
+			tb.dig = c
+		case NameACVM:
+			tb.acvm = c
 		}
 	}
 	return tb
