@@ -363,27 +363,26 @@ func (m *model) acSense(fs float64) acChannels {
 		a.dc[0], a.ph[0], a.noise[0] = vcm, dcm, m.inj.cmRms
 	}
 	// Channel 2: the fixture output, or the sense line through the relay.
-	if m.closed[ThroughChannel] {
-		a.dc[1], a.ph[1], a.noise[1] = a.dc[0], a.ph[0], a.noise[0]
-		return a
-	}
 	conn := m.connected()
 	if len(conn) == 0 {
 		a.dc[1], a.noise[1] = m.openOffsetVolts, openNoiseVolts
-		return a
+	} else {
+		a.dc[1] = m.meterDeterministic()
+		var out complex128
+		var nv float64
+		for _, u := range conn {
+			out += u.acOutput(f, dcm, dp, dn, u.amp.operating(vp, vn))
+			n := u.acNoiseVolts(fs)
+			nv += n * n
+		}
+		k := float64(len(conn))
+		a.ph[1] = out / complex(k, 0)
+		a.noise[1] = math.Sqrt(nv) / k
 	}
-	a.dc[1] = m.meterDeterministic()
-	var out complex128
-	var nv float64
-	for _, u := range conn {
-		out += u.acOutput(f, dcm, dp, dn, u.amp.operating(vp, vn))
-		n := u.acNoiseVolts(fs)
-		nv += n * n
-	}
-	k := float64(len(conn))
-	a.ph[1] = out / complex(k, 0)
-	a.noise[1] = math.Sqrt(nv) / k
 	a.fixtureOutput = a.ph[1]
+	if m.closed[ThroughChannel] {
+		a.dc[1], a.ph[1], a.noise[1] = a.dc[0], a.ph[0], a.noise[0]
+	}
 	return a
 }
 
@@ -397,7 +396,7 @@ type ACSnapshot struct {
 	Fixture     complex128 // fixture output phasor (ch2 without the through relay)
 	Channel2    complex128 // what ch2 sees (Sense when the through relay is closed)
 	SenseDC     float64
-	FixtureDC   float64
+	FixtureDC   float64 // what ch2 sees at DC (the sense line's while the through relay is closed)
 }
 
 // ACInspect returns the sensing lines' true AC signals now.
@@ -406,11 +405,6 @@ func (b *Bench) ACInspect() ACSnapshot {
 	defer b.mu.Unlock()
 	b.m.advance(b.benchSeconds())
 	a := b.m.acSense(DigitizerClockHz)
-	s := ACSnapshot{Output: a.activeOutput + 1, FrequencyHz: a.f, Sense: a.ph[0], Channel2: a.ph[1],
-		SenseDC: a.dc[0], FixtureDC: a.dc[1]}
-	s.Fixture = a.fixtureOutput
-	if !b.m.closed[ThroughChannel] {
-		s.Fixture = a.ph[1]
-	}
-	return s
+	return ACSnapshot{Output: a.activeOutput + 1, FrequencyHz: a.f, Sense: a.ph[0], Fixture: a.fixtureOutput,
+		Channel2: a.ph[1], SenseDC: a.dc[0], FixtureDC: a.dc[1]}
 }
