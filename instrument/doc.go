@@ -24,13 +24,21 @@
 //     Source, Switch, Chamber, Thermometer) from a Session and a Profile.
 //     A negative supply rail wired floating is programmed as a magnitude
 //     and read back with its sign; meter overloads come back as ±Inf with
-//     an error wrapping ErrOverload.
+//     an error wrapping ErrOverload. For frequency response
+//     (driver_generator.go, driver_digitizer.go, driver_acvm.go): a
+//     generator output's sine (SCPI-99 SOURce forms, peak volts converted
+//     to the profile's VPP or VPK), a digitizer's records as ASCII or
+//     IEEE 488.2 definite-length blocks of int16 codes or real32 volts in
+//     either byte order (waveform.go), its sample rate read back and
+//     checked, clipped samples flagged (ErrClipped), and an AC voltmeter.
 //
 // Open (open.go) does the usual sequence for the application: parse the
 // address, resolve the profile, dial, identify, check the identity against
 // the profile, read stale errors. Probe (probe.go) reports what is at an
 // address. Only the application opens and closes instruments; procedures
-// receive roles. This package imports nothing of procedure, fit or report.
+// receive roles. This package imports nothing of procedure, fit or report
+// (its external tests use the simulated bench and fit's IEEE 1057 sine fit
+// to check captures end to end).
 //
 // Package instrumenttest plays back scripted SCPI exchanges as a Conn so
 // that driver tests read like a bench log.
@@ -45,7 +53,9 @@
 //     are still to be checked against the standard.
 //   - SCPI-99 (SCPI Consortium, 1999): command forms of Vol 2 (CONFigure,
 //     READ?, [SENSe:]VOLTage:DC:NPLCycles, SAMPle:COUNt, INSTrument:NSELect,
-//     [SOURce:]VOLTage, OUTPut, MEASure, ROUTe:CLOSe/OPEN, TEMPerature);
+//     [SOURce:]VOLTage, OUTPut, MEASure, ROUTe:CLOSe/OPEN, TEMPerature;
+//     SOURce:FUNCtion, :FREQuency, :VOLTage:UNIT, :VOLTage:OFFSet,
+//     SENSe:SWEep:POINts, :TINTerval, FORMat:DATA, FORMat:BORDer, TRACe:DATA?);
 //     the error queue reply <code>,"<text>[;<info>]" and the standard
 //     error numbers of Vol 2 §21.8 (StandardErrors); the special values
 //     9.9E37 (+INF, overload), -9.9E37 (-INF) and 9.91E37 (NaN).
