@@ -44,6 +44,11 @@ noise_nv_per_rthz = 10.0
 
 func startFreqBench(t *testing.T, cfg sim.Config) *freqBench {
 	t.Helper()
+	return startFreqBenchOn(t, cfg, sim.ServeOptions{})
+}
+
+func startFreqBenchOn(t *testing.T, cfg sim.Config, serve sim.ServeOptions) *freqBench {
+	t.Helper()
 	if cfg.DUT == nil {
 		dut, err := sim.ParseDUT([]byte(freqDUT), "freq.toml")
 		if err != nil {
@@ -57,7 +62,7 @@ func startFreqBench(t *testing.T, cfg sim.Config) *freqBench {
 		t.Fatal(err)
 	}
 	ctx := context.Background()
-	if err := b.Start(ctx, sim.ServeOptions{}); err != nil {
+	if err := b.Start(ctx, serve); err != nil {
 		t.Fatal(err)
 	}
 	t.Cleanup(func() { _ = b.Close() })
