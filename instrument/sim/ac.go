@@ -1,6 +1,7 @@
 package sim
 
 import (
+	"fmt"
 	"math"
 	"math/cmplx"
 	"math/rand/v2"
@@ -407,4 +408,42 @@ func (b *Bench) ACInspect() ACSnapshot {
 	a := b.m.acSense(DigitizerClockHz)
 	return ACSnapshot{Output: a.activeOutput + 1, FrequencyHz: a.f, Sense: a.ph[0], Fixture: a.fixtureOutput,
 		Channel2: a.ph[1], SenseDC: a.dc[0], FixtureDC: a.dc[1]}
+}
+
+// ACResponse is a unit's true small-signal response at one frequency, at
+// 25 °C, undamaged (for tests and people, like Truth): the fixture
+// output's phasor per volt (peak) of common mode at the part's node, of
+// ripple on V+ and on V− (what digitizer channel 2 sees per volt on
+// channel 1, before the digitizer's own errors), the fixture's closed-loop
+// response H(f), and the op-amp's coefficients kc(f), kp(f), kn(f) (its
+// input-referred part: ratio_dB(f) = −20·log10|k(f)|).
+type ACResponse struct {
+	FrequencyHz    float64
+	PerCM          complex128
+	PerPos, PerNeg complex128
+	H              complex128
+	Kc, Kp, Kn     complex128
+}
+
+// ACResponseOf returns the ACResponse of unit id at f Hz.
+func (b *Bench) ACResponseOf(id string, f float64) (ACResponse, error) {
+	b.mu.Lock()
+	defer b.mu.Unlock()
+	for _, u := range b.m.units {
+		if u.id != id {
+			continue
+		}
+		amp := *u.amp
+		amp.damaged, amp.caseC = false, 25
+		cu := *u
+		cu.amp = &amp
+		r := ACResponse{FrequencyHz: f}
+		r.PerCM = cu.acOutput(f, 1, 0, 0, true)
+		r.PerPos = cu.acOutput(f, 0, 1, 0, true)
+		r.PerNeg = cu.acOutput(f, 0, 0, 1, true)
+		r.H = closedLoop(f, cu.k, amp.spec.GBWHz) // a board's k is 1 + R2/R1
+		r.Kc, r.Kp, r.Kn, _ = amp.acCoefficients(f)
+		return r, nil
+	}
+	return ACResponse{}, fmt.Errorf("sim: no unit %q on the bench", id)
 }

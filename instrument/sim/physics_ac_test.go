@@ -294,3 +294,38 @@ func TestInjectorCoupling(t *testing.T) {
 		t.Errorf("couplings %v: every injector the same, not drawn within the tolerance", seen)
 	}
 }
+
+// TestACResponseOfMatchesClosedForm: the truth helper gives the closed
+// form of the keys (|k(f)| = |k_dc|·√(1 + (f/f_p)²)) and, for the nulling
+// loop, PerCM = K·H·kc.
+func TestACResponseOfMatchesClosedForm(t *testing.T) {
+	dut, err := ParseDUT([]byte(acDUT), "ac.toml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	b, err := New(Config{DUT: dut, Clock: NewManualClock()})
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, f := range []float64{10, 1e3, 1e5} {
+		r, err := b.ACResponseOf("A1", f)
+		if err != nil {
+			t.Fatal(err)
+		}
+		for _, c := range []struct {
+			k      complex128
+			db, fp float64
+		}{{r.Kc, 100, 1000}, {r.Kp, 106, 300}, {r.Kn, 98, 5000}} {
+			want := c.db - 10*math.Log10(1+(f/c.fp)*(f/c.fp))
+			if got := -20 * math.Log10(cmplx.Abs(c.k)); math.Abs(got-want) > 1e-9 {
+				t.Errorf("%g Hz: %.6f dB, closed form %.6f dB", f, got, want)
+			}
+		}
+		if d := cmplx.Abs(r.PerCM - 1000*r.H*r.Kc); d > 1e-12 {
+			t.Errorf("%g Hz: PerCM %v, K·H·kc %v", f, r.PerCM, 1000*r.H*r.Kc)
+		}
+	}
+	if _, err := b.ACResponseOf("nope", 1); err == nil {
+		t.Error("unknown unit accepted")
+	}
+}
