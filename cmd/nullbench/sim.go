@@ -6,8 +6,10 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
+	"math"
 	"os"
 	"slices"
+	"strconv"
 	"strings"
 
 	"github.com/spf13/cobra"
@@ -31,16 +33,20 @@ type simOptions struct {
 	TimeScale float64
 	Seed      int64
 	Socket    bool // read the person's hand-socket lines on standard input
+	// DigMismatch is "DB,DEG", an extra gain and phase of the digitizer's
+	// channel 2; "" for none.
+	DigMismatch string
 }
 
 func newSimCmd(std streams, run func(context.Context, streams, simOptions) error) *cobra.Command {
 	var o simOptions
 	cmd := &cobra.Command{
 		Use:   "sim",
-		Short: "Serve a simulated bench (meter, supply, source, switch matrix, chamber) on loopback",
+		Short: "Serve a simulated bench (meter, supply, source, switch matrix, chamber, generator, digitizer, AC voltmeter) on loopback",
 		Long: `sim serves a whole simulated bench until interrupted: a DMM, a two-channel
-supply, a three-channel DC source, a relay matrix and a temperature chamber,
-each a SCPI instrument on its own TCP port, around a physical model of the
+supply, a three-channel DC source, a relay matrix, a temperature chamber, a
+three-output function generator, a two-channel digitizer and an AC
+voltmeter, each a SCPI instrument on its own TCP port, around a physical model of the
 parts under test (an op-amp lot in a nulling loop and a finished board).
 It prints one line per instrument with its role and address.
 
@@ -78,6 +84,7 @@ the bench powered down.`,
 	f.Float64Var(&o.TimeScale, "time-scale", 1, "run the bench this many times faster than real time (plans must say the same time_scale)")
 	f.Int64Var(&o.Seed, "seed", 0, "seed of the instruments' errors and noise (0: the DUT file's seed)")
 	f.BoolVar(&o.Socket, "socket", false, `add a hand socket for units swapped by hand, worked by typing "insert ID", "remove" or "status" on standard input`)
+	f.StringVar(&o.DigMismatch, "digitizer-mismatch", "", "DB,DEG: add this gain and phase to the digitizer's channel 2 (what a through calibration removes), e.g. 1,5")
 	_ = cmd.RegisterFlagCompletionFunc("serial", cobra.FixedCompletions(simInstrumentNames(), cobra.ShellCompDirectiveNoFileComp))
 	return cmd
 }
@@ -101,13 +108,17 @@ func runSim(ctx context.Context, std streams, o simOptions) error {
 	if o.TimeScale <= 0 {
 		return withCode(exitUsage, fmt.Errorf("--time-scale must be positive, not %g", o.TimeScale))
 	}
-	if o.Port < 0 || o.Port > 65535-4 {
-		return withCode(exitUsage, fmt.Errorf("--port %d: give 0 for free ports, or the first of five consecutive ports (1 … 65531)", o.Port))
+	if n := len(simInstrumentNames()); o.Port < 0 || o.Port > 65536-n {
+		return withCode(exitUsage, fmt.Errorf("--port %d: give 0 for free ports, or the first of %d consecutive ports (1 … %d)", o.Port, n, 65536-n))
+	}
+	mis, err := parseMismatch(o.DigMismatch)
+	if err != nil {
+		return withCode(exitUsage, err)
 	}
 	if o.Serial != "" && !slices.Contains(simInstrumentNames(), o.Serial) {
 		return withCode(exitUsage, fmt.Errorf("--serial %q: name one of the bench's instruments: %s", o.Serial, strings.Join(simInstrumentNames(), ", ")))
 	}
-	bench, err := sim.New(sim.Config{DUT: dut, TimeScale: o.TimeScale, Seed: o.Seed})
+	bench, err := sim.New(sim.Config{DUT: dut, TimeScale: o.TimeScale, Seed: o.Seed, DigitizerMismatch: mis})
 	if err != nil {
 		return withCode(exitUsage, err)
 	}
@@ -236,4 +247,18 @@ func socketLine(b socketHands, line string) string {
 		return `socket: type "insert ID" (put unit ID in the socket), "remove" (take it out) or "status"`
 	}
 	return fmt.Sprintf(`socket: %q not understood; type "insert ID", "remove", "status" or "help"`, strings.TrimSpace(line))
+}
+
+// parseMismatch reads --digitizer-mismatch "DB,DEG" ("" is none).
+func parseMismatch(s string) (sim.DigitizerMismatch, error) {
+	if s == "" {
+		return sim.DigitizerMismatch{}, nil
+	}
+	db, deg, ok := strings.Cut(s, ",")
+	g, err1 := strconv.ParseFloat(strings.TrimSpace(db), 64)
+	p, err2 := strconv.ParseFloat(strings.TrimSpace(deg), 64)
+	if !ok || err1 != nil || err2 != nil || !(math.Abs(g) <= 20) || !(math.Abs(p) <= 180) {
+		return sim.DigitizerMismatch{}, fmt.Errorf("--digitizer-mismatch %q: give DB,DEG within ±20 dB and ±180°, e.g. 1,5", s)
+	}
+	return sim.DigitizerMismatch{GainDB: g, PhaseDeg: p}, nil
 }

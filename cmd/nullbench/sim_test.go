@@ -10,6 +10,7 @@ import (
 	"testing"
 	"time"
 
+	"nullbench/instrument/sim"
 	"nullbench/procedure/plan"
 )
 
@@ -276,4 +277,23 @@ func TestSimTruth(t *testing.T) {
 	if b, ok := lines[3]["board"].(map[string]any); !ok || b["cmrr_db"] == nil {
 		t.Errorf("the board's line has no board object with its own cmrr_db: %v", lines[3])
 	}
+}
+
+// "sim --digitizer-mismatch DB,DEG" reaches the bench's digitizer; a
+// malformed value is a usage error.
+func TestSimDigitizerMismatchFlag(t *testing.T) {
+	for _, c := range []struct {
+		in   string
+		want sim.DigitizerMismatch
+		ok   bool
+	}{{"", sim.DigitizerMismatch{}, true}, {"1,5", sim.DigitizerMismatch{GainDB: 1, PhaseDeg: 5}, true},
+		{"-0.5, 12", sim.DigitizerMismatch{GainDB: -0.5, PhaseDeg: 12}, true},
+		{"1", sim.DigitizerMismatch{}, false}, {"1,x", sim.DigitizerMismatch{}, false}, {"30,0", sim.DigitizerMismatch{}, false}, {"NaN,1", sim.DigitizerMismatch{}, false}} {
+		got, err := parseMismatch(c.in)
+		if (err == nil) != c.ok || got != c.want {
+			t.Errorf("%q: %+v, %v", c.in, got, err)
+		}
+	}
+	r := cliExec(t, "sim", "--digitizer-mismatch", "1", "--truth")
+	cliWantCode(t, r, exitUsage, "sim --digitizer-mismatch 1")
 }
