@@ -199,8 +199,11 @@ func (d *DigitizerDriver) Configure(ctx context.Context, rateHz float64, samples
 		if !(ranges[i] > 0) {
 			return d.errorf("channel %s: range read back %v V: %w", c.Channels[i], ranges[i], ErrImplausible)
 		}
-		if d.kind == WaveInt16 && (scale[i] == 0 || math.Abs(scale[i])*32768 > 10*ranges[i]) {
-			return d.errorf("channel %s: %v V per code for a %v V range: %w", c.Channels[i], scale[i], ranges[i], ErrImplausible)
+		// int16 codes must span at least half the range (else the range
+		// cannot be transferred) and not absurdly more (a converter of
+		// fewer bits sends its codes scaled up, common practice).
+		if full := math.Abs(scale[i]) * 32768; d.kind == WaveInt16 && !(full >= 0.5*ranges[i] && full <= 1e3*ranges[i]) {
+			return d.errorf("channel %s: %v V per code (full scale %v V) for a %v V range: %w", c.Channels[i], scale[i], full, ranges[i], ErrImplausible)
 		}
 	}
 	d.mu.Lock()
@@ -263,10 +266,11 @@ func (d *DigitizerDriver) Capture(ctx context.Context) ([]Waveform, error) {
 				if err != nil {
 					return &OpError{Instrument: d.s.Name(), Command: fetch[i], Err: err}
 				}
+				// At the int16 extremes, or at the range in volts (a
+				// converter of fewer bits clips below the int16 extremes).
+				nClip = clippedVolts(v, ranges[i])
 				if d.kind == WaveInt16 {
-					nClip = clippedInt16(data, d.order)
-				} else {
-					nClip = clippedVolts(v, ranges[i])
+					nClip = max(nClip, clippedInt16(data, d.order))
 				}
 			}
 			if len(v) != samples {
