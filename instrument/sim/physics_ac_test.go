@@ -329,3 +329,46 @@ func TestACResponseOfMatchesClosedForm(t *testing.T) {
 		t.Error("unknown unit accepted")
 	}
 }
+
+// TestACBoardLowFrequencyMatchesDC: far below every pole the board's small-
+// signal response equals its DC truth (BoardTruth, found by central
+// differences through the nonlinear DC solver of part.go): the common-mode
+// gain and both supply gains, two routes to the same physics.
+func TestACBoardLowFrequencyMatchesDC(t *testing.T) {
+	b, err := New(Config{Clock: NewManualClock()}) // the demo lot and its board B01
+	if err != nil {
+		t.Fatal(err)
+	}
+	var bt *BoardTruth
+	for _, u := range b.Truth() {
+		if u.ID == "B01" {
+			bt = u.Board
+		}
+	}
+	if bt == nil {
+		t.Fatal("no board B01 in the demo lot")
+	}
+	r, err := b.ACResponseOf("B01", 1e-3)
+	if err != nil {
+		t.Fatal(err)
+	}
+	rel := func(got, want float64) float64 { return math.Abs(got/want - 1) }
+	if d := rel(real(r.PerCM), bt.AcmVPerV); d > 1e-6 {
+		t.Errorf("CM gain %.6g at 1 mHz, DC truth %.6g", real(r.PerCM), bt.AcmVPerV)
+	}
+	dp := bt.GainVPerV * math.Pow(10, -bt.PSRRPosdB/20)
+	dn := bt.GainVPerV * math.Pow(10, -bt.PSRRNegdB/20)
+	if d := rel(cmplx.Abs(r.PerPos), dp); d > 1e-6 {
+		t.Errorf("V+ gain %.6g at 1 mHz, DC truth %.6g", cmplx.Abs(r.PerPos), dp)
+	}
+	if d := rel(cmplx.Abs(r.PerNeg), dn); d > 1e-6 {
+		t.Errorf("V− gain %.6g at 1 mHz, DC truth %.6g", cmplx.Abs(r.PerNeg), dn)
+	}
+	// At 60 Hz the board's CMRR (its differential gain over its
+	// common-mode gain) is still the resistors' within 0.1 dB: the op-amp's
+	// 2 kHz CMRR pole and 1 MHz GBW hardly act there.
+	r60, _ := b.ACResponseOf("B01", 60)
+	if d := 20 * math.Log10(cmplx.Abs(r60.PerCM)/math.Abs(bt.AcmVPerV)); math.Abs(d) > 0.1 {
+		t.Errorf("board CM gain at 60 Hz %.3f dB from DC", d)
+	}
+}
