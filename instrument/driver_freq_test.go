@@ -17,7 +17,7 @@ import (
 
 // digitizerProfile is the built-in digitizer profile with the transfer
 // format, byte order and the command selecting them replaced.
-func digitizerProfile(t *testing.T, data, order, format string) *instrument.Profile {
+func digitizerProfile(t testing.TB, data, order, format string) *instrument.Profile {
 	t.Helper()
 	src, err := os.ReadFile("profiles/digitizer.toml")
 	if err != nil {

@@ -42,12 +42,12 @@ gbw_hz = 10e6
 noise_nv_per_rthz = 10.0
 `
 
-func startFreqBench(t *testing.T, cfg sim.Config) *freqBench {
+func startFreqBench(t testing.TB, cfg sim.Config) *freqBench {
 	t.Helper()
 	return startFreqBenchOn(t, cfg, sim.ServeOptions{})
 }
 
-func startFreqBenchOn(t *testing.T, cfg sim.Config, serve sim.ServeOptions) *freqBench {
+func startFreqBenchOn(t testing.TB, cfg sim.Config, serve sim.ServeOptions) *freqBench {
 	t.Helper()
 	if cfg.DUT == nil {
 		dut, err := sim.ParseDUT([]byte(freqDUT), "freq.toml")
