@@ -297,3 +297,39 @@ func TestSimDigitizerMismatchFlag(t *testing.T) {
 	r := cliExec(t, "sim", "--digitizer-mismatch", "1", "--truth")
 	cliWantCode(t, r, exitUsage, "sim --digitizer-mismatch 1")
 }
+
+// sim --truth carries the DUT file's frequency keys as written (and leaves
+// them out for a part without them).
+func TestSimTruthFrequencyKeys(t *testing.T) {
+	dut := cliWriteFile(t, t.TempDir(), "dut.toml", `
+[part]
+gbw_hz = 2e6
+[[unit]]
+id = "F1"
+cmrr_db = 100.0
+psrr_pos_db = 104.0
+psrr_neg_db = 98.0
+cmrr_pole_hz = 800.0
+psrr_pos_pole_hz = 50.0
+psrr_neg_pole_hz = 3000.0
+[[unit]]
+id = "F2"
+cmrr_db = 100.0
+psrr_pos_db = 104.0
+psrr_neg_db = 98.0
+`)
+	r := cliExec(t, "sim", "--dut", dut, "--truth")
+	cliWantCode(t, r, exitOK, "sim --truth")
+	lines := cliJSONLines(t, r.out)
+	if len(lines) != 2 {
+		t.Fatalf("%d lines:\n%s", len(lines), r.out)
+	}
+	for k, v := range map[string]float64{"cmrr_pole_hz": 800, "psrr_pos_pole_hz": 50, "psrr_neg_pole_hz": 3000, "gbw_hz": 2e6} {
+		if lines[0][k] != v {
+			t.Errorf("F1 %s = %v, want %v", k, lines[0][k], v)
+		}
+	}
+	if _, ok := lines[1]["cmrr_pole_hz"]; ok || lines[1]["gbw_hz"] != 2e6 {
+		t.Errorf("F2: %v (no pole given; the part's gain-bandwidth)", lines[1])
+	}
+}
