@@ -358,3 +358,60 @@ func TestACVoltmeterReadsRMS(t *testing.T) {
 }
 
 func containsStr(s, sub string) bool { return strings.Contains(s, sub) }
+
+// TestRecordScatterMatchesFitUncertainty: over repeated records the scatter
+// of the fixture output's fitted amplitude and phase is what the IEEE 1057
+// fit's own standard uncertainties say (within 25 %), so the simulated
+// noise is white as the fit assumes and a budget built on those
+// uncertainties neither over- nor under-covers from the bench's noise.
+func TestRecordScatterMatchesFitUncertainty(t *testing.T) {
+	fb := startFreqBench(t, sim.Config{})
+	fb.powerUp(t)
+	ctx := context.Background()
+	g := fb.gen["1"]
+	const f = 1e3
+	if err := g.SetSine(ctx, f, 1.0, 0); err != nil {
+		t.Fatal(err)
+	}
+	if err := g.SetOutput(ctx, true); err != nil {
+		t.Fatal(err)
+	}
+	const n = 120
+	var amps, phs, uA, uP []float64
+	for range n {
+		fs := fb.captureFit(t, f, 4000, []float64{2, 0.2})
+		amps = append(amps, fs[1].AmplitudeV)
+		phs = append(phs, math.Remainder(fs[1].PhaseRad-fs[0].PhaseRad, 2*math.Pi))
+		uA = append(uA, fs[1].UAmplitudeV)
+		uP = append(uP, math.Hypot(fs[1].UPhaseRad, fs[0].UPhaseRad))
+	}
+	sd := func(v []float64) float64 {
+		var m, s float64
+		for _, x := range v {
+			m += x
+		}
+		m /= float64(len(v))
+		for _, x := range v {
+			s += (x - m) * (x - m)
+		}
+		return math.Sqrt(s / float64(len(v)-1))
+	}
+	mean := func(v []float64) float64 {
+		var m float64
+		for _, x := range v {
+			m += x
+		}
+		return m / float64(len(v))
+	}
+	// With 120 records the sample SD is within ±13 % of the true one at
+	// about 2 standard errors (SE of an SD ≈ σ/√(2(n−1)), a textbook
+	// normal-theory result); 25 % leaves room for that and the fit's own
+	// estimate of σ.
+	if r := sd(amps) / mean(uA); r < 0.75 || r > 1.25 {
+		t.Errorf("amplitude scatter %.3g V, fit u %.3g V: ratio %.2f", sd(amps), mean(uA), r)
+	}
+	if r := sd(phs) / mean(uP); r < 0.75 || r > 1.25 {
+		t.Errorf("phase scatter %.3g rad, fit u %.3g rad: ratio %.2f", sd(phs), mean(uP), r)
+	}
+	t.Logf("amplitude %.5g V: sd %.3g, u %.3g; phase sd %.3g rad, u %.3g", mean(amps), sd(amps), mean(uA), sd(phs), mean(uP))
+}
