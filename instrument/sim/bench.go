@@ -54,6 +54,10 @@ type Config struct {
 	// supply-shift step move the span by (g1 − g2)·L: a systematic error
 	// the read-backs must reveal. The read-back errors stay as drawn.
 	SupplyGainErrors []float64
+	// Dialects names variants of the instruments' command sets (Dialects;
+	// `nullbench sim --dialect`): at most one per instrument. Empty: each
+	// instrument speaks its own dialect and has its own built-in profile.
+	Dialects []string
 }
 
 // ServeOptions says where the instruments listen.
@@ -193,6 +197,9 @@ func New(cfg Config) (*Bench, error) {
 	b.byName = map[string]*instrument{}
 	for _, in := range b.insts {
 		b.byName[in.name] = in
+	}
+	if err := applyDialects(b, cfg.Dialects); err != nil {
+		return nil, err
 	}
 	return b, nil
 }
