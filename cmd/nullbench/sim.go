@@ -36,6 +36,7 @@ type simOptions struct {
 	// DigMismatch is "DB,DEG", an extra gain and phase of the digitizer's
 	// channel 2; "" for none.
 	DigMismatch string
+	Dialects    []string
 }
 
 func newSimCmd(std streams, run func(context.Context, streams, simOptions) error) *cobra.Command {
@@ -68,7 +69,12 @@ the next unit, type "remove" and "insert ID" here, then confirm there. A
 unit in the socket is measured whenever no switch channel is closed. As on
 a real bench, a part inserted or removed while the socket is live (a supply
 on, or an input driven) is damaged for good; the run only ever asks with
-the bench powered down.`,
+the bench powered down.
+
+--dialect NAME[,NAME...] makes instruments speak another common dialect,
+each with its own identity and built-in profile (the printed profile= and
+--bench-out follow it):
+` + dialectHelp(),
 		Args: cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, args []string) error {
 			return failed(run(cmd.Context(), std, o))
@@ -85,8 +91,19 @@ the bench powered down.`,
 	f.Int64Var(&o.Seed, "seed", 0, "seed of the instruments' errors and noise (0: the DUT file's seed)")
 	f.BoolVar(&o.Socket, "socket", false, `add a hand socket for units swapped by hand, worked by typing "insert ID", "remove" or "status" on standard input`)
 	f.StringVar(&o.DigMismatch, "digitizer-mismatch", "", "DB,DEG: add this gain and phase to the digitizer's channel 2 (what a through calibration removes), e.g. 1,5")
+	f.StringSliceVar(&o.Dialects, "dialect", nil, "make instruments speak these dialects (comma-separated, at most one per instrument; listed below)")
+	_ = cmd.RegisterFlagCompletionFunc("dialect", cobra.FixedCompletions(sim.DialectNames(), cobra.ShellCompDirectiveNoFileComp))
 	_ = cmd.RegisterFlagCompletionFunc("serial", cobra.FixedCompletions(simInstrumentNames(), cobra.ShellCompDirectiveNoFileComp))
 	return cmd
+}
+
+// dialectHelp lists the simulated bench's dialects, one per line.
+func dialectHelp() string {
+	var sb strings.Builder
+	for _, d := range sim.Dialects() {
+		fmt.Fprintf(&sb, "\n  %-15s %-8s %s", d.Name, d.Instrument, d.Doc)
+	}
+	return sb.String()
 }
 
 func loadDUT(path string) (*sim.DUTFile, error) {
@@ -118,7 +135,7 @@ func runSim(ctx context.Context, std streams, o simOptions) error {
 	if o.Serial != "" && !slices.Contains(simInstrumentNames(), o.Serial) {
 		return withCode(exitUsage, fmt.Errorf("--serial %q: name one of the bench's instruments: %s", o.Serial, strings.Join(simInstrumentNames(), ", ")))
 	}
-	bench, err := sim.New(sim.Config{DUT: dut, TimeScale: o.TimeScale, Seed: o.Seed, DigitizerMismatch: mis})
+	bench, err := sim.New(sim.Config{DUT: dut, TimeScale: o.TimeScale, Seed: o.Seed, DigitizerMismatch: mis, Dialects: o.Dialects})
 	if err != nil {
 		return withCode(exitUsage, err)
 	}

@@ -6,6 +6,7 @@ import (
 	"math"
 	"os"
 	"path/filepath"
+	"reflect"
 	"regexp"
 	"strings"
 	"testing"
@@ -21,7 +22,7 @@ import (
 func TestSimSocketFlag(t *testing.T) {
 	got, code, errs := cliParse(t, "sim", "--socket", "--time-scale", "50")
 	want := simOptions{Listen: "127.0.0.1", TimeScale: 50, Socket: true}
-	if code != exitOK || got != want {
+	if code != exitOK || !reflect.DeepEqual(got, want) {
 		t.Errorf("sim --socket: %+v (exit %d, %s), want %+v", got, code, errs, want)
 	}
 	r := cliExec(t, "sim", "--help")

@@ -64,6 +64,10 @@ type Config struct {
 	// relative to channel 1 (beyond its drawn errors), e.g. {1, 5} for
 	// 1 dB and 5°: what a through calibration must remove.
 	DigitizerMismatch DigitizerMismatch
+	// Dialects names variants of the instruments' command sets (Dialects;
+	// `nullbench sim --dialect`): at most one per instrument. Empty: each
+	// instrument speaks its own dialect and has its own built-in profile.
+	Dialects []string
 }
 
 // ServeOptions says where the instruments listen.
@@ -212,6 +216,9 @@ func New(cfg Config) (*Bench, error) {
 	b.byName = map[string]*instrument{}
 	for _, in := range b.insts {
 		b.byName[in.name] = in
+	}
+	if err := applyDialects(b, cfg.Dialects); err != nil {
+		return nil, err
 	}
 	return b, nil
 }

@@ -50,6 +50,10 @@ type dmm struct {
 	pending  *measurement
 	readings []float64
 	hasData  bool
+	format   dmmFormat // buffer format (dialect dmm_buffer)
+	armed    bool      // INIT waiting for *TRG (dialect dmm_trigfetch)
+
+	dialect dmmDialect // set before serving; the zero value is the DMM's own dialect
 }
 
 type measurement struct {
@@ -87,6 +91,7 @@ func (d *dmm) reset() {
 	d.autoIdx = 1
 	d.readings, d.hasData = nil, false
 	d.mm.Unlock()
+	d.resetDialect()
 }
 
 func (d *dmm) settings() dmmSettings {
@@ -278,7 +283,7 @@ func (d *dmm) commands() []command {
 		d.mm.Unlock()
 		return formatReadings(vs), nil
 	}
-	return []command{
+	return d.withDialect([]command{
 		{pattern: "CONFigure[:VOLTage][:DC]", maxParams: 2, fn: conf},
 		{pattern: "CONFigure", query: true, fn: func(*call) (string, error) {
 			r := dmmRanges[d.rangeIdx]
@@ -369,35 +374,8 @@ func (d *dmm) commands() []command {
 			d.mm.Unlock()
 			return formatReadings(vs), nil
 		}},
-		{pattern: "INITiate[:IMMediate]", fn: func(c *call) (string, error) {
-			d.mm.Lock()
-			defer d.mm.Unlock()
-			if d.pending != nil {
-				select {
-				case <-d.pending.done:
-				default:
-					return "", newErr(errInitIgnored, "measurement in progress")
-				}
-			}
-			ctx, cancel := context.WithCancel(d.b.runContext())
-			p := &measurement{done: make(chan struct{}), cancel: cancel}
-			d.pending = p
-			d.readings, d.hasData = nil, false
-			s := d.settings()
-			d.b.wg.Add(1)
-			go func() {
-				defer d.b.wg.Done()
-				defer cancel()
-				vs, err := d.measure(ctx, s, s.count)
-				d.mm.Lock()
-				p.readings, p.err = vs, err
-				if d.pending == p && err == nil {
-					d.readings, d.hasData = vs, true
-				}
-				d.mm.Unlock()
-				close(p.done)
-			}()
-			return "", nil
+		{pattern: "INITiate[:IMMediate]", fn: func(*call) (string, error) {
+			return "", d.start()
 		}},
 		{pattern: "ABORt", fn: func(*call) (string, error) {
 			d.abort()
@@ -414,5 +392,38 @@ func (d *dmm) commands() []command {
 			}
 			return formatReadings(d.readings), nil
 		}},
+	})
+}
+
+// start begins s.count readings in the background (INIT, or *TRG after an
+// armed INIT); FETC? and *OPC? wait for them.
+func (d *dmm) start() error {
+	d.mm.Lock()
+	defer d.mm.Unlock()
+	if d.pending != nil {
+		select {
+		case <-d.pending.done:
+		default:
+			return newErr(errInitIgnored, "measurement in progress")
+		}
 	}
+	ctx, cancel := context.WithCancel(d.b.runContext())
+	p := &measurement{done: make(chan struct{}), cancel: cancel}
+	d.pending = p
+	d.readings, d.hasData = nil, false
+	s := d.settings()
+	d.b.wg.Add(1)
+	go func() {
+		defer d.b.wg.Done()
+		defer cancel()
+		vs, err := d.measure(ctx, s, s.count)
+		d.mm.Lock()
+		p.readings, p.err = vs, err
+		if d.pending == p && err == nil {
+			d.readings, d.hasData = vs, true
+		}
+		d.mm.Unlock()
+		close(p.done)
+	}()
+	return nil
 }

@@ -40,6 +40,11 @@ type device interface {
 	waitPending(ctx context.Context) error // *OPC?, *WAI: wait for pending operations
 }
 
+// busTriggered is a device that answers *TRG (IEEE 488.2 §10.37).
+type busTriggered interface {
+	busTrigger(ctx context.Context) error
+}
+
 // instrument is one SCPI server's state: the IEEE 488.2 status model, the
 // error queue and the device behind them. Messages are executed one at a
 // time (mu), whichever connection sends them, like a real instrument.
@@ -247,6 +252,14 @@ func (in *instrument) common(ctx context.Context, u messageUnit) (string, error)
 			return "", err
 		}
 		return "1", nil
+	case "*TRG":
+		if err := noParams(); err != nil {
+			return "", err
+		}
+		if t, ok := in.dev.(busTriggered); ok {
+			return "", t.busTrigger(ctx)
+		}
+		return "", newErr(errUndefHeader, u.common)
 	case "*WAI":
 		if err := noParams(); err != nil {
 			return "", err

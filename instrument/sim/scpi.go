@@ -46,6 +46,7 @@ const (
 	errInvalidSuffix   = -131
 	errInvalidExpr     = -171
 	errExecution       = -200
+	errTriggerIgnored  = -211
 	errInitIgnored     = -213
 	errSettings        = -221
 	errOutOfRange      = -222
@@ -67,6 +68,7 @@ var errText = map[int]string{
 	errInvalidSuffix:   "Invalid suffix",
 	errInvalidExpr:     "Invalid expression",
 	errExecution:       "Execution error",
+	errTriggerIgnored:  "Trigger ignored",
 	errInitIgnored:     "Init ignored",
 	errSettings:        "Settings conflict",
 	errOutOfRange:      "Data out of range",
