@@ -6,6 +6,7 @@ import (
 	"fmt"
 	"math"
 	"path/filepath"
+	"slices"
 	"strings"
 	"sync"
 	"testing"
@@ -13,6 +14,7 @@ import (
 
 	"nullbench/instrument"
 	"nullbench/instrument/sim"
+	"nullbench/procedure/analysis"
 	"nullbench/procedure/journal"
 	"nullbench/procedure/plan"
 )
@@ -340,5 +342,100 @@ func TestSafeStateRedialsALostSupply(t *testing.T) {
 	}
 	if c.End == nil {
 		t.Error("no end record")
+	}
+}
+
+// badMeter is a small test proxy in front of the simulated bench's meter
+// driver: while armed it rewrites the driver's answer into what the driver
+// returns for a hostile instrument (the value, and an error wrapping the
+// driver's sentinel, naming the meter and command).
+type badMeter struct {
+	instrument.Meter
+	mu    sync.Mutex
+	armed bool
+	value float64 // answered instead of the instrument's reading
+	cause error   // instrument.ErrImplausible or instrument.ErrNotANumber
+}
+
+func (m *badMeter) ReadN(ctx context.Context, n int) ([]float64, error) {
+	vals, err := m.Meter.ReadN(ctx, n)
+	m.mu.Lock()
+	defer m.mu.Unlock()
+	if !m.armed || err != nil {
+		return vals, err
+	}
+	for i := range vals {
+		vals[i] = m.value
+	}
+	return vals, fmt.Errorf("meter: %q: %d of %d readings refused (%g): %w", "READ?", n, n, m.value, m.cause)
+}
+
+// An implausible meter answer (a finite value far beyond 1.2 × range, or
+// SCPI NaN 9.91E37; IEEE 488.2/SCPI-99 vol. 1 §7.2.1.5 for the NaN code)
+// is an error of that point: the run goes on, the point is journalled
+// with the flag and the driver's message, and the fit leaves it out with
+// a note.
+func TestImplausibleMeterAnswerIsAPointError(t *testing.T) {
+	for _, tc := range []struct {
+		name  string
+		value float64
+		cause error
+	}{
+		{"beyond range", 5e3, instrument.ErrImplausible},
+		{"scpi nan", math.NaN(), instrument.ErrNotANumber},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			su := startSim(t, plan.CMBySupplyShift, false, 500*time.Millisecond)
+			bm := &badMeter{Meter: su.rig.Meter, value: tc.value, cause: tc.cause}
+			su.rig.Meter = bm
+			reports := 0
+			hook := progressHook{fn: func(i PointInfo) {
+				bm.mu.Lock()
+				defer bm.mu.Unlock()
+				bm.armed = false
+				if i.Unit == "U01" && i.Test == plan.TestCMRR && reports == 0 {
+					bm.armed = true // the next point answers badly
+					reports++
+				}
+			}}
+			_, err, c, log := runJournalled(t, su, context.Background(), RunOptions{Progress: hook})
+			if err != nil {
+				t.Fatalf("the run stopped on a point error: %v", err)
+			}
+			checkSimBench(t, su.bench, true)
+			var bad []journal.Reading
+			for _, r := range c.Readings {
+				if slices.Contains(r.Flags, journal.FlagImplausible) {
+					bad = append(bad, r)
+				}
+			}
+			if len(bad) != 1 {
+				t.Fatalf("%d readings flagged %q, want 1", len(bad), journal.FlagImplausible)
+			}
+			if !strings.Contains(bad[0].Problem, "meter") || !strings.Contains(bad[0].Problem, "READ?") {
+				t.Errorf("the problem does not name the instrument and command: %q", bad[0].Problem)
+			}
+			if math.IsNaN(bad[0].MeterVolts) || math.IsInf(bad[0].MeterVolts, 0) {
+				t.Errorf("journalled a non-finite meter value %g", bad[0].MeterVolts)
+			}
+			if !strings.Contains(log, "left out of the fit") {
+				t.Errorf("the console log does not report the point:\n%s", log)
+			}
+			res, err := analysis.Analyze(su.plan, c.Readings, analysis.Inputs{})
+			if err != nil {
+				t.Fatal(err)
+			}
+			noted := false
+			for _, r := range res.Ratios {
+				if r.Unit == bad[0].Unit && r.ExcludedPoints == 1 {
+					for _, n := range r.Notes {
+						noted = noted || strings.Contains(n, "left out")
+					}
+				}
+			}
+			if !noted {
+				t.Errorf("no result of %s %s notes the excluded point", bad[0].Unit, bad[0].Test)
+			}
+		})
 	}
 }

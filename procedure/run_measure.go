@@ -141,7 +141,7 @@ func (r *runner) point(ctx context.Context, t *plan.Test, st plan.Step, key plan
 
 	r.at.stage = stageMeasure
 	t0 := r.clk.Now()
-	vals, over, err := r.readN(ctx, t.Readings)
+	vals, over, bad, err := r.readN(ctx, t.Readings)
 	if err != nil {
 		return rd, err
 	}
@@ -152,6 +152,11 @@ func (r *runner) point(ctx context.Context, t *plan.Test, st plan.Step, key plan
 	rd.N = len(vals)
 	if over {
 		rd.Flags = append(rd.Flags, journal.FlagOverload)
+	}
+	if bad != nil {
+		rd.Flags = append(rd.Flags, journal.FlagImplausible)
+		rd.Problem = bad.Error()
+		r.logf("%s %s step %d: %v; the point is journalled and left out of the fit", rd.Unit, t.Kind, rd.Step+1, bad)
 	}
 
 	r.at.stage = stageReadTemp
@@ -217,14 +222,14 @@ func (r *runner) settle(ctx context.Context, t *plan.Test) (bool, error) {
 }
 
 // readMean takes n readings in one trigger (readN) and returns their mean;
-// an overload comes back as +Inf, not an error (the settling check then
-// keeps waiting).
+// an overload or an implausible answer comes back as +Inf, not an error
+// (the settling check then keeps waiting).
 func (r *runner) readMean(ctx context.Context, n int) (float64, error) {
-	vals, over, err := r.readN(ctx, max(n, 1))
+	vals, over, bad, err := r.readN(ctx, max(n, 1))
 	if err != nil {
 		return 0, err
 	}
-	if over {
+	if over || bad != nil {
 		return math.Inf(1), nil
 	}
 	m, _ := meanSD(vals)
@@ -234,25 +239,38 @@ func (r *runner) readMean(ctx context.Context, n int) (float64, error) {
 // readN takes n readings in one trigger. Overloaded readings (the driver
 // wraps instrument.ErrOverload and returns ±Inf) are kept as ±9.9E37, the
 // SCPI overload value, so the journal stays finite JSON and the point is
-// flagged.
-func (r *runner) readN(ctx context.Context, n int) (vals []float64, overload bool, err error) {
+// flagged. An implausible answer (the driver wraps instrument.ErrNotANumber
+// for SCPI NaN, instrument.ErrImplausible for a finite value beyond
+// 1.2 × range) is a problem of this point, not of the run: bad carries the
+// driver's message (instrument and command named), the values are kept
+// finite (NaN as 9.91E37) for the journal, and the point is never fitted.
+func (r *runner) readN(ctx context.Context, n int) (vals []float64, overload bool, bad error, err error) {
 	vals, err = r.rig.Meter.ReadN(ctx, n)
 	if err != nil {
-		if !errors.Is(err, instrument.ErrOverload) {
-			return nil, false, fmt.Errorf("meter: read %d values: %w", n, err)
+		switch {
+		case errors.Is(err, instrument.ErrOverload):
+			overload = true
+		case errors.Is(err, instrument.ErrNotANumber), errors.Is(err, instrument.ErrImplausible):
+			bad = err
+		default:
+			return nil, false, nil, fmt.Errorf("meter: read %d values: %w", n, err)
 		}
-		overload = true
 		if len(vals) == 0 {
 			vals = []float64{math.Inf(1)}
 		}
 	}
 	if len(vals) == 0 {
-		return nil, false, fmt.Errorf("meter: read %d values: no value returned", n)
+		return nil, false, nil, fmt.Errorf("meter: read %d values: no value returned", n)
 	}
 	out := make([]float64, len(vals))
 	for i, v := range vals {
 		switch {
-		case math.IsInf(v, 1) || math.IsNaN(v):
+		case math.IsNaN(v):
+			out[i] = instrument.NotANumberValue
+			if bad == nil {
+				bad = fmt.Errorf("meter: read %d values: reading %d is not a number: %w", n, i+1, instrument.ErrNotANumber)
+			}
+		case math.IsInf(v, 1):
 			out[i], overload = instrument.OverloadValue, true
 		case math.IsInf(v, -1):
 			out[i], overload = -instrument.OverloadValue, true
@@ -260,7 +278,7 @@ func (r *runner) readN(ctx context.Context, n int) (vals []float64, overload boo
 			out[i] = v
 		}
 	}
-	return out, overload, nil
+	return out, overload, bad, nil
 }
 
 // readBack reads the voltage of every role the level moves and turns it

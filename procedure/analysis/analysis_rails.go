@@ -112,7 +112,7 @@ func (a *analyzer) railSlope(idx int, z func(dp, dn float64) float64) (float64, 
 func (a *analyzer) railRegressor(rs []journal.Reading, z func(dp, dn float64) float64) (x, zs []float64, ok bool) {
 	pos0, neg0 := a.p.Part.NominalPosVolts, a.p.Part.NominalNegVolts
 	for _, r := range rs {
-		if hasFlag(r, journal.FlagOverload) {
+		if hasFlag(r, journal.FlagOverload) || hasFlag(r, journal.FlagImplausible) {
 			continue
 		}
 		if !r.RailsReadBack {

@@ -589,7 +589,7 @@ func fitSweep(rs []journal.Reading, t *plan.Test) (sweep, error) {
 		if r.ReadBack {
 			x = r.ReadVolts
 		}
-		if hasFlag(r, journal.FlagOverload) || !finite(x) || !finite(r.MeterVolts) || !finite(r.BenchSeconds) {
+		if hasFlag(r, journal.FlagOverload) || hasFlag(r, journal.FlagImplausible) || !finite(x) || !finite(r.MeterVolts) || !finite(r.BenchSeconds) {
 			s.excluded++
 			continue
 		}
@@ -611,7 +611,7 @@ func fitSweep(rs []journal.Reading, t *plan.Test) (sweep, error) {
 		s.meanTempC = sumT / float64(s.points)
 	}
 	if s.excluded > 0 {
-		s.notes = append(s.notes, fmt.Sprintf("%d point(s) left out (overload or non-finite)", s.excluded))
+		s.notes = append(s.notes, fmt.Sprintf("%d point(s) left out (overload, implausible meter answer or non-finite)", s.excluded))
 	}
 	if s.flagged > 0 {
 		s.notes = append(s.notes, fmt.Sprintf("%d point(s) did not settle within the timeout (flag %q) and were kept", s.flagged, journal.FlagSettleTimeout))

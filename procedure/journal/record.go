@@ -39,12 +39,20 @@ type Reading struct {
 	N             int      `json:"n"`               // readings averaged
 	SettleSeconds float64  `json:"settle_s"`        // bench time from the step to the first accepted reading
 	Flags         []string `json:"flags,omitempty"` // e.g. "settle-timeout", "overload"
+	// Problem says, cause first, why a flagged point is not a measurement
+	// (FlagImplausible: the instrument, command and value refused).
+	Problem string `json:"problem,omitempty"`
 }
 
 // Reading flags.
 const (
 	FlagSettleTimeout = "settle-timeout"
 	FlagOverload      = "overload"
+	// FlagImplausible marks a point whose meter answer was refused: SCPI
+	// NaN (9.91E37) or a finite value beyond 1.2 × the range that is not
+	// the overload code. The point is kept in the journal, left out of
+	// the fit, and Problem names the instrument and command.
+	FlagImplausible = "implausible"
 )
 
 // KeyOf is the work key of the point a reading records: the journal's
