@@ -72,8 +72,9 @@ on, or an input driven) is damaged for good; the run only ever asks with
 the bench powered down.
 
 --dialect NAME[,NAME...] makes instruments speak another common dialect,
-each with its own identity and built-in profile (the printed profile= and
---bench-out follow it):
+each with its own identity and profile name (the printed profile= and
+--bench-out follow it; the profile files for these dialects are not shipped
+yet, so a plan cannot drive them until they are):
 ` + dialectHelp(),
 		Args: cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, args []string) error {
