@@ -9,6 +9,7 @@ import (
 	"time"
 
 	"nullbench/instrument/sim"
+	"nullbench/procedure/estimate"
 	"nullbench/procedure/plan"
 )
 
@@ -150,7 +151,7 @@ resistor_tolerance = 0.001
 				}
 			}
 			p, total, spans, lefts := runTimed(t, dut, string(text))
-			f := plan.DefaultFigures()
+			f := estimate.DefaultFigures()
 			tl := f.Timeline(p)
 			if r := tl.TotalSeconds / total; math.Abs(r-1) > 0.15 {
 				t.Errorf("campaign: model %.0f s, measured %.0f s (ratio %.3f)", tl.TotalSeconds, total, r)

@@ -3,6 +3,7 @@ package procedure
 import (
 	"time"
 
+	"nullbench/procedure/estimate"
 	"nullbench/procedure/plan"
 )
 
@@ -48,7 +49,7 @@ func (NopProgress) Note(string)           {}
 func (NopProgress) End()                  {}
 
 // etaEstimator estimates the bench time left from the duration model
-// (plan.Figures.Timeline: the predicted bench time at which each point
+// (estimate.Figures.Timeline: the predicted bench time at which each point
 // ends and the campaign's total), corrected by what this run has measured:
 //
 //	left = (T_total − T_end(point)) × (measured since the first point began) / (predicted for the same stretch)
@@ -62,12 +63,12 @@ type etaEstimator struct {
 	predStart float64       // predicted bench seconds at that start
 	started   bool
 	measured  int
-	ends      map[plan.WorkKey]plan.TimedPoint
+	ends      map[plan.WorkKey]estimate.TimedPoint
 	total     float64
 }
 
-func newETA(tl plan.Timeline) etaEstimator {
-	e := etaEstimator{ends: make(map[plan.WorkKey]plan.TimedPoint, len(tl.Points)), total: tl.TotalSeconds}
+func newETA(tl estimate.Timeline) etaEstimator {
+	e := etaEstimator{ends: make(map[plan.WorkKey]estimate.TimedPoint, len(tl.Points)), total: tl.TotalSeconds}
 	for _, tp := range tl.Points {
 		e.ends[tp.Key] = tp
 	}

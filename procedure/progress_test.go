@@ -4,6 +4,7 @@ import (
 	"testing"
 	"time"
 
+	"nullbench/procedure/estimate"
 	"nullbench/procedure/plan"
 )
 
@@ -11,9 +12,9 @@ import (
 // campaign 10 s); the bench takes 2 s per point, so after three points
 // the 7 s the model still predicts are stretched to 14 s (worked by hand).
 func TestETACorrectedByMeasurement(t *testing.T) {
-	var tl plan.Timeline
+	var tl estimate.Timeline
 	for i := range 10 {
-		tl.Points = append(tl.Points, plan.TimedPoint{Key: plan.WorkKey{Unit: "U", Step: i}, Seconds: 1, EndsAt: float64(i + 1)})
+		tl.Points = append(tl.Points, estimate.TimedPoint{Key: plan.WorkKey{Unit: "U", Step: i}, Seconds: 1, EndsAt: float64(i + 1)})
 	}
 	tl.TotalSeconds = 10
 	e := newETA(tl)

@@ -5,6 +5,7 @@ import (
 	"strings"
 
 	"nullbench/instrument"
+	"nullbench/procedure/estimate"
 	"nullbench/procedure/journal"
 	"nullbench/procedure/plan"
 )
@@ -34,8 +35,8 @@ type Rig struct {
 	// holds the read-back accuracy of each supply and source role (the fit
 	// uses read-back values); StimulusAccuracy stands for any role not in
 	// it.
-	MeterAccuracy, StimulusAccuracy plan.Accuracy
-	StimulusByRole                  map[string]plan.Accuracy
+	MeterAccuracy, StimulusAccuracy estimate.Accuracy
+	StimulusByRole                  map[string]estimate.Accuracy
 }
 
 // check reports the roles the plan needs that the rig lacks, naming each

@@ -12,6 +12,7 @@ import (
 	"time"
 
 	"nullbench/instrument"
+	"nullbench/procedure/estimate"
 	"nullbench/procedure/journal"
 	"nullbench/procedure/plan"
 )
@@ -66,7 +67,7 @@ func OpenRig(ctx context.Context, p *plan.Plan, opt RigOptions) (*Rig, func() er
 		_ = closeAll()
 		return nil, nil, err
 	}
-	rig := &Rig{StimulusByRole: map[string]plan.Accuracy{}}
+	rig := &Rig{StimulusByRole: map[string]estimate.Accuracy{}}
 	dopts := instrument.DriverOptions{Sleep: opt.Sleep}
 	for _, n := range names {
 		def, ok := b.Instruments[n]
@@ -104,8 +105,8 @@ func OpenRig(ctx context.Context, p *plan.Plan, opt RigOptions) (*Rig, func() er
 // bind creates the driver of one role on an opened instrument.
 func (r *Rig) bind(role string, rb plan.RoleBinding, in *instrument.Instrument, o instrument.DriverOptions) error {
 	s, prof := in.Session, in.Profile
-	readback := func(a instrument.SupplyAccuracy) plan.Accuracy {
-		return plan.Accuracy{GainPPM: a.ReadbackGainPPM, OffsetVolts: a.ReadbackOffsetVolts}
+	readback := func(a instrument.SupplyAccuracy) estimate.Accuracy {
+		return estimate.Accuracy{GainPPM: a.ReadbackGainPPM, OffsetVolts: a.ReadbackOffsetVolts}
 	}
 	switch role {
 	case plan.RoleMeter:
@@ -117,7 +118,7 @@ func (r *Rig) bind(role string, rb plan.RoleBinding, in *instrument.Instrument, 
 		// The offset term is specified in ppm of range; taken on the 10 V
 		// range, the default of the plans (DefaultRangeVolts).
 		a := m.Accuracy()
-		r.MeterAccuracy = plan.Accuracy{GainPPM: a.GainPPM, OffsetVolts: a.OffsetPPMOfRange * 1e-6 * plan.DefaultRangeVolts}
+		r.MeterAccuracy = estimate.Accuracy{GainPPM: a.GainPPM, OffsetVolts: a.OffsetPPMOfRange * 1e-6 * plan.DefaultRangeVolts}
 	case plan.RoleSupplyPos, plan.RoleSupplyNeg:
 		d, err := instrument.NewSupply(s, prof, rb.Channel, rb.Negative, o)
 		if err != nil {

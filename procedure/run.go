@@ -9,6 +9,7 @@ import (
 	"strings"
 	"time"
 
+	"nullbench/procedure/estimate"
 	"nullbench/procedure/journal"
 	"nullbench/procedure/plan"
 )
@@ -45,8 +46,8 @@ type RunOptions struct {
 	Skip map[string]string
 	// Figures are the instruments' timing figures for the remaining-time
 	// estimate (cmd fills them from the profiles); nil takes
-	// plan.DefaultFigures.
-	Figures *plan.Figures
+	// estimate.DefaultFigures.
+	Figures *estimate.Figures
 }
 
 // Timing holds the waits that are the sequencer's, not the plan's. The
@@ -84,9 +85,9 @@ func (t Timing) withDefaults() Timing {
 			*v = d
 		}
 	}
-	// The defaults are the duration model's (plan.DefaultSequencerWaits),
+	// The defaults are the duration model's (estimate.DefaultSequencerWaits),
 	// so that check predicts the waits the runner makes.
-	w := plan.DefaultSequencerWaits()
+	w := estimate.DefaultSequencerWaits()
 	def(&t.RampDwell, seconds(w.RampDwellSeconds))
 	def(&t.RelaySettle, seconds(w.RelaySettleSeconds))
 	def(&t.SettleInterval, seconds(w.SettleIntervalSeconds))
@@ -318,12 +319,12 @@ func newRunner(p *plan.Plan, rig *Rig, opt RunOptions) *runner {
 	if r.log == nil {
 		r.log = io.Discard
 	}
-	figs := plan.DefaultFigures()
+	figs := estimate.DefaultFigures()
 	if opt.Figures != nil {
 		figs = *opt.Figures
 	}
 	t := r.timing
-	figs.Waits = plan.SequencerWaits{RampDwellSeconds: t.RampDwell.Seconds(), RelaySettleSeconds: t.RelaySettle.Seconds(),
+	figs.Waits = estimate.SequencerWaits{RampDwellSeconds: t.RampDwell.Seconds(), RelaySettleSeconds: t.RelaySettle.Seconds(),
 		SettleIntervalSeconds: t.SettleInterval.Seconds(), SoakIntervalSeconds: t.SoakInterval.Seconds(), ChamberTickSeconds: t.ChamberTick.Seconds()}
 	r.eta = newETA(figs.Timeline(p))
 	if r.prog == nil {

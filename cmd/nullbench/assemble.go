@@ -9,6 +9,7 @@ import (
 
 	"nullbench/fit"
 	"nullbench/procedure/analysis"
+	"nullbench/procedure/estimate"
 	"nullbench/procedure/journal"
 	"nullbench/procedure/plan"
 	"nullbench/report"
@@ -538,7 +539,7 @@ func predictedU(p *plan.Plan) map[string]float64 {
 	}
 	f, _ := planFigures(p)
 	out := map[string]float64{}
-	for _, t := range plan.Predict(p, f).Tests {
+	for _, t := range estimate.Predict(p, f).Tests {
 		out[t.Kind] = t.ExpandedUUVPerV
 		if t.Kind == plan.TestCMRR {
 			out["cmrr_uncorrected"] = t.ExpandedUUVPerV

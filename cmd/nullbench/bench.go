@@ -10,6 +10,7 @@ import (
 
 	"nullbench/instrument"
 	"nullbench/procedure"
+	"nullbench/procedure/estimate"
 	"nullbench/procedure/journal"
 	"nullbench/procedure/plan"
 )
@@ -110,7 +111,7 @@ func bindRole(rig *procedure.Rig, role string, b plan.RoleBinding, in *instrumen
 		acc := m.Accuracy()
 		// The offset term of a DMM cancels in a slope; it is kept for the
 		// budget's record at the 10 V range, the one the plans use most.
-		rig.MeterAccuracy = plan.Accuracy{GainPPM: acc.GainPPM, OffsetVolts: acc.OffsetPPMOfRange * 1e-6 * 10}
+		rig.MeterAccuracy = estimate.Accuracy{GainPPM: acc.GainPPM, OffsetVolts: acc.OffsetPPMOfRange * 1e-6 * 10}
 	case "supply_pos", "supply_neg":
 		d, err := instrument.NewSupply(s, prof, b.Channel, b.Negative, opts)
 		if err != nil {

@@ -11,6 +11,7 @@ import (
 	"github.com/spf13/cobra"
 
 	"nullbench/instrument"
+	"nullbench/procedure/estimate"
 	"nullbench/procedure/plan"
 )
 
@@ -63,7 +64,7 @@ func runCheck(std streams, o checkOptions) error {
 		if err := writeCheckJSON(std.Out, p, figs); err != nil {
 			return err
 		}
-	} else if err := plan.WriteCheck(std.Out, p, figs); err != nil {
+	} else if err := estimate.WriteCheck(std.Out, p, figs); err != nil {
 		return err
 	}
 	if err := checkBench(p); err != nil {
@@ -149,8 +150,8 @@ type checkTestJSON struct {
 	LimitDB             *float64 `json:"limit_db,omitempty"`
 }
 
-func writeCheckJSON(w io.Writer, p *plan.Plan, f plan.Figures) error {
-	pr := plan.Predict(p, f)
+func writeCheckJSON(w io.Writer, p *plan.Plan, f estimate.Figures) error {
+	pr := estimate.Predict(p, f)
 	out := checkJSON{Plan: p.Source, DurationS: round3(pr.TotalSeconds), WallS: round3(pr.WallSeconds), Warnings: pr.Warnings()}
 	if out.Warnings == nil {
 		out.Warnings = []string{}

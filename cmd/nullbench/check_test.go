@@ -10,6 +10,7 @@ import (
 	"strings"
 	"testing"
 
+	"nullbench/procedure/estimate"
 	"nullbench/procedure/plan"
 )
 
@@ -199,7 +200,7 @@ func TestCheckJSONFields(t *testing.T) {
 		t.Fatal(err)
 	}
 	var buf bytes.Buffer
-	if err := writeCheckJSON(&buf, p, plan.DefaultFigures()); err != nil {
+	if err := writeCheckJSON(&buf, p, estimate.DefaultFigures()); err != nil {
 		t.Fatal(err)
 	}
 	var got map[string]any
@@ -227,7 +228,7 @@ func TestCheckJSONFields(t *testing.T) {
 
 	p.Limits[plan.TestCMRR] = 200
 	buf.Reset()
-	if err := writeCheckJSON(&buf, p, plan.DefaultFigures()); err != nil {
+	if err := writeCheckJSON(&buf, p, estimate.DefaultFigures()); err != nil {
 		t.Fatal(err)
 	}
 	if !strings.Contains(buf.String(), "the limit 200 dB is above") {

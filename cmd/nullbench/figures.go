@@ -4,6 +4,7 @@ import (
 	"fmt"
 
 	"nullbench/instrument"
+	"nullbench/procedure/estimate"
 	"nullbench/procedure/plan"
 )
 
@@ -12,8 +13,8 @@ import (
 // An exchange's wall time becomes bench time × time_scale (on a simulated
 // bench the waits shrink but the exchanges do not). A profile that cannot
 // be read leaves its roles at zero cost and is reported.
-func planFigures(p *plan.Plan) (plan.Figures, []string) {
-	f := plan.DefaultFigures()
+func planFigures(p *plan.Plan) (estimate.Figures, []string) {
+	f := estimate.DefaultFigures()
 	scale := p.Bench.TimeScale
 	if !(scale > 0) {
 		scale = 1
@@ -50,7 +51,7 @@ func planFigures(p *plan.Plan) (plan.Figures, []string) {
 		if prof.CheckErrors {
 			check = ex // SYST:ERR? after every set command
 		}
-		rf := plan.RoleFigures{SettleSeconds: prof.Settle.Seconds(), SetSeconds: ex + check, QuerySeconds: ex}
+		rf := estimate.RoleFigures{SettleSeconds: prof.Settle.Seconds(), SetSeconds: ex + check, QuerySeconds: ex}
 		sel := ""
 		switch role {
 		case plan.RoleMeter:

@@ -14,6 +14,7 @@ import (
 
 	"nullbench/procedure"
 	"nullbench/procedure/analysis"
+	"nullbench/procedure/estimate"
 	"nullbench/procedure/journal"
 	"nullbench/procedure/plan"
 	"nullbench/report"
@@ -37,7 +38,7 @@ func analysisInputs(p *plan.Plan) (analysis.Inputs, error) {
 // analysisInputsWith is analysisInputs with the profiles from resolve (a
 // run folder's copies).
 func analysisInputsWith(p *plan.Plan, resolve profileResolver) (analysis.Inputs, error) {
-	in := analysis.Inputs{StimulusByRole: map[string]plan.Accuracy{}}
+	in := analysis.Inputs{StimulusByRole: map[string]estimate.Accuracy{}}
 	for _, rb := range roleBindings(p) {
 		if rb.binding.Instrument == "" {
 			continue
@@ -54,17 +55,17 @@ func analysisInputsWith(p *plan.Plan, resolve profileResolver) (analysis.Inputs,
 		case "meter":
 			if prof.Meter != nil {
 				a := prof.Meter.Accuracy
-				in.Meter = plan.Accuracy{GainPPM: a.GainPPM, OffsetVolts: a.OffsetPPMOfRange * 1e-6 * 10}
+				in.Meter = estimate.Accuracy{GainPPM: a.GainPPM, OffsetVolts: a.OffsetPPMOfRange * 1e-6 * 10}
 			}
 		case "supply_pos", "supply_neg":
 			if prof.Supply != nil {
 				a := prof.Supply.Accuracy
-				in.StimulusByRole[rb.role] = plan.Accuracy{GainPPM: a.ReadbackGainPPM, OffsetVolts: a.ReadbackOffsetVolts}
+				in.StimulusByRole[rb.role] = estimate.Accuracy{GainPPM: a.ReadbackGainPPM, OffsetVolts: a.ReadbackOffsetVolts}
 			}
 		case "source_cm", "source_diff", "source_ref":
 			if prof.Source != nil {
 				a := prof.Source.Accuracy
-				in.StimulusByRole[rb.role] = plan.Accuracy{GainPPM: a.ReadbackGainPPM, OffsetVolts: a.ReadbackOffsetVolts}
+				in.StimulusByRole[rb.role] = estimate.Accuracy{GainPPM: a.ReadbackGainPPM, OffsetVolts: a.ReadbackOffsetVolts}
 			}
 		}
 	}

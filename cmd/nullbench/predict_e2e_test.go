@@ -5,6 +5,7 @@ import (
 	"testing"
 
 	"nullbench/instrument/sim"
+	"nullbench/procedure/estimate"
 	"nullbench/procedure/plan"
 )
 
@@ -33,9 +34,9 @@ func TestPredictedUncertaintyMatchesAchieved(t *testing.T) {
 		t.Fatal(problems)
 	}
 	// The virtual clock moves only with the waits: exchanges take no
-	// bench time, as in plan.DefaultFigures.
-	f.Roles = plan.DefaultFigures().Roles
-	pred := plan.Predict(run.plan, f)
+	// bench time, as in estimate.DefaultFigures.
+	f.Roles = estimate.DefaultFigures().Roles
+	pred := estimate.Predict(run.plan, f)
 	// The demo lot plan's duration against the bench time the run took
 	// (±15 %, the project's requirement; the clock starts at the bench
 	// epoch when the bench starts).

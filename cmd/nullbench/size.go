@@ -11,6 +11,7 @@ import (
 
 	"github.com/spf13/cobra"
 
+	"nullbench/procedure/estimate"
 	"nullbench/procedure/plan"
 )
 
@@ -57,8 +58,8 @@ func runSize(std streams, o sizeOptions) error {
 	for _, pr := range problems {
 		fmt.Fprintf(std.Err, "size: %s\n", pr)
 	}
-	target := plan.SizeTarget{UDB: o.TargetDB, AtDB: o.AtDB}
-	sized, tests := plan.Size(p, figs, target)
+	target := estimate.SizeTarget{UDB: o.TargetDB, AtDB: o.AtDB}
+	sized, tests := estimate.Size(p, figs, target)
 	fmt.Fprintf(std.Out, "target    U = %g dB at %g dB: U ≤ %.3g µV/V on the coefficient\n", o.TargetDB, o.AtDB, target.CoefficientU())
 	var before, after float64
 	missed := 0

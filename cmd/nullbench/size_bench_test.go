@@ -5,6 +5,7 @@ import (
 	"testing"
 
 	"nullbench/fit"
+	"nullbench/procedure/estimate"
 	"nullbench/procedure/plan"
 )
 
@@ -12,10 +13,10 @@ import (
 // bench time with the Cramér–Rao minimum for the same noise and safe
 // range (fit.SlopeCRBPoints): for every NPLC and readings setting the
 // noise per point σ and the bench time per point c come from the same
-// model (plan.PredictTest, its time per point), N_min points of σ at the
+// model (estimate.PredictTest, its time per point), N_min points of σ at the
 // ends of the range reach u = U/1.96, and the minimum over settings of
 // N_min·c is the bound. The ratio is sized time / bound (≥ 1).
-func sizeCRBRatio(p *plan.Plan, f plan.Figures, target plan.SizeTarget, st plan.SizedTest) float64 {
+func sizeCRBRatio(p *plan.Plan, f estimate.Figures, target estimate.SizeTarget, st estimate.SizedTest) float64 {
 	half := st.SafeHiVolts
 	uStd := target.CoefficientU() / 1.96 // µV/V, k → 1.96 as ν → ∞ (GUM G.3)
 	bound := math.Inf(1)
@@ -24,7 +25,7 @@ func sizeCRBRatio(p *plan.Plan, f plan.Figures, target plan.SizeTarget, st plan.
 			continue // as Size: whole power-line cycles only
 		}
 		for _, n := range []int{2, 3, 5, 10, 20, 50, 100} {
-			tp := plan.PredictTest(p, f, st.Test, []float64{-half, 0, half}, nplc, n, 1)
+			tp := estimate.PredictTest(p, f, st.Test, []float64{-half, 0, half}, nplc, n, 1)
 			c := tp.UnitSeconds / float64(tp.Points)
 			slopeU := uStd * 1e-6 * math.Abs(tp.Divisor) // volts at the meter per volt
 			nmin := fit.SlopeCRBPoints(tp.NoiseVolts, half, slopeU)
@@ -42,11 +43,11 @@ func BenchmarkSizeAgainstCramerRao(b *testing.B) {
 	if err != nil {
 		b.Fatal(err)
 	}
-	f := plan.DefaultFigures()
-	target := plan.SizeTarget{UDB: 0.5, AtDB: 150}
-	var tests []plan.SizedTest
+	f := estimate.DefaultFigures()
+	target := estimate.SizeTarget{UDB: 0.5, AtDB: 150}
+	var tests []estimate.SizedTest
 	for b.Loop() {
-		_, tests = plan.Size(p, f, target)
+		_, tests = estimate.Size(p, f, target)
 	}
 	for _, st := range tests {
 		b.ReportMetric(sizeCRBRatio(p, f, target, st), "x-crb-"+st.Kind)
@@ -68,9 +69,9 @@ func TestSizeReachesTargetNearCramerRao(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	f := plan.DefaultFigures()
-	target := plan.SizeTarget{UDB: 0.5, AtDB: 150}
-	_, tests := plan.Size(p, f, target)
+	f := estimate.DefaultFigures()
+	target := estimate.SizeTarget{UDB: 0.5, AtDB: 150}
+	_, tests := estimate.Size(p, f, target)
 	for _, st := range tests {
 		r := sizeCRBRatio(p, f, target, st)
 		t.Logf("%s: sized %.1f s per unit, %.2f × the Cramér–Rao minimum", st.Kind, st.AfterSecs, r)

@@ -5,6 +5,7 @@ import (
 	"testing"
 
 	"nullbench/instrument/sim"
+	"nullbench/procedure/estimate"
 	"nullbench/procedure/plan"
 )
 
@@ -21,8 +22,8 @@ func TestSizedPlanReachesTargetOnSimulatedBench(t *testing.T) {
 		units[i].psrrPos, units[i].psrrNeg, units[i].aol = 130, 128, 0
 		units[i].extra = "curvature_uv_per_v2 = 0.0\n"
 	}
-	target := plan.SizeTarget{UDB: 0.5, AtDB: 125}
-	var sized []plan.SizedTest
+	target := estimate.SizeTarget{UDB: 0.5, AtDB: 125}
+	var sized []estimate.SizedTest
 	edit := func(b *sim.Bench, text string) string {
 		text = e2eOnly25(b, text)
 		p, err := plan.Parse([]byte(text), "demo.toml")
@@ -31,7 +32,7 @@ func TestSizedPlanReachesTargetOnSimulatedBench(t *testing.T) {
 		}
 		f, _ := planFigures(p)
 		var q *plan.Plan
-		q, sized = plan.Size(p, f, target)
+		q, sized = estimate.Size(p, f, target)
 		return rewriteTests(text, q)
 	}
 	run := runE2E(t, e2eDUT(5, units), edit, nil)

@@ -6,6 +6,7 @@ import (
 	"testing"
 
 	"nullbench/fit"
+	"nullbench/procedure/estimate"
 	"nullbench/procedure/journal"
 	"nullbench/procedure/plan"
 )
@@ -95,7 +96,7 @@ func TestAnalyzeBoard(t *testing.T) {
 	for _, k := range []string{plan.TestBoardCMRR, plan.TestBoardPSRRPos, plan.TestBoardPSRRNeg} {
 		rs = sim.run(rs, "B1", k, 0, 25, func(_ int, s plan.BenchState) float64 { return truth.meter(p, s) })
 	}
-	res := azAnalyze(t, p, rs, Inputs{Meter: plan.Accuracy{GainPPM: 35}, Stimulus: plan.Accuracy{GainPPM: 200, OffsetVolts: 0.2e-3}})
+	res := azAnalyze(t, p, rs, Inputs{Meter: estimate.Accuracy{GainPPM: 35}, Stimulus: estimate.Accuracy{GainPPM: 200, OffsetVolts: 0.2e-3}})
 	if len(res.Boards) != 1 {
 		t.Fatalf("%d boards", len(res.Boards))
 	}
@@ -185,7 +186,7 @@ func TestAnalyzeBoardMeterGainCancels(t *testing.T) {
 		rs = sim.run(rs, "B1", k, 0, 25, func(_ int, s plan.BenchState) float64 { return truth.meter(p, s) })
 	}
 	plain := azAnalyze(t, p, rs, Inputs{})
-	meter := azAnalyze(t, p, rs, Inputs{Meter: plan.Accuracy{GainPPM: 10000}})
+	meter := azAnalyze(t, p, rs, Inputs{Meter: estimate.Accuracy{GainPPM: 10000}})
 	for _, name := range []string{plan.TestBoardCMRR, plan.TestBoardPSRRNeg} {
 		u0 := azRatio(t, plain, "B1", name, 0).Rejection.ExpandedUUVPerV
 		u1 := azRatio(t, meter, "B1", name, 0).Rejection.ExpandedUUVPerV

@@ -9,6 +9,7 @@ import (
 	"strconv"
 
 	"nullbench/fit"
+	"nullbench/procedure/estimate"
 	"nullbench/procedure/journal"
 	"nullbench/procedure/plan"
 )
@@ -31,18 +32,18 @@ type Inputs struct {
 	// gain is the same meter for every test of a unit, so it is one shared
 	// input in combined results: it cancels in the board ratios A_cm/A_d and
 	// ΔV_out/A_d, and scales a closure only by the closure itself.
-	Meter plan.Accuracy
+	Meter estimate.Accuracy
 	// Stimulus is the accuracy of the stimulus values the fit uses (the
 	// read-back value when a reading was read back, else the programmed
 	// one), for every stimulus role not in StimulusByRole. Its gain part is
 	// a budget row; its offset part is constant during a sweep and falls
 	// into the intercept, like the meter's, so it is not a row.
-	Stimulus plan.Accuracy
+	Stimulus estimate.Accuracy
 	// StimulusByRole overrides Stimulus per role (RoleSupplyPos,
 	// RoleSupplyNeg, RoleSourceCM, RoleSourceDiff, RoleSourceRef). Tests that
 	// move both rails (cmrr by supply shift, psrr_sym) use the larger gain
 	// and the larger offset of the two supply roles.
-	StimulusByRole map[string]plan.Accuracy
+	StimulusByRole map[string]estimate.Accuracy
 	// Coverage is the two-sided coverage probability of expanded
 	// uncertainties (0 → 0.95, GUM 6.2; ILAC-G8 assumes 95 %).
 	Coverage float64
@@ -536,8 +537,8 @@ func conventionFor(p *plan.Plan, kind, part string) convention {
 // stimulusAccuracy returns the accuracy for a set of roles: the larger gain
 // and the larger offset among them (conservative for tests that move two
 // rails together).
-func (a *analyzer) stimulusAccuracy(roles []string) plan.Accuracy {
-	var out plan.Accuracy
+func (a *analyzer) stimulusAccuracy(roles []string) estimate.Accuracy {
+	var out estimate.Accuracy
 	for _, r := range roles {
 		acc, ok := a.acc.StimulusByRole[r]
 		if !ok {
@@ -782,7 +783,7 @@ const (
 //
 // more are rows of the signed coefficient (their sensitivities are given
 // for the signed value and are not negated).
-func (a *analyzer) coefficientBudget(line fit.LineFit, K, kTolRel float64, stim plan.Accuracy, sign float64, more ...fit.BudgetRow) (fit.Budget, error) {
+func (a *analyzer) coefficientBudget(line fit.LineFit, K, kTolRel float64, stim estimate.Accuracy, sign float64, more ...fit.BudgetRow) (fit.Budget, error) {
 	k := 1e6 * line.Slope.Value / K
 	var extra []fit.BudgetRow
 	if kTolRel > 0 {

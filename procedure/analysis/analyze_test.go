@@ -9,6 +9,7 @@ import (
 	"testing"
 
 	"nullbench/fit"
+	"nullbench/procedure/estimate"
 	"nullbench/procedure/journal"
 	"nullbench/procedure/plan"
 )
@@ -214,7 +215,7 @@ func TestAnalyzeNullingLoopWorked(t *testing.T) {
 	sim := azNewBench(p, 1, 1e-6)
 	sim.driftVPerS = 0.2e-6 // a thermal-EMF-like wander, removed by the drift term
 	rs := sim.opAmpReadings(nil, "U1", 0, 25, azWorked)
-	res := azAnalyze(t, p, rs, Inputs{Meter: plan.Accuracy{GainPPM: 20}, Stimulus: plan.Accuracy{GainPPM: 300, OffsetVolts: 1e-3}})
+	res := azAnalyze(t, p, rs, Inputs{Meter: estimate.Accuracy{GainPPM: 20}, Stimulus: estimate.Accuracy{GainPPM: 300, OffsetVolts: 1e-3}})
 
 	tests := []struct {
 		name          string
@@ -440,7 +441,7 @@ func TestAnalyzeClosureFlagsInconsistency(t *testing.T) {
 			rs = sim.run(rs, "U1", plan.TestCMRR, 0, 25, func(_ int, s plan.BenchState) float64 { return o.meter(p, s) })
 			rs = sim.run(rs, "U1", plan.TestPSRRPos, 0, 25, func(_ int, s plan.BenchState) float64 { return bad.meter(p, s) })
 			rs = sim.run(rs, "U1", plan.TestPSRRNeg, 0, 25, func(_ int, s plan.BenchState) float64 { return o.meter(p, s) })
-			res := azAnalyze(t, p, rs, Inputs{Meter: plan.Accuracy{GainPPM: 20}, Stimulus: plan.Accuracy{GainPPM: 300}})
+			res := azAnalyze(t, p, rs, Inputs{Meter: estimate.Accuracy{GainPPM: 20}, Stimulus: estimate.Accuracy{GainPPM: 300}})
 			if len(res.Closures) != 1 || !res.Closures[0].Formed {
 				t.Fatalf("closures %+v", res.Closures)
 			}
@@ -461,7 +462,7 @@ func TestAnalyzeClosureFlagsInconsistency(t *testing.T) {
 			// independently) must leave U nearly unchanged.
 			q := *p
 			q.Fixture.NoiseGainTolerance = 0.05
-			wide := azAnalyze(t, &q, rs, Inputs{Meter: plan.Accuracy{GainPPM: 20}, Stimulus: plan.Accuracy{GainPPM: 300}})
+			wide := azAnalyze(t, &q, rs, Inputs{Meter: estimate.Accuracy{GainPPM: 20}, Stimulus: estimate.Accuracy{GainPPM: 300}})
 			cw := wide.Closures[0].Closure
 			extra := 2 * math.Abs(cl.ClosureUVPerV) * 0.05 / math.Sqrt(3) // ≤ k·|closure|·u_rel
 			if cw.ExpandedUUVPerV > cl.ExpandedUUVPerV+extra+1e-6 {

@@ -9,7 +9,7 @@
 // correction of the supply-shift CMRR, board CMRR = A_d/A_cm with the
 // resistor-matching limit, lot statistics, temperature coefficients and
 // repeatability. Its doc comment states every sign convention. Inputs
-// carries the instruments' accuracies (plan.Accuracy) for the Type B rows
+// carries the instruments' accuracies (estimate.Accuracy) for the Type B rows
 // of the budgets.
 //
 // Units: volts, degrees Celsius and seconds of bench time throughout.

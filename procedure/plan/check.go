@@ -10,11 +10,6 @@ import (
 	"time"
 )
 
-// LineFrequencyHz is the mains frequency used to turn NPLC into seconds for
-// estimates (one power-line cycle = 1/50 Hz = 20 ms). At 60 Hz
-// the integration is shorter, so the estimate errs long.
-const LineFrequencyHz = 50.0
-
 // Step is one point of one pass of a test, as StepTable lays it out.
 type Step struct {
 	Test       int     // index into Plan.Tests
@@ -111,17 +106,30 @@ func describeTest(p *Plan, t *Test) string {
 	return ""
 }
 
+// CheckForecast is what check prints beside the plan from a model of the
+// bench (package estimate): each step's bench seconds, lines under each
+// test's table and a section after the tests. The plan itself knows no
+// timing or noise figures.
+type CheckForecast interface {
+	// StepSeconds is step s's bench time on the first unit at the first
+	// temperature in the first repeat.
+	StepSeconds(s Step) float64
+	// WriteTest writes the lines under test i's step table.
+	WriteTest(w io.Writer, i int)
+	// WriteSummary writes the section after the tests (duration, warnings).
+	WriteSummary(w io.Writer)
+}
+
 // WriteCheck prints what a run of the plan would do, without touching an
 // instrument: for each test and level the stimulus, the rails, the common
-// mode and its distance to each rail, the highest voltage any terminal
-// sees, and the estimated time; then the campaign's duration, the power
-// sequence, the hazard assessment and the safety verdict (CheckSafety's
-// refusals, if any). An invalid plan gets its validation errors instead.
-// It returns only write errors: the caller asks CheckSafety for the
-// verdict that sets the exit status. f holds the instruments' timing and
-// noise figures (from the profiles) for the duration and uncertainty
-// predictions (Predict).
-func WriteCheck(w io.Writer, p *Plan, f Figures) error {
+// mode and its distance to each rail and the highest voltage any terminal
+// sees; then the power sequence, the hazard assessment and the safety
+// verdict (CheckSafety's refusals, if any). An invalid plan gets its
+// validation errors instead. It returns only write errors: the caller asks
+// CheckSafety for the verdict that sets the exit status. fc, if not nil,
+// adds each step's time and the predictions (estimate.WriteCheck passes
+// its forecast); nil prints the plan alone.
+func WriteCheck(w io.Writer, p *Plan, fc CheckForecast) error {
 	ew := &checkWriter{w: w}
 	pf := ew.printf
 	if err := Validate(p); err != nil {
@@ -164,15 +172,6 @@ func WriteCheck(w io.Writer, p *Plan, f Figures) error {
 	pf("decision  %s\n", p.Decision.Rule)
 	pf("limits    %s\n", describeLimits(p))
 
-	pred := Predict(p, f)
-	firstPass := map[WorkKey]float64{}
-	if len(p.Units) > 0 {
-		for _, tp := range pred.Timeline.Points {
-			if tp.Key.TempIndex == 0 && tp.Key.Unit == p.Units[0].ID && tp.Key.Repeat == 0 {
-				firstPass[tp.Key] = tp.Seconds
-			}
-		}
-	}
 	for i := range p.Tests {
 		t := &p.Tests[i]
 		pf("\n%s %s: %s\n", testKey(i), t.Kind, describeTest(p, t))
@@ -191,46 +190,34 @@ func WriteCheck(w io.Writer, p *Plan, f Figures) error {
 			}
 		}
 		tw := tabwriter.NewWriter(ew, 0, 0, 2, ' ', tabwriter.AlignRight)
-		fmt.Fprintf(tw, "  step\tpart\tlevel V\tV+ V\tV- V\tVcm V\tto V+ V\tto V- V\tmax|V|\ttime s\t\n")
-		pass := 0.0
+		head := "  step\tpart\tlevel V\tV+ V\tV- V\tVcm V\tto V+ V\tto V- V\tmax|V|\t"
+		if fc != nil {
+			head += "time s\t"
+		}
+		fmt.Fprintf(tw, "%s\n", head)
 		for _, s := range TestSteps(p, i) {
 			part := s.Part
 			if part == "" {
 				part = "-"
 			}
-			sec := firstPass[s.Key(0, firstUnit(p), 0)]
-			fmt.Fprintf(tw, "  %d\t%s\t%+.3f\t%+.3f\t%+.3f\t%+.3f\t%.3f\t%.3f\t%.3f\t%.2f\t\n",
+			fmt.Fprintf(tw, "  %d\t%s\t%+.3f\t%+.3f\t%+.3f\t%+.3f\t%.3f\t%.3f\t%.3f\t",
 				s.Index, part, noNegZero(s.LevelVolts), noNegZero(s.State.PosVolts), noNegZero(s.State.NegVolts), noNegZero(s.CMVolts),
-				noNegZero(s.ToPosVolts), noNegZero(s.ToNegVolts), noNegZero(s.MaxToGroundVolts), sec)
-			pass += sec
+				noNegZero(s.ToPosVolts), noNegZero(s.ToNegVolts), noNegZero(s.MaxToGroundVolts))
+			if fc != nil {
+				fmt.Fprintf(tw, "%.2f\t", fc.StepSeconds(s))
+			}
+			fmt.Fprintf(tw, "\n")
 		}
 		if err := tw.Flush(); err != nil {
 			return err
 		}
-		tp := pred.Tests[i]
-		pf("  one pass %s; all repeats %s per unit and temperature; %s in the campaign\n",
-			FormatSeconds(pass), FormatSeconds(tp.UnitSeconds), FormatSeconds(tp.Seconds))
-		writeTestPrediction(pf, p, tp)
+		if fc != nil {
+			fc.WriteTest(ew, i)
+		}
 	}
 
-	tl := pred.Timeline
-	pf("\nduration (bench time)\n")
-	for _, tp := range pred.Tests {
-		pf("  %s %-14s %s\n", testKey(tp.Test), tp.Kind, FormatSeconds(tp.Seconds))
-	}
-	pf("  bench off %s; units connected %s; power up/down %s; chamber ramps and soaks %s; finish %s\n",
-		FormatSeconds(tl.BenchOffSeconds), FormatSeconds(tl.ConnectSeconds), FormatSeconds(tl.PowerSeconds),
-		FormatSeconds(tl.ChamberSeconds), FormatSeconds(tl.FinishSeconds))
-	pf("  total %s", FormatSeconds(pred.TotalSeconds))
-	if p.Bench.TimeScale != 1 {
-		pf("; at time_scale %g about %s of wall time", p.Bench.TimeScale, FormatSeconds(pred.WallSeconds))
-	}
-	pf("\n  (every ramp step, dwell, settling reading, read-back, power-up and down, relay, chamber ramp and soak, from the profiles' [figures]; unit swaps by hand not counted)\n")
-	if warns := pred.Warnings(); len(warns) > 0 {
-		pf("\nwarnings\n")
-		for _, w := range warns {
-			pf("  %s\n", w)
-		}
+	if fc != nil {
+		fc.WriteSummary(ew)
 	}
 
 	up := PowerUpOrder(p)
@@ -259,32 +246,6 @@ func WriteCheck(w io.Writer, p *Plan, f Figures) error {
 		pf("safety    not checked: %v\n", err)
 	}
 	return ew.err
-}
-
-func firstUnit(p *Plan) string {
-	if len(p.Units) == 0 {
-		return ""
-	}
-	return p.Units[0].ID
-}
-
-// writeTestPrediction prints a test's predicted uncertainty and the
-// largest ratio it resolves, beside its limit.
-func writeTestPrediction(pf func(string, ...any), p *Plan, tp TestPrediction) {
-	if tp.ExpandedUUVPerV <= 0 {
-		pf("  predicted uncertainty: not available (too few points for the fit, or no gain to refer the meter to the input)\n")
-		return
-	}
-	pf("  predicted u = %.3g µV/V, U = %.3g µV/V (k = %.2f, ν = %d; meter noise %.3g µV per point, divisor %g)\n",
-		tp.StdUncUVPerV, tp.ExpandedUUVPerV, tp.CoverageK, tp.DOF, 1e6*tp.NoiseVolts, tp.Divisor)
-	lim := "no limit"
-	if tp.HasLimit {
-		lim = fmt.Sprintf("limit %g dB", tp.LimitDB)
-		if tp.LimitDB > tp.ResolvableDB {
-			lim += ": ABOVE what the plan resolves"
-		}
-	}
-	pf("  %s: resolves up to %.1f dB; %s\n", tp.Kind, tp.ResolvableDB, lim)
 }
 
 // noNegZero turns a negative zero into zero, so that tables never print "-0.000".

@@ -3,7 +3,8 @@
 // the safety rules, the power sequences as data, the order of the levels
 // and the step table. Its functions are pure: no I/O beyond reading the
 // plan file and no instrument contact. The runner (package procedure), the
-// journal and the analysis import it; it imports none of them.
+// journal, the analysis and the estimation model (package estimate) import
+// it; it imports none of them.
 //
 // Plans. Load and Parse read a TOML plan (go-toml v2, unknown keys
 // refused), apply the defaults of the keys left out and validate it. Every
@@ -32,14 +33,13 @@
 // mean time equals the pass's mean time and a drift linear in time adds
 // exactly nothing to the fitted slope.
 //
-// The step table. StepTable, EstimateDuration and WriteCheck show what a
-// run would do: each level's rails, common mode and its distance to each
-// rail, the highest terminal voltage and the time it takes. Each Step
-// names its point of the campaign with a WorkKey, the key the journal and
-// the runner use to skip finished work on resume.
-//
-// Accuracy is an instrument's DC accuracy specification; the rig carries
-// it and the analysis turns it into Type B rows of the uncertainty budget.
+// The step table. StepTable and WriteCheck show what a run would do: each
+// level's rails, common mode and its distance to each rail and the
+// highest terminal voltage. Each Step names its point of the campaign with
+// a WorkKey, the key the journal and the runner use to skip finished work
+// on resume. How long a run takes and what uncertainty it reaches are not
+// the plan's: package estimate models them from the instruments' figures
+// and hands WriteCheck its forecast (CheckForecast).
 //
 // Units: volts, amps, degrees Celsius and seconds of bench time
 // (Bench.TimeScale) throughout.

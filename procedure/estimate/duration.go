@@ -1,8 +1,15 @@
-package plan
+package estimate
 
 import (
+	"nullbench/procedure/plan"
+
 	"math"
 )
+
+// LineFrequencyHz is the mains frequency used to turn NPLC into seconds for
+// estimates (one power-line cycle = 1/50 Hz = 20 ms). At 60 Hz
+// the integration is shorter, so the estimate errs long.
+const LineFrequencyHz = 50.0
 
 // SequencerWaits are the runner's own waits (procedure.Timing): the
 // duration model counts them exactly as the runner makes them. Seconds of
@@ -44,7 +51,7 @@ type RoleFigures struct {
 
 // Figures are the instruments' timing and noise figures the predictions
 // need. cmd fills them from the profiles the plan names
-// (instrument.ProfileFigures); the plan package reads no file.
+// (instrument.ProfileFigures); this package reads no file.
 type Figures struct {
 	// Roles by role name (RoleMeter, RoleSupplyPos, ...). A missing role
 	// costs nothing.
@@ -69,9 +76,9 @@ type Figures struct {
 // no time: what a virtual clock sees (the simulated bench run in tests).
 func DefaultFigures() Figures {
 	r := map[string]RoleFigures{
-		RoleMeter: {}, RoleSupplyPos: {SettleSeconds: 0.1}, RoleSupplyNeg: {SettleSeconds: 0.1},
-		RoleSourceCM: {SettleSeconds: 0.05}, RoleSourceDiff: {SettleSeconds: 0.05}, RoleSourceRef: {SettleSeconds: 0.05},
-		RoleSwitch: {SettleSeconds: 0.02}, RoleChamber: {}, RoleThermometer: {},
+		plan.RoleMeter: {}, plan.RoleSupplyPos: {SettleSeconds: 0.1}, plan.RoleSupplyNeg: {SettleSeconds: 0.1},
+		plan.RoleSourceCM: {SettleSeconds: 0.05}, plan.RoleSourceDiff: {SettleSeconds: 0.05}, plan.RoleSourceRef: {SettleSeconds: 0.05},
+		plan.RoleSwitch: {SettleSeconds: 0.02}, plan.RoleChamber: {}, plan.RoleThermometer: {},
 	}
 	return Figures{Roles: r, LineHz: 50, ReadingOverhead: 1,
 		NoiseNPLC: []float64{0.02, 0.2, 1, 10, 100}, NoiseRelOfRange: []float64{1e-4, 1e-5, 3e-6, 1e-6, 3e-7},
@@ -112,7 +119,7 @@ type Timeline struct {
 
 // TimedPoint is one point of the Timeline.
 type TimedPoint struct {
-	Key     WorkKey
+	Key     plan.WorkKey
 	Test    int
 	Seconds float64
 	EndsAt  float64
@@ -132,7 +139,7 @@ type TimedPoint struct {
 //
 // The settling check is taken to pass at its first comparison, and hand
 // swaps and operator prompts take no time.
-func (f *Figures) Timeline(p *Plan) Timeline {
+func (f *Figures) Timeline(p *plan.Plan) Timeline {
 	w := f.Waits
 	if w == (SequencerWaits{}) {
 		w = DefaultSequencerWaits()
@@ -141,14 +148,14 @@ func (f *Figures) Timeline(p *Plan) Timeline {
 	role := func(r string) RoleFigures { return f.Roles[r] }
 	now := 0.0
 	setCost := func(r string) float64 { rf := role(r); return rf.SetSeconds + rf.SettleSeconds }
-	actCost := func(a PowerAction) float64 {
+	actCost := func(a plan.PowerAction) float64 {
 		c := setCost(a.Role)
-		if a.Op == PowerSetVolts {
+		if a.Op == plan.PowerSetVolts {
 			c = math.Max(c, w.RampDwellSeconds)
 		}
 		return c
 	}
-	actsCost := func(acts []PowerAction) float64 {
+	actsCost := func(acts []plan.PowerAction) float64 {
 		s := 0.0
 		for _, a := range acts {
 			s += actCost(a)
@@ -159,11 +166,11 @@ func (f *Figures) Timeline(p *Plan) Timeline {
 
 	// Bench off: every source and supply read back and switched off (and
 	// the supplies programmed to 0 V), from outputs assumed at 0 V.
-	srcs := SourceRoles(p)
+	srcs := plan.SourceRoles(p)
 	for _, r := range srcs {
 		tl.BenchOffSeconds += query(r) + setCost(r)
 	}
-	for _, r := range []string{RoleSupplyPos, RoleSupplyNeg} {
+	for _, r := range []string{plan.RoleSupplyPos, plan.RoleSupplyNeg} {
 		tl.BenchOffSeconds += query(r) + setCost(r) + math.Max(setCost(r), w.RampDwellSeconds)
 	}
 	now += tl.BenchOffSeconds
@@ -171,10 +178,10 @@ func (f *Figures) Timeline(p *Plan) Timeline {
 	tp := &p.Temperature
 	air := tp.AmbientCelsius
 	temps := p.TemperaturePoints()
-	nominal := NominalState(p)
+	nominal := plan.NominalState(p)
 	for ti := range temps {
 		point := temps[ti]
-		if tp.Mode == TempChamber {
+		if tp.Mode == plan.TempChamber {
 			start := now
 			now += rampChamberAt(f, p, w, &air, point)
 			now += soakTime(f, p, w, &air, point)
@@ -182,13 +189,13 @@ func (f *Figures) Timeline(p *Plan) Timeline {
 		}
 		for _, u := range p.Units {
 			if u.Channel != "" {
-				c := 2*setCost(RoleSwitch) + w.RelaySettleSeconds
+				c := 2*setCost(plan.RoleSwitch) + w.RelaySettleSeconds
 				tl.ConnectSeconds += c
 				now += c
 			}
-			pw := actsCost(PowerUpOrder(p))
+			pw := actsCost(plan.PowerUpOrder(p))
 			if p.Part.SupplyAmpsMin > 0 || p.Part.SupplyAmpsMax > 0 {
-				pw += query(RoleSupplyPos) + query(RoleSupplyNeg)
+				pw += query(plan.RoleSupplyPos) + query(plan.RoleSupplyNeg)
 			}
 			tl.PowerSeconds += pw
 			now += pw
@@ -196,21 +203,21 @@ func (f *Figures) Timeline(p *Plan) Timeline {
 			for i := range p.Tests {
 				t := &p.Tests[i]
 				testStart := now
-				now += 2 * setCost(RoleMeter) // configure, NPLC
+				now += 2 * setCost(plan.RoleMeter) // configure, NPLC
 				countSent := false
 				trigger := func() float64 {
-					c := query(RoleMeter) + f.TriggerSeconds + float64(max(t.Readings, 1))*f.readingSeconds(t.NPLC)
+					c := query(plan.RoleMeter) + f.TriggerSeconds + float64(max(t.Readings, 1))*f.readingSeconds(t.NPLC)
 					if !countSent {
-						c += role(RoleMeter).SetSeconds
+						c += role(plan.RoleMeter).SetSeconds
 						countSent = true
 					}
 					return c
 				}
-				steps := TestSteps(p, i)
+				steps := plan.TestSteps(p, i)
 				for rep := 0; rep < t.Repeats; rep++ {
 					for _, st := range steps {
 						ps := 0.0
-						if acts, err := Transition(p, state, st.State); err == nil {
+						if acts, err := plan.Transition(p, state, st.State); err == nil {
 							ps += actsCost(acts)
 						}
 						state = st.State
@@ -221,21 +228,21 @@ func (f *Figures) Timeline(p *Plan) Timeline {
 							ps += query(r)
 						}
 						ps += trigger()
-						if tp.Mode == TempChamber || tp.Mode == TempThermometer {
-							ps += query(RoleThermometer)
+						if tp.Mode == plan.TempChamber || tp.Mode == plan.TempThermometer {
+							ps += query(plan.RoleThermometer)
 						}
 						now += ps
 						tl.TestSeconds[i] += ps
 						tl.Points = append(tl.Points, TimedPoint{Key: st.Key(ti, u.ID, rep), Test: i, Seconds: ps, EndsAt: now})
 					}
 				}
-				if acts, err := Transition(p, state, nominal); err == nil {
+				if acts, err := plan.Transition(p, state, nominal); err == nil {
 					now += actsCost(acts)
 				}
 				state = nominal
 				tl.TestCampaignSeconds[i] += now - testStart
 			}
-			pd := actsCost(PowerDownFrom(p, nominal))
+			pd := actsCost(plan.PowerDownFrom(p, nominal))
 			tl.PowerSeconds += pd
 			now += pd
 		}
@@ -247,11 +254,11 @@ func (f *Figures) Timeline(p *Plan) Timeline {
 			tl.TestSeconds[i] /= n
 		}
 	}
-	if tp.Mode == TempChamber {
+	if tp.Mode == plan.TempChamber {
 		tl.FinishSeconds += rampChamberAt(f, p, w, &air, tp.AmbientCelsius)
 	}
 	if len(p.Units) > 0 && p.Units[0].Channel != "" {
-		tl.FinishSeconds += setCost(RoleSwitch)
+		tl.FinishSeconds += setCost(plan.RoleSwitch)
 	}
 	now += tl.FinishSeconds
 	tl.TotalSeconds = now
@@ -270,9 +277,9 @@ func airAfter(a, sp, d, tau float64) float64 {
 // rampChamberAt is the runner's chamber ramp from the present reading
 // (*air) to target: one reading, then ⌈|Δ|/step⌉ ticks each followed by a
 // set point; *air follows the staircase.
-func rampChamberAt(f *Figures, p *Plan, w SequencerWaits, air *float64, target float64) float64 {
-	set := f.Roles[RoleChamber].SetSeconds + f.Roles[RoleChamber].SettleSeconds
-	t := f.Roles[RoleChamber].QuerySeconds
+func rampChamberAt(f *Figures, p *plan.Plan, w SequencerWaits, air *float64, target float64) float64 {
+	set := f.Roles[plan.RoleChamber].SetSeconds + f.Roles[plan.RoleChamber].SettleSeconds
+	t := f.Roles[plan.RoleChamber].QuerySeconds
 	rate := p.Temperature.RampMaxCPerMinute
 	from := *air
 	if !(rate > 0) || from == target {
@@ -283,7 +290,7 @@ func rampChamberAt(f *Figures, p *Plan, w SequencerWaits, air *float64, target f
 	for sp != target {
 		t += w.ChamberTickSeconds + set
 		*air = airAfter(*air, sp, w.ChamberTickSeconds, f.ChamberAirTauSeconds)
-		sp = StepToward(sp, target, step)
+		sp = plan.StepToward(sp, target, step)
 	}
 	return t
 }
@@ -291,9 +298,9 @@ func rampChamberAt(f *Figures, p *Plan, w SequencerWaits, air *float64, target f
 // soakTime is the runner's soak at point: read every poll interval until
 // the reading has stayed within ±soak_tolerance_c for soak_s (or the
 // time-out); *air approaches point meanwhile.
-func soakTime(f *Figures, p *Plan, w SequencerWaits, air *float64, point float64) float64 {
+func soakTime(f *Figures, p *plan.Plan, w SequencerWaits, air *float64, point float64) float64 {
 	tp := &p.Temperature
-	q := f.Roles[RoleThermometer].QuerySeconds
+	q := f.Roles[plan.RoleThermometer].QuerySeconds
 	poll := w.SoakIntervalSeconds
 	if tp.SoakSeconds > 0 && poll > tp.SoakSeconds/5 {
 		poll = math.Max(tp.SoakSeconds/5, 1)
@@ -321,18 +328,18 @@ func soakTime(f *Figures, p *Plan, w SequencerWaits, air *float64, point float64
 
 // stimulusRoleNames lists the roles a level of test t moves (the runner
 // reads each back after settling).
-func stimulusRoleNames(p *Plan, t *Test, part string) []string {
-	s0, s1 := StateAt(p, t, part, 0), StateAt(p, t, part, 1)
+func stimulusRoleNames(p *plan.Plan, t *plan.Test, part string) []string {
+	s0, s1 := plan.StateAt(p, t, part, 0), plan.StateAt(p, t, part, 1)
 	var out []string
 	add := func(role string, a, b float64) {
 		if math.Abs(b-a) > 1e-12 {
 			out = append(out, role)
 		}
 	}
-	add(RoleSupplyPos, s0.PosVolts, s1.PosVolts)
-	add(RoleSupplyNeg, s0.NegVolts, s1.NegVolts)
-	add(RoleSourceCM, s0.CMVolts, s1.CMVolts)
-	add(RoleSourceDiff, s0.DiffVolts, s1.DiffVolts)
-	add(RoleSourceRef, s0.RefVolts, s1.RefVolts)
+	add(plan.RoleSupplyPos, s0.PosVolts, s1.PosVolts)
+	add(plan.RoleSupplyNeg, s0.NegVolts, s1.NegVolts)
+	add(plan.RoleSourceCM, s0.CMVolts, s1.CMVolts)
+	add(plan.RoleSourceDiff, s0.DiffVolts, s1.DiffVolts)
+	add(plan.RoleSourceRef, s0.RefVolts, s1.RefVolts)
 	return out
 }

@@ -1,6 +1,8 @@
-package plan
+package estimate
 
 import (
+	"nullbench/procedure/plan"
+
 	"fmt"
 	"math"
 )
@@ -51,7 +53,7 @@ const sizeMaxRepeats = 1000
 // and of repeats is tried and the quickest that reaches the target kept
 // (or, if none does, the one with the least U). Other settings (dwell,
 // settle, order) are the plan's.
-func Size(p *Plan, f Figures, target SizeTarget) (*Plan, []SizedTest) {
+func Size(p *plan.Plan, f Figures, target SizeTarget) (*plan.Plan, []SizedTest) {
 	out := clonePlan(p)
 	want := target.CoefficientU()
 	before := Predict(singleUnit(p), f)
@@ -59,10 +61,10 @@ func Size(p *Plan, f Figures, target SizeTarget) (*Plan, []SizedTest) {
 	for i := range p.Tests {
 		st := SizedTest{Test: i, Kind: p.Tests[i].Kind, Before: before.Tests[i], BeforeSecs: before.Tests[i].UnitSeconds}
 		part := ""
-		if p.Tests[i].Kind == TestBoardCMRR {
-			part = PartCM
+		if p.Tests[i].Kind == plan.TestBoardCMRR {
+			part = plan.PartCM
 		}
-		lo, hi, ok := SafeLevels(p, &p.Tests[i], part)
+		lo, hi, ok := plan.SafeLevels(p, &p.Tests[i], part)
 		if !ok {
 			res = append(res, st)
 			continue
@@ -169,9 +171,9 @@ func Size(p *Plan, f Figures, target SizeTarget) (*Plan, []SizedTest) {
 }
 
 // clonePlan copies p deeply enough for Size to change its tests.
-func clonePlan(p *Plan) *Plan {
+func clonePlan(p *plan.Plan) *plan.Plan {
 	q := *p
-	q.Tests = make([]Test, len(p.Tests))
+	q.Tests = make([]plan.Test, len(p.Tests))
 	for i, t := range p.Tests {
 		t.Levels = append([]float64(nil), t.Levels...)
 		t.DiffLevels = append([]float64(nil), t.DiffLevels...)
@@ -181,20 +183,20 @@ func clonePlan(p *Plan) *Plan {
 }
 
 // singleUnit is p with one unit at one temperature.
-func singleUnit(p *Plan) *Plan {
+func singleUnit(p *plan.Plan) *plan.Plan {
 	q := clonePlan(p)
 	if len(q.Units) > 1 {
 		q.Units = q.Units[:1]
 	}
-	q.Temperature.Mode = TempNone
+	q.Temperature.Mode = plan.TempNone
 	q.Temperature.PointsCelsius = nil
 	return q
 }
 
 // singleTest is singleUnit(p) with test i only.
-func singleTest(p *Plan, i int) *Plan {
+func singleTest(p *plan.Plan, i int) *plan.Plan {
 	q := singleUnit(p)
-	q.Tests = []Test{q.Tests[i]}
+	q.Tests = []plan.Test{q.Tests[i]}
 	q.Tests[0].Levels = append([]float64(nil), p.Tests[i].Levels...)
 	return q
 }
@@ -207,12 +209,12 @@ func (s SizedTest) String() string {
 	}
 	return fmt.Sprintf("%s %s: levels %v V, %g NPLC, %d readings, %d repeat(s): U %.3g µV/V (%.1f dB resolvable), %s per unit (was %s, U %.3g µV/V); %s",
 		testKey(s.Test), s.Kind, s.Levels, s.NPLC, s.Readings, s.Repeats, s.After.ExpandedUUVPerV, s.After.ResolvableDB,
-		FormatSeconds(s.AfterSecs), FormatSeconds(s.BeforeSecs), s.Before.ExpandedUUVPerV, verdict)
+		plan.FormatSeconds(s.AfterSecs), plan.FormatSeconds(s.BeforeSecs), s.Before.ExpandedUUVPerV, verdict)
 }
 
 // PredictTest predicts test i of p for one unit at one temperature with
 // the given levels, NPLC, readings and repeats (the rest as written).
-func PredictTest(p *Plan, f Figures, i int, levels []float64, nplc float64, readings, repeats int) TestPrediction {
+func PredictTest(p *plan.Plan, f Figures, i int, levels []float64, nplc float64, readings, repeats int) TestPrediction {
 	q := singleTest(p, i)
 	t := &q.Tests[0]
 	t.Levels, t.NPLC, t.Readings, t.Repeats = levels, nplc, readings, repeats

@@ -1,4 +1,4 @@
-package plan
+package estimate
 
 // Accuracy is a DC accuracy specification: ±(GainPPM·10⁻⁶·|reading| +
 // OffsetVolts), taken as the half-width of a rectangular distribution (GUM

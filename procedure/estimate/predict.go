@@ -1,6 +1,8 @@
-package plan
+package estimate
 
 import (
+	"nullbench/procedure/plan"
+
 	"fmt"
 	"math"
 )
@@ -72,7 +74,7 @@ func (pr Prediction) Warnings() []string {
 // common-mode sweep). Near zero the Type B terms (noise-gain tolerance,
 // meter and stimulus gain) vanish because they scale with the coefficient,
 // so U is the resolution limit; drift and thermal tails are not counted.
-func Predict(p *Plan, f Figures) Prediction {
+func Predict(p *plan.Plan, f Figures) Prediction {
 	tl := f.Timeline(p)
 	pr := Prediction{Timeline: tl, TotalSeconds: tl.TotalSeconds, WallSeconds: tl.TotalSeconds}
 	if s := p.Bench.TimeScale; s > 0 {
@@ -82,15 +84,15 @@ func Predict(p *Plan, f Figures) Prediction {
 		t := &p.Tests[i]
 		tp := TestPrediction{Test: i, Kind: t.Kind, UnitSeconds: tl.TestSeconds[i], Seconds: tl.TestCampaignSeconds[i]}
 		tp.Divisor = p.Fixture.NoiseGain
-		if p.Fixture.Kind == FixtureBoard {
+		if p.Fixture.Kind == plan.FixtureBoard {
 			tp.Divisor = p.Fixture.BoardGain
 		}
 		// The fit's points: every level visited (a zigzag or symmetric
 		// order visits each twice) of every repeat; board_cmrr's
 		// coefficient comes from its common-mode sweep.
 		var visited []float64
-		for _, sw := range Sweeps(t) {
-			if sw.Part == "" || sw.Part == PartCM {
+		for _, sw := range plan.Sweeps(t) {
+			if sw.Part == "" || sw.Part == plan.PartCM {
 				visited = append(visited, sw.Levels...)
 			}
 		}
@@ -198,7 +200,7 @@ func StudentT975(nu float64) float64 {
 // ed., §8.1; from memory); its 1/f part adds e_n²·f_c·ln(f_H/f_L) between
 // f_L = 1/testSeconds and f_H = 1/(2T) (Motchenbacher & Connelly,
 // Low-Noise Electronic System Design, Wiley 1993, ch. 1; from memory).
-func pointNoise(p *Plan, f *Figures, t *Test, divisor, testSeconds float64) float64 {
+func pointNoise(p *plan.Plan, f *Figures, t *plan.Test, divisor, testSeconds float64) float64 {
 	v := f.PointNoiseVolts(t.NPLC, t.RangeVolts, t.Readings)
 	en := p.Part.NoiseNVPerRtHz
 	if !(en > 0) || !(divisor > 0) {
