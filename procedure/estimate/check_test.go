@@ -63,8 +63,13 @@ func TestWriteCheckGolden(t *testing.T) {
 // first point of board_cmrr is the centre level, reached without a ramp;
 // dwell 1 s, then the settling check's two triggers of 5 readings at
 // 1 NPLC (5 × 20 ms = 0.1 s each) started 1 s apart, then the measuring
-// trigger: 1 + 1 + 0.1 + 0.1 = 2.2 s. Every later point adds its ramp
-// steps, at least the 50 ms ramp dwell each.
+// trigger: 1 + 1 + 0.1 + 0.1 = 2.2 s; plus the expected further
+// comparisons of the settling check, each 1 s: with the point noise σ =
+// 13.5 µV (5 readings at 1 NPLC on 10 V: √((3e-6·10)²/5 + (1.5e-7·10)²)
+// = 13.5 µV) two means differ by more than settle_volts = 50 µV with
+// q = erfc(50/(2·13.5)) = 0.00882 (erfc from Abramowitz & Stegun
+// 7.1.2), so q/(1 − q) = 0.00890 s more: 2.2089 s. Every later point
+// adds its ramp steps, at least the 50 ms ramp dwell each.
 func TestTimelineBoardByHand(t *testing.T) {
 	p := loadExamplePlan(t, "board")
 	p.Tests[0].Repeats = 3
@@ -79,8 +84,8 @@ func TestTimelineBoardByHand(t *testing.T) {
 	if len(first) != 3*20 {
 		t.Fatalf("%d board_cmrr points for one unit, want 60", len(first))
 	}
-	if math.Abs(first[0].Seconds-2.2) > 1e-9 {
-		t.Errorf("first point %g s, want 2.2", first[0].Seconds)
+	if math.Abs(first[0].Seconds-2.2089) > 1e-4 {
+		t.Errorf("first point %g s, want 2.2089", first[0].Seconds)
 	}
 	ramped := 0
 	for _, tp := range first[1:] {

@@ -70,6 +70,22 @@ type Figures struct {
 	// this first-order time constant (0: at once).
 	ChamberAirTauSeconds float64
 	Waits                SequencerWaits
+	// WaitOverrunSeconds is how much longer than asked every timed wait
+	// lasts, WaitFloorSeconds the shortest wait there is, both in bench
+	// seconds: a timer wakes late by the host's scheduling latency and no
+	// sooner than its granularity. On a real bench (microseconds against
+	// waits of tens of ms) they are negligible and 0; on a simulated bench
+	// at time_scale N each is the host's wall-clock figure × N, which is
+	// where the time of a fast simulated run goes (cmd measures them).
+	WaitOverrunSeconds, WaitFloorSeconds float64
+}
+
+// wait is the bench time a timed wait of d seconds takes.
+func (f *Figures) wait(d float64) float64 {
+	if !(d > 0) {
+		return 0
+	}
+	return math.Max(d+f.WaitOverrunSeconds, f.WaitFloorSeconds)
 }
 
 // DefaultFigures are the built-in profiles' figures with exchanges taking
@@ -147,11 +163,14 @@ func (f *Figures) Timeline(p *plan.Plan) Timeline {
 	tl := Timeline{TestSeconds: make([]float64, len(p.Tests)), TestCampaignSeconds: make([]float64, len(p.Tests))}
 	role := func(r string) RoleFigures { return f.Roles[r] }
 	now := 0.0
-	setCost := func(r string) float64 { rf := role(r); return rf.SetSeconds + rf.SettleSeconds }
+	setCost := func(r string) float64 { rf := role(r); return rf.SetSeconds + f.wait(rf.SettleSeconds) }
+	// A voltage step is followed by what is left of the ramp dwell after
+	// the set command and its settle (the runner's execute).
+	dwellAfter := func(c float64) float64 { return c + f.wait(w.RampDwellSeconds-c) }
 	actCost := func(a plan.PowerAction) float64 {
 		c := setCost(a.Role)
 		if a.Op == plan.PowerSetVolts {
-			c = math.Max(c, w.RampDwellSeconds)
+			c = dwellAfter(c)
 		}
 		return c
 	}
@@ -171,7 +190,7 @@ func (f *Figures) Timeline(p *plan.Plan) Timeline {
 		tl.BenchOffSeconds += query(r) + setCost(r)
 	}
 	for _, r := range []string{plan.RoleSupplyPos, plan.RoleSupplyNeg} {
-		tl.BenchOffSeconds += query(r) + setCost(r) + math.Max(setCost(r), w.RampDwellSeconds)
+		tl.BenchOffSeconds += query(r) + setCost(r) + dwellAfter(setCost(r))
 	}
 	now += tl.BenchOffSeconds
 
@@ -189,7 +208,7 @@ func (f *Figures) Timeline(p *plan.Plan) Timeline {
 		}
 		for _, u := range p.Units {
 			if u.Channel != "" {
-				c := 2*setCost(plan.RoleSwitch) + w.RelaySettleSeconds
+				c := 2*setCost(plan.RoleSwitch) + f.wait(w.RelaySettleSeconds)
 				tl.ConnectSeconds += c
 				now += c
 			}
@@ -206,7 +225,7 @@ func (f *Figures) Timeline(p *plan.Plan) Timeline {
 				now += 2 * setCost(plan.RoleMeter) // configure, NPLC
 				countSent := false
 				trigger := func() float64 {
-					c := query(plan.RoleMeter) + f.TriggerSeconds + float64(max(t.Readings, 1))*f.readingSeconds(t.NPLC)
+					c := query(plan.RoleMeter) + f.TriggerSeconds + f.wait(float64(max(t.Readings, 1))*f.readingSeconds(t.NPLC))
 					if !countSent {
 						c += role(plan.RoleMeter).SetSeconds
 						countSent = true
@@ -221,9 +240,12 @@ func (f *Figures) Timeline(p *plan.Plan) Timeline {
 							ps += actsCost(acts)
 						}
 						state = st.State
-						ps += t.DwellSeconds
+						ps += f.wait(t.DwellSeconds)
 						first := trigger()
-						ps += math.Max(first, w.SettleIntervalSeconds) + trigger()
+						again := trigger()
+						comparison := f.wait(w.SettleIntervalSeconds-again) + again
+						ps += first + f.wait(w.SettleIntervalSeconds-first) + again
+						ps += settleRetries(p, f, t, w) * comparison
 						for _, r := range stimulusRoleNames(p, t, st.Part) {
 							ps += query(r)
 						}
@@ -265,6 +287,35 @@ func (f *Figures) Timeline(p *plan.Plan) Timeline {
 	return tl
 }
 
+// settleRetries is the expected number of further comparisons the
+// settling check makes at a point whose reading has settled: two means of
+// `readings` readings, each with standard deviation σ (pointNoise), differ
+// by more than settle_volts with probability q = erfc(s/(2σ)) (their
+// difference is normal with standard deviation √2·σ), and the check
+// repeats until a difference is within it, a geometric number of times
+// with mean q/(1 − q) (e.g. Papoulis, Probability, Random Variables and
+// Stochastic Processes, the geometric distribution; from memory), at most
+// until the time-out. A settling tail of the part itself is not counted.
+func settleRetries(p *plan.Plan, f *Figures, t *plan.Test, w SequencerWaits) float64 {
+	divisor := p.Fixture.NoiseGain
+	if p.Fixture.Kind == plan.FixtureBoard {
+		divisor = p.Fixture.BoardGain
+	}
+	sigma := pointNoise(p, f, t, divisor, 0)
+	if !(sigma > 0) || !(t.SettleVolts > 0) {
+		return 0
+	}
+	q := math.Erfc(t.SettleVolts / (2 * sigma))
+	most := 0.0
+	if w.SettleIntervalSeconds > 0 {
+		most = math.Floor(t.SettleTimeoutSeconds / w.SettleIntervalSeconds)
+	}
+	if q >= 1 {
+		return most
+	}
+	return math.Min(q/(1-q), most)
+}
+
 // airAfter is the chamber air after d seconds of following set point sp
 // from a, as a first-order lag of time constant tau (0: at once).
 func airAfter(a, sp, d, tau float64) float64 {
@@ -288,7 +339,7 @@ func rampChamberAt(f *Figures, p *plan.Plan, w SequencerWaits, air *float64, tar
 	step := rate * w.ChamberTickSeconds / 60
 	sp := from
 	for sp != target {
-		t += w.ChamberTickSeconds + set
+		t += f.wait(w.ChamberTickSeconds) + set
 		*air = airAfter(*air, sp, w.ChamberTickSeconds, f.ChamberAirTauSeconds)
 		sp = plan.StepToward(sp, target, step)
 	}
@@ -321,7 +372,7 @@ func soakTime(f *Figures, p *plan.Plan, w SequencerWaits, air *float64, point fl
 		if t >= tp.SoakTimeoutSeconds {
 			return t
 		}
-		t += poll
+		t += f.wait(poll)
 		*air = airAfter(*air, point, poll, f.ChamberAirTauSeconds)
 	}
 }
