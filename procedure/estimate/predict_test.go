@@ -2,11 +2,14 @@ package estimate
 
 import (
 	"bufio"
+	"bytes"
 	"math"
 	"os"
 	"strconv"
 	"strings"
 	"testing"
+
+	"nullbench/procedure/plan"
 )
 
 // TestStudentT975AgainstNISTTable checks the coverage factor against the
@@ -43,5 +46,39 @@ func TestStudentT975AgainstNISTTable(t *testing.T) {
 	}
 	if rows < 30 {
 		t.Fatalf("read %d rows", rows)
+	}
+}
+
+// TestLimitAboveResolvableWarns works the noise-gain plan's cmrr test out
+// by hand and checks that check warns of a limit above what it resolves
+// and not of one below. One point: 5 readings at 1 NPLC on the 10 V range,
+// σ = √((3e-6·10)²/5 + (1.5e-7·10)²) = 13.5 µV (the built-in meter
+// figures); the zigzag visits −10 … +10 V in steps of 5 twice, Σ(x − x̄)² =
+// 2 × 250 = 500 V²; the slope's u = σ/√500 = 0.604 µV/V at the meter
+// (GUM H.3), / K = 101 → 0.00598 µV/V; ν = 10 − 2 = 8, t = 2.306 (NIST/
+// SEMATECH e-Handbook table 1.3.6.7.2) → U = 0.01379 µV/V, so the plan
+// resolves 20·log10(10⁶/0.01379) = 157.2 dB.
+func TestLimitAboveResolvableWarns(t *testing.T) {
+	p := loadExamplePlan(t, "noise_gain")
+	pr := Predict(p, DefaultFigures())
+	tp := pr.Tests[0]
+	if tp.Kind != plan.TestCMRR || math.Abs(tp.ExpandedUUVPerV-0.01379) > 0.0001 || math.Abs(tp.ResolvableDB-157.2) > 0.05 {
+		t.Fatalf("cmrr: U = %.5f µV/V, resolves %.2f dB; want 0.01379 µV/V, 157.2 dB (by hand)", tp.ExpandedUUVPerV, tp.ResolvableDB)
+	}
+	for _, c := range []struct {
+		limit float64
+		warn  bool
+	}{{150, false}, {157, false}, {157.5, true}, {170, true}} {
+		p.Limits[plan.TestCMRR] = c.limit
+		warns := Predict(p, DefaultFigures()).Warnings()
+		var out bytes.Buffer
+		if err := WriteCheck(&out, p, DefaultFigures()); err != nil {
+			t.Fatal(err)
+		}
+		got := len(warns) > 0 && strings.Contains(warns[0], "test[1] cmrr") && strings.Contains(warns[0], "above")
+		printed := strings.Contains(out.String(), "\nwarnings\n") && strings.Contains(out.String(), "ABOVE what the plan resolves")
+		if got != c.warn || printed != c.warn {
+			t.Errorf("limit %g dB: warnings %q, printed %v; want a warning: %v", c.limit, warns, printed, c.warn)
+		}
 	}
 }
