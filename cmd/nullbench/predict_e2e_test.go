@@ -1,6 +1,7 @@
 package main
 
 import (
+	"math"
 	"sort"
 	"testing"
 
@@ -10,17 +11,19 @@ import (
 )
 
 // TestPredictedUncertaintyMatchesAchieved runs the demo lot plan at 25 °C
-// on the simulated bench (virtual clock) and compares, per test kind, the
-// expanded uncertainty check predicted with the median of the achieved
-// ones over the units. The bar is a factor 1.3 either way (the project's
-// requirement; no published source). The units' ratios are high (120 dB
-// and up) so that the Type B terms, which scale with the coefficient,
-// stay small beside the noise: the prediction is the resolution limit.
+// on the simulated bench (virtual clock) over 12 units and compares, per
+// test kind, the expanded uncertainty check predicted with the root mean
+// square of the achieved ones. The bar is a factor 1.3 either way (the
+// project's requirement; no published source). The units' ratios are high
+// (120 dB and up) so that the Type B terms, which scale with the
+// coefficient, stay small beside the noise: the prediction is the
+// resolution limit. Seen (seed 11): cmrr 1.04, psrr_pos 0.84, psrr_neg
+// 1.07, psrr_sym 0.91, aol 1.04; seeds 12 and 13 within 0.94 … 1.08.
 func TestPredictedUncertaintyMatchesAchieved(t *testing.T) {
 	if testing.Short() {
 		t.Skip("runs a campaign on the simulated bench")
 	}
-	units := e2eLot(6, 125, 135)
+	units := e2eLot(12, 125, 135)
 	for i := range units {
 		// A_OL left to the sim, which derives it from kc + kp + kn + ko = 0.
 		units[i].psrrPos, units[i].psrrNeg, units[i].aol = 130, 128, 0
@@ -60,18 +63,18 @@ func TestPredictedUncertaintyMatchesAchieved(t *testing.T) {
 			t.Errorf("%s: no achieved result (have %v)", name, keys(achieved))
 			continue
 		}
-		sort.Float64s(got)
-		med := got[len(got)/2]
-		r := med / tp.ExpandedUUVPerV
-		t.Logf("%-16s predicted U %.4g µV/V, achieved median %.4g µV/V (ratio %.2f over %d units)", tp.Kind, tp.ExpandedUUVPerV, med, r, len(got))
-		bar := 1.3
-		if tp.Kind == plan.TestCMRR || tp.Kind == plan.TestAOL {
-			// Not yet met for cmrr and aol (seen: 1.85 and 1.30); the
-			// cause is not established (suspected: the slow wander of the
-			// relay path, which the prediction leaves out). Held at 2 so
-			// that it cannot get worse unnoticed.
-			bar = 2
+		// The root mean square over the units: each achieved u² estimates
+		// σ² without bias (ν = 7 each), their mean with ν = 7 × units (a
+		// relative scatter of 1/√(2ν), 8 % for 12 units; the median of a
+		// few units scatters by 20 % or more).
+		ss := 0.0
+		for _, u := range got {
+			ss += u * u
 		}
+		rms := math.Sqrt(ss / float64(len(got)))
+		r := rms / tp.ExpandedUUVPerV
+		t.Logf("%-16s predicted U %.4g µV/V, achieved rms %.4g µV/V (ratio %.2f over %d units)", tp.Kind, tp.ExpandedUUVPerV, rms, r, len(got))
+		const bar = 1.3
 		if r > bar || r < 1/bar {
 			t.Errorf("%s: achieved/predicted U = %.2f, outside 1/%g … %g", tp.Kind, r, bar, bar)
 		}
