@@ -103,10 +103,10 @@ func runSize(std streams, o sizeOptions) error {
 var (
 	testHeader = regexp.MustCompile(`(?m)^\s*\[\[test\]\]\s*(#.*)?$`)
 	anyHeader  = regexp.MustCompile(`(?m)^\s*\[`)
-	sizedKey   = regexp.MustCompile(`(?m)^\s*(levels|nplc|readings|repeats)\s*=.*\n`)
+	sizedKey   = regexp.MustCompile(`(?m)^\s*(levels|order|nplc|readings|repeats)\s*=.*\n`)
 )
 
-// rewriteTests replaces levels, nplc, readings and repeats of each
+// rewriteTests replaces levels, order, nplc, readings and repeats of each
 // [[test]] table of the plan's text with the sized plan's, keeping every
 // other line (and comment) as written.
 func rewriteTests(text string, sized *plan.Plan) string {
@@ -135,8 +135,8 @@ func rewriteTests(text string, sized *plan.Plan) string {
 			}
 		}
 		b.WriteString(text[prev:endHeader])
-		fmt.Fprintf(&b, "# sized by nullbench size\nlevels = [%s]\nnplc = %s\nreadings = %d\nrepeats = %d\n",
-			strings.Join(lv, ", "), tomlNumber(t.NPLC), t.Readings, t.Repeats)
+		fmt.Fprintf(&b, "# sized by nullbench size\nlevels = [%s]\norder = %q\nnplc = %s\nreadings = %d\nrepeats = %d\n",
+			strings.Join(lv, ", "), t.Order, tomlNumber(t.NPLC), t.Readings, t.Repeats)
 		b.WriteString(body)
 		prev = end
 	}

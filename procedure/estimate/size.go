@@ -27,6 +27,7 @@ type SizedTest struct {
 	Test                     int
 	Kind                     string
 	Levels                   []float64
+	Order                    string
 	NPLC                     float64
 	Readings, Repeats        int
 	Before, After            TestPrediction // the plan's test as written and as sized
@@ -76,10 +77,26 @@ func Size(p *plan.Plan, f Figures, target SizeTarget) (*plan.Plan, []SizedTest) 
 		// A symmetric range keeps the nominal state in the middle.
 		st.SafeLoVolts, st.SafeHiVolts = -half, half
 		r3 := func(x float64) float64 { return math.Round(x*1000) / 1000 }
-		designs := [][]float64{{r3(-half), r3(-0.9 * half), r3(0.9 * half), r3(half)}, {r3(-half), 0, r3(half)}}
+		// Each design in the plan's order and in the symmetric one (a b …
+		// b a): both palindromes, so a steady drift cancels, but with the
+		// levels at the two ends the symmetric order crosses the range
+		// once per half pass where a zigzag crosses it at every point, and
+		// each volt of ramp costs its steps' settle and dwell.
+		type design struct {
+			levels []float64
+			order  string
+		}
+		var designs []design
+		for _, levels := range [][]float64{{r3(-half), r3(-0.9 * half), r3(0.9 * half), r3(half)}, {r3(-half), 0, r3(half)}} {
+			designs = append(designs, design{levels, p.Tests[i].Order})
+			if p.Tests[i].Order != plan.OrderSymmetric {
+				designs = append(designs, design{levels, plan.OrderSymmetric})
+			}
+		}
 		bestSecs, bestU := math.Inf(1), math.Inf(1)
 		var best SizedTest
-		for _, levels := range designs {
+		for _, d := range designs {
+			levels := d.levels
 			for _, nplc := range f.NoiseNPLC {
 				if nplc < 1 {
 					// Below one power-line cycle the integration no
@@ -93,8 +110,8 @@ func Size(p *plan.Plan, f Figures, target SizeTarget) (*plan.Plan, []SizedTest) 
 					// the same time each and divide u by √repeats (with the t
 					// factor of the larger ν), so the bisection below needs no
 					// timeline of its own.
-					tp1 := PredictTest(p, f, i, levels, nplc, n, 1)
-					tp2 := PredictTest(p, f, i, levels, nplc, n, 2)
+					tp1 := predictTest(p, f, i, levels, d.order, nplc, n, 1)
+					tp2 := predictTest(p, f, i, levels, d.order, nplc, n, 2)
 					params := tp1.Points - tp1.DOF
 					t1 := p.Tests[i]
 					t1.NPLC, t1.Readings = nplc, n
@@ -131,7 +148,7 @@ func Size(p *plan.Plan, f Figures, target SizeTarget) (*plan.Plan, []SizedTest) 
 						// depends on the test's length), a few repeats more
 						// if needed.
 						for try := 0; try < 5 && lo <= sizeMaxRepeats; try++ {
-							tp = PredictTest(p, f, i, levels, nplc, n, lo)
+							tp = predictTest(p, f, i, levels, d.order, nplc, n, lo)
 							if ok = tp.ExpandedUUVPerV > 0 && tp.ExpandedUUVPerV <= want; ok {
 								break
 							}
@@ -149,8 +166,8 @@ func Size(p *plan.Plan, f Figures, target SizeTarget) (*plan.Plan, []SizedTest) 
 						continue
 					}
 					cand := st
-					cand.Levels, cand.NPLC, cand.Readings, cand.Repeats, cand.After, cand.AfterSecs, cand.Reached =
-						levels, nplc, n, max(lo, 1), tp, tp.UnitSeconds, ok
+					cand.Levels, cand.Order, cand.NPLC, cand.Readings, cand.Repeats, cand.After, cand.AfterSecs, cand.Reached =
+						levels, d.order, nplc, n, max(lo, 1), tp, tp.UnitSeconds, ok
 					switch {
 					case ok && tp.UnitSeconds < bestSecs:
 						best, bestSecs, bestU = cand, tp.UnitSeconds, u
@@ -163,7 +180,7 @@ func Size(p *plan.Plan, f Figures, target SizeTarget) (*plan.Plan, []SizedTest) 
 		if best.Levels != nil {
 			st = best
 			t := &out.Tests[i]
-			t.Levels, t.NPLC, t.Readings, t.Repeats = st.Levels, st.NPLC, st.Readings, st.Repeats
+			t.Levels, t.Order, t.NPLC, t.Readings, t.Repeats = st.Levels, st.Order, st.NPLC, st.Readings, st.Repeats
 		}
 		res = append(res, st)
 	}
@@ -207,17 +224,22 @@ func (s SizedTest) String() string {
 	if !s.Reached {
 		verdict = "does NOT reach the target (closest shown)"
 	}
-	return fmt.Sprintf("%s %s: levels %v V, %g NPLC, %d readings, %d repeat(s): U %.3g µV/V (%.1f dB resolvable), %s per unit (was %s, U %.3g µV/V); %s",
-		testKey(s.Test), s.Kind, s.Levels, s.NPLC, s.Readings, s.Repeats, s.After.ExpandedUUVPerV, s.After.ResolvableDB,
+	return fmt.Sprintf("%s %s: levels %v V in %s order, %g NPLC, %d readings, %d repeat(s): U %.3g µV/V (%.1f dB resolvable), %s per unit (was %s, U %.3g µV/V); %s",
+		testKey(s.Test), s.Kind, s.Levels, s.Order, s.NPLC, s.Readings, s.Repeats, s.After.ExpandedUUVPerV, s.After.ResolvableDB,
 		plan.FormatSeconds(s.AfterSecs), plan.FormatSeconds(s.BeforeSecs), s.Before.ExpandedUUVPerV, verdict)
 }
 
 // PredictTest predicts test i of p for one unit at one temperature with
 // the given levels, NPLC, readings and repeats (the rest as written).
 func PredictTest(p *plan.Plan, f Figures, i int, levels []float64, nplc float64, readings, repeats int) TestPrediction {
+	return predictTest(p, f, i, levels, p.Tests[i].Order, nplc, readings, repeats)
+}
+
+// predictTest is PredictTest in the given level order.
+func predictTest(p *plan.Plan, f Figures, i int, levels []float64, order string, nplc float64, readings, repeats int) TestPrediction {
 	q := singleTest(p, i)
 	t := &q.Tests[0]
-	t.Levels, t.NPLC, t.Readings, t.Repeats = levels, nplc, readings, repeats
+	t.Levels, t.Order, t.NPLC, t.Readings, t.Repeats = levels, order, nplc, readings, repeats
 	tp := Predict(q, f).Tests[0]
 	tp.Test = i
 	return tp
