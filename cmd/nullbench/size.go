@@ -27,13 +27,14 @@ func newSizeCmd(std streams, run func(context.Context, streams, sizeOptions) err
 	cmd := &cobra.Command{
 		Use:   "size PLAN --target-u-db U --at DB",
 		Short: "Propose levels, readings, NPLC and repeats that reach a target uncertainty in the least bench time",
-		Long: `size proposes, for every test of PLAN, the levels (the ends and centre of
-the test's safe range), the NPLC, the readings per point and the repeats
-that reach an expanded uncertainty of --target-u-db dB on a ratio of --at dB
-in the least bench time, by the same prediction check makes (the profiles'
-[figures], the part's noise). It prints each test's proposal with its
-predicted U and time against the plan as written, and writes the sized plan
-(the same file with those four keys of each [[test]] replaced).`,
+		Long: `size proposes, for every test of PLAN, the levels (the ends of the test's
+safe range, with its centre or at 90 % of them), the order (the plan's or
+symmetric), the NPLC, the readings per point and the repeats that reach an
+expanded uncertainty of --target-u-db dB on a ratio of --at dB in the least
+bench time, by the same prediction check makes (the profiles' [figures],
+the part's noise). It prints each test's proposal with its predicted U and
+time against the plan as written, and writes the sized plan (the same file
+with those five keys of each [[test]] replaced).`,
 		Args: cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			o.Plan = args[0]
