@@ -126,3 +126,26 @@ func TestWriteCheckReportsWriteErrors(t *testing.T) {
 		}
 	}
 }
+
+// TestTimelineCountsTimerLateness works the board plan's first point out
+// by hand on a simulated bench whose every wait wakes WaitOverrunSeconds =
+// 0.3 s late and lasts at least WaitFloorSeconds = 1.1 s of bench time (a
+// host timer 0.3 ms late with a 1.1 ms floor, at time_scale 1000): the
+// dwell 1 s → 1.3 s; each trigger's integration of 0.1 s → 1.1 s; the
+// settling interval is used up by the first trigger (no wait); so 1.3 +
+// 1.1 + 1.1 + 1.1 = 4.6 s, plus the expected further comparisons
+// (0.00890, see TestTimelineBoardByHand) of 1.1 s each: 4.6098 s.
+func TestTimelineCountsTimerLateness(t *testing.T) {
+	p := loadExamplePlan(t, "board")
+	f := DefaultFigures()
+	f.WaitOverrunSeconds, f.WaitFloorSeconds = 0.3, 1.1
+	tl := f.Timeline(p)
+	if got := tl.Points[0].Seconds; math.Abs(got-4.6098) > 1e-4 {
+		t.Errorf("first point %.5f s, want 4.6098 s", got)
+	}
+	for _, c := range []struct{ d, want float64 }{{0, 0}, {-1, 0}, {0.5, 1.1}, {0.8, 1.1}, {1, 1.3}, {10, 10.3}} {
+		if got := f.wait(c.d); math.Abs(got-c.want) > 1e-12 {
+			t.Errorf("wait(%g) = %g, want %g", c.d, got, c.want)
+		}
+	}
+}
