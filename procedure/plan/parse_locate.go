@@ -1,171 +1,19 @@
 package plan
 
-import (
-	"sort"
-	"strconv"
-	"strings"
+import "nullbench/procedure/plan/internal/tomlkeys"
 
-	"github.com/pelletier/go-toml/v2/unstable"
-)
+// keyIndex records where each key of the plan file is (tomlkeys.Index), so
+// that errors found after decoding (validation, safety) can name a file
+// line, and so that defaults apply only to keys the file leaves out. Key
+// paths are dotted, with 1-based indexes for arrays of tables:
+// "part.nominal_pos_volts", "test[2].levels".
+type keyIndex struct{ x *tomlkeys.Index }
 
-// keyIndex records where each key of a plan file is, so that errors found
-// after decoding (validation, safety) can name a file line, and so that
-// defaults apply only to keys the file leaves out.
-//
-// Key paths are dotted, with 1-based indexes for arrays of tables:
-// "part.nominal_pos_volts", "test[2].levels", "bench.roles.meter.instrument".
-type keyIndex struct {
-	lines map[string]int   // key path -> line of the key (1-based)
-	elems map[string][]int // path of an array of scalars -> line of each element
-	byLn  map[int][]string // line -> key paths defined on it
-}
-
-// locateKeys walks a TOML document with go-toml's unstable parser. It stops
-// at the first syntax error and keeps what it found before it; the decoder
-// reports the error itself.
-func locateKeys(data []byte) *keyIndex {
-	idx := &keyIndex{lines: map[string]int{}, elems: map[string][]int{}, byLn: map[int][]string{}}
-	var nl []int // offsets of '\n'
-	for i, c := range data {
-		if c == '\n' {
-			nl = append(nl, i)
-		}
-	}
-	lineOf := func(n *unstable.Node) int {
-		if n == nil || n.Raw.Length == 0 {
-			return 0
-		}
-		off := int(n.Raw.Offset)
-		return sort.SearchInts(nl, off) + 1
-	}
-	arrays := map[string]int{} // array-of-tables path (no index) -> count so far
-	resolve := func(base string, parts []string, newArray bool) string {
-		path := base
-		for i, part := range parts {
-			path = joinKey(path, part)
-			if newArray && i == len(parts)-1 {
-				arrays[path]++
-				path += "[" + strconv.Itoa(arrays[path]) + "]"
-			} else if n := arrays[path]; n > 0 {
-				path += "[" + strconv.Itoa(n) + "]"
-			}
-		}
-		return path
-	}
-	var p unstable.Parser
-	p.Reset(data)
-	current := ""
-	var walkKV func(prefix string, kv *unstable.Node)
-	walkKV = func(prefix string, kv *unstable.Node) {
-		parts, first := keyParts(kv)
-		path := resolve(prefix, parts, false)
-		idx.set(path, lineOf(first))
-		val := kv.Value()
-		switch val.Kind {
-		case unstable.InlineTable:
-			it := val.Children()
-			for it.Next() {
-				if c := it.Node(); c.Kind == unstable.KeyValue {
-					walkKV(path, c)
-				}
-			}
-		case unstable.Array:
-			it := val.Children()
-			i := 0
-			for it.Next() {
-				c := it.Node()
-				switch c.Kind {
-				case unstable.Comment:
-					continue
-				case unstable.InlineTable:
-					sub := path + "[" + strconv.Itoa(i+1) + "]"
-					idx.set(sub, lineOf(first))
-					ct := c.Children()
-					for ct.Next() {
-						if g := ct.Node(); g.Kind == unstable.KeyValue {
-							walkKV(sub, g)
-						}
-					}
-				case unstable.Array:
-					// Nested arrays carry no plan keys; note the line only.
-					idx.elems[path] = append(idx.elems[path], lineOf(first))
-				default:
-					idx.elems[path] = append(idx.elems[path], lineOf(c))
-				}
-				i++
-			}
-		}
-	}
-	for p.NextExpression() {
-		e := p.Expression()
-		switch e.Kind {
-		case unstable.Table, unstable.ArrayTable:
-			parts, first := keyParts(e)
-			current = resolve("", parts, e.Kind == unstable.ArrayTable)
-			idx.set(current, lineOf(first))
-		case unstable.KeyValue:
-			walkKV(current, e)
-		}
-	}
-	return idx
-}
-
-// keyParts returns the parts of a (possibly dotted) key and its first node.
-func keyParts(n *unstable.Node) ([]string, *unstable.Node) {
-	var parts []string
-	var first *unstable.Node
-	it := n.Key()
-	for it.Next() {
-		k := it.Node()
-		if first == nil {
-			first = k
-		}
-		parts = append(parts, string(k.Data))
-	}
-	return parts, first
-}
-
-// joinKey appends one key part to a dotted path, quoting parts that are not
-// bare TOML keys.
-func joinKey(path, part string) string {
-	if !isBareKey(part) {
-		part = strconv.Quote(part)
-	}
-	if path == "" {
-		return part
-	}
-	return path + "." + part
-}
-
-func isBareKey(s string) bool {
-	if s == "" {
-		return false
-	}
-	for i := 0; i < len(s); i++ {
-		c := s[i]
-		if !(c >= 'A' && c <= 'Z' || c >= 'a' && c <= 'z' || c >= '0' && c <= '9' || c == '-' || c == '_') {
-			return false
-		}
-	}
-	return true
-}
-
-func (k *keyIndex) set(path string, line int) {
-	if _, ok := k.lines[path]; ok {
-		return
-	}
-	k.lines[path] = line
-	k.byLn[line] = append(k.byLn[line], path)
-}
+// locateKeys walks the plan file (tomlkeys.Locate).
+func locateKeys(data []byte) *keyIndex { return &keyIndex{tomlkeys.Locate(data)} }
 
 // has reports whether the file sets the key (or opens the table) at path.
-func (k *keyIndex) has(path string) bool {
-	if k == nil {
-		return false
-	}
-	_, ok := k.lines[path]
-	return ok
-}
+func (k *keyIndex) has(path string) bool { return k != nil && k.x.Has(path) }
 
 // line returns the line of the key at path, or of its nearest enclosing
 // table that the file names; 0 when nothing is known.
@@ -173,138 +21,28 @@ func (k *keyIndex) line(path string) int {
 	if k == nil {
 		return 0
 	}
-	for path != "" {
-		if l, ok := k.lines[path]; ok && l > 0 {
-			return l
-		}
-		path = parentKey(path)
-	}
-	return 0
+	return k.x.Line(path)
 }
 
-// elemLine returns the line of element i (0-based) of the array at path, or
-// the line of the key itself.
+// elemLine returns the line of element i (0-based) of the array at path,
+// or the line of the key itself.
 func (k *keyIndex) elemLine(path string, i int) int {
-	if k != nil {
-		if e := k.elems[path]; i >= 0 && i < len(e) && e[i] > 0 {
-			return e[i]
-		}
+	if k == nil {
+		return 0
 	}
-	return k.line(path)
+	return k.x.ElemLine(path, i)
 }
 
 // keyAt finds the indexed path defined on line whose parts, without array
-// indexes, are parts (as go-toml reports them). go-toml sometimes leaves
-// out the key of an inline table (it reports bench.roles.chanel for
-// chanel inside bench.roles.source_ref = {...}); then the path on that
-// line that starts with the same table and ends with the same key is
-// taken. It falls back to the parts joined with dots.
+// indexes, are parts (tomlkeys.Index.KeyAt).
 func (k *keyIndex) keyAt(line int, parts []string) string {
-	plain := ""
-	for _, p := range parts {
-		plain = joinKey(plain, p)
+	if k == nil {
+		return (*tomlkeys.Index)(nil).KeyAt(line, parts)
 	}
-	if k == nil || len(parts) == 0 {
-		return plain
-	}
-	for _, cand := range k.byLn[line] {
-		if stripIndexes(cand) == plain {
-			return cand
-		}
-	}
-	for _, cand := range k.byLn[line] {
-		cp := splitKey(stripIndexes(cand))
-		if len(cp) <= len(parts) || cp[len(cp)-1] != parts[len(parts)-1] {
-			continue
-		}
-		prefix := true
-		for i := 0; i < len(parts)-1; i++ {
-			if cp[i] != parts[i] {
-				prefix = false
-				break
-			}
-		}
-		if prefix {
-			return cand
-		}
-	}
-	return plain
+	return k.x.KeyAt(line, parts)
 }
 
-// splitKey splits a dotted key path into its parts, unquoting quoted
-// parts and keeping array indexes on their part ("test[2]").
-func splitKey(path string) []string {
-	var parts []string
-	for path != "" {
-		if path[0] == '"' {
-			end := 1
-			for end < len(path) && (path[end] != '"' || path[end-1] == '\\') {
-				end++
-			}
-			q, err := strconv.Unquote(path[:min(end+1, len(path))])
-			if err != nil {
-				q = path[1:min(end, len(path))]
-			}
-			rest := path[min(end+1, len(path)):]
-			if i := strings.IndexByte(rest, '.'); i >= 0 {
-				q += rest[:i]
-				rest = rest[i+1:]
-			} else {
-				q += rest
-				rest = ""
-			}
-			parts = append(parts, q)
-			path = rest
-			continue
-		}
-		if i := strings.IndexByte(path, '.'); i >= 0 {
-			parts = append(parts, path[:i])
-			path = path[i+1:]
-		} else {
-			parts = append(parts, path)
-			path = ""
-		}
-	}
-	return parts
-}
-
-// parentKey drops the last part (or array index) of a key path.
-func parentKey(path string) string {
-	if strings.HasSuffix(path, "]") {
-		if i := strings.LastIndexByte(path, '['); i > 0 {
-			return path[:i]
-		}
-	}
-	// Walk back over a quoted last part, if any.
-	if strings.HasSuffix(path, `"`) {
-		if i := strings.LastIndex(path[:len(path)-1], `."`); i >= 0 {
-			return path[:i]
-		}
-		return ""
-	}
-	if i := strings.LastIndexByte(path, '.'); i >= 0 {
-		return path[:i]
-	}
-	return ""
-}
-
-// stripIndexes removes "[n]" array indexes from a key path.
-func stripIndexes(path string) string {
-	var b strings.Builder
-	inQuote := false
-	for i := 0; i < len(path); i++ {
-		c := path[i]
-		switch {
-		case c == '"' && (i == 0 || path[i-1] != '\\'):
-			inQuote = !inQuote
-		case c == '[' && !inQuote:
-			j := strings.IndexByte(path[i:], ']')
-			if j > 0 {
-				i += j
-				continue
-			}
-		}
-		b.WriteByte(c)
-	}
-	return b.String()
-}
+func joinKey(path, part string) string { return tomlkeys.Join(path, part) }
+func splitKey(path string) []string    { return tomlkeys.Split(path) }
+func parentKey(path string) string     { return tomlkeys.Parent(path) }
+func stripIndexes(path string) string  { return tomlkeys.StripIndexes(path) }
