@@ -84,14 +84,14 @@ type shippedPlan struct {
 	name string
 	// text returns the plan to run on bench b: the shipped file with its
 	// [bench] section replaced by b's, or the demo's plan for b.
-	text func(t *testing.T, b *sim.Bench, dut *sim.DUTFile) string
+	text func(t testing.TB, b *sim.Bench, dut *sim.DUTFile) string
 	dut  string // the DUT file; "" = the simulated bench's demo lot
 }
 
 // withBench replaces the [bench] section (and its instrument tables) of
 // the shipped plan file with b's.
-func withBench(file string) func(t *testing.T, b *sim.Bench, dut *sim.DUTFile) string {
-	return func(t *testing.T, b *sim.Bench, _ *sim.DUTFile) string {
+func withBench(file string) func(t testing.TB, b *sim.Bench, dut *sim.DUTFile) string {
+	return func(t testing.TB, b *sim.Bench, _ *sim.DUTFile) string {
 		text, err := os.ReadFile(file)
 		if err != nil {
 			t.Fatal(err)
@@ -106,8 +106,8 @@ func withBench(file string) func(t *testing.T, b *sim.Bench, dut *sim.DUTFile) s
 
 // demoPlan is the demo's plan for b (writeDemoPlans): index 0 the lot,
 // 1 the first board.
-func demoPlan(index int) func(t *testing.T, b *sim.Bench, dut *sim.DUTFile) string {
-	return func(t *testing.T, b *sim.Bench, dut *sim.DUTFile) string {
+func demoPlan(index int) func(t testing.TB, b *sim.Bench, dut *sim.DUTFile) string {
+	return func(t testing.TB, b *sim.Bench, dut *sim.DUTFile) string {
 		paths, err := writeDemoPlans(t.TempDir(), b, dut, b.TimeScale())
 		if err != nil {
 			t.Fatal(err)
@@ -184,7 +184,7 @@ id = "N02"
 // faster than the wall clock, with the profiles' figures and this
 // machine's timer figures (hostTimer) and exchange time
 // (calibrateExchange), measured before the run.
-func runAtScale(t *testing.T, sp shippedPlan, scale float64, maxUnits int) (*plan.Plan, estimate.Figures, float64, map[string]float64, [][2]float64) {
+func runAtScale(t testing.TB, sp shippedPlan, scale float64, maxUnits int) (*plan.Plan, estimate.Figures, float64, map[string]float64, [][2]float64) {
 	t.Helper()
 	var dut *sim.DUTFile
 	if sp.dut != "" {
@@ -299,7 +299,7 @@ func hostTimer() (late, floor float64) {
 // and puts it in f in place of the profiles' exchange_s, as an engineer
 // measures a bench's exchange time for its profiles: the model is what is
 // tested here, not the figure.
-func calibrateExchange(ctx context.Context, t *testing.T, b *sim.Bench, f *estimate.Figures) {
+func calibrateExchange(ctx context.Context, t testing.TB, b *sim.Bench, f *estimate.Figures) {
 	t.Helper()
 	var addr string
 	for _, e := range b.Endpoints() {
@@ -337,16 +337,14 @@ func calibrateExchange(ctx context.Context, t *testing.T, b *sim.Bench, f *estim
 // compareDuration returns check's model against one run: the whole run
 // and every test of every unit and temperature, each within ±15 % (the
 // project's requirement for check; no published source), as failures.
-func compareDuration(t *testing.T, p *plan.Plan, f estimate.Figures, total float64, spans map[string]float64) []string {
+func compareDuration(t testing.TB, p *plan.Plan, f estimate.Figures, total float64, spans map[string]float64) (fails []string, ratio, worst float64) {
 	tl := f.Timeline(p)
-	var fails []string
 	r := tl.TotalSeconds / total
 	t.Logf("whole run: model %.0f s, measured %.0f s (ratio %.3f); model bench off %.1f s, connect %.1f s, power %.1f s, chamber %.1f s, finish %.1f s, tests %.1f s",
 		tl.TotalSeconds, total, r, tl.BenchOffSeconds, tl.ConnectSeconds, tl.PowerSeconds, tl.ChamberSeconds, tl.FinishSeconds, sum(tl.TestCampaignSeconds))
 	if math.Abs(r-1) > 0.15 {
 		fails = append(fails, fmt.Sprintf("whole run: model %.0f s, measured %.0f s (ratio %.3f), outside ±15 %%", tl.TotalSeconds, total, r))
 	}
-	worst := 0.0
 	for k, got := range spans {
 		var ti int
 		fmt.Sscan(strings.Split(k, "/")[1], &ti)
@@ -361,7 +359,7 @@ func compareDuration(t *testing.T, p *plan.Plan, f estimate.Figures, total float
 	if len(spans) == 0 {
 		fails = append(fails, "no test was measured")
 	}
-	return fails
+	return fails, r, worst
 }
 
 // compareLeft checks the progress bar's remaining time (the duration
@@ -369,7 +367,7 @@ func compareDuration(t *testing.T, p *plan.Plan, f estimate.Figures, total float
 // and three quarters of the points against the time that was actually
 // left, within ±15 % (the project's bar for the model; no published
 // source).
-func compareLeft(t *testing.T, total float64, lefts [][2]float64) []string {
+func compareLeft(t testing.TB, total float64, lefts [][2]float64) []string {
 	var fails []string
 	if len(lefts) < 4 {
 		return []string{"fewer than 4 points measured"}
@@ -386,62 +384,71 @@ func compareLeft(t *testing.T, total float64, lefts [][2]float64) []string {
 	return fails
 }
 
-// TestDurationOfShippedPlans runs every shipped plan that check passes
-// as safe (testdata/plans and the demo's lot and board) on the simulated
-// bench and compares check's duration with the measured bench time, for
-// the whole run and for every test of every unit and temperature, within
-// ±15 %: first on a virtual clock (every wait exactly as the runner asks,
-// exchanges free: the model's counting of waits), then at two time scales
-// on the wall clock, where every exchange and every wait's lateness costs
-// its wall time × the scale (the model's exchange and timer figures). A
-// wall-clock run that misses the bar is run once more: a load spike on a
-// shared machine (30 ms of wall time are 30 s of bench time at 1000×)
-// is not the model's. On the virtual clock the progress bar's remaining
-// time is checked too (compareLeft). Two units (one for the chamber lots) keep it short;
-// the model counts every unit alike.
+// shippedPlans are the plans the project ships that check passes as
+// safe (testdata/plans and the demo's lot and board), each with the two
+// time scales BenchmarkDurationAtTimeScales runs it at and the units it
+// keeps (two; one for the chamber lots, whose soaks are hours of bench
+// time; the model counts every unit alike).
+var shippedPlans = []struct {
+	sp     shippedPlan
+	scales []float64
+	units  int
+}{
+	{shippedPlan{name: "testdata-lot", text: withBench("../../testdata/plans/lot.toml")}, []float64{500, 1000}, 1},
+	{shippedPlan{name: "testdata-board", text: withBench("../../testdata/plans/board.toml"), dut: scaleBoardsDUT}, []float64{200, 1000}, 2},
+	{shippedPlan{name: "testdata-noise_gain", text: withBench("../../testdata/plans/noise_gain.toml"), dut: scaleNoiseGainDUT}, []float64{200, 1000}, 2},
+	{shippedPlan{name: "demo-lot", text: demoPlan(0)}, []float64{500, 1000}, 1},
+	{shippedPlan{name: "demo-board", text: demoPlan(1)}, []float64{200, 1000}, 2},
+}
+
+// TestDurationOfShippedPlans runs every shipped plan on the simulated
+// bench on a virtual clock (every wait exactly as the runner asks,
+// exchanges free: the model's counting of waits) and compares check's
+// duration with the measured bench time, for the whole run and for every
+// test of every unit and temperature, within ±15 %, and the progress
+// bar's remaining time (compareLeft). The same runs on the wall clock at
+// two time scales are BenchmarkDurationAtTimeScales: their outcome
+// depends on the machine's load of the moment, so they give figures, not
+// a verdict.
 func TestDurationOfShippedPlans(t *testing.T) {
 	if testing.Short() {
 		t.Skip("runs the shipped plans on the simulated bench")
 	}
-	short := []float64{200, 1000}
-	long := []float64{500, 1000} // chamber soaks: hours of bench time
-	plans := []struct {
-		sp     shippedPlan
-		scales []float64
-		units  int
-	}{
-		{shippedPlan{name: "testdata-lot", text: withBench("../../testdata/plans/lot.toml")}, long, 1},
-		{shippedPlan{name: "testdata-board", text: withBench("../../testdata/plans/board.toml"), dut: scaleBoardsDUT}, short, 2},
-		{shippedPlan{name: "testdata-noise_gain", text: withBench("../../testdata/plans/noise_gain.toml"), dut: scaleNoiseGainDUT}, short, 2},
-		{shippedPlan{name: "demo-lot", text: demoPlan(0)}, long, 1},
-		{shippedPlan{name: "demo-board", text: demoPlan(1)}, short, 2},
-	}
-	for _, c := range plans {
-		for _, scale := range append([]float64{0}, c.scales...) {
-			name := c.sp.name + "@virtual"
-			if scale > 0 {
-				name = fmt.Sprintf("%s@%g", c.sp.name, scale)
+	for _, c := range shippedPlans {
+		t.Run(c.sp.name, func(t *testing.T) {
+			p, f, total, spans, lefts := runAtScale(t, c.sp, 0, c.units)
+			fails, _, _ := compareDuration(t, p, f, total, spans)
+			fails = append(fails, compareLeft(t, total, lefts)...)
+			for _, f := range fails {
+				t.Error(f)
 			}
-			t.Run(name, func(t *testing.T) {
-				if scale > 0 && raceDetector {
-					t.Skip("wall-clock runs: the race detector slows the simulated bench's exchanges and computation many times over, which no bench figure describes")
+		})
+	}
+}
+
+// BenchmarkDurationAtTimeScales runs every shipped plan on the simulated
+// bench on the wall clock at two time scales each, where every exchange
+// and every wait's lateness costs its wall time × the scale in bench time
+// (the host's timer and exchange time are measured before each run), and
+// reports check's duration over the measured one for the whole run
+// ("model/measured") and the worst |model/measured − 1| of a test of a
+// unit ("worst-test"); the project's bar is 0.15 for both.
+//
+//	go test ./cmd/nullbench -run XXX -bench DurationAtTimeScales -benchtime 1x
+func BenchmarkDurationAtTimeScales(b *testing.B) {
+	if raceDetector {
+		b.Skip("the race detector slows the simulated bench's exchanges and computation many times over, which no bench figure describes")
+	}
+	for _, c := range shippedPlans {
+		for _, scale := range c.scales {
+			b.Run(fmt.Sprintf("%s@%g", c.sp.name, scale), func(b *testing.B) {
+				var ratio, worst float64
+				for b.Loop() {
+					p, f, total, spans, _ := runAtScale(b, c.sp, scale, c.units)
+					_, ratio, worst = compareDuration(b, p, f, total, spans)
 				}
-				once := func() []string {
-					p, f, total, spans, lefts := runAtScale(t, c.sp, scale, c.units)
-					fails := compareDuration(t, p, f, total, spans)
-					if scale == 0 {
-						fails = append(fails, compareLeft(t, total, lefts)...)
-					}
-					return fails
-				}
-				fails := once()
-				if len(fails) > 0 && scale > 0 {
-					t.Logf("again (load of the moment?): %s", strings.Join(fails, "; "))
-					fails = once()
-				}
-				for _, f := range fails {
-					t.Error(f)
-				}
+				b.ReportMetric(ratio, "model/measured")
+				b.ReportMetric(worst, "worst-test")
 			})
 		}
 	}
