@@ -16,15 +16,15 @@ type Plan struct {
 	Limits   Limits   `toml:"limits"`
 	// LimitsFullRange are the limits over the full temperature range, as
 	// data sheets state them beside the 25 °C ones (see LimitAt).
-	LimitsFullRange Limits        `toml:"limits_full_range"`
-	Decision        Decision      `toml:"decision"`
-	Tests           []Test        `toml:"test"`
+	LimitsFullRange Limits   `toml:"limits_full_range"`
+	Decision        Decision `toml:"decision"`
+	Tests           []Test   `toml:"test"`
 	// ACTests are the rejection-versus-frequency tests (ac.go).
-	ACTests   []ACTest        `toml:"ac_test"`
-	Generator GeneratorLimits `toml:"generator"`
-	Units           []Unit        `toml:"unit"`
-	Temperature     Temperature   `toml:"temperature"`
-	Safety          SafetyOptions `toml:"safety"`
+	ACTests     []ACTest        `toml:"ac_test"`
+	Generator   GeneratorLimits `toml:"generator"`
+	Units       []Unit          `toml:"unit"`
+	Temperature Temperature     `toml:"temperature"`
+	Safety      SafetyOptions   `toml:"safety"`
 
 	// Source is the file the plan came from (for error messages), and
 	// Hash the SHA-256 of its bytes (hex), which ties journals to plans.
