@@ -23,7 +23,7 @@ func checkACSafety(p *Plan, limits []safetyLimit, nominalBad map[string]bool,
 				if l.slack(s) < -slackTolerance {
 					refuse(key, 0, fmt.Sprintf("lower peak_volts (or move offset_volts) so that DC level ± peak stays inside; the largest safe peak here is %s",
 						fmtMag(maxSafePeak(p, t, limits))),
-						"%s sine %s peak (%s %s %s V): %s", t.Kind, [2]string{"positive", "negative"}[j],
+						"%s sine %s peak (%s %s %s): %s", t.Kind, [2]string{"positive", "negative"}[j],
 						FormatVolts(t.OffsetVolts), [2]string{"+", "−"}[j], fmtMag(t.PeakVolts), l.problem(s))
 					break
 				}
