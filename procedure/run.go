@@ -102,12 +102,15 @@ type Outcome struct {
 	// Readings holds every point of the campaign so far: those recovered
 	// from the journal (in journal order), then those of this run, in the
 	// order measured. KeyOf gives each one's work key.
-	Readings  []journal.Reading
-	Recovered int // readings that came from the journal
-	Measured  int // readings taken by this run
-	Flagged   int // readings of this run carrying a flag
-	Total     int // points the plan asks for
-	Complete  bool
+	Readings []journal.Reading
+	// ACReadings are the frequency-response records, recovered then
+	// measured, like Readings.
+	ACReadings []journal.ACReading
+	Recovered  int // readings that came from the journal
+	Measured   int // readings taken by this run
+	Flagged    int // readings of this run carrying a flag
+	Total      int // points the plan asks for
+	Complete   bool
 	// BenchSeconds is the bench time when the run stopped.
 	BenchSeconds float64
 }
@@ -150,6 +153,13 @@ func Run(ctx context.Context, p *plan.Plan, rig *Rig, opt RunOptions) (*Outcome,
 	}
 	if why := NeedsOperator(p); why != "" && opt.Operator == nil {
 		return nil, fmt.Errorf("%s, but there is no operator to ask (run it from an interactive terminal)", why)
+	}
+	if NeedsOperator(p) != "" && opt.Operator != nil {
+		for i, t := range p.ACTests {
+			if _, ok := opt.Operator.(ThroughOperator); t.Through == plan.ThroughManual && rig.Digitizer != nil && !ok {
+				return nil, fmt.Errorf("ac_test[%d] has through = \"manual\", but the operator cannot be asked to move a probe", i+1)
+			}
+		}
 	}
 	if opt.Resume != nil {
 		if err := journal.CheckPlanMatch(p, opt.Resume); err != nil {
@@ -294,15 +304,18 @@ type runner struct {
 	// unsure holds the roles whose last set command failed: the instrument
 	// may have applied it all the same (a reply lost after the change), so
 	// the safe state reads them back before ramping down.
-	unsure   map[string]bool
-	tried    map[string]float64 // role -> largest magnitude of a failed set command (plausible.go)
-	redialed map[string]bool    // sessions the safe state dialed again (recover.go)
-	powered  bool               // a supply output may be on
-	chamber  bool               // the chamber's set point was changed
-	at       position
-	tempC    float64 // temperature recorded with readings when not read per point
-	eta      etaEstimator
-	finished int // points done, recovered included
+	unsure map[string]bool
+	tried  map[string]float64 // role -> largest magnitude of a failed set command (plausible.go)
+	// genOn holds the generator outputs that may be on; genLimited those
+	// whose limits were checked and set (run_ac.go).
+	genOn, genLimited map[string]bool
+	redialed          map[string]bool // sessions the safe state dialed again (recover.go)
+	powered           bool            // a supply output may be on
+	chamber           bool            // the chamber's set point was changed
+	at                position
+	tempC             float64 // temperature recorded with readings when not read per point
+	eta               etaEstimator
+	finished          int // points done, recovered included
 	// skipped holds the units skipped so far (journalled), pending the
 	// ones asked for in RunOptions.Skip that the run has not reached yet.
 	skipped, pending map[string]string
@@ -336,7 +349,8 @@ func newRunner(p *plan.Plan, rig *Rig, opt RunOptions) *runner {
 		r.done = c.Done()
 		r.session = len(c.Resumes) + 1
 		r.out.Readings = append(r.out.Readings, c.Readings...)
-		r.out.Recovered = len(c.Readings)
+		r.out.ACReadings = append(r.out.ACReadings, c.ACReadings...)
+		r.out.Recovered = len(c.Readings) + len(c.ACReadings)
 		// Continue the bench-time axis of the journal: its last bench time
 		// plus the wall time since, in bench time. A drift term fitted
 		// across the break then sees one time axis.
@@ -418,6 +432,11 @@ func (r *runner) count() (total, done int) {
 					}
 				}
 			}
+			for i := range r.p.ACTests {
+				t, d := r.acPoints(ti, u.ID, i)
+				total += t
+				done += d
+			}
 		}
 	}
 	return total, done
@@ -431,6 +450,11 @@ func (r *runner) unitFinished(ti int, unit string) bool {
 	}
 	for i := range r.p.Tests {
 		if !r.testFinished(ti, unit, i) {
+			return false
+		}
+	}
+	for i := range r.p.ACTests {
+		if !r.acTestFinished(ti, unit, i) {
 			return false
 		}
 	}
@@ -491,6 +515,9 @@ func (r *runner) campaign(ctx context.Context) error {
 				}
 			}
 			r.at.test, r.at.atStep = -1, false
+			if err := r.runACTests(ctx, ti, u.ID); err != nil {
+				return err
+			}
 			if err := r.powerDown(ctx); err != nil {
 				return err
 			}

@@ -185,6 +185,27 @@ func ACPeakStates(p *Plan, t *ACTest) [2]BenchState {
 	return [2]BenchState{ACStateAt(p, t, t.PeakVolts), ACStateAt(p, t, -t.PeakVolts)}
 }
 
+// GeneratorChannels lists the generator outputs the plan's [[ac_test]]
+// tables drive: the generator role's channel and every generator_channel,
+// each once, in order of appearance.
+func GeneratorChannels(p *Plan) []string {
+	var out []string
+	seen := map[string]bool{}
+	add := func(ch string) {
+		if !seen[ch] {
+			seen[ch] = true
+			out = append(out, ch)
+		}
+	}
+	add(p.Bench.Roles.Generator.Channel)
+	for _, t := range p.ACTests {
+		if t.GeneratorChannel != "" {
+			add(t.GeneratorChannel)
+		}
+	}
+	return out
+}
+
 // acTestKey is the key path of the i-th (0-based) [[ac_test]] table.
 func acTestKey(i int) string { return "ac_test[" + strconv.Itoa(i+1) + "]" }
 
