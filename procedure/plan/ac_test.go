@@ -162,6 +162,8 @@ func TestValidateACRefusals(t *testing.T) {
 			"through = \"relay\"", "ac_test[1].through", []string{"unknown through"}},
 		{"peak overloads the range", rep("peak_volts = 1.0", "peak_volts = 1.5"),
 			"", "ac_test[1].stimulus_range_volts", []string{"overloads the 1 V range"}},
+		{"response range below the through's peak", rep("limits_db = [90.0]", "limits_db = [90.0]\nresponse_range_volts = 0.2"),
+			"response_range_volts = 0.2", "ac_test[1].response_range_volts", []string{"through calibration"}},
 		{"zero records", rep("limits_db = [90.0]", "limits_db = [90.0]\nrecords = 0"),
 			"records = 0", "ac_test[1].records", []string{"out of range"}},
 		{"record too short", rep("limits_db = [90.0]", "limits_db = [90.0]\nmin_samples = 8"),
@@ -222,6 +224,7 @@ func widenGenerator(p *Plan) {
 	p.Fixture.MaxStimulusVolts = 20
 	for i := range p.ACTests {
 		p.ACTests[i].StimulusRangeVolts = 20
+		p.ACTests[i].ResponseRangeVolts = 20
 	}
 }
 

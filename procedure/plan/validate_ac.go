@@ -121,6 +121,12 @@ func (c *planChecker) acTests() {
 		} else if t.PeakVolts > t.StimulusRangeVolts {
 			c.add(k+".stimulus_range_volts", fmt.Sprintf("give a range of at least %g V", t.PeakVolts),
 				"the stimulus peak %g V overloads the %g V range", t.PeakVolts, t.StimulusRangeVolts)
+		} else if t.PeakVolts > t.ResponseRangeVolts {
+			// The through calibration puts the stimulus on channel 2, on
+			// the same range as the measurement (a range change between
+			// them would undo the calibration).
+			c.add(k+".response_range_volts", fmt.Sprintf("give a range of at least %g V: the through calibration puts the stimulus on channel 2", t.PeakVolts),
+				"the stimulus peak %g V overloads channel 2's %g V range during the through calibration", t.PeakVolts, t.ResponseRangeVolts)
 		}
 		if t.SettleCycles < 0 || t.DwellSeconds < 0 {
 			c.add(k+".settle_cycles", "give waits ≥ 0", "settle_cycles %d, dwell_s %g: negative wait", t.SettleCycles, t.DwellSeconds)
