@@ -17,12 +17,17 @@ import (
 // campaignRecord is one measured plan: what the report needs beside the
 // analysis results.
 type campaignRecord struct {
-	Plan       *plan.Plan
-	Readings   []journal.Reading
-	Results    *analysis.Results
-	Identities []journal.Identity
-	Started    time.Time
-	Finished   time.Time
+	Plan     *plan.Plan
+	Readings []journal.Reading
+	Results  *analysis.Results
+	// ACReadings are the frequency-response records; Freq their analysis
+	// (analysis.AnalyzeFreq) and FreqProblems what could not be analysed.
+	ACReadings   []journal.ACReading
+	Freq         []analysis.FreqResponse
+	FreqProblems []analysis.Problem
+	Identities   []journal.Identity
+	Started      time.Time
+	Finished     time.Time
 
 	// JournalPath is the journal the readings came from ("" in tests that
 	// build records by hand); finish reads it again for completeness,

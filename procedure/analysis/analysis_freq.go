@@ -407,6 +407,11 @@ func freqPoint(p *plan.Plan, t *plan.ACTest, fi int, recs []journal.ACReading, g
 		}
 	}
 	kf := closedLoop(f, gain, p.Part.GBWHz)
+	if p.Fixture.Kind == plan.FixtureBoard && p.Part.GBWHz > 0 {
+		// A difference amplifier of gain G = R2/R1 has noise gain 1 + G:
+		// G/(1 + j·f·(1 + G)/GBW) (Sedra & Smith, as above).
+		kf = complex(gain, 0) / complex(1, f*(1+gain)/p.Part.GBWHz)
+	}
 	pt.FixtureGainDB = 20 * math.Log10(cmplx.Abs(kf))
 	pt.FixturePhaseDeg = cmplx.Phase(kf) * 180 / math.Pi
 	var rows []fit.BudgetRow
@@ -522,6 +527,9 @@ func freqPoint(p *plan.Plan, t *plan.ACTest, fi int, recs []journal.ACReading, g
 		phaseVar += phaseU * phaseU
 	}
 	if p.Fixture.Kind == plan.FixtureNoiseGain {
+		if t.Kind == plan.TestCMRR {
+			pt.Notes = append(pt.Notes, "noise-gain stage: the sine common mode moves the output against the rails too, so the coefficient is k_c + k_o, as the DC cmrr_uncorrected result")
+		}
 		if aol := p.Part.AOLMinDB; aol > 0 {
 			ko := math.Pow(10, -aol/20)
 			rows = append(rows, dbRow(fmt.Sprintf("open-loop gain in the noise-gain stage: scale 1/(1 − K·k_o), A_OL ≥ %.1f dB (rated, as at DC)", aol),
@@ -703,10 +711,22 @@ func polePlusDC(fr *FreqResponse, dc *Results, cov float64) {
 		fr.DCNote = "no DC result in this campaign to compare the low-frequency ratio with"
 		return
 	}
-	for _, r := range dc.Ratios {
-		if r.Unit != fr.Unit || r.Name != fr.Test || r.TempIndex != fr.TempIndex {
-			continue
+	// A noise-gain stage's DC cmrr without an aol test is reported as
+	// cmrr_uncorrected (k_c + k_o, as the sine measures it too): it is
+	// the one to compare with when there is no corrected cmrr.
+	names := []string{fr.Test}
+	if fr.Test == plan.TestCMRR {
+		names = append(names, ResultCMRRUncorrected)
+	}
+	var match []RatioResult
+	for _, name := range names {
+		for _, r := range dc.Ratios {
+			if r.Unit == fr.Unit && r.Name == name && r.TempIndex == fr.TempIndex {
+				match = append(match, r)
+			}
 		}
+	}
+	for _, r := range match {
 		if !r.Rejection.Resolved {
 			fr.DCNote = "the DC result is a lower bound: not compared"
 			return
