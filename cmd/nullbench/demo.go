@@ -48,7 +48,11 @@ func newDemoCmd(std streams, run func(context.Context, streams, demoOptions) err
 		Long: `demo starts the simulated bench in this process and measures an invented
 campaign on it, exactly as "run" measures a plan on real instruments: an
 op-amp lot on a switch matrix in a nulling loop (cmrr, psrr_pos, psrr_neg,
-psrr_sym and aol at 25, 85 and -40 °C), then one finished board. It writes
+psrr_sym and aol at 25, 85 and -40 °C), then one finished board (with its
+CMRR at 50 and 60 Hz), then, on a second simulated bench, three op-amps in
+a noise-gain stage against frequency (cmrr, psrr_pos and psrr_neg at 8
+frequencies from 10 Hz to 100 kHz, the frequency response printed after
+the summary). It writes
 the plans, journals, workbook and exports into --out and prints a summary.
 
 --dut replaces the simulated parts with your own (keys cmrr_db, psrr_pos_db,
