@@ -1,6 +1,7 @@
 package plan
 
 import (
+	"fmt"
 	"math"
 	"strconv"
 )
@@ -242,5 +243,60 @@ func (p *Plan) applyACDefaults(present func(key string) bool) {
 			setF("coupling_gain", &x.CouplingGain, DefaultCouplingGain)
 			setS("injection", &x.Injection, DefaultInjection)
 		}
+	}
+}
+
+// ACRecordSeconds estimates one record's length at f: min_samples at the
+// highest rate that still holds min_cycles, f·min_samples/min_cycles
+// (capped at max_rate_hz); the coherent plan the runner picks rounds
+// this to whole cycles.
+func ACRecordSeconds(t *ACTest, f float64) float64 {
+	if !(f > 0) || t.MinCycles < 1 || t.MinSamples < 1 {
+		return 0
+	}
+	rate := math.Min(t.MaxRateHz, f*float64(t.MinSamples)/float64(t.MinCycles))
+	return float64(t.MinSamples) / rate
+}
+
+// ACSettleSeconds is the wait after each change of the sine: settle_cycles
+// periods, at least dwell_s.
+func ACSettleSeconds(t *ACTest, f float64) float64 {
+	if !(f > 0) {
+		return t.DwellSeconds
+	}
+	return math.Max(float64(t.SettleCycles)/f, t.DwellSeconds)
+}
+
+// writeACTests adds the [[ac_test]] tables to check's output: per
+// frequency the limit, the generator setting, the sine's extremes at the
+// part and the bench time of its three records (floor, through, stimulus).
+func writeACTests(pf func(format string, args ...any), p *Plan) {
+	for i := range p.ACTests {
+		t := &p.ACTests[i]
+		how := "common-mode node"
+		if t.isPSRR() {
+			how = fmt.Sprintf("rail through a %s, coupling gain %g", t.Injection, t.CouplingGain)
+		}
+		ch := t.GeneratorChannel
+		if ch == "" {
+			ch = p.Bench.Roles.Generator.Channel
+		}
+		pf("\n%s %s: sine %s peak about %s on the %s (generator output %s at %s peak); through calibration by %s %s; %d record(s) per point\n",
+			acTestKey(i), t.Kind, fmtMag(t.PeakVolts), FormatVolts(t.OffsetVolts), how, ch, fmtMag(t.GeneratorPeakVolts()), t.Through, t.ThroughChannel, t.Records)
+		peaks := ACPeakStates(p, t)
+		pf("  at the peaks: V+ %s … %s, V- %s … %s, common mode %s … %s\n",
+			FormatVolts(peaks[1].PosVolts), FormatVolts(peaks[0].PosVolts), FormatVolts(peaks[1].NegVolts), FormatVolts(peaks[0].NegVolts),
+			FormatVolts(peaks[1].CMVolts), FormatVolts(peaks[0].CMVolts))
+		total := 0.0
+		for fi, f := range t.Frequencies() {
+			lim := "not judged"
+			if l, ok := t.LimitAtDB(fi); ok {
+				lim = fmt.Sprintf("≥ %g dB", l)
+			}
+			sec := 3 * (ACSettleSeconds(t, f) + float64(t.Records)*ACRecordSeconds(t, f))
+			total += sec
+			pf("  %10.4g Hz  limit %-12s record %s, with settling %s\n", f, lim, FormatSeconds(ACRecordSeconds(t, f)), FormatSeconds(sec))
+		}
+		pf("  about %s of bench time per unit and temperature (records and settling only)\n", FormatSeconds(total))
 	}
 }

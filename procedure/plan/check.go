@@ -212,6 +212,7 @@ func WriteCheck(w io.Writer, p *Plan, f Figures) error {
 			FormatSeconds(pass), FormatSeconds(tp.UnitSeconds), FormatSeconds(tp.Seconds))
 		writeTestPrediction(pf, p, tp)
 	}
+	writeACTests(pf, p)
 
 	tl := pred.Timeline
 	pf("\nduration (bench time)\n")
