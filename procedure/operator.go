@@ -50,7 +50,7 @@ func NeedsOperator(p *plan.Plan) string {
 		return "the units have no switch channels, so the operator swaps them by hand"
 	}
 	for i, t := range p.ACTests {
-		if t.Through == plan.ThroughManual && p.Bench.Roles.Digitizer.Bound() {
+		if t.Through == plan.ThroughManual {
 			return fmt.Sprintf("ac_test[%d] has through = \"manual\": the operator moves the channel-2 probe", i+1)
 		}
 	}

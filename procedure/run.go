@@ -156,7 +156,7 @@ func Run(ctx context.Context, p *plan.Plan, rig *Rig, opt RunOptions) (*Outcome,
 	}
 	if NeedsOperator(p) != "" && opt.Operator != nil {
 		for i, t := range p.ACTests {
-			if _, ok := opt.Operator.(ThroughOperator); t.Through == plan.ThroughManual && rig.Digitizer != nil && !ok {
+			if _, ok := opt.Operator.(ThroughOperator); t.Through == plan.ThroughManual && !ok {
 				return nil, fmt.Errorf("ac_test[%d] has through = \"manual\", but the operator cannot be asked to move a probe", i+1)
 			}
 		}

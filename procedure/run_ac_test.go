@@ -31,6 +31,9 @@ type fakeAC struct {
 	samples int
 	gen     map[string]*fakeGenOut
 	relay   string
+	// probeOnStimulus: the operator moved the channel-2 probe to the
+	// stimulus (manual through calibration).
+	probeOnStimulus bool
 }
 
 type fakeGenOut struct {
@@ -122,7 +125,7 @@ func (d *fakeDigitizer) Capture(ctx context.Context) ([]instrument.Waveform, err
 		}
 	}
 	ch2 := stim * a.ratio
-	if fb.closed[a.relay] {
+	if fb.closed[a.relay] || a.probeOnStimulus {
 		ch2 = stim
 	}
 	ch2 *= a.mis
@@ -390,6 +393,108 @@ func TestRunACRefusesGeneratorBeyondLimit(t *testing.T) {
 	for _, c := range fb.callsSnapshot() {
 		if c.Role == "generator" {
 			t.Fatalf("generator called: %s", c)
+		}
+	}
+}
+
+// fakeACMeter is input 1 (stimulus) or 2 (response) of an AC voltmeter on
+// the fake AC bench: RMS of what the digitizer's channel would carry.
+type fakeACMeter struct {
+	a     *fakeAC
+	input int
+}
+
+func (m *fakeACMeter) ConfigureACVolts(ctx context.Context, rng, f float64) error {
+	fb := m.a.fb
+	fb.mu.Lock()
+	defer fb.mu.Unlock()
+	return fb.call(ctx, fakeCall{Role: "ac_meter", Op: "configure", Arg: f}, time.Millisecond)
+}
+
+func (m *fakeACMeter) ReadRMS(ctx context.Context) (float64, error) {
+	a := m.a
+	fb := a.fb
+	fb.mu.Lock()
+	defer fb.mu.Unlock()
+	if err := fb.call(ctx, fakeCall{Role: "ac_meter", Op: "read", Arg: float64(m.input)}, 100*time.Millisecond); err != nil {
+		return 0, err
+	}
+	var stim float64
+	for _, o := range a.gen {
+		if o.on {
+			stim = o.peak
+		}
+	}
+	v := stim
+	if m.input == 2 && !a.probeOnStimulus {
+		v = stim * real(a.ratio)
+	}
+	return math.Hypot(v/math.Sqrt2, a.noise), nil
+}
+
+// probeOperator moves the channel-2 probe when asked (through = "manual")
+// and records the prompts.
+type probeOperator struct {
+	*fakeOperator
+	a       *fakeAC
+	prompts []string
+}
+
+func (o *probeOperator) MoveProbe(ctx context.Context, msg string) error {
+	o.prompts = append(o.prompts, msg)
+	o.a.probeOnStimulus = strings.Contains(msg, "to the stimulus")
+	return nil
+}
+
+// TestRunACMeterManualThrough runs the example plan with an AC voltmeter
+// instead of the digitizer and a manual through calibration: without an
+// operator that can move a probe the run is refused before any instrument
+// is touched; with one, every frequency asks twice (probe to the stimulus,
+// and back) and each record carries the two RMS readings.
+func TestRunACMeterManualThrough(t *testing.T) {
+	p := acPlan(t)
+	p.ACTests = p.ACTests[2:] // psrr_neg at 4 named frequencies
+	p.ACTests[0].Through = plan.ThroughManual
+	p.Bench.Roles.Digitizer = plan.RoleBinding{}
+	p.Bench.Roles.ACMeter = plan.RoleBinding{Instrument: "dig"} // the digitizer's entry stands in for an AC voltmeter
+	fb := newFakeBench(p)
+	a := newFakeAC(fb)
+	rig := a.rig()
+	rig.Digitizer = nil
+	rig.ACMeters = []instrument.ACVoltmeter{&fakeACMeter{a, 1}, &fakeACMeter{a, 2}}
+	if why := NeedsOperator(p); !strings.Contains(why, "manual") {
+		t.Fatalf("NeedsOperator = %q", why)
+	}
+	_, err := Run(context.Background(), p, rig, RunOptions{Clock: fb.clk, Operator: &fakeOperator{fb: fb}})
+	if err == nil || !strings.Contains(err.Error(), "cannot be asked to move a probe") || len(fb.callsSnapshot()) != 0 {
+		t.Fatalf("want a refusal before any call, got %v after %d calls", err, len(fb.callsSnapshot()))
+	}
+	op := &probeOperator{fakeOperator: &fakeOperator{fb: fb}, a: a}
+	out, err := Run(context.Background(), p, rig, RunOptions{Clock: fb.clk, Operator: op, Log: &bytes.Buffer{}})
+	if err != nil {
+		t.Fatal(err)
+	}
+	noViolations(t, fb)
+	if want := acRecordsOf(p); len(out.ACReadings) != want {
+		t.Fatalf("%d records, want %d", len(out.ACReadings), want)
+	}
+	if want := 2 * 4 * len(p.Units); len(op.prompts) != want {
+		t.Errorf("%d prompts, want %d (two per frequency and unit)", len(op.prompts), want)
+	}
+	for _, r := range out.ACReadings {
+		if len(r.RMSVolts) != 2 || len(r.Channels) != 0 {
+			t.Fatalf("record %+v", r)
+		}
+		ratio := r.RMSVolts[1] / r.RMSVolts[0]
+		switch r.Record {
+		case journal.ACThrough:
+			if math.Abs(ratio-1) > 1e-3 {
+				t.Errorf("through ratio %g, want 1", ratio)
+			}
+		case journal.ACStimulus:
+			if math.Abs(ratio/1e-4-1) > 0.05 {
+				t.Errorf("stimulus ratio %g, want 1e-4", ratio)
+			}
 		}
 	}
 }
