@@ -177,6 +177,11 @@ type freqRun struct {
 // mismatch and seed.
 func runFreq(t *testing.T, units []string, mis sim.DigitizerMismatch, seed int64) *freqRun {
 	t.Helper()
+	return runFreqPlan(t, freqPlanRest, units, mis, seed)
+}
+
+func runFreqPlan(t *testing.T, rest string, units []string, mis sim.DigitizerMismatch, seed int64) *freqRun {
+	t.Helper()
 	if testing.Short() {
 		t.Skip("loopback frequency campaign on the simulated bench")
 	}
@@ -197,7 +202,7 @@ func runFreq(t *testing.T, units []string, mis sim.DigitizerMismatch, seed int64
 			}
 		}
 	}
-	p, err := plan.Parse([]byte(b.BenchSection()+freqPlanRest+unitsTOML.String()), "freq-loopback.toml")
+	p, err := plan.Parse([]byte(b.BenchSection()+rest+unitsTOML.String()), "freq-loopback.toml")
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -307,5 +312,51 @@ func TestThroughCalibrationRemovesMismatch(t *testing.T) {
 				t.Errorf("%s %g Hz: through gain %.3f dB vs %.3f dB, want 1 dB apart", a.Test, pa.FrequencyHz, pb.ThroughGainDB, pa.ThroughGainDB)
 			}
 		}
+	}
+}
+
+// TestFreqNoiseFloorOnSim: a 1 mV common mode on a 129 dB part (U04)
+// gives a response of about 0.35 µV at the fixture output, far below the
+// digitizer's noise on its 2 V range: those frequencies are reported as
+// lower bounds, each below the truth (a bound that exceeded the truth
+// would be wrong), and none is judged "fail" (a bound has no upper side,
+// ILAC-G8 via fit.DecideRejection): a 200 dB limit gives "conditional
+// fail", never "fail".
+func TestFreqNoiseFloorOnSim(t *testing.T) {
+	rest := freqPlanRest[:strings.Index(freqPlanRest, "[[ac_test]]")] + `
+[[ac_test]]
+kind = "cmrr"
+frequencies_hz = [10.0, 100.0, 1e4, 1e5]
+peak_volts = 0.001
+stimulus_range_volts = 2.0
+response_range_volts = 2.0
+limits_db = [200.0]
+through_channel = "190"
+`
+	fr := runFreqPlan(t, rest, []string{"U04"}, sim.DigitizerMismatch{}, 0)
+	if len(fr.res) != 1 || len(fr.res[0].Points) != 4 {
+		t.Fatalf("%+v", fr.res)
+	}
+	unresolved := 0
+	for _, pt := range fr.res[0].Points {
+		truth := truthDB(t, fr.bench, "U04", plan.TestCMRR, pt.FrequencyHz)
+		t.Logf("%8g Hz: resolved %v, %.2f dB (bound %.2f dB, floor %.2f dB), truth %.2f dB, %s",
+			pt.FrequencyHz, pt.Rejection.Resolved, pt.Rejection.RatioDB, pt.Rejection.LowerBoundDB, pt.NoiseFloorDB, truth, pt.Decision.State)
+		if pt.Rejection.Resolved {
+			continue
+		}
+		unresolved++
+		if pt.Rejection.LowerBoundDB > truth {
+			t.Errorf("%g Hz: lower bound %.2f dB above the truth %.2f dB", pt.FrequencyHz, pt.Rejection.LowerBoundDB, truth)
+		}
+		if pt.Rejection.LowerBoundDB > pt.NoiseFloorDB+1e-9 {
+			t.Errorf("%g Hz: bound %.2f dB above the floor %.2f dB", pt.FrequencyHz, pt.Rejection.LowerBoundDB, pt.NoiseFloorDB)
+		}
+		if !pt.Judged || pt.Decision.State == "fail" || !pt.Decision.JudgedOnLowerBound {
+			t.Errorf("%g Hz: decision %+v", pt.FrequencyHz, pt.Decision)
+		}
+	}
+	if unresolved < 2 {
+		t.Errorf("%d frequencies below the floor, want at least the two below the 200 Hz pole", unresolved)
 	}
 }
