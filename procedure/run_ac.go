@@ -2,6 +2,7 @@ package procedure
 
 import (
 	"context"
+	"errors"
 	"fmt"
 	"math"
 	"sort"
@@ -378,7 +379,14 @@ func (r *runner) acCapture(ctx context.Context, t *plan.ACTest, f float64, cp fi
 		return nil
 	}
 	wf, err := r.rig.Digitizer.Capture(ctx)
-	if err != nil {
+	switch {
+	case err != nil && errors.Is(err, instrument.ErrClipped) && len(wf) >= 2:
+		// A clipped record is journalled, flagged and left out of the
+		// analysis; the run goes on (the plan's range is too small for
+		// this frequency, which the report says).
+		rd.Flags = appendFlag(rd.Flags, journal.FlagOverload)
+		rd.Problem = err.Error()
+	case err != nil:
 		return fmt.Errorf("digitizer: capture %d samples at %g Sa/s: %w", cp.Samples, cp.RateHz, err)
 	}
 	if len(wf) < 2 {

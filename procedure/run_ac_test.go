@@ -4,6 +4,7 @@ import (
 	"bytes"
 	"context"
 	"errors"
+	"fmt"
 	"math"
 	"math/rand/v2"
 	"path/filepath"
@@ -34,6 +35,10 @@ type fakeAC struct {
 	// probeOnStimulus: the operator moved the channel-2 probe to the
 	// stimulus (manual through calibration).
 	probeOnStimulus bool
+	// clip, when set, makes a capture return its waveforms with an
+	// error wrapping instrument.ErrClipped (as the profile driver does).
+	clip     func(n int) bool
+	captures int
 }
 
 type fakeGenOut struct {
@@ -135,6 +140,10 @@ func (d *fakeDigitizer) Capture(ctx context.Context) ([]instrument.Waveform, err
 		th := 2*math.Pi*f*float64(n)/a.rate + phase
 		w[0].Volts[n] = real(stim)*math.Sin(th) + imag(stim)*math.Cos(th) + a.noise*a.rng.NormFloat64()
 		w[1].Volts[n] = real(ch2)*math.Sin(th) + imag(ch2)*math.Cos(th) + a.noise*a.rng.NormFloat64()
+	}
+	a.captures++
+	if a.clip != nil && a.clip(a.captures) {
+		return w, fmt.Errorf("fake digitizer: channel 2: 10 of %d samples at full scale: %w", a.samples, instrument.ErrClipped)
 	}
 	return w, nil
 }
@@ -496,5 +505,32 @@ func TestRunACMeterManualThrough(t *testing.T) {
 				t.Errorf("stimulus ratio %g, want 1e-4", ratio)
 			}
 		}
+	}
+}
+
+// TestRunACClippedRecordFlagged: a record the digitizer returns as clipped
+// is journalled with the overload flag and its problem, and the run goes
+// on (like an overloaded DC reading).
+func TestRunACClippedRecordFlagged(t *testing.T) {
+	p := acPlan(t)
+	p.ACTests = p.ACTests[2:]
+	fb := newFakeBench(p)
+	a := newFakeAC(fb)
+	a.clip = func(n int) bool { return n == 5 }
+	out, err := runFakeAC(context.Background(), t, p, a, RunOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	flagged := 0
+	for _, r := range out.ACReadings {
+		if len(r.Flags) > 0 {
+			flagged++
+			if r.Flags[0] != journal.FlagOverload || !strings.Contains(r.Problem, "full scale") {
+				t.Errorf("flagged record %+v", r)
+			}
+		}
+	}
+	if flagged != 1 || out.Flagged != 1 || len(out.ACReadings) != acRecordsOf(p) {
+		t.Errorf("%d flagged (outcome %d) of %d records", flagged, out.Flagged, len(out.ACReadings))
 	}
 }
