@@ -467,6 +467,16 @@ func freqPoint(p *plan.Plan, t *plan.ACTest, fi int, recs []journal.ACReading, g
 			r.Sensitivity = 0
 			rows = append(rows, r)
 		}
+		if acc := d.accuracyPct(); !math.IsNaN(acc) {
+			// So does the gain accuracy: both channels' errors on their
+			// ranges are in M as well as in H (same ranges, same f).
+			r := dbRow(fmt.Sprintf("digitizer amplitude accuracy ±%.3g %% (profile; removed with the channel mismatch by the through calibration)", acc),
+				"B", fit.RectangularStdUnc(dBPerNeper*acc/100), fit.InfDOF)
+			if pt.ThroughCorrected {
+				r.Sensitivity = 0
+			}
+			rows = append(rows, r)
+		}
 		pt.StimulusV, pt.ResponseV = stim.s, stim.r
 	} else {
 		pt.Instrument = "ac_meter"
