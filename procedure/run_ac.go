@@ -336,7 +336,7 @@ func (r *runner) throughOn(ctx context.Context, t *plan.ACTest, unit string) err
 		return op.MoveProbe(ctx, fmt.Sprintf("unit %s, %s: move the channel-2 probe to the stimulus-sense point (beside the channel-1 probe) for the through calibration", unit, t.Kind))
 	}
 	if r.rig.Switch == nil {
-		return nil // an AC voltmeter bench without a switch: the plan said switch, validation let it pass without a digitizer
+		return fmt.Errorf("through = \"switch\" needs the switch role for relay %s", t.ThroughChannel)
 	}
 	if err := r.rig.Switch.Close(ctx, t.ThroughChannel); err != nil {
 		return fmt.Errorf("switch: close through relay %s: %w", t.ThroughChannel, err)
@@ -353,7 +353,7 @@ func (r *runner) throughOff(ctx context.Context, t *plan.ACTest, unit string) er
 		return op.MoveProbe(ctx, fmt.Sprintf("unit %s, %s: move the channel-2 probe back to the fixture output", unit, t.Kind))
 	}
 	if r.rig.Switch == nil {
-		return nil
+		return fmt.Errorf("through = \"switch\" needs the switch role for relay %s", t.ThroughChannel)
 	}
 	if err := r.rig.Switch.Open(ctx, t.ThroughChannel); err != nil {
 		return fmt.Errorf("switch: open through relay %s: %w", t.ThroughChannel, err)

@@ -13,7 +13,7 @@ func acNeeds(p *Plan, need func(role, why string)) {
 		if !p.Bench.Roles.ACMeter.Bound() {
 			need(RoleDigitizer, k+" digitizes the stimulus and the response (or bind ac_meter for magnitudes only)")
 		}
-		if t.Through == ThroughSwitch && p.Bench.Roles.Digitizer.Bound() {
+		if t.Through == ThroughSwitch {
 			need(RoleSwitch, k+` closes the through relay for the calibration (through = "switch")`)
 		}
 	}
@@ -96,7 +96,7 @@ func (c *planChecker) acTests() {
 		}
 		switch t.Through {
 		case ThroughSwitch:
-			if t.ThroughChannel == "" && p.Bench.Roles.Digitizer.Bound() {
+			if t.ThroughChannel == "" {
 				c.add(k+".through_channel", `give the switch channel of the through relay, e.g. "190"`, `through = "switch" without a channel`)
 			}
 		case ThroughManual:
