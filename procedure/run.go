@@ -182,6 +182,10 @@ type RunError struct {
 	Repeat, Step int
 	LevelVolts   float64
 	AtStep       bool // Repeat, Step and LevelVolts are meaningful
+	// ACTest is the [[ac_test]] index the run was in (-1: none) and
+	// FrequencyHz its frequency.
+	ACTest      int
+	FrequencyHz float64
 	// Err is the cause: the instrument's error (naming instrument and
 	// command), a soak time-out, or ctx's error on an interruption.
 	Err error
@@ -234,6 +238,13 @@ func (e *RunError) where() string {
 	if e.AtStep {
 		parts = append(parts, fmt.Sprintf("repeat %d, step %d (level %s)", e.Repeat+1, e.Step+1, plan.FormatVolts(e.LevelVolts)))
 	}
+	if e.ACTest >= 0 && e.TestIndex < 0 {
+		s := fmt.Sprintf("ac_test[%d] %s", e.ACTest+1, e.Test)
+		if e.FrequencyHz > 0 {
+			s += fmt.Sprintf(" at %g Hz", e.FrequencyHz)
+		}
+		parts = append(parts, s)
+	}
 	return strings.Join(parts, ", ")
 }
 
@@ -279,6 +290,10 @@ type position struct {
 	step      int
 	level     float64
 	atStep    bool
+	// acTest is the [[ac_test]] index (-1 outside one) and acHz its
+	// frequency (0 before the first).
+	acTest int
+	acHz   float64
 }
 
 // runner carries one run's state.
@@ -371,7 +386,7 @@ func newRunner(p *plan.Plan, rig *Rig, opt RunOptions) *runner {
 		r.done = (&journal.Contents{}).Done()
 	}
 	r.initSkips()
-	r.at = position{tempIndex: -1, test: -1}
+	r.at = position{tempIndex: -1, test: -1, acTest: -1}
 	return r
 }
 
@@ -490,7 +505,7 @@ func (r *runner) campaign(ctx context.Context) error {
 		if r.tempFinished(ti) {
 			continue
 		}
-		r.at = position{tempIndex: ti, tempPoint: point, test: -1}
+		r.at = position{tempIndex: ti, tempPoint: point, test: -1, acTest: -1}
 		if err := r.enterTemperature(ctx, ti, point); err != nil {
 			return err
 		}
@@ -518,6 +533,7 @@ func (r *runner) campaign(ctx context.Context) error {
 			if err := r.runACTests(ctx, ti, u.ID); err != nil {
 				return err
 			}
+			r.at.acTest, r.at.acHz, r.at.kind = -1, 0, ""
 			if err := r.powerDown(ctx); err != nil {
 				return err
 			}
@@ -553,8 +569,8 @@ func (r *runner) abort(ctx context.Context, err error) error {
 	at := r.at
 	e := &RunError{Stage: at.stage, TempIndex: at.tempIndex, TemperatureC: at.tempPoint, Unit: at.unit,
 		TestIndex: at.test, Test: at.kind, Part: at.part, Repeat: at.repeat, Step: at.step,
-		LevelVolts: at.level, AtStep: at.atStep, Err: err}
-	if at.test < 0 {
+		LevelVolts: at.level, AtStep: at.atStep, Err: err, ACTest: at.acTest, FrequencyHz: at.acHz}
+	if at.test < 0 && at.acTest < 0 {
 		e.Test, e.Part = "", ""
 	}
 	if r.p.Temperature.Mode == plan.TempNone {

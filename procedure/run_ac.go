@@ -199,7 +199,7 @@ func (r *runner) runACTests(ctx context.Context, ti int, unit string) error {
 
 func (r *runner) runACTest(ctx context.Context, ti int, unit string, i int) error {
 	t := &r.p.ACTests[i]
-	r.at.test, r.at.kind, r.at.part, r.at.atStep = -1, "ac "+t.Kind, "", false
+	r.at.test, r.at.kind, r.at.part, r.at.atStep, r.at.acTest, r.at.acHz = -1, t.Kind, "", false, i, 0
 	if r.acTestFinished(ti, unit, i) {
 		return nil
 	}
@@ -213,6 +213,7 @@ func (r *runner) runACTest(ctx context.Context, ti int, unit string, i int) erro
 		if r.acFreqFinished(ti, unit, t, fi) {
 			continue
 		}
+		r.at.acHz = f
 		if err := r.acFrequency(ctx, ti, unit, t, gen, ch, fi, f); err != nil {
 			return err
 		}

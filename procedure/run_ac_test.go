@@ -289,6 +289,10 @@ func TestRunACSafeStateGeneratorFirst(t *testing.T) {
 	if !errors.As(err, &re) || re.SafeState != nil || re.Stage != stageACCapture {
 		t.Fatalf("want a RunError at the capture with the safe state reached, got %v", err)
 	}
+	// 7th capture: unit N01, ac_test[1] cmrr, the third frequency's floor.
+	if !strings.Contains(err.Error(), "unit N01, ac_test[1] cmrr at 138.9") {
+		t.Errorf("error does not say where: %v", err)
+	}
 	calls := fb.callsSnapshot()
 	at := -1
 	for i, c := range calls {
