@@ -266,7 +266,8 @@ func (r *runner) acFrequency(ctx context.Context, ti int, unit string, t *plan.A
 			_ = r.rig.Switch.Open(context.WithoutCancel(ctx), t.ThroughChannel)
 		}
 	}()
-	for _, rec := range journal.ACRecords() {
+	nf := len(t.Frequencies())
+	for ri, rec := range journal.ACRecords() {
 		r.at.stage = stageACSetup
 		switch rec {
 		case journal.ACFloor:
@@ -314,7 +315,8 @@ func (r *runner) acFrequency(ctx context.Context, ti int, unit string, t *plan.A
 					return err
 				}
 			}
-			r.recordAC(rd)
+			// The test's records in order, for the progress display.
+			r.recordAC(rd, (fi*3+ri)*t.Records+rep, nf*3*t.Records)
 		}
 	}
 	if through {
@@ -434,15 +436,15 @@ func appendFlag(flags []string, f string) []string {
 }
 
 // recordAC counts an AC record in the outcome and the progress.
-func (r *runner) recordAC(rd journal.ACReading) {
+func (r *runner) recordAC(rd journal.ACReading, step, steps int) {
 	r.out.ACReadings = append(r.out.ACReadings, rd)
 	r.out.Measured++
 	if len(rd.Flags) > 0 {
 		r.out.Flagged++
 	}
 	r.finished++
-	r.prog.Point(PointInfo{Unit: rd.Unit, Test: "ac " + rd.Test, TestIndex: -1, Part: rd.Record, TemperatureC: rd.TemperatureC,
-		Repeat: rd.Repeat, Step: rd.FreqIndex, Done: r.finished, Total: r.out.Total})
+	r.prog.Point(PointInfo{Unit: rd.Unit, Test: "ac " + rd.Test, TestIndex: -1, TemperatureC: rd.TemperatureC,
+		Repeat: rd.Repeat, Step: step, Steps: steps, Done: r.finished, Total: r.out.Total})
 	amp := func(k int) float64 {
 		if k < len(rd.Channels) {
 			return math.Hypot(rd.Channels[k].A, rd.Channels[k].B)
