@@ -51,6 +51,7 @@ const safetyNote = "Plans were checked before any instrument contact: supply spa
 // The first record names the campaign.
 func toReport(recs ...campaignRecord) *report.Campaign {
 	c := &report.Campaign{Generator: "nullbench " + version, SafetyNote: safetyNote}
+
 	for i, r := range recs {
 		p := r.Plan
 		if i == 0 {
@@ -122,6 +123,13 @@ func toReport(recs ...campaignRecord) *report.Campaign {
 	for _, r := range c.Results {
 		if r.Test == plan.TestCMRR {
 			c.ReferenceTests = []string{analysis.ResultCMRRUncorrected}
+			break
+		}
+	}
+	// Frequency-response campaigns add their method statement.
+	for _, r := range recs {
+		if len(r.Plan.ACTests) > 0 {
+			c.Method = append(c.Method, analysis.FreqMethodText()...)
 			break
 		}
 	}

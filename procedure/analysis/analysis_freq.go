@@ -755,3 +755,17 @@ func polePlusDC(fr *FreqResponse, dc *Results, cov float64) {
 	}
 	fr.DCNote = "no DC result of this kind for the unit"
 }
+
+// FreqMethodText is the method statement of the frequency-response
+// results ([[ac_test]]), one paragraph per entry, in the words of the code
+// above; the workbook prints it after MethodText when a campaign has
+// frequency-response tests.
+func FreqMethodText() []string {
+	return []string{
+		"Frequency response: at each frequency a sine from the generator on the common-mode node or one rail; a two-channel digitizer records the stimulus at the part and the fixture output in a coherent record (a whole number of cycles, IEEE Std 1241-2010 §4.1.4.5), each channel reduced to an IEEE Std 1057-2017 three-parameter sine fit at the generator's frequency, with its covariance.",
+		"Coefficient at f: k(f) = (R/S)/(R_th/S_th)/K(f): the response/stimulus ratio of the fits, divided by the through calibration (both channels on the stimulus: the digitizer's channel mismatch) and by the fixture's gain K(f) = K/(1 + j·f·K/GBW) with the part's gain-bandwidth (a board: G/(1 + j·f·(1 + G)/GBW)). Ratio = −20·log10|k(f)| dB, phase = arg k(f).",
+		"Uncertainty per frequency (JCGM 100:2008): Type A from the sine fits of the stimulus and through records; Type B for the through-calibration residual (a tenth of the profile's channel mismatch, common practice), the fixture gain tolerance, the roll-off's share of the gain-bandwidth tolerance, the open-loop-gain scale of a noise-gain stage and the noise floor's share of the response; flatness and amplitude accuracy common to both channels cancel and are listed with zero sensitivity. An AC voltmeter gives magnitudes only, with its accuracy and flatness on both inputs.",
+		"Noise floor: a record with the generator off at each frequency. When the response lies within k standard uncertainties of √(u_fit² + floor²) the result is the lower bound −20·log10((R + k·u)/(S·|M|·|K(f)|)), judged as at DC.",
+		"Single pole: ratio_dB(f) = R_dc − 10·log10(1 + (f/f_p)²) fitted to the resolved frequencies (weighted least squares, Levenberg–Marquardt) gives the low-frequency ratio and the corner with their uncertainties; R_dc is compared with the unit's DC result (|difference| ≤ √(U_DC² + U_pole²)). On a noise-gain stage the sine cmrr is k_c + k_o, compared with cmrr_uncorrected.",
+	}
+}

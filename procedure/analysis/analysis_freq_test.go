@@ -189,3 +189,18 @@ func TestFreqPoleAndDCCheck(t *testing.T) {
 		t.Errorf("DC 103 dB: checked %v consistent %v (%s)", fr.DCChecked, fr.DCConsistent, fr.DCNote)
 	}
 }
+
+// TestFreqMethodTextNamesWhatTheCodeDoes: the frequency method statement
+// names the constants and forms the code uses; a change that is not
+// carried to the text fails here.
+func TestFreqMethodTextNamesWhatTheCodeDoes(t *testing.T) {
+	text := strings.Join(FreqMethodText(), "\n")
+	for _, want := range []string{"three-parameter", "K/(1 + j·f·K/GBW)", "(1 + G)", "a tenth", ResultCMRRUncorrected, "10·log10(1 + (f/f_p)²)", "zero sensitivity"} {
+		if !strings.Contains(text, want) {
+			t.Errorf("method text lacks %q", want)
+		}
+	}
+	if CalibrationResidualFraction != 0.1 {
+		t.Errorf("the text says a tenth, the code uses %g", CalibrationResidualFraction)
+	}
+}
