@@ -538,3 +538,33 @@ func TestRunACClippedRecordFlagged(t *testing.T) {
 		t.Errorf("%d flagged (outcome %d) of %d records", flagged, out.Flagged, len(out.ACReadings))
 	}
 }
+
+// TestOffSwitchesGeneratorsFirst: `nullbench off` switches every generator
+// output off before it reads back or ramps any source or supply.
+func TestOffSwitchesGeneratorsFirst(t *testing.T) {
+	p := acPlan(t)
+	fb := newFakeBench(p)
+	a := newFakeAC(fb)
+	rig := a.rig()
+	for _, o := range a.gen {
+		o.on, o.set = true, true
+	}
+	rep, err := Off(context.Background(), p, rig, OffOptions{Clock: fb.clk})
+	if err != nil {
+		t.Fatal(err)
+	}
+	calls := fb.callsSnapshot()
+	for i, c := range calls[:3] {
+		if c.Role != "generator" || c.Op != "output" || c.On {
+			t.Fatalf("call %d is %s, want a generator output off first", i+1, c)
+		}
+	}
+	for ch, o := range a.gen {
+		if o.on {
+			t.Errorf("generator output %s left on", ch)
+		}
+	}
+	if !strings.Contains(strings.Join(rep.Actions, "\n"), "generator output 1: off") {
+		t.Errorf("actions %q", rep.Actions)
+	}
+}
