@@ -380,7 +380,16 @@ func (s *fakeSwitch) move(ctx context.Context, op, ch string) error {
 	if err := fb.call(ctx, c, time.Millisecond); err != nil {
 		return err
 	}
-	if fb.suppliesOn() {
+	// A through relay ([[ac_test]] through_channel) moves only the
+	// digitizer's channel 2 between two signals; it is switched with the
+	// part powered, by design.
+	through := map[string]bool{}
+	for _, t := range fb.p.ACTests {
+		if t.Through == plan.ThroughSwitch {
+			through[t.ThroughChannel] = true
+		}
+	}
+	if fb.suppliesOn() && !through[ch] {
 		fb.violations = append(fb.violations, fmt.Sprintf("call %d (%s): relay moved with a supply on", len(fb.calls), c))
 	}
 	switch op {
@@ -391,7 +400,13 @@ func (s *fakeSwitch) move(ctx context.Context, op, ch string) error {
 	case "open-all":
 		fb.closed = map[string]bool{}
 	}
-	if len(fb.closed) > 1 {
+	units := 0
+	for k := range fb.closed {
+		if !through[k] {
+			units++
+		}
+	}
+	if units > 1 {
 		fb.violations = append(fb.violations, fmt.Sprintf("call %d (%s): %d channels closed at once", len(fb.calls), c, len(fb.closed)))
 	}
 	return nil

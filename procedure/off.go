@@ -90,6 +90,15 @@ func Off(ctx context.Context, p *plan.Plan, rig *Rig, opt OffOptions) (*OffRepor
 			}
 		}
 	}
+	// Generator outputs first: no sine rides on a rail being ramped down.
+	for _, ch := range sortedKeys(rig.Generators) {
+		g := rig.Generators[ch]
+		if err := call(func(c context.Context) error { return g.SetOutput(c, false) }); err != nil {
+			errs = append(errs, fmt.Errorf("generator output %s: switch off: %w", ch, err))
+		} else {
+			note("generator output %s: off", ch)
+		}
+	}
 	for _, role := range plan.SourceRoles(p) {
 		if src := r.source(role); src != nil {
 			down(role, src, false)

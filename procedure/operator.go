@@ -49,6 +49,11 @@ func NeedsOperator(p *plan.Plan) string {
 	if handSwap(p) {
 		return "the units have no switch channels, so the operator swaps them by hand"
 	}
+	for i, t := range p.ACTests {
+		if t.Through == plan.ThroughManual {
+			return fmt.Sprintf("ac_test[%d] has through = \"manual\": the operator moves the channel-2 probe", i+1)
+		}
+	}
 	switch p.Temperature.Mode {
 	case plan.TempManual:
 		return "temperature.mode = \"manual\": the operator types each temperature"
@@ -148,6 +153,14 @@ func (o *LineOperator) SwapUnit(ctx context.Context, next plan.Unit) (string, er
 		return "", &SkipUnitError{Unit: next.ID, Reason: reason}
 	}
 	return t, nil
+}
+
+// MoveProbe shows msg and waits for Enter (q stops): the manual through
+// calibration of a frequency-response test.
+func (o *LineOperator) MoveProbe(ctx context.Context, msg string) error {
+	fmt.Fprintf(o.Out, "\n%s, then press Enter (q stops): ", msg)
+	_, err := o.readLine(ctx)
+	return err
 }
 
 // Temperature asks for a temperature (manual mode) or a confirmation

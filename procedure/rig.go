@@ -24,6 +24,13 @@ type Rig struct {
 	Switch      instrument.Switch
 	Chamber     instrument.Chamber
 	Thermometer instrument.Thermometer
+	// Frequency response ([[ac_test]]): the generator's outputs by channel
+	// name (the generator role's channel and any generator_channel a test
+	// names), the two-channel digitizer (1 stimulus, 2 response) or,
+	// instead of it, the AC voltmeter's two inputs.
+	Generators map[string]instrument.Generator
+	Digitizer  instrument.Digitizer
+	ACMeters   []instrument.ACVoltmeter
 
 	// Identities of the instruments behind the roles (name, roles,
 	// address, *IDN? answer): Run journals them at its start.
@@ -60,6 +67,9 @@ func (r *Rig) check(p *plan.Plan) error {
 			missing = append(missing, fmt.Sprintf("%s (bound under [bench.roles], so the power sequences drive it)", role))
 		}
 	}
+	if len(p.ACTests) > 0 && r.Digitizer == nil && len(r.ACMeters) < 2 {
+		missing = append(missing, "digitizer (the [[ac_test]] tables need a two-channel digitizer, or an ac_meter with two inputs)")
+	}
 	if len(missing) > 0 {
 		return fmt.Errorf("the bench lacks role(s) the plan needs: %s; bind them under [bench.roles]",
 			strings.Join(missing, "; "))
@@ -87,6 +97,12 @@ func (r *Rig) has(role string) bool {
 		return r.Chamber != nil
 	case plan.RoleThermometer:
 		return r.Thermometer != nil || r.Chamber != nil
+	case plan.RoleGenerator:
+		return len(r.Generators) > 0
+	case plan.RoleDigitizer:
+		return r.Digitizer != nil
+	case plan.RoleACMeter:
+		return len(r.ACMeters) >= 2
 	}
 	return false
 }

@@ -94,7 +94,7 @@ func OpenRig(ctx context.Context, p *plan.Plan, opt RigOptions) (*Rig, func() er
 		opened[n] = in
 		rig.Identities = append(rig.Identities, journal.Identity{Instrument: n, Roles: roles[n], Address: def.Address, IDN: in.Identity.Raw})
 		for _, role := range roles[n] {
-			if err := rig.bind(role, b.Roles.Get(role), in, dopts); err != nil {
+			if err := rig.bind(p, role, b.Roles.Get(role), in, dopts); err != nil {
 				return fail(fmt.Errorf("bench.roles.%s: %w", role, err))
 			}
 		}
@@ -103,7 +103,7 @@ func OpenRig(ctx context.Context, p *plan.Plan, opt RigOptions) (*Rig, func() er
 }
 
 // bind creates the driver of one role on an opened instrument.
-func (r *Rig) bind(role string, rb plan.RoleBinding, in *instrument.Instrument, o instrument.DriverOptions) error {
+func (r *Rig) bind(p *plan.Plan, role string, rb plan.RoleBinding, in *instrument.Instrument, o instrument.DriverOptions) error {
 	s, prof := in.Session, in.Profile
 	readback := func(a instrument.SupplyAccuracy) estimate.Accuracy {
 		return estimate.Accuracy{GainPPM: a.ReadbackGainPPM, OffsetVolts: a.ReadbackOffsetVolts}
@@ -162,6 +162,30 @@ func (r *Rig) bind(role string, rb plan.RoleBinding, in *instrument.Instrument, 
 			return err
 		}
 		r.Thermometer = d
+	case plan.RoleGenerator:
+		r.Generators = map[string]instrument.Generator{}
+		for _, ch := range plan.GeneratorChannels(p) {
+			g, err := instrument.NewGenerator(s, prof, ch, o)
+			if err != nil {
+				return err
+			}
+			r.Generators[ch] = g
+		}
+	case plan.RoleDigitizer:
+		d, err := instrument.NewDigitizer(s, prof, o)
+		if err != nil {
+			return err
+		}
+		r.Digitizer = d
+	case plan.RoleACMeter:
+		r.ACMeters = nil
+		for _, ch := range []string{"1", "2"} {
+			m, err := instrument.NewACVoltmeter(s, prof, ch, o)
+			if err != nil {
+				return err
+			}
+			r.ACMeters = append(r.ACMeters, m)
+		}
 	default:
 		return fmt.Errorf("unknown role %q", role)
 	}

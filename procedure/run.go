@@ -103,12 +103,15 @@ type Outcome struct {
 	// Readings holds every point of the campaign so far: those recovered
 	// from the journal (in journal order), then those of this run, in the
 	// order measured. KeyOf gives each one's work key.
-	Readings  []journal.Reading
-	Recovered int // readings that came from the journal
-	Measured  int // readings taken by this run
-	Flagged   int // readings of this run carrying a flag
-	Total     int // points the plan asks for
-	Complete  bool
+	Readings []journal.Reading
+	// ACReadings are the frequency-response records, recovered then
+	// measured, like Readings.
+	ACReadings []journal.ACReading
+	Recovered  int // readings that came from the journal
+	Measured   int // readings taken by this run
+	Flagged    int // readings of this run carrying a flag
+	Total      int // points the plan asks for
+	Complete   bool
 	// BenchSeconds is the bench time when the run stopped.
 	BenchSeconds float64
 }
@@ -152,6 +155,13 @@ func Run(ctx context.Context, p *plan.Plan, rig *Rig, opt RunOptions) (*Outcome,
 	if why := NeedsOperator(p); why != "" && opt.Operator == nil {
 		return nil, fmt.Errorf("%s, but there is no operator to ask (run it from an interactive terminal)", why)
 	}
+	if NeedsOperator(p) != "" && opt.Operator != nil {
+		for i, t := range p.ACTests {
+			if _, ok := opt.Operator.(ThroughOperator); t.Through == plan.ThroughManual && !ok {
+				return nil, fmt.Errorf("ac_test[%d] has through = \"manual\", but the operator cannot be asked to move a probe", i+1)
+			}
+		}
+	}
 	if opt.Resume != nil {
 		if err := journal.CheckPlanMatch(p, opt.Resume); err != nil {
 			return nil, err
@@ -173,6 +183,10 @@ type RunError struct {
 	Repeat, Step int
 	LevelVolts   float64
 	AtStep       bool // Repeat, Step and LevelVolts are meaningful
+	// ACTest is the [[ac_test]] index the run was in (-1: none) and
+	// FrequencyHz its frequency.
+	ACTest      int
+	FrequencyHz float64
 	// Err is the cause: the instrument's error (naming instrument and
 	// command), a soak time-out, or ctx's error on an interruption.
 	Err error
@@ -225,6 +239,13 @@ func (e *RunError) where() string {
 	if e.AtStep {
 		parts = append(parts, fmt.Sprintf("repeat %d, step %d (level %s)", e.Repeat+1, e.Step+1, plan.FormatVolts(e.LevelVolts)))
 	}
+	if e.ACTest >= 0 && e.TestIndex < 0 {
+		s := fmt.Sprintf("ac_test[%d] %s", e.ACTest+1, e.Test)
+		if e.FrequencyHz > 0 {
+			s += fmt.Sprintf(" at %g Hz", e.FrequencyHz)
+		}
+		parts = append(parts, s)
+	}
 	return strings.Join(parts, ", ")
 }
 
@@ -270,6 +291,10 @@ type position struct {
 	step      int
 	level     float64
 	atStep    bool
+	// acTest is the [[ac_test]] index (-1 outside one) and acHz its
+	// frequency (0 before the first).
+	acTest int
+	acHz   float64
 }
 
 // runner carries one run's state.
@@ -295,15 +320,18 @@ type runner struct {
 	// unsure holds the roles whose last set command failed: the instrument
 	// may have applied it all the same (a reply lost after the change), so
 	// the safe state reads them back before ramping down.
-	unsure   map[string]bool
-	tried    map[string]float64 // role -> largest magnitude of a failed set command (plausible.go)
-	redialed map[string]bool    // sessions the safe state dialed again (recover.go)
-	powered  bool               // a supply output may be on
-	chamber  bool               // the chamber's set point was changed
-	at       position
-	tempC    float64 // temperature recorded with readings when not read per point
-	eta      etaEstimator
-	finished int // points done, recovered included
+	unsure map[string]bool
+	tried  map[string]float64 // role -> largest magnitude of a failed set command (plausible.go)
+	// genOn holds the generator outputs that may be on; genLimited those
+	// whose limits were checked and set (run_ac.go).
+	genOn, genLimited map[string]bool
+	redialed          map[string]bool // sessions the safe state dialed again (recover.go)
+	powered           bool            // a supply output may be on
+	chamber           bool            // the chamber's set point was changed
+	at                position
+	tempC             float64 // temperature recorded with readings when not read per point
+	eta               etaEstimator
+	finished          int // points done, recovered included
 	// skipped holds the units skipped so far (journalled), pending the
 	// ones asked for in RunOptions.Skip that the run has not reached yet.
 	skipped, pending map[string]string
@@ -337,7 +365,8 @@ func newRunner(p *plan.Plan, rig *Rig, opt RunOptions) *runner {
 		r.done = c.Done()
 		r.session = len(c.Resumes) + 1
 		r.out.Readings = append(r.out.Readings, c.Readings...)
-		r.out.Recovered = len(c.Readings)
+		r.out.ACReadings = append(r.out.ACReadings, c.ACReadings...)
+		r.out.Recovered = len(c.Readings) + len(c.ACReadings)
 		// Continue the bench-time axis of the journal: its last bench time
 		// plus the wall time since, in bench time. A drift term fitted
 		// across the break then sees one time axis.
@@ -358,7 +387,7 @@ func newRunner(p *plan.Plan, rig *Rig, opt RunOptions) *runner {
 		r.done = (&journal.Contents{}).Done()
 	}
 	r.initSkips()
-	r.at = position{tempIndex: -1, test: -1}
+	r.at = position{tempIndex: -1, test: -1, acTest: -1}
 	return r
 }
 
@@ -419,6 +448,11 @@ func (r *runner) count() (total, done int) {
 					}
 				}
 			}
+			for i := range r.p.ACTests {
+				t, d := r.acPoints(ti, u.ID, i)
+				total += t
+				done += d
+			}
 		}
 	}
 	return total, done
@@ -432,6 +466,11 @@ func (r *runner) unitFinished(ti int, unit string) bool {
 	}
 	for i := range r.p.Tests {
 		if !r.testFinished(ti, unit, i) {
+			return false
+		}
+	}
+	for i := range r.p.ACTests {
+		if !r.acTestFinished(ti, unit, i) {
 			return false
 		}
 	}
@@ -467,7 +506,7 @@ func (r *runner) campaign(ctx context.Context) error {
 		if r.tempFinished(ti) {
 			continue
 		}
-		r.at = position{tempIndex: ti, tempPoint: point, test: -1}
+		r.at = position{tempIndex: ti, tempPoint: point, test: -1, acTest: -1}
 		if err := r.enterTemperature(ctx, ti, point); err != nil {
 			return err
 		}
@@ -492,6 +531,10 @@ func (r *runner) campaign(ctx context.Context) error {
 				}
 			}
 			r.at.test, r.at.atStep = -1, false
+			if err := r.runACTests(ctx, ti, u.ID); err != nil {
+				return err
+			}
+			r.at.acTest, r.at.acHz, r.at.kind = -1, 0, ""
 			if err := r.powerDown(ctx); err != nil {
 				return err
 			}
@@ -527,8 +570,8 @@ func (r *runner) abort(ctx context.Context, err error) error {
 	at := r.at
 	e := &RunError{Stage: at.stage, TempIndex: at.tempIndex, TemperatureC: at.tempPoint, Unit: at.unit,
 		TestIndex: at.test, Test: at.kind, Part: at.part, Repeat: at.repeat, Step: at.step,
-		LevelVolts: at.level, AtStep: at.atStep, Err: err}
-	if at.test < 0 {
+		LevelVolts: at.level, AtStep: at.atStep, Err: err, ACTest: at.acTest, FrequencyHz: at.acHz}
+	if at.test < 0 && at.acTest < 0 {
 		e.Test, e.Part = "", ""
 	}
 	if r.p.Temperature.Mode == plan.TempNone {

@@ -104,6 +104,9 @@ func (r *runner) benchOff(ctx context.Context) error {
 		}
 		return nil
 	}
+	if errs := r.generatorsOff(ctx, 0); len(errs) > 0 {
+		return fmt.Errorf("before the first unit: %w", errs[0])
+	}
 	for _, role := range plan.SourceRoles(r.p) {
 		if src := r.source(role); src != nil {
 			if err := down(role, src, false); err != nil {
@@ -312,6 +315,9 @@ func (r *runner) safeState(runCtx context.Context) error {
 	// The read-back is checked against what the runner programmed (the
 	// last good value and the failed one): an implausible answer is not
 	// used, the ramp starts from the programmed value instead (rampStart).
+	// Every generator output off FIRST: a sine on an input or a rail must
+	// not outlive the rails it rides on.
+	errs = append(errs, r.generatorsOff(ctx, r.timing.SafeCallTimeout)...)
 	r.resolveUnsure(ctx)
 	acts := plan.PowerDownFrom(r.p, r.state)
 	i := 0

@@ -18,12 +18,17 @@ import (
 // campaignRecord is one measured plan: what the report needs beside the
 // analysis results.
 type campaignRecord struct {
-	Plan       *plan.Plan
-	Readings   []journal.Reading
-	Results    *analysis.Results
-	Identities []journal.Identity
-	Started    time.Time
-	Finished   time.Time
+	Plan     *plan.Plan
+	Readings []journal.Reading
+	Results  *analysis.Results
+	// ACReadings are the frequency-response records; Freq their analysis
+	// (analysis.AnalyzeFreq) and FreqProblems what could not be analysed.
+	ACReadings   []journal.ACReading
+	Freq         []analysis.FreqResponse
+	FreqProblems []analysis.Problem
+	Identities   []journal.Identity
+	Started      time.Time
+	Finished     time.Time
 
 	// JournalPath is the journal the readings came from ("" in tests that
 	// build records by hand); finish reads it again for completeness,
@@ -47,6 +52,7 @@ const safetyNote = "Plans were checked before any instrument contact: supply spa
 // The first record names the campaign.
 func toReport(recs ...campaignRecord) *report.Campaign {
 	c := &report.Campaign{Generator: "nullbench " + version, SafetyNote: safetyNote}
+
 	for i, r := range recs {
 		p := r.Plan
 		if i == 0 {
@@ -118,6 +124,13 @@ func toReport(recs ...campaignRecord) *report.Campaign {
 	for _, r := range c.Results {
 		if r.Test == plan.TestCMRR {
 			c.ReferenceTests = []string{analysis.ResultCMRRUncorrected}
+			break
+		}
+	}
+	// Frequency-response campaigns add their method statement.
+	for _, r := range recs {
+		if len(r.Plan.ACTests) > 0 {
+			c.Method = append(c.Method, analysis.FreqMethodText()...)
 			break
 		}
 	}

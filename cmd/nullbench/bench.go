@@ -67,7 +67,7 @@ func openBench(ctx context.Context, p *plan.Plan, sleep func(context.Context, ti
 			closeAll()
 			return nil, nil, fmt.Errorf("plan %s: role %s names instrument %q, which [bench.instrument] does not define", p.Source, rb.role, rb.binding.Instrument)
 		}
-		if err := bindRole(rig, rb.role, rb.binding, in, opts); err != nil {
+		if err := bindRole(p, rig, rb.role, rb.binding, in, opts); err != nil {
 			closeAll()
 			return nil, nil, fmt.Errorf("plan %s, [bench.roles] %s = instrument %q (profile %s): %w", p.Source, rb.role, rb.binding.Instrument, in.Profile.File, err)
 		}
@@ -86,6 +86,7 @@ func roleBindings(p *plan.Plan) []roleBinding {
 		{"meter", r.Meter}, {"supply_pos", r.SupplyPos}, {"supply_neg", r.SupplyNeg},
 		{"source_cm", r.SourceCM}, {"source_diff", r.SourceDiff}, {"source_ref", r.SourceRef},
 		{"switch", r.Switch}, {"chamber", r.Chamber}, {"thermometer", r.Thermometer},
+		{"generator", r.Generator}, {"digitizer", r.Digitizer}, {"ac_meter", r.ACMeter},
 	}
 }
 
@@ -99,7 +100,7 @@ func usedBy(roles []roleBinding, name string) []string {
 	return out
 }
 
-func bindRole(rig *procedure.Rig, role string, b plan.RoleBinding, in *instrument.Instrument, opts instrument.DriverOptions) error {
+func bindRole(p *plan.Plan, rig *procedure.Rig, role string, b plan.RoleBinding, in *instrument.Instrument, opts instrument.DriverOptions) error {
 	s, prof := in.Session, in.Profile
 	switch role {
 	case "meter":
@@ -155,6 +156,30 @@ func bindRole(rig *procedure.Rig, role string, b plan.RoleBinding, in *instrumen
 			return err
 		}
 		rig.Thermometer = d
+	case "generator":
+		rig.Generators = map[string]instrument.Generator{}
+		for _, ch := range plan.GeneratorChannels(p) {
+			g, err := instrument.NewGenerator(s, prof, ch, opts)
+			if err != nil {
+				return err
+			}
+			rig.Generators[ch] = g
+		}
+	case "digitizer":
+		d, err := instrument.NewDigitizer(s, prof, opts)
+		if err != nil {
+			return err
+		}
+		rig.Digitizer = d
+	case "ac_meter":
+		rig.ACMeters = nil
+		for _, ch := range []string{"1", "2"} {
+			m, err := instrument.NewACVoltmeter(s, prof, ch, opts)
+			if err != nil {
+				return err
+			}
+			rig.ACMeters = append(rig.ACMeters, m)
+		}
 	default:
 		return errors.New("unknown role " + role)
 	}

@@ -24,6 +24,15 @@ var demoLotPlan string
 //go:embed demo/board.toml
 var demoBoardPlan string
 
+//go:embed demo/freq.toml
+var demoFreqPlan string
+
+// demoFreqLot is the simulated lot of the frequency-response campaign: op-amps
+// in a noise-gain stage, on a second simulated bench of their own.
+//
+//go:embed demo/freq_lot.toml
+var demoFreqLot string
+
 type demoOptions struct {
 	DUT       string
 	TimeScale float64
@@ -39,7 +48,11 @@ func newDemoCmd(std streams, run func(context.Context, streams, demoOptions) err
 		Long: `demo starts the simulated bench in this process and measures an invented
 campaign on it, exactly as "run" measures a plan on real instruments: an
 op-amp lot on a switch matrix in a nulling loop (cmrr, psrr_pos, psrr_neg,
-psrr_sym and aol at 25, 85 and -40 °C), then one finished board. It writes
+psrr_sym and aol at 25, 85 and -40 °C), then one finished board (with its
+CMRR at 50 and 60 Hz), then, on a second simulated bench, three op-amps in
+a noise-gain stage against frequency (cmrr, psrr_pos and psrr_neg at 8
+frequencies from 10 Hz to 100 kHz, the frequency response printed after
+the summary). It writes
 the plans, journals, workbook and exports into --out and prints a summary.
 
 --dut replaces the simulated parts with your own (keys cmrr_db, psrr_pos_db,
@@ -89,6 +102,14 @@ func runDemo(ctx context.Context, std streams, o demoOptions) error {
 	if err != nil {
 		return withCode(exitFailure, err)
 	}
+	// The frequency-response campaign: three op-amps in a noise-gain stage
+	// on a second simulated bench (its lot is built in, whatever --dut says).
+	freqPath, closeFreq, err := startFreqDemo(ctx, std, o)
+	if err != nil {
+		return err
+	}
+	defer closeFreq()
+	plans = append(plans, freqPath)
 	var recs []campaignRecord
 	var runErr error
 	for _, path := range plans {
@@ -182,7 +203,7 @@ func writeDemoPlans(dir string, bench *sim.Bench, dut *sim.DUTFile, timeScale fl
 		var b strings.Builder
 		b.WriteString(text)
 		writeUnits(&b, []sim.UnitTruth{bt})
-		b.WriteString("\n" + section)
+		b.WriteString("\n" + withACRoles(section))
 		path := filepath.Join(dir, fmt.Sprintf("board-%s-plan.toml", bt.ID))
 		if err := os.WriteFile(path, []byte(b.String()), 0o644); err != nil {
 			return nil, err
@@ -200,4 +221,38 @@ func writeUnits(b *strings.Builder, units []sim.UnitTruth) {
 	for _, u := range units {
 		fmt.Fprintf(b, "\n[[unit]]\nid = %q\nchannel = %q\n", u.ID, u.Channel)
 	}
+}
+
+// withACRoles binds the simulated bench's generator (output 1, the
+// common-mode node) and digitizer in a bench section.
+func withACRoles(section string) string {
+	return strings.Replace(section, "[bench.roles]\n",
+		"[bench.roles]\ngenerator   = { instrument = \""+sim.NameGen+"\", channel = \"1\" }\ndigitizer   = { instrument = \""+sim.NameDig+"\" }\n", 1)
+}
+
+// startFreqDemo starts the frequency campaign's simulated bench and writes
+// its plan into o.Out; the returned function stops the bench.
+func startFreqDemo(ctx context.Context, std streams, o demoOptions) (string, func(), error) {
+	dut, err := sim.ParseDUT([]byte(demoFreqLot), "freq_lot.toml")
+	if err != nil {
+		return "", nil, withCode(exitFailure, fmt.Errorf("built-in frequency lot: %w", err))
+	}
+	bench, err := sim.New(sim.Config{DUT: dut, TimeScale: o.TimeScale, Seed: o.Seed})
+	if err != nil {
+		return "", nil, withCode(exitUsage, err)
+	}
+	if err := bench.Start(ctx, sim.ServeOptions{}); err != nil {
+		bench.Close()
+		return "", nil, withCode(exitFailure, fmt.Errorf("start the frequency campaign's simulated bench: %w", err))
+	}
+	var b strings.Builder
+	b.WriteString(demoFreqPlan)
+	writeUnits(&b, bench.Truth())
+	b.WriteString("\n" + withACRoles(bench.BenchSection()))
+	path := filepath.Join(o.Out, "freq-plan.toml")
+	if err := os.WriteFile(path, []byte(b.String()), 0o644); err != nil {
+		bench.Close()
+		return "", nil, withCode(exitFailure, err)
+	}
+	return path, func() { bench.Close() }, nil
 }

@@ -88,13 +88,23 @@ func TestDemoWithSmallDUT(t *testing.T) {
 	for _, test := range []string{"board_cmrr", "board_psrr_pos", "board_psrr_neg"} {
 		want["B01/"+test] = 1
 	}
+	// The frequency campaign's short DC sweep: k_c + k_o of each of its
+	// three noise-gain units (its frequency results go to the summary).
+	for _, u := range []string{"F01", "F02", "F03"} {
+		want[u+"/cmrr_uncorrected"] = 1
+	}
 	for k, n := range want {
 		if count[k] != n {
 			t.Errorf("%s: %d results, want %d", k, count[k], n)
 		}
 	}
-	if len(lines) != 24 {
-		t.Errorf("%d results, want 24: %v", len(lines), count)
+	if len(lines) != 27 {
+		t.Errorf("%d results, want 27: %v", len(lines), count)
+	}
+	for _, s := range []string{"Frequency response", "F01 CMRR (cmrr", "B01 board CMRR (board_cmrr", "single pole", "agrees with the DC result"} {
+		if !strings.Contains(r.err, s) {
+			t.Errorf("frequency summary lacks %q", s)
+		}
 	}
 	if verdicts["U01/cmrr"] != "fail" || verdicts["U01/psrr_pos"] != "pass" || verdicts["B01/board_cmrr"] != "pass" {
 		t.Errorf("verdicts at 25 °C %v; want U01 cmrr fail (94 dB against 100), psrr_pos and the board pass", verdicts)
@@ -116,9 +126,9 @@ func TestDemoWithSmallDUT(t *testing.T) {
 		t.Errorf("sheet %s: %d rows (%v), want %d", report.SheetResults, len(rows), err, 1+len(lines))
 	}
 
-	// report from the two journals alone: the same results, the same
+	// report from the three journals alone: the same results, the same
 	// exit status a run would give (5: a result failed its limit).
-	rargs := []string{"report", filepath.Join(out, "lot-journal.jsonl"), filepath.Join(out, "board-B01-journal.jsonl"), "--out", filepath.Join(dir, "again"), "--json", "--no-charts"}
+	rargs := []string{"report", filepath.Join(out, "lot-journal.jsonl"), filepath.Join(out, "board-B01-journal.jsonl"), filepath.Join(out, "freq-journal.jsonl"), "--out", filepath.Join(dir, "again"), "--json", "--no-charts"}
 	rr := cliExec(t, rargs...)
 	cliWantCode(t, rr, exitOutOfLimits, rargs...)
 	if rr.out != r.out {

@@ -270,6 +270,7 @@ func measure(ctx context.Context, std streams, o measureOptions) (campaignRecord
 	rec.Finished = time.Now().UTC()
 	if out != nil {
 		rec.Readings = out.Readings
+		rec.ACReadings = out.ACReadings
 	}
 	if runErr != nil {
 		var se *plan.SafetyError

@@ -81,9 +81,12 @@ func runReport(std streams, o reportOptions) error {
 		if jc.Truncated {
 			fmt.Fprintf(std.Err, "journal %s: line %d is incomplete (the run was stopped while writing it) and was left out\n", j, jc.TruncatedLine)
 		}
-		rec := campaignRecord{Plan: p, Readings: jc.Readings, Identities: jc.Identities, Started: jc.Header.Started, JournalPath: j, Folder: folder}
+		rec := campaignRecord{Plan: p, Readings: jc.Readings, ACReadings: jc.ACReadings, Identities: jc.Identities, Started: jc.Header.Started, JournalPath: j, Folder: folder}
 		if n := len(jc.Readings); n > 0 {
 			rec.Finished = jc.Readings[n-1].Time
+		}
+		if n := len(jc.ACReadings); n > 0 && jc.ACReadings[n-1].Time.After(rec.Finished) {
+			rec.Finished = jc.ACReadings[n-1].Time
 		}
 		recs = append(recs, rec)
 	}

@@ -117,7 +117,7 @@ func finish(std streams, o outputOptions, runErr error, recs ...campaignRecord) 
 		if rec.Integrity != nil && integrity == nil {
 			integrity = rec.Integrity
 		}
-		if len(rec.Readings) == 0 {
+		if len(rec.Readings) == 0 && len(rec.ACReadings) == 0 {
 			continue
 		}
 		var resolve profileResolver
@@ -132,6 +132,12 @@ func finish(std streams, o outputOptions, runErr error, recs ...campaignRecord) 
 			return err
 		}
 		rec.Results = res
+		if err := analyseFreq(&rec, resolve); err != nil {
+			if runErr != nil {
+				return runErr
+			}
+			return err
+		}
 		measured = append(measured, rec)
 	}
 	if len(measured) == 0 {
@@ -150,6 +156,9 @@ func finish(std streams, o outputOptions, runErr error, recs ...campaignRecord) 
 		summary = std.Err // standard output carries the JSON lines
 	}
 	printSummary(summary, c, book)
+	for _, rec := range measured {
+		printFreqSummary(summary, rec)
+	}
 	if _, err := readManifest(o.Out); err != nil && len(measured) > 0 {
 		// A report written away from its run folder: the manifest names
 		// the plan, so a later report of the same plan may write here.
@@ -172,7 +181,7 @@ func finish(std streams, o outputOptions, runErr error, recs ...campaignRecord) 
 	if integrity != nil {
 		return withCode(exitFailure, fmt.Errorf("%w: the workbook %s says so on its Summary sheet; compare the journal with a backup", integrity, book))
 	}
-	if anyFailed(c) {
+	if anyFailed(c) || freqFailed(measured) {
 		return withCode(exitOutOfLimits, fmt.Errorf("some results did not pass their limits (see %s)", book))
 	}
 	return nil

@@ -33,5 +33,20 @@ func CheckReadings(p *plan.Plan, c *Contents) error {
 		}
 		seen[k] = line
 	}
+	for i, r := range c.ACReadings {
+		line := 0
+		if i < len(c.ACReadingLines) {
+			line = c.ACReadingLines[i]
+		}
+		if !units[r.Unit] {
+			return fmt.Errorf("line %d: an ac-reading for unit %q, which the plan does not list; was the journal edited or joined with another?", line, r.Unit)
+		}
+		k := ACKeyOf(r)
+		if first, dup := seen[k]; dup {
+			return fmt.Errorf("line %d: a second %s record for unit %s %s at %g Hz, record %d, temperature point %d (first on line %d); remove one of them",
+				line, r.Record, r.Unit, r.Test, r.FrequencyHz, r.Repeat+1, r.TempIndex+1, first)
+		}
+		seen[k] = line
+	}
 	return nil
 }

@@ -39,7 +39,9 @@ type Completeness struct {
 func (k Completeness) Complete() bool { return k.Missing == 0 }
 
 // CompletenessOf counts the points plan p asks for — every temperature ×
-// unit × test × repeat × step of its step table (plan.TestSteps) — and how
+// unit × test × repeat × step of its step table (plan.TestSteps), and every
+// temperature × unit × [[ac_test]] frequency × record (floor, through,
+// stimulus) × records per point — and how
 // many of them the journal holds a reading for. Units skipped in the
 // journal are left out of the count.
 func CompletenessOf(p *plan.Plan, c *Contents) Completeness {
@@ -60,6 +62,28 @@ func CompletenessOf(p *plan.Plan, c *Contents) Completeness {
 							k.Measured++
 						} else {
 							k.MissingByUnit[u.ID]++
+						}
+					}
+				}
+			}
+		}
+	}
+	for _, t := range p.ACTests {
+		for ti := 0; ti < temps; ti++ {
+			for _, u := range p.Units {
+				if _, skip := k.Skipped[u.ID]; skip {
+					continue
+				}
+				for fi := range t.Frequencies() {
+					for _, rec := range ACRecords() {
+						for rep := 0; rep < t.Records; rep++ {
+							k.Planned++
+							key := ACKeyOf(ACReading{TempIndex: ti, Unit: u.ID, Test: t.Kind, Record: rec, FreqIndex: fi, Repeat: rep})
+							if done.Has(key) {
+								k.Measured++
+							} else {
+								k.MissingByUnit[u.ID]++
+							}
 						}
 					}
 				}

@@ -32,6 +32,9 @@ const (
 	RecordPassDone = "pass-done"
 	RecordTestDone = "test-done"
 	RecordEnd      = "end"
+	// RecordACReading is one record of a frequency-response test
+	// (ACReading, ac.go); it marks its point done like a reading.
+	RecordACReading = "ac-reading"
 )
 
 // Event types (Event.Type). Others may be written; readers keep them.
@@ -98,6 +101,7 @@ type Record struct {
 	Event    *Event        `json:"event,omitempty"`
 	Work     *plan.WorkKey `json:"work,omitempty"` // pass-done, test-done
 	End      *End          `json:"end,omitempty"`
+	AC       *ACReading    `json:"ac,omitempty"` // ac-reading
 	// Chain is the running hash of this record and every one before it
 	// (chain.go); Write sets it.
 	Chain string `json:"chain,omitempty"`
@@ -309,6 +313,8 @@ func checkRecord(r *Record) error {
 		want = "work"
 	case RecordEnd:
 		want = "end"
+	case RecordACReading:
+		want = "ac"
 	case "":
 		return errors.New("record without kind")
 	default:
@@ -319,7 +325,7 @@ func checkRecord(r *Record) error {
 		ok   bool
 	}{
 		{"header", r.Header != nil}, {"identity", r.Identity != nil}, {"reading", r.Reading != nil},
-		{"event", r.Event != nil}, {"work", r.Work != nil}, {"end", r.End != nil},
+		{"event", r.Event != nil}, {"work", r.Work != nil}, {"end", r.End != nil}, {"ac", r.AC != nil},
 	}
 	for _, h := range have {
 		if h.ok != (h.name == want) {
@@ -346,6 +352,8 @@ func checkRecord(r *Record) error {
 		if r.Reading.Unit == "" || r.Reading.Test == "" {
 			return errors.New("reading record without unit or test")
 		}
+	case RecordACReading:
+		return checkACReading(r.AC)
 	case RecordPassDone, RecordTestDone:
 		if r.Work.Unit == "" || r.Work.Test == "" {
 			return fmt.Errorf("%s record without unit or test", r.Kind)

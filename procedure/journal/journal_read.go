@@ -22,10 +22,14 @@ type Contents struct {
 	// ReadingLines holds the journal line of each of Readings.
 	ReadingLines []int
 	Events       []Event
-	Passes       []plan.WorkKey // pass-done markers
-	Tests        []plan.WorkKey // test-done markers
-	End          *End           // the last end record, if no resume followed it
-	Records      int            // complete records read
+	// ACReadings are the frequency-response records (ac.go), with the
+	// journal line of each in ACReadingLines.
+	ACReadings     []ACReading
+	ACReadingLines []int
+	Passes         []plan.WorkKey // pass-done markers
+	Tests          []plan.WorkKey // test-done markers
+	End            *End           // the last end record, if no resume followed it
+	Records        int            // complete records read
 
 	// Chained says the records carry running hashes (chain.go); LastChain
 	// is the last record's, ChainBreakLine the first line whose hash does
@@ -130,6 +134,9 @@ func Read(r io.Reader) (*Contents, error) {
 		case RecordReading:
 			c.Readings = append(c.Readings, *rec.Reading)
 			c.ReadingLines = append(c.ReadingLines, line)
+		case RecordACReading:
+			c.ACReadings = append(c.ACReadings, *rec.AC)
+			c.ACReadingLines = append(c.ACReadingLines, line)
 		case RecordEvent:
 			c.Events = append(c.Events, *rec.Event)
 		case RecordPassDone:
@@ -166,6 +173,9 @@ func (c *Contents) Done() WorkSet {
 	w := WorkSet{points: map[plan.WorkKey]bool{}, passes: map[plan.WorkKey]bool{}, tests: map[plan.WorkKey]bool{}}
 	for _, r := range c.Readings {
 		w.points[KeyOf(r)] = true
+	}
+	for _, r := range c.ACReadings {
+		w.points[ACKeyOf(r)] = true
 	}
 	for _, k := range c.Passes {
 		w.passes[passOnly(k)] = true

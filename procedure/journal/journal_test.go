@@ -402,6 +402,8 @@ func FuzzReadJournal(f *testing.F) {
 	recs = append(recs,
 		Record{Kind: RecordReading, Reading: &b},
 		Record{Kind: RecordPassDone, Work: &plan.WorkKey{Unit: "U01", Test: plan.TestCMRR}},
+		Record{Kind: RecordACReading, AC: &ACReading{Unit: "U01", Test: plan.TestCMRR, FrequencyHz: 60, Record: ACStimulus,
+			Channels: []ACChannelFit{{FrequencyHz: 60, A: 1, N: 2000, DOF: 1997}, {FrequencyHz: 60, B: 1e-3, N: 2000, DOF: 1997}}}},
 		Record{Kind: RecordEvent, Event: &Event{Type: EventSafeState}},
 		Record{Kind: RecordEnd, End: &End{Status: EndInterrupted}},
 		Record{Kind: RecordResume, Header: &h},

@@ -215,6 +215,7 @@ func WriteCheck(w io.Writer, p *Plan, fc CheckForecast) error {
 			fc.WriteTest(ew, i)
 		}
 	}
+	writeACTests(pf, p)
 
 	if fc != nil {
 		fc.WriteSummary(ew)

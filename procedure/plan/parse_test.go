@@ -391,7 +391,7 @@ func TestCloseKeySuggestion(t *testing.T) {
 // FuzzParsePlan: the parser never panics, every error names the file, and
 // every plan it accepts is valid and hashed.
 func FuzzParsePlan(f *testing.F) {
-	for _, name := range []string{"lot", "noise_gain", "board", "unsafe_hazardous"} {
+	for _, name := range []string{"lot", "noise_gain", "board", "unsafe_hazardous", "freq_noise_gain"} {
 		data, err := os.ReadFile(filepath.Join(examplePlanDir, name+".toml"))
 		if err != nil {
 			f.Fatal(err)
@@ -402,6 +402,7 @@ func FuzzParsePlan(f *testing.F) {
 	f.Add([]byte("[[test]]\nkind = 'cmrr'\nlevels = [1, 2, nan]\n"))
 	f.Add([]byte("[bench.roles]\nmeter = { instrument = \"x\" }\n"))
 	f.Add([]byte(""))
+	f.Add([]byte("[[ac_test]]\nkind = 'cmrr'\nstart_hz = 10.0\nstop_hz = 1e9\npoints = 1000000\nlimits_db = [nan]\n"))
 	f.Fuzz(func(t *testing.T, data []byte) {
 		p, err := Parse(data, "fuzz.toml")
 		if err != nil {
@@ -419,6 +420,10 @@ func FuzzParsePlan(f *testing.F) {
 		// The pure functions must not panic on any accepted plan.
 		_ = StepTable(p)
 		_ = AssessHazard(p)
+		for i := range p.ACTests {
+			_ = p.ACTests[i].Frequencies()
+			_ = ACPeakStates(p, &p.ACTests[i])
+		}
 		if CheckSafety(p) == nil {
 			_ = PowerUpOrder(p)
 			_ = PowerDownOrder(p)

@@ -16,12 +16,15 @@ type Plan struct {
 	Limits   Limits   `toml:"limits"`
 	// LimitsFullRange are the limits over the full temperature range, as
 	// data sheets state them beside the 25 °C ones (see LimitAt).
-	LimitsFullRange Limits        `toml:"limits_full_range"`
-	Decision        Decision      `toml:"decision"`
-	Tests           []Test        `toml:"test"`
-	Units           []Unit        `toml:"unit"`
-	Temperature     Temperature   `toml:"temperature"`
-	Safety          SafetyOptions `toml:"safety"`
+	LimitsFullRange Limits   `toml:"limits_full_range"`
+	Decision        Decision `toml:"decision"`
+	Tests           []Test   `toml:"test"`
+	// ACTests are the rejection-versus-frequency tests (ac.go).
+	ACTests     []ACTest        `toml:"ac_test"`
+	Generator   GeneratorLimits `toml:"generator"`
+	Units       []Unit          `toml:"unit"`
+	Temperature Temperature     `toml:"temperature"`
+	Safety      SafetyOptions   `toml:"safety"`
 
 	// Source is the file the plan came from (for error messages), and
 	// Hash the SHA-256 of its bytes (hex), which ties journals to plans.
@@ -74,6 +77,12 @@ type Roles struct {
 	Switch      RoleBinding `toml:"switch"`
 	Chamber     RoleBinding `toml:"chamber"`
 	Thermometer RoleBinding `toml:"thermometer"`
+	// Frequency response ([[ac_test]]): the sine generator, the
+	// two-channel digitizer (channel 1 stimulus, 2 response) or the AC
+	// voltmeter instead of it.
+	Generator RoleBinding `toml:"generator"`
+	Digitizer RoleBinding `toml:"digitizer"`
+	ACMeter   RoleBinding `toml:"ac_meter"`
 }
 
 // RoleBinding names the instrument serving a role and, for multi-channel
@@ -161,6 +170,13 @@ type Part struct {
 	// FlickerCornerHz is the corner below which that noise rises as 1/f
 	// (data sheet); 0: white only.
 	FlickerCornerHz float64 `toml:"flicker_corner_hz"`
+	// GBWHz is the part's gain-bandwidth product (data sheet, typical);
+	// GBWTolerance its relative half-width (rectangular). A noise-gain or
+	// nulling fixture of noise gain K then responds with
+	// K/(1 + j·f·K/GBW) at frequency f, which the frequency-response
+	// analysis divides out; 0: the fixture is taken as flat.
+	GBWHz        float64 `toml:"gbw_hz"`
+	GBWTolerance float64 `toml:"gbw_tolerance"`
 }
 
 // Limits are the minimum acceptable ratios in dB, by test kind (cmrr,
@@ -308,12 +324,16 @@ const (
 	RoleSwitch      = "switch"
 	RoleChamber     = "chamber"
 	RoleThermometer = "thermometer"
+	RoleGenerator   = "generator"
+	RoleDigitizer   = "digitizer"
+	RoleACMeter     = "ac_meter"
 )
 
 // RoleNames lists every role in the order of the [bench.roles] table.
 func RoleNames() []string {
 	return []string{RoleMeter, RoleSupplyPos, RoleSupplyNeg, RoleSourceCM,
-		RoleSourceDiff, RoleSourceRef, RoleSwitch, RoleChamber, RoleThermometer}
+		RoleSourceDiff, RoleSourceRef, RoleSwitch, RoleChamber, RoleThermometer,
+		RoleGenerator, RoleDigitizer, RoleACMeter}
 }
 
 // Get returns the binding of the named role (zero when the role is unknown
@@ -338,6 +358,12 @@ func (r *Roles) Get(role string) RoleBinding {
 		return r.Chamber
 	case RoleThermometer:
 		return r.Thermometer
+	case RoleGenerator:
+		return r.Generator
+	case RoleDigitizer:
+		return r.Digitizer
+	case RoleACMeter:
+		return r.ACMeter
 	}
 	return RoleBinding{}
 }
@@ -442,6 +468,7 @@ func (p *Plan) applyDefaults(present func(key string) bool) {
 		setF(k+".settle_volts", &x.SettleVolts, DefaultSettleVolts)
 		setF(k+".settle_timeout_s", &x.SettleTimeoutSeconds, DefaultSettleTimeoutSeconds)
 	}
+	p.applyACDefaults(present)
 }
 
 // testKey is the key path of the i-th (0-based) [[test]] table in error

@@ -353,6 +353,12 @@ func AssessHazard(p *Plan) Hazard {
 			}
 		}
 	}
+	for i := range p.ACTests {
+		t := &p.ACTests[i]
+		for j, s := range ACPeakStates(p, t) {
+			look(s, fmt.Sprintf("%s (%s) sine %s peak", acTestKey(i), t.Kind, [2]string{"positive", "negative"}[j]))
+		}
+	}
 	h.Hazardous = h.MaxAcrossVolts > HazardousVolts || h.MaxToGroundVolts > HazardousVolts
 	return h
 }
@@ -491,6 +497,7 @@ func CheckSafetyWith(p *Plan, consent HazardConsent) error {
 			}
 		}
 	}
+	checkACSafety(p, limits, nominalBad, refuse)
 	h := AssessHazard(p)
 	if h.Hazardous {
 		switch {

@@ -53,7 +53,9 @@ func NeededRoles(p *Plan) []RoleNeed {
 			why[role] = reason
 		}
 	}
-	need(RoleMeter, "every test reads the fixture's output with the meter")
+	if len(p.Tests) > 0 {
+		need(RoleMeter, "every test reads the fixture's output with the meter")
+	}
 	need(RoleSupplyPos, "the part's V+ rail")
 	need(RoleSupplyNeg, "the part's V- rail")
 	for i, t := range p.Tests {
@@ -76,6 +78,7 @@ func NeededRoles(p *Plan) []RoleNeed {
 			break
 		}
 	}
+	acNeeds(p, need)
 	switch p.Temperature.Mode {
 	case TempChamber:
 		need(RoleChamber, "temperature.mode = \"chamber\" sets the chamber")
@@ -127,6 +130,7 @@ func Validate(p *Plan) error {
 	c.part()
 	c.decision()
 	c.tests()
+	c.acTests()
 	c.units()
 	c.temperature()
 	c.limits()
@@ -349,7 +353,9 @@ func (c *planChecker) decision() {
 func (c *planChecker) tests() {
 	p := c.p
 	if len(p.Tests) == 0 {
-		c.add("test", "add at least one [[test]] table with kind and levels", "the plan has no tests")
+		if len(p.ACTests) == 0 {
+			c.add("test", "add at least one [[test]] table with kind and levels (or an [[ac_test]])", "the plan has no tests")
+		}
 		return
 	}
 	allowed := TestKindsFor(p.Fixture.Kind)

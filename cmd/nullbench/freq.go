@@ -1,0 +1,133 @@
+package main
+
+import (
+	"fmt"
+	"io"
+
+	"nullbench/instrument"
+	"nullbench/procedure/analysis"
+	"nullbench/procedure/plan"
+)
+
+// freqInputs takes the digitizer's and AC voltmeter's frequency-response
+// figures from the profiles the plan names (or a run folder's copies),
+// without contacting them.
+func freqInputs(p *plan.Plan, resolve profileResolver) (analysis.FreqInputs, error) {
+	var in analysis.FreqInputs
+	if resolve == nil {
+		resolve = resolveFromPlan
+	}
+	figs := func(role string, rb plan.RoleBinding) (*analysis.ACFigures, error) {
+		if !rb.Bound() {
+			return nil, nil
+		}
+		spec, ok := p.Bench.Instruments[rb.Instrument]
+		if !ok {
+			return nil, nil // validation reports it
+		}
+		prof, err := resolve(rb.Instrument, spec.Profile)
+		if err != nil {
+			return nil, fmt.Errorf("plan %s, [bench.instrument.%s] profile: %w", p.Source, rb.Instrument, err)
+		}
+		return acFigures(prof.Figures.AC), nil
+	}
+	var err error
+	if in.Digitizer, err = figs(plan.RoleDigitizer, p.Bench.Roles.Digitizer); err != nil {
+		return in, err
+	}
+	if in.ACMeter, err = figs(plan.RoleACMeter, p.Bench.Roles.ACMeter); err != nil {
+		return in, err
+	}
+	return in, nil
+}
+
+// acFigures maps a profile's AC figures to the analysis's.
+func acFigures(a instrument.ACFigures) *analysis.ACFigures {
+	return &analysis.ACFigures{AmplitudeAccuracyPct: a.AmplitudeAccuracyPct, Hz: a.Hz, FlatnessDB: a.FlatnessDB,
+		GainMismatchDB: a.GainMismatchDB, PhaseMismatchDeg: a.PhaseMismatchDeg}
+}
+
+// analyseFreq analyses a record's frequency-response records, with its DC
+// results for the low-frequency check.
+func analyseFreq(rec *campaignRecord, resolve profileResolver) error {
+	if len(rec.ACReadings) == 0 {
+		return nil
+	}
+	in, err := freqInputs(rec.Plan, resolve)
+	if err != nil {
+		return withCode(exitUsage, err)
+	}
+	in.DC = rec.Results
+	fr, probs, err := analysis.AnalyzeFreq(rec.Plan, rec.ACReadings, in)
+	if err != nil {
+		return withCode(exitFailure, fmt.Errorf("analyse %s (frequency response): %w", rec.Plan.Source, err))
+	}
+	rec.Freq, rec.FreqProblems = fr, probs
+	return nil
+}
+
+// printFreqSummary writes the frequency-response results in words: per
+// unit and test, the ratio at each frequency with U (or its lower bound),
+// the phase, the decision, and the single-pole fit with its DC check.
+func printFreqSummary(w io.Writer, rec campaignRecord) {
+	if len(rec.Freq) == 0 && len(rec.FreqProblems) == 0 {
+		return
+	}
+	fmt.Fprintf(w, "\nFrequency response (%s):\n", rec.Plan.Source)
+	for _, r := range rec.Freq {
+		fmt.Fprintf(w, "  %s %s (%s, %.1f °C)\n", r.Unit, r.Quantity, r.Test, r.TemperatureC)
+		for _, pt := range r.Points {
+			v, lb := pt.ValueDB()
+			val := fmt.Sprintf("%7.2f ± %.2f dB", v, pt.Rejection.ExpandedUDB)
+			if lb {
+				val = fmt.Sprintf("≥ %6.2f dB (floor)", v)
+			}
+			ph := "      —"
+			if pt.HasPhase {
+				ph = fmt.Sprintf("%6.1f°", pt.PhaseDeg)
+			}
+			verdict := ""
+			if pt.Judged {
+				verdict = fmt.Sprintf("  %s (limit %g dB)", pt.Decision.State, pt.Decision.LimitDB)
+			}
+			fmt.Fprintf(w, "    %10.4g Hz  %s  %s%s\n", pt.FrequencyHz, val, ph, verdict)
+		}
+		switch {
+		case r.Pole == nil:
+			fmt.Fprintf(w, "    single pole: %s\n", r.PoleNote)
+		case r.Pole.Resolved:
+			fmt.Fprintf(w, "    single pole: low-frequency %.2f ± %.2f dB, corner %.4g ± %.2g Hz (k = 2)\n",
+				r.Pole.RatioDCDB, 2*r.Pole.URatioDCDB, r.Pole.PoleHz, 2*r.Pole.UPoleHz)
+		default:
+			fmt.Fprintf(w, "    single pole: low-frequency %.2f ± %.2f dB, corner above %.4g Hz (not resolved)\n",
+				r.Pole.RatioDCDB, 2*r.Pole.URatioDCDB, r.Pole.PoleLowerBoundHz)
+		}
+		if !r.DCChecked && r.DCNote != "" && r.Pole != nil {
+			fmt.Fprintf(w, "    DC check: %s\n", r.DCNote)
+		}
+		if r.DCChecked {
+			ok := "agrees with"
+			if !r.DCConsistent {
+				ok = "DISAGREES with"
+			}
+			fmt.Fprintf(w, "    %s the DC result %.2f ± %.2f dB (difference %.2f ± %.2f dB)\n", ok, r.DCRatioDB, r.DCExpandedDB, r.DCDiffDB, r.DCDiffUDB)
+		}
+	}
+	for _, p := range rec.FreqProblems {
+		fmt.Fprintf(w, "  problem: %s %s: %s\n", p.Unit, p.Test, p.Problem)
+	}
+}
+
+// freqFailed says whether any judged frequency-response result failed.
+func freqFailed(recs []campaignRecord) bool {
+	for _, rec := range recs {
+		for _, r := range rec.Freq {
+			for _, pt := range r.Points {
+				if pt.Judged && (pt.Decision.State == "fail" || pt.Decision.State == "conditional fail") {
+					return true
+				}
+			}
+		}
+	}
+	return false
+}

@@ -1,0 +1,89 @@
+package main
+
+import (
+	"path/filepath"
+	"strings"
+	"testing"
+)
+
+// cliFreqPlan is a frequency-only plan for the noise-gain unit N01 of
+// cliDUT (flat fixture: neither the DUT nor the plan gives a GBW).
+const cliFreqPlan = `
+[campaign]
+name = "N01 against frequency (cmd test)"
+
+[fixture]
+kind = "noise_gain"
+noise_gain = 101.0
+noise_gain_tolerance = 0.001
+common_mode = "input_drive"
+max_stimulus_volts = 12.0
+
+[part]
+number = "HX-4107"
+nominal_pos_volts = 15.0
+nominal_neg_volts = -15.0
+max_supply_span_volts = 36.0
+cm_headroom_pos_volts = 2.0
+cm_headroom_neg_volts = 2.0
+cm_margin_volts = 0.5
+current_limit_amps = 0.05
+
+[generator]
+max_peak_volts = 2.0
+max_offset_volts = 1.0
+
+[[ac_test]]
+kind = "cmrr"
+frequencies_hz = [50.0, 60.0, 1000.0]
+peak_volts = 1.0
+stimulus_range_volts = 2.0
+response_range_volts = 2.0
+limits_db = [90.0]
+through_channel = "190"
+
+[[ac_test]]
+kind = "psrr_pos"
+frequencies_hz = [100.0]
+peak_volts = 0.5
+generator_channel = "2"
+through_channel = "190"
+
+[[unit]]
+id = "N01"
+channel = "103"
+`
+
+// TestRunAndReportFrequencyPlan runs a plan with [[ac_test]] tables only on
+// the simulated bench and reports its run folder again: run prints the
+// frequency response, and report, from the journal's ac-reading records
+// alone, prints the same figures.
+func TestRunAndReportFrequencyPlan(t *testing.T) {
+	b := cliStartSim(t, "")
+	dir := t.TempDir()
+	section := strings.Replace(b.BenchSection(), "[bench.roles]\n", "[bench.roles]\n"+
+		"generator = { instrument = \"gen\", channel = \"1\" }\ndigitizer = { instrument = \"dig\" }\n", 1)
+	path := cliWriteFile(t, dir, "freq.toml", section+cliFreqPlan)
+	out := filepath.Join(dir, "run")
+	args := []string{"run", path, "--out", out, "--no-charts"}
+	r := cliExec(t, args...)
+	cliWantCode(t, r, exitOK, args...)
+	section1 := r.out[strings.Index(r.out, "Frequency response"):]
+	for _, s := range []string{"N01 CMRR (cmrr", "N01 PSRR+ (psrr_pos", "50 Hz", "pass (limit 90 dB)", "a pole fit needs 3"} {
+		if !strings.Contains(section1, s) {
+			t.Errorf("run's frequency response lacks %q:\n%s", s, section1)
+		}
+	}
+	rargs := []string{"report", out, "--out", filepath.Join(dir, "again"), "--no-charts"}
+	rr := cliExec(t, rargs...)
+	cliWantCode(t, rr, exitOK, rargs...)
+	i := strings.Index(rr.out, "Frequency response")
+	if i < 0 {
+		t.Fatalf("report printed no frequency response:\n%s", rr.out)
+	}
+	// The plan path differs (the run folder's copy); the figures may not.
+	strip := func(s string) string { return s[strings.Index(s, "\n"):] }
+	if strip(rr.out[i:]) != strip(section1) {
+		t.Errorf("report's frequency response differs from run's:\n%s\nwant:\n%s", rr.out[i:], section1)
+	}
+}
