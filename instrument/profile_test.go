@@ -21,11 +21,17 @@ var benchIdentities = map[string]string{
 	"generator": "NULLBENCH-SIM,GEN-3CH,SIM0006,1.0",
 	"digitizer": "NULLBENCH-SIM,DIG-2CH,SIM0007,1.0",
 	"acvm":      "NULLBENCH-SIM,ACV-2,SIM0008,1.0",
+	// dialects (instrument/sim/dialect_switch.go, dialect_supply.go)
+	"mux_noopenall": "NULLBENCH-SIM,MUX-40S,SIM0031,1.0",
+	"psu_chanlist":  "NULLBENCH-SIM,PSU-2CL,SIM0041,1.0",
+	"psu_single":    "NULLBENCH-SIM,PSU-1CH,SIM0042,1.0",
+	"psu_negout":    "NULLBENCH-SIM,PSU-2NO,SIM0044,1.0",
+	"psu_slow":      "NULLBENCH-SIM,PSU-2SL,SIM0045,1.0",
 }
 
 func TestBuiltinProfiles(t *testing.T) {
 	names := instrument.BuiltinProfileNames()
-	if strings.Join(names, ",") != "acvm,chamber,digitizer,dmm,generator,source3,supply2,switch" { // the built-in profile files
+	if strings.Join(names, ",") != "acvm,chamber,digitizer,dmm,generator,mux_noopenall,psu_chanlist,psu_negout,psu_single,psu_slow,source3,supply2,switch" { // the built-in profile files
 		t.Fatalf("built-in profiles = %v", names)
 	}
 	all, err := instrument.BuiltinProfiles()
@@ -89,7 +95,7 @@ func TestResolveProfile(t *testing.T) {
 		t.Fatalf("ResolveProfile(switch) = %v, %v", p, err)
 	}
 	_, err = instrument.ResolveProfile("dmm7")
-	if err == nil || !strings.Contains(err.Error(), "acvm, chamber, digitizer, dmm, generator, source3, supply2, switch") {
+	if err == nil || !strings.Contains(err.Error(), strings.Join(instrument.BuiltinProfileNames(), ", ")) {
 		t.Errorf("unknown name: %v (should list the built-in names)", err)
 	}
 	dir := t.TempDir()

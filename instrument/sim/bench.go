@@ -125,6 +125,10 @@ type Bench struct {
 	servers   []*tcpServer
 	pty       *ptyServer
 	endpoints []Endpoint
+
+	// Role lines of the supplies for BenchSection, when a dialect
+	// changes them ("" keeps the defaults).
+	supplyPosRole, supplyNegRole string
 }
 
 // New builds a bench from cfg. It does not serve anything until Start.
@@ -394,11 +398,18 @@ func (b *Bench) BenchSection() string {
 	for _, ep := range b.Endpoints() {
 		fmt.Fprintf(&sb, "\n[bench.instrument.%s]\naddress = %q\nprofile = %q\n", ep.Name, ep.Address, ep.Profile)
 	}
+	pos, neg := b.supplyPosRole, b.supplyNegRole
+	if pos == "" {
+		pos = `{ instrument = "psu", channel = "1" }`
+	}
+	if neg == "" {
+		neg = `{ instrument = "psu", channel = "2", negative = true }`
+	}
 	sb.WriteString(`
 [bench.roles]
 meter       = { instrument = "dmm" }
-supply_pos  = { instrument = "psu", channel = "1" }
-supply_neg  = { instrument = "psu", channel = "2", negative = true }
+supply_pos  = ` + pos + `
+supply_neg  = ` + neg + `
 source_cm   = { instrument = "src", channel = "1" }
 source_diff = { instrument = "src", channel = "2" }
 source_ref  = { instrument = "src", channel = "3" }
