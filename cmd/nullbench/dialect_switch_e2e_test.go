@@ -1,9 +1,12 @@
 package main
 
 import (
+	"context"
 	"fmt"
 	"math"
+	"strings"
 	"testing"
+	"time"
 
 	"nullbench/instrument/sim"
 )
@@ -72,5 +75,78 @@ func TestDialectSwitchSupplyEndToEnd(t *testing.T) {
 				t.Errorf("the bench section names profile %q for %s, want %q", got, inst, d)
 			}
 		})
+	}
+}
+
+// A true negative output (sim dialect psu_negout, profile psu_negout) left
+// on at −15 V by hand is ramped toward 0 V by "off" like a floating
+// negative rail: the sim's channel moves through intermediate values, never
+// away from 0 V, and ends at 0 V and off. Ramping the rails down in steps
+// is the plan's safety rule (SAFETY.md; common practice, no published
+// source).
+func TestOffRampsATrueNegativeOutputToZero(t *testing.T) {
+	d, err := sim.ParseDUT([]byte(cliDUT), "cli-dut.toml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	b, err := sim.New(sim.Config{DUT: d, TimeScale: cliTimeScale, Dialects: []string{"psu_negout"}})
+	if err != nil {
+		t.Fatal(err)
+	}
+	ctx, cancel := context.WithCancel(context.Background())
+	if err := b.Start(ctx, sim.ServeOptions{}); err != nil {
+		cancel()
+		t.Fatal(err)
+	}
+	t.Cleanup(func() { cancel(); b.Close() })
+	addr := map[string]string{}
+	for _, e := range b.Endpoints() {
+		addr[e.Name] = e.Address
+	}
+	sendSCPI(t, addr["psu"], "INST:NSEL 1", "VOLT 15", "OUTP ON", "INST:NSEL 2", "VOLT -15", "OUTP ON")
+	if s := b.Inspect(); !s.Supply[1].On || math.Abs(s.Supply[1].ProgrammedVolts-15) > 1e-9 {
+		t.Fatalf("VOLT -15 on the negative output: channel 2 %+v (the model keeps the magnitude)", s.Supply[1])
+	}
+	section := b.BenchSection()
+	if !strings.Contains(section, `profile = "psu_negout"`) {
+		t.Fatalf("bench section without the psu_negout profile:\n%s", section)
+	}
+	planFile := cliWriteFile(t, t.TempDir(), "plan.toml", section+strings.ReplaceAll(cliPlanBody, "%CMRR_LIMIT%", "90.0"))
+
+	// Watch channel 2 while "off" runs.
+	var seen []float64
+	stop := make(chan struct{})
+	done := make(chan struct{})
+	go func() {
+		defer close(done)
+		for {
+			v := b.Inspect().Supply[1].ProgrammedVolts
+			if len(seen) == 0 || seen[len(seen)-1] != v {
+				seen = append(seen, v)
+			}
+			select {
+			case <-stop:
+				return
+			case <-time.After(200 * time.Microsecond):
+			}
+		}
+	}()
+	r := cliExec(t, "off", planFile)
+	close(stop)
+	<-done
+	cliWantCode(t, r, exitOK, "off", planFile)
+	t.Logf("channel 2 magnitudes seen: %v\n%s", seen, r.out)
+	s := b.Inspect()
+	if s.Supply[1].On || s.Supply[1].ProgrammedVolts != 0 || s.Supply[1].OutputVolts != 0 {
+		t.Errorf("negative output left at %+v", s.Supply[1])
+	}
+	if len(seen) < 3 {
+		t.Errorf("channel 2 went %v: no intermediate step between -15 V and 0 V", seen)
+	}
+	for i := 1; i < len(seen); i++ {
+		if seen[i] > seen[i-1] {
+			t.Errorf("channel 2 moved away from 0 V: %v", seen)
+			break
+		}
 	}
 }
