@@ -35,7 +35,7 @@ func supplyDialects() []Dialect {
 				return b.redefine(NameSupply, IDNSupplyChanList, "psu_chanlist")
 			}},
 		{Name: "psu_single", Instrument: NameSupply,
-			Doc: "two single-output supplies, psu for V+ and psu2 for V- (wired floating, + terminal on ground)",
+			Doc:   "two single-output supplies, psu for V+ and psu2 for V- (wired floating, + terminal on ground)",
 			apply: applySingleSupplies},
 		{Name: "psu_negout", Instrument: NameSupply,
 			Doc: "supply whose channel 2 is a true negative output programmed with a negative value (VOLT -15)",
