@@ -66,7 +66,7 @@ func openBench(ctx context.Context, p *plan.Plan, sleep func(context.Context, ti
 			closeAll()
 			return nil, nil, fmt.Errorf("plan %s: role %s names instrument %q, which [bench.instrument] does not define", p.Source, rb.role, rb.binding.Instrument)
 		}
-		if err := bindRole(rig, rb.role, rb.binding, in, opts); err != nil {
+		if err := bindRole(rig, p, rb.role, rb.binding, in, opts); err != nil {
 			closeAll()
 			return nil, nil, fmt.Errorf("plan %s, [bench.roles] %s = instrument %q (profile %s): %w", p.Source, rb.role, rb.binding.Instrument, in.Profile.File, err)
 		}
@@ -98,7 +98,18 @@ func usedBy(roles []roleBinding, name string) []string {
 	return out
 }
 
-func bindRole(rig *procedure.Rig, role string, b plan.RoleBinding, in *instrument.Instrument, opts instrument.DriverOptions) error {
+// planChannels lists the switch channels of the plan's units.
+func planChannels(p *plan.Plan) []string {
+	var chs []string
+	for _, u := range p.Units {
+		if u.Channel != "" {
+			chs = append(chs, u.Channel)
+		}
+	}
+	return chs
+}
+
+func bindRole(rig *procedure.Rig, p *plan.Plan, role string, b plan.RoleBinding, in *instrument.Instrument, opts instrument.DriverOptions) error {
 	s, prof := in.Session, in.Profile
 	switch role {
 	case "meter":
@@ -140,6 +151,14 @@ func bindRole(rig *procedure.Rig, role string, b plan.RoleBinding, in *instrumen
 		d, err := instrument.NewSwitch(s, prof, opts)
 		if err != nil {
 			return err
+		}
+		if prof.Switch.OpenAll == "" {
+			// No open-all: the driver opens what it closed, and the
+			// plan's channels too, which an earlier run may have left
+			// closed.
+			if err := d.Adopt(planChannels(p)...); err != nil {
+				return err
+			}
 		}
 		rig.Switch = d
 	case "chamber":
