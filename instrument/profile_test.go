@@ -264,3 +264,51 @@ func FuzzParseProfile(f *testing.F) {
 		}
 	})
 }
+
+// The per-instrument keys (wait, opc_after_set, compound), a switch with
+// no open_all and a supply's negative_channels parse into the profile and
+// reach the session options; bad values name their key.
+func TestProfileInstrumentOptions(t *testing.T) {
+	p, err := instrument.ParseProfile([]byte(`name = "t"
+terminator = "\r"
+wait = "4ms"
+opc_after_set = true
+compound = true
+[switch]
+close = "ROUT:CLOS (@{channel})"
+open = "ROUT:OPEN (@{channel})"
+[supply]
+channels = ["1", "2"]
+negative_channels = ["2"]
+set_volts = "VOLT {value},(@{channel})"
+set_current_limit = "CURR {value},(@{channel})"
+set_output = "OUTP {value},(@{channel})"
+read_volts = "MEAS:VOLT? (@{channel})"
+read_amps = "MEAS:CURR? (@{channel})"
+program_gain_ppm = 0
+program_offset_volts = 0
+readback_gain_ppm = 0
+readback_offset_volts = 0
+`), "t.toml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	so := p.SessionOptions()
+	if so.Terminator != "\r" || so.Wait != 4*time.Millisecond || !so.OPCAfterSet || !p.Compound {
+		t.Errorf("session options %+v, compound %v", so, p.Compound)
+	}
+	if p.Switch.OpenAll != "" || !p.Supply.IsNegativeOutput("2") || p.Supply.IsNegativeOutput("1") {
+		t.Errorf("switch %+v, negative channels %v", p.Switch, p.Supply.NegativeChannels)
+	}
+	for _, tc := range []struct{ doc, want string }{
+		{"name = \"t\"\nwait = \"soon\"\n[thermometer]\nread_celsius = \"T?\"\n", `t.toml:2: key wait`},
+		{"name = \"t\"\nwait = \"1m\"\n[thermometer]\nread_celsius = \"T?\"\n", `key wait: 1m0s: give a pause from 0 to 10s`},
+		{"name = \"t\"\n[supply]\nchannels = [\"1\"]\nnegative_channels = [\"2\"]\nset_volts = \"VOLT {value}\"\nset_current_limit = \"CURR {value}\"\nset_output = \"OUTP {value}\"\nread_volts = \"V?\"\nread_amps = \"I?\"\nprogram_gain_ppm = 0\nprogram_offset_volts = 0\nreadback_gain_ppm = 0\nreadback_offset_volts = 0\n",
+			`key supply.negative_channels: channel "2" is not in channels [1]`},
+	} {
+		_, err := instrument.ParseProfile([]byte(tc.doc), "t.toml")
+		if err == nil || !strings.Contains(err.Error(), tc.want) {
+			t.Errorf("error %v, want %q", err, tc.want)
+		}
+	}
+}
