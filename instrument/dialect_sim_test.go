@@ -297,3 +297,48 @@ func TestSlowSupplyNeedsWaitOrOPC(t *testing.T) {
 		})
 	}
 }
+
+// What goes on the wire for each per-instrument option: *OPC? after a set
+// and before the error queue (opc_after_set), a pause after every message
+// (wait), and a channel's select joined to its command with ';' and the
+// command rooted with ':' (compound).
+func TestSessionOptionsOnTheWire(t *testing.T) {
+	ctx := context.Background()
+	f := newFakeInstrument(t)
+	s := dialFake(t, f, instrument.SessionOptions{CheckErrors: true, OPCAfterSet: true, Wait: 5 * time.Millisecond})
+	start := time.Now()
+	if err := s.Write(ctx, "VOLT 5"); err != nil {
+		t.Fatal(err)
+	}
+	took := time.Since(start)
+	if got, want := f.History(), []string{"VOLT 5", "*OPC?", "SYST:ERR?"}; !slices.Equal(got, want) {
+		t.Errorf("sent %q, want %q", got, want)
+	}
+	if took < 15*time.Millisecond {
+		t.Errorf("three messages took %v, less than three 5 ms pauses", took)
+	}
+
+	f2 := newFakeInstrument(t)
+	s2 := dialFake(t, f2, instrument.SessionOptions{})
+	p, err := instrument.BuiltinProfile("supply2")
+	if err != nil {
+		t.Fatal(err)
+	}
+	cp := *p
+	cp.Compound = true
+	d, err := instrument.NewSupply(s2, &cp, "2", true, noSettle)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := d.SetVolts(ctx, -5); err != nil {
+		t.Fatal(err)
+	}
+	select {
+	case got := <-f2.received:
+		if want := "INST:NSEL 2;:VOLT 5"; got != want {
+			t.Errorf("sent %q, want %q", got, want)
+		}
+	case <-time.After(5 * time.Second):
+		t.Fatal("nothing arrived")
+	}
+}
