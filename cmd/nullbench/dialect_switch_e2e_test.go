@@ -78,6 +78,10 @@ func TestDialectSwitchSupplyEndToEnd(t *testing.T) {
 			if got := run.bench.Inspect().Closed; len(got) != 0 {
 				t.Errorf("relays closed after the run: %v", got)
 			}
+			// Break before make: never two units on the buses at once.
+			if n := run.bench.Inspect().MostClosed; n != 1 {
+				t.Errorf("up to %d relays were closed at once, want 1", n)
+			}
 			if len(run.results.Ratios) != len(base.results.Ratios) {
 				t.Fatalf("%d results, the default bench gave %d; problems: %v", len(run.results.Ratios), len(base.results.Ratios), run.results.Problems)
 			}

@@ -600,8 +600,11 @@ type Snapshot struct {
 	Supply       []ChannelSnapshot
 	Source       []ChannelSnapshot
 	Closed       []int
-	Socket       string // id of the unit in the hand socket, "" when empty
-	Units        []UnitSnapshot
+	// MostClosed is the most relays that were closed at once since the
+	// bench was built: 1 when every change was break before make.
+	MostClosed int
+	Socket     string // id of the unit in the hand socket, "" when empty
+	Units      []UnitSnapshot
 }
 
 // ChannelSnapshot is one supply or source channel.
@@ -646,6 +649,7 @@ func (b *Bench) Inspect() Snapshot {
 		s.Closed = append(s.Closed, ch)
 	}
 	sort.Ints(s.Closed)
+	s.MostClosed = m.mostClosed
 	if m.socket != nil {
 		s.Socket = m.socket.id
 	}

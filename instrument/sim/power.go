@@ -309,6 +309,7 @@ func (s *switchDevice) setState(chs []int, closed bool) {
 			delete(m.closed, ch)
 		}
 	}
+	m.mostClosed = max(m.mostClosed, len(m.closed))
 	m.checkDamage(m.connected())
 }
 
