@@ -5,6 +5,8 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"sort"
+	"strings"
 	"sync"
 	"time"
 )
@@ -325,10 +327,11 @@ func (c *channelBase) set(ctx context.Context, tpl, value, unit string, settle t
 		return c.wrap(err)
 	}
 	err = c.s.Do(ctx, func(tx *Tx) error {
-		if err := c.selectChannel(ctx, tx); err != nil {
+		msg, err := c.selectChannel(ctx, tx, cmd)
+		if err != nil {
 			return err
 		}
-		return tx.Write(ctx, cmd)
+		return tx.Write(ctx, msg)
 	})
 	if err != nil {
 		return c.wrap(err)
@@ -343,11 +346,11 @@ func (c *channelBase) read(ctx context.Context, tpl string) (float64, error) {
 	}
 	var v float64
 	err = c.s.Do(ctx, func(tx *Tx) error {
-		if err := c.selectChannel(ctx, tx); err != nil {
+		msg, err := c.selectChannel(ctx, tx, cmd)
+		if err != nil {
 			return err
 		}
-		var err error
-		v, err = tx.QueryFloat(ctx, cmd)
+		v, err = tx.QueryFloat(ctx, msg)
 		return err
 	})
 	if err != nil {
@@ -362,15 +365,28 @@ func (c *channelBase) read(ctx context.Context, tpl string) (float64, error) {
 	return v, nil
 }
 
-func (c *channelBase) selectChannel(ctx context.Context, tx *Tx) error {
+// selectChannel selects the channel for cmd and returns the message to
+// send: cmd itself after a select message of its own, or, with the
+// profile's compound, the select and cmd joined with ';' in one message
+// (IEEE 488.2 §7.1: message units of one program message are separated
+// by ';'). cmd then gets a leading ':' so that its header starts again
+// at the root instead of below the select's subsystem (SCPI-99 vol. 1
+// ch. 6, header paths; clause from memory).
+func (c *channelBase) selectChannel(ctx context.Context, tx *Tx, cmd string) (string, error) {
 	if c.sel == "" {
-		return nil
+		return cmd, nil
 	}
-	cmd, err := c.expand(c.sel, "", "")
+	sel, err := c.expand(c.sel, "", "")
 	if err != nil {
-		return err
+		return "", err
 	}
-	return tx.Write(ctx, cmd)
+	if c.p.Compound {
+		if !strings.HasPrefix(cmd, ":") && !strings.HasPrefix(cmd, "*") {
+			cmd = ":" + cmd
+		}
+		return sel + ";" + cmd, nil
+	}
+	return cmd, tx.Write(ctx, sel)
 }
 
 func onOff(on bool) string {
@@ -389,10 +405,16 @@ func onOff(on bool) string {
 // it for a positive voltage is an error. ReadAmps returns the current as
 // the supply reports it (positive when the output sources current),
 // whichever way the channel is wired.
+//
+// A channel the profile lists in negative_channels is a true negative
+// output: bound as the negative rail it is programmed with the negative
+// voltage itself (SetVolts(-15) sends -15) and its read-back is taken as
+// it comes.
 type SupplyDriver struct {
 	channelBase
 	cmds     *SupplyCommands
 	negative bool
+	trueNeg  bool // a true negative output (negative_channels)
 }
 
 // NewSupply binds the Supply role to one channel of a supply.
@@ -410,11 +432,18 @@ func NewSupply(s *Session, p *Profile, channel string, negative bool, opts Drive
 		c = p.Supply
 		tpls = []string{c.SetVolts, c.SetCurrentLimit, c.SetOutput, c.ReadVolts, c.ReadAmps}
 	}
+	trueNeg := c.IsNegativeOutput(channel)
+	if trueNeg {
+		role = "supply (negative output)"
+	}
 	b, err := newChannelBase(s, p, role, channel, selOf(c), chansOf(c), tpls, opts)
 	if err != nil {
 		return nil, err
 	}
-	return &SupplyDriver{channelBase: b, cmds: c, negative: negative}, nil
+	if trueNeg && !negative {
+		return nil, b.errorf("profile %s lists channel %s in negative_channels: it makes only 0 V or less; bind it as supply_neg with negative = true", p.Name, channel)
+	}
+	return &SupplyDriver{channelBase: b, cmds: c, negative: negative, trueNeg: trueNeg}, nil
 }
 
 func selOf(c *SupplyCommands) string {
@@ -441,6 +470,10 @@ func sessionName(s *Session) string {
 // Negative reports whether the channel is wired as a negative rail.
 func (d *SupplyDriver) Negative() bool { return d.negative }
 
+// NegativeOutput reports whether the channel is a true negative output
+// (programmed with the negative voltage itself).
+func (d *SupplyDriver) NegativeOutput() bool { return d.trueNeg }
+
 // Accuracy is the supply's programming and read-back accuracy.
 func (d *SupplyDriver) Accuracy() SupplyAccuracy { return d.cmds.Accuracy }
 
@@ -453,6 +486,8 @@ func (d *SupplyDriver) SetVolts(ctx context.Context, volts float64) error {
 	switch {
 	case d.negative && volts > 0:
 		return d.errorf("refusing %+g V: this channel is wired as the negative rail (+ terminal on ground) and can only make 0 V or below", volts)
+	case d.trueNeg:
+		// programmed as it is: the output makes the negative voltage
 	case d.negative:
 		mag = -volts
 	case volts < 0:
@@ -477,7 +512,7 @@ func (d *SupplyDriver) SetOutput(ctx context.Context, on bool) error {
 // ReadVolts reads the output voltage back, with the rail's sign.
 func (d *SupplyDriver) ReadVolts(ctx context.Context) (float64, error) {
 	v, err := d.read(ctx, d.cmds.ReadVolts)
-	if d.negative {
+	if d.negative && !d.trueNeg {
 		v = -v
 	}
 	return v, err
@@ -542,9 +577,19 @@ func (d *SourceDriver) ReadVolts(ctx context.Context) (float64, error) {
 // When the profile has query_closed, Close and Open read the relay state
 // back and fail if it is not what was asked: which unit the meter sees
 // depends on it.
+//
+// The driver keeps the set of relays it closed (and those named to Adopt).
+// OpenAll sends the profile's open_all when it has one; without it the
+// driver opens each relay of that set, one by one, each checked with
+// query_closed where the profile gives one. Either way a relay is only
+// closed by Close, and the procedure opens all before it closes the next
+// (break before make).
 type SwitchDriver struct {
 	driverBase
 	cmds *SwitchCommands
+
+	mu     sync.Mutex
+	closed map[string]bool // relays closed by this driver, or adopted, not yet seen open
 }
 
 // ErrRelayState is wrapped when a relay does not report the state it was
@@ -560,7 +605,37 @@ func NewSwitch(s *Session, p *Profile, opts DriverOptions) (*SwitchDriver, error
 	if p.Switch == nil {
 		return nil, fmt.Errorf("%s: profile %s (%s) has no [switch] table; it serves %v", b.label, p.Name, p.File, p.Roles())
 	}
-	return &SwitchDriver{driverBase: b, cmds: p.Switch}, nil
+	return &SwitchDriver{driverBase: b, cmds: p.Switch, closed: map[string]bool{}}, nil
+}
+
+// Adopt names relays that may be closed although this driver did not
+// close them (the plan's channels, left closed by an earlier run): the
+// next OpenAll of a switch without open_all opens them too.
+func (d *SwitchDriver) Adopt(channels ...string) error {
+	for _, ch := range channels {
+		if !validChannel(ch) {
+			return d.errorf("channel %q: use letters, digits and ! only (one channel per call)", ch)
+		}
+	}
+	d.mu.Lock()
+	defer d.mu.Unlock()
+	for _, ch := range channels {
+		d.closed[ch] = true
+	}
+	return nil
+}
+
+// Tracked lists, sorted, the relays the driver would open at OpenAll
+// without open_all: those it closed or adopted and has not opened since.
+func (d *SwitchDriver) Tracked() []string {
+	d.mu.Lock()
+	defer d.mu.Unlock()
+	out := make([]string, 0, len(d.closed))
+	for ch := range d.closed {
+		out = append(out, ch)
+	}
+	sort.Strings(out)
+	return out
 }
 
 // Close closes one relay channel (for example "101").
@@ -573,8 +648,13 @@ func (d *SwitchDriver) Open(ctx context.Context, channel string) error {
 	return d.move(ctx, d.cmds.Open, channel, false)
 }
 
-// OpenAll opens every relay.
+// OpenAll opens every relay: with the profile's open_all, in one command;
+// without it, each relay the driver closed or adopted, in channel order,
+// every one tried even when an earlier one fails (the errors are joined).
 func (d *SwitchDriver) OpenAll(ctx context.Context) error {
+	if d.cmds.OpenAll == "" {
+		return d.openTracked(ctx)
+	}
 	cmd, err := expandTemplate(d.cmds.OpenAll, nil)
 	if err != nil {
 		return d.wrap(err)
@@ -582,23 +662,63 @@ func (d *SwitchDriver) OpenAll(ctx context.Context) error {
 	if err := d.s.Write(ctx, cmd); err != nil {
 		return d.wrap(err)
 	}
+	d.mu.Lock()
+	clear(d.closed)
+	d.mu.Unlock()
+	return d.wrap(d.opts.settle(ctx, d.cmds.Settle))
+}
+
+func (d *SwitchDriver) openTracked(ctx context.Context) error {
+	var errs []error
+	moved := false
+	for _, ch := range d.Tracked() {
+		err := d.send(ctx, d.cmds.Open, ch, false)
+		if err != nil {
+			errs = append(errs, err)
+			continue
+		}
+		moved = true
+	}
+	if len(errs) > 0 {
+		return d.wrap(fmt.Errorf("no open_all in profile %s; opening the relays closed one by one: %w", d.p.Name, errors.Join(errs...)))
+	}
+	if !moved {
+		return nil
+	}
 	return d.wrap(d.opts.settle(ctx, d.cmds.Settle))
 }
 
 func (d *SwitchDriver) move(ctx context.Context, tpl, channel string, closed bool) error {
+	if err := d.send(ctx, tpl, channel, closed); err != nil {
+		return d.wrap(err)
+	}
+	return d.wrap(d.opts.settle(ctx, d.cmds.Settle))
+}
+
+// send moves one relay, checks it with query_closed if the profile has
+// it, and keeps the set of closed relays. A relay asked to close is
+// tracked before the command goes out, so that a failed or unanswered
+// close is still opened by OpenAll; a relay leaves the set only once
+// opened without error.
+func (d *SwitchDriver) send(ctx context.Context, tpl, channel string, closed bool) error {
 	if !validChannel(channel) {
-		return d.errorf("channel %q: use letters, digits and ! only (one channel per call)", channel)
+		return fmt.Errorf("channel %q: use letters, digits and ! only (one channel per call)", channel)
 	}
 	vals := map[string]string{PhChannel: channel}
 	cmd, err := expandTemplate(tpl, vals)
 	if err != nil {
-		return d.wrap(err)
+		return err
 	}
 	var check string
 	if d.cmds.QueryClosed != "" {
 		if check, err = expandTemplate(d.cmds.QueryClosed, vals); err != nil {
-			return d.wrap(err)
+			return err
 		}
+	}
+	if closed {
+		d.mu.Lock()
+		d.closed[channel] = true
+		d.mu.Unlock()
 	}
 	err = d.s.Do(ctx, func(tx *Tx) error {
 		if err := tx.Write(ctx, cmd); err != nil {
@@ -616,10 +736,12 @@ func (d *SwitchDriver) move(ctx context.Context, tpl, channel string, closed boo
 		}
 		return nil
 	})
-	if err != nil {
-		return d.wrap(err)
+	if err == nil && !closed {
+		d.mu.Lock()
+		delete(d.closed, channel)
+		d.mu.Unlock()
 	}
-	return d.wrap(d.opts.settle(ctx, d.cmds.Settle))
+	return err
 }
 
 // ---- chamber and thermometer ----

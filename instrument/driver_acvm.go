@@ -69,10 +69,11 @@ func (a *ACVoltmeterDriver) ConfigureACVolts(ctx context.Context, rangeVolts, fr
 		}
 	}
 	err = a.s.Do(ctx, func(tx *Tx) error {
-		if err := a.selectChannel(ctx, tx); err != nil {
+		msg, err := a.selectChannel(ctx, tx, conf)
+		if err != nil {
 			return err
 		}
-		if err := tx.Write(ctx, conf); err != nil {
+		if err := tx.Write(ctx, msg); err != nil {
 			return err
 		}
 		if band != "" {

@@ -108,10 +108,14 @@ func (g *GeneratorDriver) SetSine(ctx context.Context, frequencyHz, peakVolts, o
 		}
 	}
 	err := g.s.Do(ctx, func(tx *Tx) error {
-		if err := g.selectChannel(ctx, tx); err != nil {
+		first, err := g.selectChannel(ctx, tx, cmds[0])
+		if err != nil {
 			return err
 		}
-		for _, cmd := range cmds {
+		for i, cmd := range cmds {
+			if i == 0 {
+				cmd = first
+			}
 			if err := tx.Write(ctx, cmd); err != nil {
 				return err
 			}

@@ -33,6 +33,14 @@ import (
 //	timeout       per-exchange time-out, Go duration ("5s"; default 5s)
 //	settle        wait after every set command ("50ms"; default 0)
 //	check_errors  read SYST:ERR? after every set command (default true)
+//	wait          wall-clock pause after every message sent, for an
+//	              instrument that loses a command arriving too soon after
+//	              the last ("5ms"; default 0)
+//	opc_after_set send *OPC? after every set command and wait for its 1
+//	              (IEEE 488.2 §12.5.3), before the error queue is read
+//	compound      send a channel's select and its command as one
+//	              message joined with ';' (IEEE 488.2 §7.1: a program
+//	              message holds several message units)
 //
 // Role tables ([meter], [supply], [source], [switch], [chamber],
 // [thermometer]) hold command templates with the placeholders {channel}
@@ -48,6 +56,12 @@ type Profile struct {
 	Timeout     time.Duration
 	Settle      time.Duration
 	CheckErrors bool
+	// Wait is a wall-clock pause after every message sent (wait);
+	// OPCAfterSet sends *OPC? after every set command (opc_after_set);
+	// Compound joins a channel's select and its command in one message.
+	Wait        time.Duration
+	OPCAfterSet bool
+	Compound    bool
 
 	Meter       *MeterCommands
 	Supply      *SupplyCommands
@@ -132,11 +146,18 @@ func (a SupplyAccuracy) ReadbackHalfWidthVolts(volts float64) float64 {
 //	set_output        = "OUTP {value}"        {value} is ON or OFF
 //	read_volts        = "MEAS:VOLT?"
 //	read_amps         = "MEAS:CURR?"
+//	negative_channels = ["2"]                 channels that are true negative outputs (optional)
 //	program_gain_ppm, program_offset_volts, readback_gain_ppm, readback_offset_volts (required)
 //
 // Without select, every channel command must contain {channel} (suffix
 // form such as "SOUR{channel}:VOLT {value}"), unless the supply has one
 // channel.
+//
+// A channel in negative_channels is a true negative output: it is
+// programmed with the (negative) rail voltage itself and reads back a
+// negative voltage. It can serve only supply_neg (bound with negative =
+// true); any other channel bound as the negative rail is a floating
+// output with its + terminal on ground, programmed with the magnitude.
 type SupplyCommands struct {
 	Channels                                                          []string
 	Select, SetVolts, SetCurrentLimit, SetOutput, ReadVolts, ReadAmps string
@@ -146,6 +167,14 @@ type SupplyCommands struct {
 	// sheet); 0 when the profile does not state it. check refuses a plan
 	// whose current limit exceeds it.
 	MaxAmps float64
+	// NegativeChannels are the channels that make a negative voltage
+	// themselves (negative_channels).
+	NegativeChannels []string
+}
+
+// IsNegativeOutput reports whether channel is a true negative output.
+func (c *SupplyCommands) IsNegativeOutput(channel string) bool {
+	return c != nil && contains(c.NegativeChannels, channel)
 }
 
 // SourceCommands is the [source] table: a multi-channel DC voltage source.
@@ -161,7 +190,7 @@ type SourceCommands struct {
 //
 //	close        = "ROUT:CLOS (@{channel})"
 //	open         = "ROUT:OPEN (@{channel})"
-//	open_all     = "ROUT:OPEN:ALL"
+//	open_all     = "ROUT:OPEN:ALL"            optional: without it the driver opens each relay it closed
 //	query_closed = "ROUT:CLOS? (@{channel})"  optional: replies 1|0; when set, Close and Open check the relay
 type SwitchCommands struct {
 	Close, Open, OpenAll, QueryClosed string
@@ -187,6 +216,10 @@ type ThermometerCommands struct {
 	ReadCelsius     string
 	AccuracyCelsius float64
 }
+
+// maxWait bounds a profile's wait: a longer pause after every message is
+// surely a mistake for a settle.
+const maxWait = 10 * time.Second
 
 // ProfileError is a fault in a profile, located by file, line and key.
 type ProfileError struct {
@@ -220,6 +253,9 @@ type profileDoc struct {
 	Timeout     string          `toml:"timeout"`
 	Settle      string          `toml:"settle"`
 	CheckErrors *bool           `toml:"check_errors"`
+	Wait        string          `toml:"wait"`
+	OPCAfterSet bool            `toml:"opc_after_set"`
+	Compound    bool            `toml:"compound"`
 	Meter       *meterDoc       `toml:"meter"`
 	Supply      *supplyDoc      `toml:"supply"`
 	Source      *sourceDoc      `toml:"source"`
@@ -271,6 +307,7 @@ type supplyDoc struct {
 	ReadAmps        string   `toml:"read_amps"`
 	Settle          string   `toml:"settle"`
 	MaxAmps         float64  `toml:"max_amps"`
+	NegChannels     []string `toml:"negative_channels"`
 	accuracyDoc
 }
 
@@ -349,6 +386,10 @@ func ParseProfile(data []byte, file string) (*Profile, error) {
 	if doc.Settle != "" {
 		p.Settle = pr.duration("settle", doc.Settle)
 	}
+	if doc.Wait != "" {
+		p.Wait = pr.duration("wait", doc.Wait)
+	}
+	p.OPCAfterSet, p.Compound = doc.OPCAfterSet, doc.Compound
 	roleSettle := func(key, s string) time.Duration {
 		if s == "" {
 			return p.Settle
@@ -371,7 +412,7 @@ func ParseProfile(data []byte, file string) (*Profile, error) {
 			SetOutput: d.SetOutput, ReadVolts: d.ReadVolts, ReadAmps: d.ReadAmps,
 			Settle:   roleSettle("supply.settle", d.Settle),
 			Accuracy: pr.accuracy("supply", d.accuracyDoc),
-			MaxAmps:  d.MaxAmps,
+			MaxAmps:  d.MaxAmps, NegativeChannels: d.NegChannels,
 		}
 		nonNegative(pr, "supply.max_amps", d.MaxAmps)
 	}
@@ -585,6 +626,9 @@ func (p *Profile) validate(pr *problems) {
 	if p.Settle < 0 {
 		pr.add("settle", "must not be negative")
 	}
+	if p.Wait < 0 || p.Wait > maxWait {
+		pr.add("wait", "%v: give a pause from 0 to %v", p.Wait, maxWait)
+	}
 	if p.IDNPattern != "" {
 		if _, err := regexp.Compile(p.IDNPattern); err != nil {
 			pr.add("idn_pattern", "not a Go regular expression: %v", err)
@@ -618,6 +662,12 @@ func (p *Profile) validate(pr *problems) {
 			{key: "read_amps", value: &s.ReadAmps, allowed: ch, channel: true},
 		})
 		checkChannels(pr, "supply.channels", s.Channels)
+		checkChannels(pr, "supply.negative_channels", s.NegativeChannels)
+		for _, c := range s.NegativeChannels {
+			if len(s.Channels) > 0 && !contains(s.Channels, c) {
+				pr.add("supply.negative_channels", "channel %q is not in channels %v", c, s.Channels)
+			}
+		}
 		checkAccuracy(pr, "supply", s.Accuracy)
 		nonNegativeDuration(pr, "supply.settle", s.Settle)
 	}
@@ -636,7 +686,7 @@ func (p *Profile) validate(pr *problems) {
 		checkTemplates(pr, "switch", "", nil, []tplSpec{
 			{key: "close", value: &s.Close, allowed: ch, must: ch},
 			{key: "open", value: &s.Open, allowed: ch, must: ch},
-			{key: "open_all", value: &s.OpenAll},
+			{key: "open_all", value: &s.OpenAll, optional: true},
 			{key: "query_closed", value: &s.QueryClosed, allowed: ch, must: ch, optional: true},
 		})
 		nonNegativeDuration(pr, "switch.settle", s.Settle)
@@ -751,7 +801,8 @@ func (p *Profile) Matches(idn string) bool {
 
 // SessionOptions returns the session settings the profile asks for.
 func (p *Profile) SessionOptions() SessionOptions {
-	return SessionOptions{Terminator: p.Terminator, Timeout: p.Timeout, CheckErrors: p.CheckErrors}
+	return SessionOptions{Terminator: p.Terminator, Timeout: p.Timeout, CheckErrors: p.CheckErrors,
+		Wait: p.Wait, OPCAfterSet: p.OPCAfterSet}
 }
 
 // DialOptions returns the transport settings the profile asks for.

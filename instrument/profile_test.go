@@ -21,11 +21,17 @@ var benchIdentities = map[string]string{
 	"generator": "NULLBENCH-SIM,GEN-3CH,SIM0006,1.0",
 	"digitizer": "NULLBENCH-SIM,DIG-2CH,SIM0007,1.0",
 	"acvm":      "NULLBENCH-SIM,ACV-2,SIM0008,1.0",
+	// dialects (instrument/sim/dialect_switch.go, dialect_supply.go)
+	"mux_noopenall": "NULLBENCH-SIM,MUX-40S,SIM0031,1.0",
+	"psu_chanlist":  "NULLBENCH-SIM,PSU-2CL,SIM0041,1.0",
+	"psu_single":    "NULLBENCH-SIM,PSU-1CH,SIM0042,1.0",
+	"psu_negout":    "NULLBENCH-SIM,PSU-2NO,SIM0044,1.0",
+	"psu_slow":      "NULLBENCH-SIM,PSU-2SL,SIM0045,1.0",
 }
 
 func TestBuiltinProfiles(t *testing.T) {
 	names := instrument.BuiltinProfileNames()
-	if strings.Join(names, ",") != "acvm,chamber,digitizer,dmm,generator,source3,supply2,switch" { // the built-in profile files
+	if strings.Join(names, ",") != "acvm,chamber,digitizer,dmm,generator,mux_noopenall,psu_chanlist,psu_negout,psu_single,psu_slow,source3,supply2,switch" { // the built-in profile files
 		t.Fatalf("built-in profiles = %v", names)
 	}
 	all, err := instrument.BuiltinProfiles()
@@ -89,7 +95,7 @@ func TestResolveProfile(t *testing.T) {
 		t.Fatalf("ResolveProfile(switch) = %v, %v", p, err)
 	}
 	_, err = instrument.ResolveProfile("dmm7")
-	if err == nil || !strings.Contains(err.Error(), "acvm, chamber, digitizer, dmm, generator, source3, supply2, switch") {
+	if err == nil || !strings.Contains(err.Error(), strings.Join(instrument.BuiltinProfileNames(), ", ")) {
 		t.Errorf("unknown name: %v (should list the built-in names)", err)
 	}
 	dir := t.TempDir()
@@ -257,4 +263,52 @@ func FuzzParseProfile(f *testing.F) {
 			t.Fatalf("parsed profile fails Validate: %v", err)
 		}
 	})
+}
+
+// The per-instrument keys (wait, opc_after_set, compound), a switch with
+// no open_all and a supply's negative_channels parse into the profile and
+// reach the session options; bad values name their key.
+func TestProfileInstrumentOptions(t *testing.T) {
+	p, err := instrument.ParseProfile([]byte(`name = "t"
+terminator = "\r"
+wait = "4ms"
+opc_after_set = true
+compound = true
+[switch]
+close = "ROUT:CLOS (@{channel})"
+open = "ROUT:OPEN (@{channel})"
+[supply]
+channels = ["1", "2"]
+negative_channels = ["2"]
+set_volts = "VOLT {value},(@{channel})"
+set_current_limit = "CURR {value},(@{channel})"
+set_output = "OUTP {value},(@{channel})"
+read_volts = "MEAS:VOLT? (@{channel})"
+read_amps = "MEAS:CURR? (@{channel})"
+program_gain_ppm = 0
+program_offset_volts = 0
+readback_gain_ppm = 0
+readback_offset_volts = 0
+`), "t.toml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	so := p.SessionOptions()
+	if so.Terminator != "\r" || so.Wait != 4*time.Millisecond || !so.OPCAfterSet || !p.Compound {
+		t.Errorf("session options %+v, compound %v", so, p.Compound)
+	}
+	if p.Switch.OpenAll != "" || !p.Supply.IsNegativeOutput("2") || p.Supply.IsNegativeOutput("1") {
+		t.Errorf("switch %+v, negative channels %v", p.Switch, p.Supply.NegativeChannels)
+	}
+	for _, tc := range []struct{ doc, want string }{
+		{"name = \"t\"\nwait = \"soon\"\n[thermometer]\nread_celsius = \"T?\"\n", `t.toml:2: key wait`},
+		{"name = \"t\"\nwait = \"1m\"\n[thermometer]\nread_celsius = \"T?\"\n", `key wait: 1m0s: give a pause from 0 to 10s`},
+		{"name = \"t\"\n[supply]\nchannels = [\"1\"]\nnegative_channels = [\"2\"]\nset_volts = \"VOLT {value}\"\nset_current_limit = \"CURR {value}\"\nset_output = \"OUTP {value}\"\nread_volts = \"V?\"\nread_amps = \"I?\"\nprogram_gain_ppm = 0\nprogram_offset_volts = 0\nreadback_gain_ppm = 0\nreadback_offset_volts = 0\n",
+			`key supply.negative_channels: channel "2" is not in channels [1]`},
+	} {
+		_, err := instrument.ParseProfile([]byte(tc.doc), "t.toml")
+		if err == nil || !strings.Contains(err.Error(), tc.want) {
+			t.Errorf("error %v, want %q", err, tc.want)
+		}
+	}
 }

@@ -26,6 +26,14 @@ type SessionOptions struct {
 	// MaxQueue caps how many entries one drain of the error queue reads
 	// (default 64); an instrument that never answers 0 is then an error.
 	MaxQueue int
+	// Wait is a wall-clock pause after every message sent, for an
+	// instrument that loses a message arriving too soon after the last.
+	Wait time.Duration
+	// OPCAfterSet makes every Write send *OPC? and wait for its "1"
+	// (IEEE 488.2 §12.5.3: the reply comes once every earlier command
+	// has completed) before the error queue is read, for an instrument
+	// that is not ready for the next message until a set is done.
+	OPCAfterSet bool
 	// MaxBlockBytes caps the length an arbitrary block may announce
 	// (default 64 MiB), so a garbled header cannot exhaust memory.
 	MaxBlockBytes int
@@ -299,6 +307,16 @@ func (t *Tx) Write(ctx context.Context, cmd string) error {
 	if _, err := t.s.exchange(ctx, cmd, false); err != nil {
 		return t.s.fail(ctx, cmd, err)
 	}
+	if t.s.opts.OPCAfterSet {
+		reply, err := t.s.exchange(ctx, "*OPC?", true)
+		if err != nil {
+			return t.s.fail(ctx, cmd+" then *OPC?", err)
+		}
+		if !isOne(string(reply)) {
+			t.s.resync = true
+			return &OpError{Instrument: t.s.name, Command: cmd + " then *OPC?", Err: fmt.Errorf("%w: reply %q, want 1", ErrBadResponse, clip(reply))}
+		}
+	}
 	if !t.s.opts.CheckErrors {
 		return nil
 	}
@@ -514,7 +532,28 @@ func (s *Session) exchangeCtx(ctx context.Context) (context.Context, context.Can
 func (s *Session) send(ctx context.Context, cmd string) error {
 	msg := make([]byte, 0, len(cmd)+len(s.term))
 	msg = append(append(msg, cmd...), s.term...)
-	return s.conn.Write(ctx, msg)
+	if err := s.conn.Write(ctx, msg); err != nil {
+		return err
+	}
+	return s.pause(ctx)
+}
+
+// pause waits SessionOptions.Wait of wall-clock time after a message.
+func (s *Session) pause(ctx context.Context) error {
+	if s.opts.Wait <= 0 {
+		return nil
+	}
+	t := time.NewTimer(s.opts.Wait)
+	defer t.Stop()
+	select {
+	case <-t.C:
+		return nil
+	case <-ctx.Done():
+		if errors.Is(ctx.Err(), context.DeadlineExceeded) {
+			return fmt.Errorf("%w: pausing after the message", ErrTimeout)
+		}
+		return ctx.Err()
+	}
 }
 
 // exchange sends cmd and, if reply is set, reads one response message,

@@ -100,6 +100,17 @@ func usedBy(roles []roleBinding, name string) []string {
 	return out
 }
 
+// planChannels lists the switch channels of the plan's units.
+func planChannels(p *plan.Plan) []string {
+	var chs []string
+	for _, u := range p.Units {
+		if u.Channel != "" {
+			chs = append(chs, u.Channel)
+		}
+	}
+	return chs
+}
+
 func bindRole(p *plan.Plan, rig *procedure.Rig, role string, b plan.RoleBinding, in *instrument.Instrument, opts instrument.DriverOptions) error {
 	s, prof := in.Session, in.Profile
 	switch role {
@@ -142,6 +153,14 @@ func bindRole(p *plan.Plan, rig *procedure.Rig, role string, b plan.RoleBinding,
 		d, err := instrument.NewSwitch(s, prof, opts)
 		if err != nil {
 			return err
+		}
+		if prof.Switch.OpenAll == "" {
+			// No open-all: the driver opens what it closed, and the
+			// plan's channels too, which an earlier run may have left
+			// closed.
+			if err := d.Adopt(planChannels(p)...); err != nil {
+				return err
+			}
 		}
 		rig.Switch = d
 	case "chamber":

@@ -110,6 +110,7 @@ func benchProfile(_ string, profile string) (plan.BenchProfile, error) {
 	if prof.Supply != nil {
 		bp.Roles["supply"] = true
 		bp.SupplyChannels, bp.SupplyMaxAmps = prof.Supply.Channels, prof.Supply.MaxAmps
+		bp.SupplyNegativeChannels = prof.Supply.NegativeChannels
 	}
 	if prof.Source != nil {
 		bp.Roles["source"] = true

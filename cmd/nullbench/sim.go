@@ -73,8 +73,8 @@ the bench powered down.
 
 --dialect NAME[,NAME...] makes instruments speak another common dialect,
 each with its own identity and profile name (the printed profile= and
---bench-out follow it; the profile files for these dialects are not shipped
-yet, so a plan cannot drive them until they are):
+--bench-out follow it; the mux_ and psu_ dialects have built-in profiles of
+those names, the meter dialects' profiles are not shipped yet):
 ` + dialectHelp(),
 		Args: cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, args []string) error {

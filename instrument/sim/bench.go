@@ -125,6 +125,10 @@ type Bench struct {
 	servers   []*tcpServer
 	pty       *ptyServer
 	endpoints []Endpoint
+
+	// Role lines of the supplies for BenchSection, when a dialect
+	// changes them ("" keeps the defaults).
+	supplyPosRole, supplyNegRole string
 }
 
 // New builds a bench from cfg. It does not serve anything until Start.
@@ -394,11 +398,18 @@ func (b *Bench) BenchSection() string {
 	for _, ep := range b.Endpoints() {
 		fmt.Fprintf(&sb, "\n[bench.instrument.%s]\naddress = %q\nprofile = %q\n", ep.Name, ep.Address, ep.Profile)
 	}
+	pos, neg := b.supplyPosRole, b.supplyNegRole
+	if pos == "" {
+		pos = `{ instrument = "psu", channel = "1" }`
+	}
+	if neg == "" {
+		neg = `{ instrument = "psu", channel = "2", negative = true }`
+	}
 	sb.WriteString(`
 [bench.roles]
 meter       = { instrument = "dmm" }
-supply_pos  = { instrument = "psu", channel = "1" }
-supply_neg  = { instrument = "psu", channel = "2", negative = true }
+supply_pos  = ` + pos + `
+supply_neg  = ` + neg + `
 source_cm   = { instrument = "src", channel = "1" }
 source_diff = { instrument = "src", channel = "2" }
 source_ref  = { instrument = "src", channel = "3" }
@@ -589,8 +600,11 @@ type Snapshot struct {
 	Supply       []ChannelSnapshot
 	Source       []ChannelSnapshot
 	Closed       []int
-	Socket       string // id of the unit in the hand socket, "" when empty
-	Units        []UnitSnapshot
+	// MostClosed is the most relays that were closed at once since the
+	// bench was built: 1 when every change was break before make.
+	MostClosed int
+	Socket     string // id of the unit in the hand socket, "" when empty
+	Units      []UnitSnapshot
 }
 
 // ChannelSnapshot is one supply or source channel.
@@ -635,6 +649,7 @@ func (b *Bench) Inspect() Snapshot {
 		s.Closed = append(s.Closed, ch)
 	}
 	sort.Ints(s.Closed)
+	s.MostClosed = m.mostClosed
 	if m.socket != nil {
 		s.Socket = m.socket.id
 	}

@@ -28,6 +28,8 @@ type Dialect struct {
 func Dialects() []Dialect {
 	var ds []Dialect
 	ds = append(ds, meterDialects()...)
+	ds = append(ds, switchDialects()...)
+	ds = append(ds, supplyDialects()...)
 	sort.Slice(ds, func(i, j int) bool { return ds[i].Name < ds[j].Name })
 	return ds
 }
@@ -64,6 +66,10 @@ func applyDialects(b *Bench, names []string) error {
 		}
 	}
 	return nil
+}
+
+func errNotDevice(name string) error {
+	return fmt.Errorf("the %s is not the bench's own device", name)
 }
 
 // redefine gives instrument name a new identity, built-in profile name and

@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"strings"
 	"sync"
+	"time"
 )
 
 // command is one entry of an instrument's command tree.
@@ -62,10 +63,18 @@ type instrument struct {
 	ese, sre byte
 
 	faults faultSet
+
+	// term ends messages in and out ('\n' unless a dialect says
+	// otherwise; with '\n' a CR before it is dropped). busyFor is how
+	// long the instrument is deaf after a message without a reply
+	// (psu_slow): a message then is lost, except *OPC?, which waits.
+	term      byte
+	busyFor   time.Duration
+	busyUntil time.Time // wall clock; guarded by mu
 }
 
 func newInstrument(name, role, profile, idn string, dev device) *instrument {
-	in := &instrument{name: name, role: role, profile: profile, idn: idn, dev: dev, esr: 128 /* PON */}
+	in := &instrument{name: name, role: role, profile: profile, idn: idn, dev: dev, esr: 128 /* PON */, term: '\n'}
 	in.errq.limit = 10
 	for _, c := range dev.commands() {
 		c.nodes = compilePattern(c.pattern)
@@ -98,9 +107,25 @@ func (in *instrument) stb() byte {
 
 // execute runs one program message (one line without its terminator) and
 // returns the response line (without terminator) and whether there is one.
-func (in *instrument) execute(ctx context.Context, line string) (string, bool) {
+func (in *instrument) execute(ctx context.Context, line string) (reply string, has bool) {
 	in.mu.Lock()
 	defer in.mu.Unlock()
+	if in.busyFor > 0 {
+		if wait := time.Until(in.busyUntil); wait > 0 {
+			if !strings.EqualFold(strings.TrimSpace(line), "*OPC?") {
+				in.pushError(newErr(errInputOverrun, "message lost: the instrument was busy"))
+				return "", false
+			}
+			if sleepWall(ctx, wait) != nil {
+				return "", false
+			}
+		}
+		defer func() {
+			if !has {
+				in.busyUntil = time.Now().Add(in.busyFor)
+			}
+		}()
+	}
 	units, err := splitTopLevel(line, ';')
 	if err != nil {
 		in.pushError(asSCPI(err))

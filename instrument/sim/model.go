@@ -128,10 +128,11 @@ type model struct {
 
 	chamber chamberModel
 
-	units  []*unit
-	byChan map[int]*unit
-	paths  map[int]*relayPath // every channel ever closed
-	closed map[int]bool
+	units      []*unit
+	byChan     map[int]*unit
+	paths      map[int]*relayPath // every channel ever closed
+	closed     map[int]bool
+	mostClosed int // the most relays closed at once since New (Snapshot.MostClosed)
 
 	// socket is the unit in the hand socket (nil when empty); socketPath
 	// its contacts' thermal EMF; offMatrix the units the person has taken

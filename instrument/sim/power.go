@@ -21,6 +21,10 @@ type powerDevice struct {
 	// nodeOhms is the load each source channel sees in the fixture (for
 	// MEAS:CURR? on the source).
 	nodeOhms []float64
+	// Dialects (dialect_supply.go): a channel list in each command; the
+	// channel (1-based) that is a true negative output, 0 for none.
+	chanList bool
+	negOut   int
 }
 
 // Supply and source limits (common practice for bench units).
@@ -104,6 +108,10 @@ func (p *powerDevice) apply(f func()) {
 func quantise(v, step float64) float64 { return math.Round(v/step) * step }
 
 func (p *powerDevice) commands() []command {
+	return p.withDialect(p.ownCommands())
+}
+
+func (p *powerDevice) ownCommands() []command {
 	maxV, minV := sourceMaxVolts, -sourceMaxVolts
 	if p.isSupply {
 		maxV, minV = supplyMaxVolts, 0
@@ -251,7 +259,10 @@ func (p *powerDevice) commands() []command {
 
 // switchDevice is the relay matrix: bank 1 (101..140) holds the op-amps of
 // the lot, bank 2 (201..240) the boards.
-type switchDevice struct{ b *Bench }
+type switchDevice struct {
+	b         *Bench
+	noOpenAll bool // dialect mux_noopenall (dialect_switch.go)
+}
 
 func validSwitchChannel(ch int) bool {
 	return (ch >= opampBankFirst && ch <= opampBankLast) || (ch >= boardBankFirst && ch <= boardBankLast) || ch == ThroughChannel
@@ -298,6 +309,7 @@ func (s *switchDevice) setState(chs []int, closed bool) {
 			delete(m.closed, ch)
 		}
 	}
+	m.mostClosed = max(m.mostClosed, len(m.closed))
 	m.checkDamage(m.connected())
 }
 
@@ -315,7 +327,7 @@ func (s *switchDevice) commands() []command {
 		}
 		return strings.Join(out, ","), nil
 	}
-	return []command{
+	return s.withDialect([]command{
 		{pattern: "ROUTe:CLOSe", minParams: 1, maxParams: 1, fn: func(c *call) (string, error) {
 			chs, err := switchList(c.params[0])
 			if err != nil {
@@ -352,7 +364,7 @@ func (s *switchDevice) commands() []command {
 			}
 			return "(@" + strings.Join(parts, ",") + ")", nil
 		}},
-	}
+	})
 }
 
 func sortInts(a []int) {

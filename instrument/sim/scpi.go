@@ -54,6 +54,7 @@ const (
 	errDataStale       = -230
 	errDevice          = -300
 	errQueueOverflow   = -350
+	errInputOverrun    = -363
 )
 
 var errText = map[int]string{
@@ -76,6 +77,7 @@ var errText = map[int]string{
 	errDataStale:       "Data corrupt or stale",
 	errDevice:          "Device-specific error",
 	errQueueOverflow:   "Queue overflow",
+	errInputOverrun:    "Input buffer overrun",
 }
 
 // newErr builds a queue entry with its standard text and extra info.

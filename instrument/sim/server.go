@@ -114,11 +114,11 @@ const maxLineBytes = 64 << 10
 
 // readLine reads one LF-terminated line, strips an optional CR, and bounds
 // its length (the excess is discarded up to the terminator).
-func readLine(r *bufio.Reader) (string, bool, error) {
+func readLine(r *bufio.Reader, term byte) (string, bool, error) {
 	var buf []byte
 	tooLong := false
 	for {
-		chunk, err := r.ReadSlice('\n')
+		chunk, err := r.ReadSlice(term)
 		if len(buf)+len(chunk) > maxLineBytes {
 			tooLong = true
 		} else {
@@ -132,8 +132,10 @@ func readLine(r *bufio.Reader) (string, bool, error) {
 		}
 		break
 	}
-	s := strings.TrimSuffix(string(buf), "\n")
-	s = strings.TrimSuffix(s, "\r")
+	s := strings.TrimSuffix(string(buf), string(term))
+	if term == '\n' {
+		s = strings.TrimSuffix(s, "\r")
+	}
 	return s, tooLong, nil
 }
 
@@ -144,7 +146,7 @@ func readLine(r *bufio.Reader) (string, bool, error) {
 func (in *instrument) serveStream(ctx context.Context, rw io.ReadWriter, dropCloses bool, garbleRng *rand.Rand, garbleMu *sync.Mutex) {
 	r := bufio.NewReaderSize(rw, 4096)
 	for {
-		line, tooLong, err := readLine(r)
+		line, tooLong, err := readLine(r, in.term)
 		if err != nil {
 			return
 		}
@@ -197,7 +199,7 @@ func (in *instrument) serveStream(ctx context.Context, rw io.ReadWriter, dropClo
 			}
 			garbleMu.Unlock()
 		}
-		out = append(out, '\n')
+		out = append(out, in.term)
 		if _, err := rw.Write(out); err != nil {
 			return
 		}

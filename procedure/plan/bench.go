@@ -16,6 +16,10 @@ type BenchProfile struct {
 	SupplyChannels []string
 	SourceChannels []string
 	SupplyMaxAmps  float64 // 0: not stated
+	// SupplyNegativeChannels are the supply channels that are true
+	// negative outputs (the profile's negative_channels): they can serve
+	// only supply_neg, bound with negative = true.
+	SupplyNegativeChannels []string
 }
 
 // ProfileLookup returns the profile a plan's entry names for an
@@ -86,6 +90,16 @@ func CheckBench(p *Plan, lookup ProfileLookup) error {
 		if b.Channel != "" && len(chans) > 0 && !contains(chans, b.Channel) {
 			add(key+".channel", fmt.Sprintf("instrument %s has no channel %q (its profile lists %s)", b.Instrument, b.Channel, strings.Join(chans, ", ")),
 				"use one of the channels the profile lists")
+		}
+		if rc.kind == "supply" && contains(bp.SupplyNegativeChannels, b.Channel) {
+			switch {
+			case rc.role == RoleSupplyPos:
+				add(key+".channel", fmt.Sprintf("channel %q of %s is a negative output (its profile's negative_channels) and cannot make V+", b.Channel, b.Instrument),
+					"bind supply_pos to a positive output")
+			case !b.Negative:
+				add(key, fmt.Sprintf("channel %q of %s is a negative output (its profile's negative_channels) but supply_neg is not marked negative = true", b.Channel, b.Instrument),
+					"set negative = true on bench.roles.supply_neg")
+			}
 		}
 		if rc.kind == "supply" && bp.SupplyMaxAmps > 0 && p.Part.CurrentLimitAmps > bp.SupplyMaxAmps {
 			add("part.current_limit_amps", fmt.Sprintf("current limit %g A is beyond the %g A rating of %s's channels (its profile's max_amps)", p.Part.CurrentLimitAmps, bp.SupplyMaxAmps, b.Instrument),

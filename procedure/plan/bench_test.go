@@ -43,3 +43,40 @@ var errUnknown = errorString("unknown")
 type errorString string
 
 func (e errorString) Error() string { return string(e) }
+
+// A true negative output (negative_channels) serves only supply_neg, and
+// only bound with negative = true: the polarity rules of CheckSafety
+// depend on that flag.
+func TestCheckBenchNegativeOutput(t *testing.T) {
+	lookup := func(_, _ string) (BenchProfile, error) {
+		return BenchProfile{Roles: map[string]bool{"supply": true}, SupplyChannels: []string{"1", "2"}, SupplyNegativeChannels: []string{"2"}}, nil
+	}
+	for _, tc := range []struct {
+		name     string
+		pos, neg RoleBinding
+		want     string
+	}{
+		{"ok", RoleBinding{Instrument: "psu", Channel: "1"}, RoleBinding{Instrument: "psu", Channel: "2", Negative: true}, ""},
+		{"not marked", RoleBinding{Instrument: "psu", Channel: "1"}, RoleBinding{Instrument: "psu", Channel: "2"},
+			`key "bench.roles.supply_neg": channel "2" of psu is a negative output`},
+		{"as V+", RoleBinding{Instrument: "psu", Channel: "2"}, RoleBinding{Instrument: "psu", Channel: "1", Negative: true},
+			`key "bench.roles.supply_pos.channel": channel "2" of psu is a negative output`},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			p := &Plan{Source: "p.toml", Bench: Bench{
+				Instruments: map[string]Instrument{"psu": {Profile: "psu_negout"}},
+				Roles:       Roles{SupplyPos: tc.pos, SupplyNeg: tc.neg},
+			}}
+			err := CheckBench(p, lookup)
+			if tc.want == "" {
+				if err != nil {
+					t.Fatal(err)
+				}
+				return
+			}
+			if err == nil || !strings.Contains(err.Error(), tc.want) {
+				t.Errorf("error %v, want %q", err, tc.want)
+			}
+		})
+	}
+}
