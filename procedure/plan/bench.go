@@ -18,8 +18,10 @@ type BenchProfile struct {
 	SupplyMaxAmps  float64 // 0: not stated
 }
 
-// ProfileLookup returns the profile a plan's entry names for an
-// instrument, or an error (unknown name, unreadable file).
+// ProfileLookup returns the profile a plan's entry (as written) names for
+// an instrument, or an error (unknown name, unreadable file). A lookup
+// reading files takes a relative entry from the plan's folder
+// (Plan.ProfilePath).
 type ProfileLookup func(instrument, profile string) (BenchProfile, error)
 
 // IsProfilePath says whether a profile entry names a file rather than a
@@ -28,12 +30,22 @@ func isProfilePath(s string) bool {
 	return strings.ContainsAny(s, `/\`) || strings.HasSuffix(s, ".toml")
 }
 
+// ProfilePath is where a profile entry of the plan is read from: a path
+// relative to the plan file's folder, an absolute path or a built-in
+// profile name unchanged. A plan and its profiles can so be moved and
+// checked from any folder.
+func (p *Plan) ProfilePath(entry string) string {
+	if !isProfilePath(entry) || filepath.IsAbs(entry) {
+		return entry
+	}
+	return filepath.Join(filepath.Dir(p.Source), filepath.FromSlash(entry))
+}
+
 // CheckBench checks the plan's bench against the instruments' profiles,
-// before any instrument contact: every profile entry is a built-in name or
-// an absolute path (a relative one would resolve against whatever folder
-// the tool is started from), every profile exists, every bound channel is
-// one the profile lists, and the supplies' current limit is within the
-// channel rating. Each problem names file, line and key.
+// before any instrument contact: every profile exists (a relative path
+// is taken from the plan file's folder, see ProfilePath), every bound
+// channel is one the profile lists, and the supplies' current limit is
+// within the channel rating. Each problem names file, line and key.
 func CheckBench(p *Plan, lookup ProfileLookup) error {
 	var errs Errors
 	add := func(key, problem, fix string) {
@@ -48,11 +60,6 @@ func CheckBench(p *Plan, lookup ProfileLookup) error {
 	for _, n := range names {
 		spec := p.Bench.Instruments[n]
 		key := "bench.instrument." + n + ".profile"
-		if isProfilePath(spec.Profile) && !filepath.IsAbs(spec.Profile) {
-			add(key, fmt.Sprintf("profile path %q is relative: it would be looked up from the folder the tool is started in", spec.Profile),
-				"give the absolute path of the profile file")
-			continue
-		}
 		bp, err := lookup(n, spec.Profile)
 		if err != nil {
 			add(key, fmt.Sprintf("profile %q: %v", spec.Profile, err), "name a built-in profile or an existing profile file")
