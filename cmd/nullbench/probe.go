@@ -3,6 +3,7 @@ package main
 import (
 	"context"
 	"fmt"
+	"strings"
 	"time"
 
 	"github.com/spf13/cobra"
@@ -37,7 +38,8 @@ With --exercise and one --profile file that matches the instrument, it then
 tries the profile out dry: it switches outputs off and programs them to 0 V,
 opens relays, sends every read and configure template of the profile once,
 and shows each command with its reply and the error-queue entries it
-caused, then which templates the instrument rejected. It never turns an
+caused, then which templates the instrument rejected (exit status 2 when
+any was). It never turns an
 output on, never closes a relay and never moves a chamber. --channel names
 the channel to fill {channel} with (default: the first one the profile
 lists; a switch needs one for its open and query templates).`,
@@ -105,6 +107,9 @@ func runProbe(ctx context.Context, std streams, o probeOptions) error {
 	}
 	if err != nil {
 		return withCode(exitInstrument, fmt.Errorf("exercise %s: %w", o.Address, err))
+	}
+	if rej := ex.Rejected(); len(rej) > 0 {
+		return withCode(exitUsage, fmt.Errorf("exercise: %s: the instrument rejected %s; fix these templates from its manual", extra[0].File, strings.Join(rej, ", ")))
 	}
 	return nil
 }

@@ -1,6 +1,7 @@
 package main
 
 import (
+	"os"
 	"strings"
 	"testing"
 )
@@ -41,6 +42,25 @@ func TestProbeExerciseCLI(t *testing.T) {
 	cliWantCode(t, r, exitUsage, args...)
 	if !strings.Contains(r.err, "does not match") || strings.Contains(r.out, "exercise:") {
 		t.Errorf("mismatched profile: stdout:\n%s\nstderr:\n%s", r.out, r.err)
+	}
+
+	// A template the meter does not know: rejected, with the meter's own
+	// error-queue text (SCPI-99 -113 "Undefined header"), exit status 2.
+	dmm, err := os.ReadFile(cliRepoFile("instrument", "profiles", "dmm.toml"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	badText := strings.Replace(string(dmm), `nplc      = "VOLT:DC:NPLC {nplc}"`, `nplc      = "VOLT:DC:NPLX {nplc}"`, 1)
+	if badText == string(dmm) {
+		t.Fatal("dmm.toml changed; update this test")
+	}
+	bad := cliWriteFile(t, t.TempDir(), "bad.toml", badText)
+	args = []string{"probe", addr["meter"], "--profile", bad, "--exercise", "--rounds", "1"}
+	r = cliExec(t, args...)
+	cliWantCode(t, r, exitUsage, args...)
+	if !strings.Contains(r.out, `error -113,"Undefined header;VOLT:DC:NPLX"`) || !strings.Contains(r.out, "rejected:  meter.nplc") ||
+		!strings.Contains(r.err, "the instrument rejected meter.nplc") {
+		t.Errorf("bad template: stdout:\n%s\nstderr:\n%s", r.out, r.err)
 	}
 
 	snap := b.Inspect()
