@@ -308,3 +308,36 @@ func (r ExerciseReport) String() string {
 	}
 	return sb.String()
 }
+
+// TemplateKeys lists the command templates the profile gives, as
+// "table.key" (e.g. "supply.set_volts"), for checks of what a plan needs.
+func (p *Profile) TemplateKeys() map[string]bool {
+	out := map[string]bool{}
+	put := func(table string, kv ...string) {
+		for i := 0; i+1 < len(kv); i += 2 {
+			if kv[i+1] != "" {
+				out[table+"."+kv[i]] = true
+			}
+		}
+	}
+	if m := p.Meter; m != nil {
+		put("meter", "configure", m.Configure, "nplc", m.NPLC, "count", m.Count, "read", m.Read)
+	}
+	if s := p.Supply; s != nil {
+		put("supply", "select", s.Select, "set_volts", s.SetVolts, "set_current_limit", s.SetCurrentLimit,
+			"set_output", s.SetOutput, "read_volts", s.ReadVolts, "read_amps", s.ReadAmps)
+	}
+	if s := p.Source; s != nil {
+		put("source", "select", s.Select, "set_volts", s.SetVolts, "set_output", s.SetOutput, "read_volts", s.ReadVolts)
+	}
+	if s := p.Switch; s != nil {
+		put("switch", "close", s.Close, "open", s.Open, "open_all", s.OpenAll, "query_closed", s.QueryClosed)
+	}
+	if c := p.Chamber; c != nil {
+		put("chamber", "set_point", c.SetPoint, "read_celsius", c.ReadCelsius)
+	}
+	if t := p.Thermometer; t != nil {
+		put("thermometer", "read_celsius", t.ReadCelsius)
+	}
+	return out
+}

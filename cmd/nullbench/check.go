@@ -98,7 +98,7 @@ func safetyExit(err error) error {
 
 // benchProfile describes a profile for plan.CheckBench.
 func benchProfile(prof *instrument.Profile) plan.BenchProfile {
-	bp := plan.BenchProfile{Roles: map[string]bool{}}
+	bp := plan.BenchProfile{Roles: map[string]bool{}, Templates: prof.TemplateKeys()}
 	for _, r := range prof.Roles() {
 		bp.Roles[r] = true
 	}

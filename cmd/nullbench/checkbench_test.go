@@ -27,6 +27,8 @@ func TestCheckKnowsTheBench(t *testing.T) {
 		// supply2 states max_amps = 3.0.
 		{"current limit beyond the channel rating", "current_limit_amps = 0.05", "current_limit_amps = 4.5",
 			`plan\.toml:\d+: key "part\.current_limit_amps": current limit 4\.5 A is beyond the 3 A rating of psu`},
+		{"supply profile bound to the meter role", `meter       = { instrument = "dmm" }`, `meter       = { instrument = "psu" }`,
+			`plan\.toml:\d+: key "bench\.roles\.meter\.instrument": built-in profile "supply2": no \[meter\] table \(it is written for supply\); the plan binds instrument psu to the meter role`},
 		// A relative path is looked up beside the plan, not in the folder
 		// the tool runs in.
 		{"relative profile path missing beside the plan", `profile = "supply2"`, `profile = "profiles/nosuch.toml"`,

@@ -16,6 +16,9 @@ type BenchProfile struct {
 	SupplyChannels []string
 	SourceChannels []string
 	SupplyMaxAmps  float64 // 0: not stated
+	// Templates holds the command templates the profile gives, as
+	// "table.key"; nil when not known (no template checks then).
+	Templates map[string]bool
 }
 
 // ProfileLookup returns the profile a plan's entry (as written) names for
@@ -85,9 +88,7 @@ func CheckBench(p *Plan, lookup ProfileLookup) error {
 		}
 		key := "bench.roles." + rc.role
 		if !bp.Roles[rc.kind] {
-			add(key+".instrument", fmt.Sprintf("instrument %s (profile %q) has no %s commands", b.Instrument, p.Bench.Instruments[b.Instrument].Profile, rc.kind),
-				"bind the role to an instrument whose profile has a ["+rc.kind+"] table")
-			continue
+			continue // checkRoleTemplates says so
 		}
 		chans := rc.channels(bp)
 		if b.Channel != "" && len(chans) > 0 && !contains(chans, b.Channel) {
@@ -99,6 +100,7 @@ func CheckBench(p *Plan, lookup ProfileLookup) error {
 				fmt.Sprintf("set at most %g A", bp.SupplyMaxAmps))
 		}
 	}
+	checkRoleTemplates(p, profiles, add)
 	if len(errs) == 0 {
 		return nil
 	}
