@@ -58,6 +58,14 @@ func TestExerciseNeverPowers(t *testing.T) {
 	if len(snap.EverClosed) > 0 {
 		t.Errorf("relays %v were closed during the exercise", snap.EverClosed)
 	}
+	if len(snap.GeneratorEverOn) == 0 {
+		t.Error("no generator outputs in the snapshot")
+	}
+	for i, on := range snap.GeneratorEverOn {
+		if on {
+			t.Errorf("generator output %d was turned on during the exercise", i+1)
+		}
+	}
 }
 
 // TestExerciseInspectionSeesOutputs shows the inspection above can fail:
@@ -70,6 +78,11 @@ func TestExerciseInspectionSeesOutputs(t *testing.T) {
 			t.Fatal(err)
 		}
 	}
+	for _, cmd := range []string{"OUTP2 ON", "OUTP2 OFF"} {
+		if err := fb.ins[sim.NameGen].Session.Write(ctx, cmd); err != nil {
+			t.Fatal(err)
+		}
+	}
 	if err := fb.ins[sim.NameSwitch].Session.Write(ctx, "ROUT:CLOS (@101)"); err != nil {
 		t.Fatal(err)
 	}
@@ -79,6 +92,9 @@ func TestExerciseInspectionSeesOutputs(t *testing.T) {
 	snap := fb.b.Inspect()
 	if !snap.Supply[0].EverOn || snap.Supply[0].On {
 		t.Errorf("supply channel 1 after ON then OFF: %+v", snap.Supply[0])
+	}
+	if g := snap.GeneratorEverOn; len(g) != 3 || g[0] || !g[1] || g[2] {
+		t.Errorf("generator outputs ever on after OUTP2 ON then OFF: %v", g)
 	}
 	if len(snap.EverClosed) != 1 || snap.EverClosed[0] != 101 || len(snap.Closed) != 0 {
 		t.Errorf("relays after close and open-all: ever %v, now %v", snap.EverClosed, snap.Closed)

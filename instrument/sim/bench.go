@@ -588,7 +588,10 @@ type Snapshot struct {
 	AirC         float64
 	Supply       []ChannelSnapshot
 	Source       []ChannelSnapshot
-	Closed       []int
+	// GeneratorEverOn holds, per function-generator output, whether it
+	// has been on at some time since New.
+	GeneratorEverOn []bool
+	Closed          []int
 	// EverClosed lists every relay closed at some time since New, even
 	// if open now.
 	EverClosed []int
@@ -639,6 +642,9 @@ func (b *Bench) Inspect() Snapshot {
 		s.Closed = append(s.Closed, ch)
 	}
 	sort.Ints(s.Closed)
+	for _, g := range m.gen {
+		s.GeneratorEverOn = append(s.GeneratorEverOn, g != nil && (g.on || g.everOn))
+	}
 	for ch := range m.everClosed {
 		s.EverClosed = append(s.EverClosed, ch)
 	}
