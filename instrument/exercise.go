@@ -85,8 +85,9 @@ const (
 // templates on.
 const noChannel = ""
 
-// exercisePlan lists every templated command of p in a safe order: the
-// outputs are switched off, programmed to 0 V and the relays opened first,
+// exercisePlan lists every templated command of p in a safe order: every
+// output the profile lists is switched off and programmed to 0 V (the ones
+// not exercised first), and the relays opened,
 // then the read and configure commands. Commands that would turn an
 // output on, close a relay or move a chamber are listed as skipped.
 func exercisePlan(p *Profile, o ExerciseOptions) []exerciseCmd {
@@ -118,8 +119,27 @@ func exercisePlan(p *Profile, o ExerciseOptions) []exerciseCmd {
 		}
 		out = append(out, exerciseCmd{key: key, tpl: tpl, vals: vals, skip: skip})
 	}
+	// offOthers switches off and zeroes the outputs other than the one
+	// exercised, so that every output the profile lists is off.
+	offOthers := func(table string, chans []string, sel, setOutput, setVolts string) {
+		ex := channel
+		for _, c := range chans {
+			if c == ex {
+				continue
+			}
+			channel = c
+			at := " [channel " + c + "]"
+			add(table+".select"+at, sel, "")
+			add(table+".set_output"+at, setOutput, "", PhValue, "OFF")
+			if setVolts != "" {
+				add(table+".set_volts"+at, setVolts, "", PhValue, "0")
+			}
+		}
+		channel = ex
+	}
 	if s := p.Supply; s != nil {
 		channel = pick(s.Channels, true)
+		offOthers("supply", s.Channels, s.Select, s.SetOutput, s.SetVolts)
 		add("supply.select", s.Select, "")
 		add("supply.set_output", s.SetOutput, "", PhValue, "OFF")
 		add("supply.set_volts", s.SetVolts, "", PhValue, "0")
@@ -129,6 +149,7 @@ func exercisePlan(p *Profile, o ExerciseOptions) []exerciseCmd {
 	}
 	if s := p.Source; s != nil {
 		channel = pick(s.Channels, true)
+		offOthers("source", s.Channels, s.Select, s.SetOutput, s.SetVolts)
 		add("source.select", s.Select, "")
 		add("source.set_output", s.SetOutput, "", PhValue, "OFF")
 		add("source.set_volts", s.SetVolts, "", PhValue, "0")
@@ -136,6 +157,7 @@ func exercisePlan(p *Profile, o ExerciseOptions) []exerciseCmd {
 	}
 	if g := p.Generator; g != nil {
 		channel = pick(g.Channels, true)
+		offOthers("generator", g.Channels, g.Select, g.SetOutput, "")
 		add("generator.select", g.Select, "")
 		add("generator.set_output", g.SetOutput, "", PhValue, "OFF")
 		add("generator.set_offset", g.SetOffset, "", PhValue, "0")
@@ -287,18 +309,18 @@ func (r ExerciseReport) String() string {
 	var sb strings.Builder
 	fmt.Fprintf(&sb, "exercise:  %s, outputs kept off, relays open\n", r.Profile)
 	for _, s := range r.Steps {
-		fmt.Fprintf(&sb, "  %-28s %s\n", s.Key, s.Command)
+		fmt.Fprintf(&sb, "  %-34s %s\n", s.Key, s.Command)
 		switch {
 		case s.Skipped != "":
-			fmt.Fprintf(&sb, "  %-28s %s\n", "", s.Skipped)
+			fmt.Fprintf(&sb, "  %-34s %s\n", "", s.Skipped)
 			continue
 		case s.Err != nil:
-			fmt.Fprintf(&sb, "  %-28s failed: %v\n", "", s.Err)
+			fmt.Fprintf(&sb, "  %-34s failed: %v\n", "", s.Err)
 		case isQuery(s.Command):
-			fmt.Fprintf(&sb, "  %-28s -> %s\n", "", s.Reply)
+			fmt.Fprintf(&sb, "  %-34s -> %s\n", "", s.Reply)
 		}
 		for _, e := range s.Errors {
-			fmt.Fprintf(&sb, "  %-28s error %s\n", "", e)
+			fmt.Fprintf(&sb, "  %-34s error %s\n", "", e)
 		}
 	}
 	if rej := r.Rejected(); len(rej) > 0 {

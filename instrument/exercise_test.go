@@ -160,3 +160,35 @@ func TestExerciseSupplyGolden(t *testing.T) {
 		checkGolden(t, "exercise_"+ep.Role+".golden", r.String())
 	}
 }
+
+// TestExerciseSwitchesOutputsOff: outputs found on are switched off, on
+// every channel the profile lists, not only the one exercised.
+func TestExerciseSwitchesOutputsOff(t *testing.T) {
+	fb := startFreqBench(t, sim.Config{})
+	ctx := context.Background()
+	for _, cmd := range []string{"INST:NSEL 2", "OUTP ON"} {
+		if err := fb.ins[sim.NameSupply].Session.Write(ctx, cmd); err != nil {
+			t.Fatal(err)
+		}
+	}
+	if s := fb.b.Inspect().Supply; !s[1].On {
+		t.Fatalf("supply channel 2 not on before the exercise: %+v", s[1])
+	}
+	for _, ep := range fb.b.Endpoints() {
+		if ep.Role != "supply" {
+			continue
+		}
+		p, err := instrument.ResolveProfile(ep.Profile)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if _, err := instrument.ExerciseAt(ctx, ep.Address, p, instrument.ExerciseOptions{}); err != nil {
+			t.Fatal(err)
+		}
+	}
+	for _, c := range fb.b.Inspect().Supply {
+		if c.On || c.ProgrammedVolts != 0 {
+			t.Errorf("supply channel %d after the exercise: %+v", c.Channel, c)
+		}
+	}
+}

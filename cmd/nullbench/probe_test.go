@@ -24,7 +24,7 @@ func TestProbeExerciseCLI(t *testing.T) {
 	args := []string{"probe", addr["supply"], "--profile", supply, "--exercise", "--rounds", "1"}
 	r := cliExec(t, args...)
 	cliWantCode(t, r, 0, args...)
-	for _, want := range []string{"exercise:  supply2", "supply.set_output            OUTP OFF", "MEAS:VOLT?", "rejected:  none"} {
+	for _, want := range []string{"exercise:  supply2", "supply.set_output [channel 2]      OUTP OFF", "MEAS:VOLT?", "rejected:  none"} {
 		if !strings.Contains(r.out, want) {
 			t.Errorf("output lacks %q:\n%s", want, r.out)
 		}
