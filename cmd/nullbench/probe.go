@@ -39,10 +39,10 @@ tries the profile out dry: it switches outputs off and programs them to 0 V,
 opens relays, sends every read and configure template of the profile once,
 and shows each command with its reply and the error-queue entries it
 caused, then which templates the instrument rejected (exit status 2 when
-any was). It never turns an
-output on, never closes a relay and never moves a chamber. --channel names
-the channel to fill {channel} with (default: the first one the profile
-lists; a switch needs one for its open and query templates).`,
+any was). It never turns an output on, never closes a relay and never
+moves a chamber. --channel names the channel to fill {channel} with
+(default: the first one the profile lists; a switch needs one for its open
+and query templates).`,
 		Args: cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			o.Address = args[0]
