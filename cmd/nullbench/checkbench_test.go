@@ -83,9 +83,23 @@ func TestCheckRelativeProfileFromAnotherFolder(t *testing.T) {
 		r := cliExec(t, "check", arg)
 		cliWantCode(t, r, exitOK, "check", arg)
 	}
+	// run reads the same profile from the plan's folder (and copies it
+	// into the run folder).
+	out := filepath.Join(other, "out")
+	r := cliExec(t, "run", filepath.Join("..", "lab", "plan.toml"), "--out", out)
+	cliWantCode(t, r, exitOK, "run", "../lab/plan.toml")
+	copied, err := os.ReadFile(filepath.Join(out, "profiles", "psu.toml"))
+	if err != nil || string(copied) != string(src) {
+		t.Errorf("run folder's copy of the psu profile: %v", err)
+	}
+	// report reads the run folder's copies, not files beside the
+	// folder's copy of the plan.
+	r = cliExec(t, "report", out, "--out", filepath.Join(other, "again"))
+	cliWantCode(t, r, exitOK, "report", out)
+
 	// A file in the working folder but not beside the plan is not found.
 	cliWriteFile(t, filepath.Join(dir, "lab"), "plan2.toml", strings.Replace(text, "profiles/psu.toml", "psu.toml", 1))
 	cliWriteFile(t, other, "psu.toml", string(src))
-	r := cliExec(t, "check", filepath.Join("..", "lab", "plan2.toml"))
+	r = cliExec(t, "check", filepath.Join("..", "lab", "plan2.toml"))
 	cliWantCode(t, r, exitUsage, "check", "../lab/plan2.toml")
 }
