@@ -20,7 +20,7 @@ import (
 // opens connections; the returned close function closes them all.
 //
 // sleep is the clock's wait, so that drivers settle in bench time.
-func openBench(ctx context.Context, p *plan.Plan, sleep func(context.Context, time.Duration) error) (*procedure.Rig, func(), error) {
+func openBench(ctx context.Context, p *plan.Plan, profiles profileResolver, sleep func(context.Context, time.Duration) error) (*procedure.Rig, func(), error) {
 	opened := map[string]*instrument.Instrument{}
 	closeAll := func() {
 		for _, in := range opened {
@@ -37,8 +37,18 @@ func openBench(ctx context.Context, p *plan.Plan, sleep func(context.Context, ti
 	sort.Strings(names)
 	for _, name := range names {
 		spec := p.Bench.Instruments[name]
+		prof, err := profiles(name, spec.Profile)
+		if err != nil {
+			closeAll()
+			return nil, nil, fmt.Errorf("plan %s, [bench.instrument.%s]: instrument %s: %w", p.Source, name, name, err)
+		}
+		addr, err := instrument.ParseAddress(spec.Address)
+		if err != nil {
+			closeAll()
+			return nil, nil, fmt.Errorf("plan %s, [bench.instrument.%s]: instrument %s: %w", p.Source, name, name, err)
+		}
 		octx, cancel := context.WithTimeout(ctx, 15*time.Second)
-		in, err := instrument.Open(octx, name, spec.Address, spec.Profile, instrument.OpenOptions{})
+		in, err := instrument.OpenWith(octx, name, addr, prof, instrument.OpenOptions{})
 		cancel()
 		if err != nil {
 			closeAll()

@@ -98,12 +98,8 @@ func safetyExit(err error) error {
 }
 
 // benchProfile describes a profile for plan.CheckBench.
-func benchProfile(_ string, profile string) (plan.BenchProfile, error) {
-	prof, err := instrument.ResolveProfile(profile)
-	if err != nil {
-		return plan.BenchProfile{}, err
-	}
-	bp := plan.BenchProfile{Roles: map[string]bool{}}
+func benchProfile(prof *instrument.Profile) plan.BenchProfile {
+	bp := plan.BenchProfile{Roles: map[string]bool{}, Templates: prof.TemplateKeys()}
 	for _, r := range prof.Roles() {
 		bp.Roles[r] = true
 	}
@@ -116,12 +112,22 @@ func benchProfile(_ string, profile string) (plan.BenchProfile, error) {
 		bp.Roles["source"] = true
 		bp.SourceChannels = prof.Source.Channels
 	}
-	return bp, nil
+	return bp
 }
 
 // checkBench checks the plan against its instruments' profiles.
-func checkBench(p *plan.Plan) error {
-	if err := plan.CheckBench(p, benchProfile); err != nil {
+func checkBench(p *plan.Plan) error { return checkBenchWith(p, planProfiles(p)) }
+
+// checkBenchWith is checkBench with the profiles from resolve.
+func checkBenchWith(p *plan.Plan, resolve profileResolver) error {
+	lookup := func(name, profile string) (plan.BenchProfile, error) {
+		prof, err := resolve(name, profile)
+		if err != nil {
+			return plan.BenchProfile{}, err
+		}
+		return benchProfile(prof), nil
+	}
+	if err := plan.CheckBench(p, lookup); err != nil {
 		return withCode(exitUsage, err)
 	}
 	return nil

@@ -1,6 +1,8 @@
 package main
 
 import (
+	"os"
+	"path/filepath"
 	"regexp"
 	"strings"
 	"testing"
@@ -25,8 +27,12 @@ func TestCheckKnowsTheBench(t *testing.T) {
 		// supply2 states max_amps = 3.0.
 		{"current limit beyond the channel rating", "current_limit_amps = 0.05", "current_limit_amps = 4.5",
 			`plan\.toml:\d+: key "part\.current_limit_amps": current limit 4\.5 A is beyond the 3 A rating of psu`},
-		{"relative profile path", `profile = "supply2"`, `profile = "profiles/supply2.toml"`,
-			`plan\.toml:\d+: key "bench\.instrument\.psu\.profile": profile path "profiles/supply2\.toml" is relative`},
+		{"supply profile bound to the meter role", `meter       = { instrument = "dmm" }`, `meter       = { instrument = "psu" }`,
+			`plan\.toml:\d+: key "bench\.roles\.meter\.instrument": built-in profile "supply2": no \[meter\] table \(it is written for supply\); the plan binds instrument psu to the meter role`},
+		// A relative path is looked up beside the plan, not in the folder
+		// the tool runs in.
+		{"relative profile path missing beside the plan", `profile = "supply2"`, `profile = "profiles/nosuch.toml"`,
+			`plan\.toml:\d+: key "bench\.instrument\.psu\.profile": profile "profiles/nosuch\.toml": .*` + regexp.QuoteMeta(string(filepath.Separator)) + `profiles` + regexp.QuoteMeta(string(filepath.Separator)) + `nosuch\.toml`},
 	}
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
@@ -43,4 +49,57 @@ func TestCheckKnowsTheBench(t *testing.T) {
 	}
 	plan := cliWriteFile(t, t.TempDir(), "plan.toml", good)
 	cliWantCode(t, cliExec(t, "check", plan), exitOK, "check", plan)
+}
+
+// A plan's relative profile path is read from the plan file's folder,
+// whatever folder check, run and off are started from.
+func TestCheckRelativeProfileFromAnotherFolder(t *testing.T) {
+	b := cliStartSim(t, "")
+	good := b.BenchSection() + strings.ReplaceAll(cliPlanBody, "%CMRR_LIMIT%", "90.0")
+	dir := t.TempDir()
+	src, err := os.ReadFile(cliRepoFile("instrument", "profiles", "supply2.toml"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := os.MkdirAll(filepath.Join(dir, "lab", "profiles"), 0o755); err != nil {
+		t.Fatal(err)
+	}
+	cliWriteFile(t, filepath.Join(dir, "lab", "profiles"), "psu.toml", string(src))
+	text := strings.Replace(good, `profile = "supply2"`, `profile = "profiles/psu.toml"`, 1)
+	if text == good {
+		t.Fatal("the bench section changed; update this test")
+	}
+	planPath := cliWriteFile(t, filepath.Join(dir, "lab"), "plan.toml", text)
+	abs, err := filepath.Abs(planPath)
+	if err != nil {
+		t.Fatal(err)
+	}
+	other := filepath.Join(dir, "elsewhere")
+	if err := os.MkdirAll(other, 0o755); err != nil {
+		t.Fatal(err)
+	}
+	t.Chdir(other)
+	for _, arg := range []string{abs, filepath.Join("..", "lab", "plan.toml")} {
+		r := cliExec(t, "check", arg)
+		cliWantCode(t, r, exitOK, "check", arg)
+	}
+	// run reads the same profile from the plan's folder (and copies it
+	// into the run folder).
+	out := filepath.Join(other, "out")
+	r := cliExec(t, "run", filepath.Join("..", "lab", "plan.toml"), "--out", out)
+	cliWantCode(t, r, exitOK, "run", "../lab/plan.toml")
+	copied, err := os.ReadFile(filepath.Join(out, "profiles", "psu.toml"))
+	if err != nil || string(copied) != string(src) {
+		t.Errorf("run folder's copy of the psu profile: %v", err)
+	}
+	// report reads the run folder's copies, not files beside the
+	// folder's copy of the plan.
+	r = cliExec(t, "report", out, "--out", filepath.Join(other, "again"))
+	cliWantCode(t, r, exitOK, "report", out)
+
+	// A file in the working folder but not beside the plan is not found.
+	cliWriteFile(t, filepath.Join(dir, "lab"), "plan2.toml", strings.Replace(text, "profiles/psu.toml", "psu.toml", 1))
+	cliWriteFile(t, other, "psu.toml", string(src))
+	r = cliExec(t, "check", filepath.Join("..", "lab", "plan2.toml"))
+	cliWantCode(t, r, exitUsage, "check", "../lab/plan2.toml")
 }

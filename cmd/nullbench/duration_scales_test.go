@@ -242,7 +242,7 @@ func runAtScale(t testing.TB, sp shippedPlan, scale float64, maxUnits int) (*pla
 	}
 	clk = newClock()
 	sleep := func(ctx context.Context, d time.Duration) error { return clk.Sleep(ctx, d) }
-	rig, closeRig, err := openBench(ctx, p, sleep)
+	rig, closeRig, err := openBench(ctx, p, planProfiles(p), sleep)
 	if err != nil {
 		t.Fatal(err)
 	}

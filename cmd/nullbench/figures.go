@@ -34,7 +34,7 @@ func planFigures(p *plan.Plan) (estimate.Figures, []string) {
 		prof, ok := loaded[spec.Profile]
 		if !ok {
 			var err error
-			prof, err = instrument.ResolveProfile(spec.Profile)
+			prof, err = instrument.ResolveProfile(p.ProfilePath(spec.Profile))
 			if err != nil {
 				problems = append(problems, fmt.Sprintf("role %s: %v (its timing is not counted)", role, err))
 				loaded[spec.Profile] = nil

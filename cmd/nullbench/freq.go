@@ -15,7 +15,7 @@ import (
 func freqInputs(p *plan.Plan, resolve profileResolver) (analysis.FreqInputs, error) {
 	var in analysis.FreqInputs
 	if resolve == nil {
-		resolve = resolveFromPlan
+		resolve = planProfiles(p)
 	}
 	figs := func(role string, rb plan.RoleBinding) (*analysis.ACFigures, error) {
 		if !rb.Bound() {

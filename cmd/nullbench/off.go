@@ -45,7 +45,7 @@ func runOff(ctx context.Context, std streams, o offOptions) error {
 		return err
 	}
 	clock := procedure.NewScaledClock(p.Bench.TimeScale)
-	rig, closeBench, err := openBench(ctx, p, clock.Sleep)
+	rig, closeBench, err := openBench(ctx, p, planProfiles(p), clock.Sleep)
 	if err != nil {
 		return withCode(exitInstrument, err)
 	}

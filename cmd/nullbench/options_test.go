@@ -159,6 +159,8 @@ func TestBadValuesAreUsageErrors(t *testing.T) {
 		{[]string{"probe", "ftp://192.0.2.5"}, "ftp"},
 		{[]string{"probe", "tcp://127.0.0.1:9", "--profile", missing + ".toml"}, "missing.toml"},
 		{[]string{"probe", "tcp://127.0.0.1:9", "--rounds", "0"}, "--rounds"},
+		{[]string{"probe", "tcp://127.0.0.1:9", "--exercise"}, "--exercise needs exactly one --profile"},
+		{[]string{"probe", "tcp://127.0.0.1:9", "--channel", "101"}, "--channel is for --exercise"},
 		{[]string{"probe", "tcp://127.0.0.1:9", "--timeout", "0s"}, "--timeout"},
 		{[]string{"fit", csv, "--stimulus", "diff", "--gain", "1"}, `--stimulus must be "cm" or "supply"`},
 		{[]string{"fit", csv, "--stimulus", "cm", "--gain", "-1"}, "--gain must be positive"},

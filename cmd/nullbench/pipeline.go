@@ -32,7 +32,7 @@ type outputOptions struct {
 // names, without contacting them, so that "report" gives the same budget as
 // the run that took the readings.
 func analysisInputs(p *plan.Plan) (analysis.Inputs, error) {
-	return analysisInputsWith(p, resolveFromPlan)
+	return analysisInputsWith(p, planProfiles(p))
 }
 
 // analysisInputsWith is analysisInputs with the profiles from resolve (a
@@ -74,12 +74,12 @@ func analysisInputsWith(p *plan.Plan, resolve profileResolver) (analysis.Inputs,
 
 // analyse fits a plan's readings.
 func analyse(p *plan.Plan, readings []journal.Reading) (*analysis.Results, error) {
-	return analyseWith(p, readings, resolveFromPlan)
+	return analyseWith(p, readings, planProfiles(p))
 }
 
 func analyseWith(p *plan.Plan, readings []journal.Reading, resolve profileResolver) (*analysis.Results, error) {
 	if resolve == nil {
-		resolve = resolveFromPlan
+		resolve = planProfiles(p)
 	}
 	in, err := analysisInputsWith(p, resolve)
 	if err != nil {
@@ -189,6 +189,10 @@ type measureOptions struct {
 	// (run): the folder can then be re-reported on its own.
 	RunFolder bool
 	Skip      map[string]string // units to leave out, with the reason
+	// Profiles resolves the plan's profile entries (nil: from the plan,
+	// relative paths from its folder; resume from a run folder: the
+	// folder's copies).
+	Profiles profileResolver
 }
 
 func measure(ctx context.Context, std streams, o measureOptions) (campaignRecord, *procedure.Outcome, error) {
@@ -204,7 +208,11 @@ func measure(ctx context.Context, std streams, o measureOptions) (campaignRecord
 	if err := plan.CheckSafetyWith(p, hc); err != nil {
 		return rec, nil, safetyExit(err)
 	}
-	if err := checkBench(p); err != nil {
+	profiles := o.Profiles
+	if profiles == nil {
+		profiles = planProfiles(p)
+	}
+	if err := checkBenchWith(p, profiles); err != nil {
 		return rec, nil, err
 	}
 	if why := procedure.NeedsOperator(p); why != "" && !std.IsTerm && o.Operator == nil {
@@ -251,7 +259,7 @@ func measure(ctx context.Context, std streams, o measureOptions) (campaignRecord
 	}
 	defer jw.Close()
 
-	rig, closeBench, err := openBench(ctx, p, clock.Sleep)
+	rig, closeBench, err := openBench(ctx, p, profiles, clock.Sleep)
 	if err != nil {
 		return rec, nil, withCode(exitInstrument, err)
 	}

@@ -69,11 +69,16 @@ func runResume(ctx context.Context, std streams, o resumeOptions) error {
 		o.Journal = filepath.Join(o.Journal, runJournalName)
 	}
 	var (
-		p   *plan.Plan
-		err error
+		p        *plan.Plan
+		err      error
+		profiles profileResolver
 	)
 	if rf, ferr := openRunFolder(filepath.Dir(o.Journal)); ferr == nil && o.Plan == "" {
+		// The folder's copies of the profiles, checked against their
+		// hashes: a relative entry would otherwise be looked up beside
+		// the folder's copy of the plan.
 		p, _, err = planFromFolder(rf, o.Journal)
+		profiles = rf.resolver()
 	} else {
 		p, _, err = planForJournal(o.Journal, o.Plan)
 	}
@@ -83,6 +88,6 @@ func runResume(ctx context.Context, std streams, o resumeOptions) error {
 	if o.Out == "" {
 		o.Out = filepath.Dir(o.Journal)
 	}
-	rec, _, runErr := measure(ctx, std, measureOptions{Plan: p, JournalPath: o.Journal, Resume: true, AllowHazardous: o.AllowHazardous})
+	rec, _, runErr := measure(ctx, std, measureOptions{Plan: p, JournalPath: o.Journal, Resume: true, AllowHazardous: o.AllowHazardous, Profiles: profiles})
 	return finish(std, o.outputOptions, runErr, rec)
 }

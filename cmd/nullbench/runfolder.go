@@ -161,7 +161,7 @@ func copyRunInputs(dir string, p *plan.Plan) error {
 		spec := p.Bench.Instruments[n]
 		var pdata []byte
 		if instrument.IsProfilePath(spec.Profile) {
-			pdata, err = os.ReadFile(spec.Profile)
+			pdata, err = os.ReadFile(p.ProfilePath(spec.Profile))
 		} else {
 			pdata, err = instrument.BuiltinProfileSource(spec.Profile)
 		}
@@ -255,8 +255,12 @@ func shortHex(h string) string {
 // profile.
 type profileResolver func(instrumentName, profile string) (*instrument.Profile, error)
 
-func resolveFromPlan(_ string, profile string) (*instrument.Profile, error) {
-	return instrument.ResolveProfile(profile)
+// planProfiles resolves p's profile entries: built-in names, absolute
+// paths, and paths relative to the plan file's folder.
+func planProfiles(p *plan.Plan) profileResolver {
+	return func(_ string, profile string) (*instrument.Profile, error) {
+		return instrument.ResolveProfile(p.ProfilePath(profile))
+	}
 }
 
 // sealRunFolder records, after the outputs are written, the journal's seal

@@ -79,6 +79,7 @@ type genChannel struct {
 	offset   float64 // programmed offset, volts into the load setting
 	loadOhms float64 // load setting; +Inf for high impedance
 	on       bool
+	everOn   bool // the output has been on at some time (tests: Inspect)
 
 	refT, refPhase float64 // phase refPhase (rad) at bench time refT
 

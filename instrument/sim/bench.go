@@ -161,7 +161,7 @@ func New(cfg Config) (*Bench, error) {
 
 	m := &model{
 		ambientC: amb, seed: seed,
-		byChan: map[int]*unit{}, paths: map[int]*relayPath{}, closed: map[int]bool{},
+		byChan: map[int]*unit{}, paths: map[int]*relayPath{}, closed: map[int]bool{}, everClosed: map[int]bool{},
 		chamber: chamberModel{setC: amb, airC: amb, tauS: chamberTauSeconds, rampCPerS: chamberRampCPerS, rng: rngFor(5)},
 		openRng: rngFor(6),
 	}
@@ -603,6 +603,12 @@ type Snapshot struct {
 	// MostClosed is the most relays that were closed at once since the
 	// bench was built: 1 when every change was break before make.
 	MostClosed int
+	// GeneratorEverOn holds, per function-generator output, whether it
+	// has been on at some time since New.
+	GeneratorEverOn []bool
+	// EverClosed lists every relay closed at some time since New, even
+	// if open now.
+	EverClosed []int
 	Socket     string // id of the unit in the hand socket, "" when empty
 	Units      []UnitSnapshot
 }
@@ -613,6 +619,7 @@ type ChannelSnapshot struct {
 	ProgrammedVolts float64
 	LimitAmps       float64
 	On              bool
+	EverOn          bool    // the output has been on at some time since New
 	OutputVolts     float64 // actual output (supply: magnitude)
 	ConstantCurrent bool
 }
@@ -640,16 +647,23 @@ func (b *Bench) Inspect() Snapshot {
 	m.advance(b.benchSeconds())
 	s := Snapshot{BenchSeconds: m.t, SetPointC: m.chamber.setC, AirC: m.chamber.airC}
 	for i, c := range m.supply {
-		s.Supply = append(s.Supply, ChannelSnapshot{Channel: i + 1, ProgrammedVolts: c.progVolts, LimitAmps: c.limitAmps, On: c.on, OutputVolts: c.volts, ConstantCurrent: c.cc})
+		s.Supply = append(s.Supply, ChannelSnapshot{Channel: i + 1, ProgrammedVolts: c.progVolts, LimitAmps: c.limitAmps, On: c.on, EverOn: c.everOn, OutputVolts: c.volts, ConstantCurrent: c.cc})
 	}
 	for i, c := range m.source {
-		s.Source = append(s.Source, ChannelSnapshot{Channel: i + 1, ProgrammedVolts: c.progVolts, On: c.on, OutputVolts: c.volts})
+		s.Source = append(s.Source, ChannelSnapshot{Channel: i + 1, ProgrammedVolts: c.progVolts, On: c.on, EverOn: c.everOn, OutputVolts: c.volts})
 	}
 	for ch := range m.closed {
 		s.Closed = append(s.Closed, ch)
 	}
 	sort.Ints(s.Closed)
 	s.MostClosed = m.mostClosed
+	for _, g := range m.gen {
+		s.GeneratorEverOn = append(s.GeneratorEverOn, g != nil && (g.on || g.everOn))
+	}
+	for ch := range m.everClosed {
+		s.EverClosed = append(s.EverClosed, ch)
+	}
+	sort.Ints(s.EverClosed)
 	if m.socket != nil {
 		s.Socket = m.socket.id
 	}

@@ -56,6 +56,7 @@ func (g *genDevice) change(c *call, node int, fn func(ch *genChannel) error) err
 		*ch = saved
 		return errf(errSettings, "offset and amplitude exceed %g V peak open circuit", genMaxEMFVolts)
 	}
+	ch.everOn = ch.everOn || ch.on
 	b.m.checkDamage(b.m.connected())
 	return nil
 }

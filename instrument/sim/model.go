@@ -15,6 +15,7 @@ type outputChannel struct {
 	progVolts  float64
 	limitAmps  float64
 	on         bool
+	everOn     bool // the output has been on at some time (tests: Inspect)
 	minV, maxV float64
 
 	progGain, progOffset float64 // programming error: out = prog·(1+g) + o
@@ -133,6 +134,9 @@ type model struct {
 	paths      map[int]*relayPath // every channel ever closed
 	closed     map[int]bool
 	mostClosed int // the most relays closed at once since New (Snapshot.MostClosed)
+	// everClosed holds every relay closed at some time since New
+	// (tests: Inspect).
+	everClosed map[int]bool
 
 	// socket is the unit in the hand socket (nil when empty); socketPath
 	// its contacts' thermal EMF; offMatrix the units the person has taken

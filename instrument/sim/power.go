@@ -102,6 +102,9 @@ func (p *powerDevice) apply(f func()) {
 	defer p.b.mu.Unlock()
 	p.b.m.advance(p.b.benchSeconds())
 	f()
+	for _, c := range p.chans {
+		c.everOn = c.everOn || c.on
+	}
 	p.b.m.checkDamage(p.b.m.connected())
 }
 
@@ -299,6 +302,7 @@ func (s *switchDevice) setState(chs []int, closed bool) {
 	for _, ch := range chs {
 		if closed && !m.closed[ch] {
 			m.closed[ch] = true
+			m.everClosed[ch] = true
 			rp := m.paths[ch]
 			if rp == nil {
 				rp = newRelayPath(m.seed, ch)

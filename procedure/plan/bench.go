@@ -20,10 +20,15 @@ type BenchProfile struct {
 	// negative outputs (the profile's negative_channels): they can serve
 	// only supply_neg, bound with negative = true.
 	SupplyNegativeChannels []string
+	// Templates holds the command templates the profile gives, as
+	// "table.key"; nil when not known (no template checks then).
+	Templates map[string]bool
 }
 
-// ProfileLookup returns the profile a plan's entry names for an
-// instrument, or an error (unknown name, unreadable file).
+// ProfileLookup returns the profile a plan's entry (as written) names for
+// an instrument, or an error (unknown name, unreadable file). A lookup
+// reading files takes a relative entry from the plan's folder
+// (Plan.ProfilePath).
 type ProfileLookup func(instrument, profile string) (BenchProfile, error)
 
 // IsProfilePath says whether a profile entry names a file rather than a
@@ -32,12 +37,22 @@ func isProfilePath(s string) bool {
 	return strings.ContainsAny(s, `/\`) || strings.HasSuffix(s, ".toml")
 }
 
+// ProfilePath is where a profile entry of the plan is read from: a path
+// relative to the plan file's folder, an absolute path or a built-in
+// profile name unchanged. A plan and its profiles can so be moved and
+// checked from any folder.
+func (p *Plan) ProfilePath(entry string) string {
+	if !isProfilePath(entry) || filepath.IsAbs(entry) {
+		return entry
+	}
+	return filepath.Join(filepath.Dir(p.Source), filepath.FromSlash(entry))
+}
+
 // CheckBench checks the plan's bench against the instruments' profiles,
-// before any instrument contact: every profile entry is a built-in name or
-// an absolute path (a relative one would resolve against whatever folder
-// the tool is started from), every profile exists, every bound channel is
-// one the profile lists, and the supplies' current limit is within the
-// channel rating. Each problem names file, line and key.
+// before any instrument contact: every profile exists (a relative path
+// is taken from the plan file's folder, see ProfilePath), every bound
+// channel is one the profile lists, and the supplies' current limit is
+// within the channel rating. Each problem names file, line and key.
 func CheckBench(p *Plan, lookup ProfileLookup) error {
 	var errs Errors
 	add := func(key, problem, fix string) {
@@ -52,11 +67,6 @@ func CheckBench(p *Plan, lookup ProfileLookup) error {
 	for _, n := range names {
 		spec := p.Bench.Instruments[n]
 		key := "bench.instrument." + n + ".profile"
-		if isProfilePath(spec.Profile) && !filepath.IsAbs(spec.Profile) {
-			add(key, fmt.Sprintf("profile path %q is relative: it would be looked up from the folder the tool is started in", spec.Profile),
-				"give the absolute path of the profile file")
-			continue
-		}
 		bp, err := lookup(n, spec.Profile)
 		if err != nil {
 			add(key, fmt.Sprintf("profile %q: %v", spec.Profile, err), "name a built-in profile or an existing profile file")
@@ -82,9 +92,7 @@ func CheckBench(p *Plan, lookup ProfileLookup) error {
 		}
 		key := "bench.roles." + rc.role
 		if !bp.Roles[rc.kind] {
-			add(key+".instrument", fmt.Sprintf("instrument %s (profile %q) has no %s commands", b.Instrument, p.Bench.Instruments[b.Instrument].Profile, rc.kind),
-				"bind the role to an instrument whose profile has a ["+rc.kind+"] table")
-			continue
+			continue // checkRoleTemplates says so
 		}
 		chans := rc.channels(bp)
 		if b.Channel != "" && len(chans) > 0 && !contains(chans, b.Channel) {
@@ -106,6 +114,7 @@ func CheckBench(p *Plan, lookup ProfileLookup) error {
 				fmt.Sprintf("set at most %g A", bp.SupplyMaxAmps))
 		}
 	}
+	checkRoleTemplates(p, profiles, add)
 	if len(errs) == 0 {
 		return nil
 	}

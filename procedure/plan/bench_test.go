@@ -1,6 +1,7 @@
 package plan
 
 import (
+	"path/filepath"
 	"strings"
 	"testing"
 )
@@ -24,7 +25,7 @@ func TestCheckBench(t *testing.T) {
 		t.Fatal("no error")
 	}
 	for _, want := range []string{
-		`key "bench.instrument.src.profile": profile path "./src.toml" is relative`,
+		`key "bench.instrument.src.profile": profile "./src.toml": unknown`,
 		`key "bench.instrument.x.profile": profile "nosuch": unknown`,
 		`key "bench.roles.supply_neg.channel": instrument psu has no channel "3"`,
 		`key "part.current_limit_amps": current limit 5 A is beyond the 3 A rating of psu`,
@@ -78,5 +79,24 @@ func TestCheckBenchNegativeOutput(t *testing.T) {
 				t.Errorf("error %v, want %q", err, tc.want)
 			}
 		})
+	}
+}
+
+// TestProfilePath: relative profile paths are taken from the plan file's
+// folder; absolute paths and built-in names are left as they are.
+func TestProfilePath(t *testing.T) {
+	p := &Plan{Source: filepath.Join("lab", "plans", "p.toml")}
+	abs, _ := filepath.Abs(filepath.Join("x", "abs.toml"))
+	tests := []struct{ entry, want string }{
+		{"supply2", "supply2"},
+		{"my.toml", filepath.Join("lab", "plans", "my.toml")},
+		{"profiles/psu.toml", filepath.Join("lab", "plans", "profiles", "psu.toml")},
+		{"../shared/psu.toml", filepath.Join("lab", "shared", "psu.toml")},
+		{abs, abs},
+	}
+	for _, tt := range tests {
+		if got := p.ProfilePath(tt.entry); got != tt.want {
+			t.Errorf("ProfilePath(%q) = %q, want %q", tt.entry, got, tt.want)
+		}
 	}
 }
