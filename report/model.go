@@ -50,6 +50,13 @@ type Campaign struct {
 	Closures    []ClosureRow // CMRR/PSRR closure checks (the identity derived in fit/doc.go), optional
 	Boards      []BoardRow   // finished-board CMRR against worst-case limits, optional
 
+	// Frequency response (see freq.go), optional: one FreqResult per unit ×
+	// test × temperature × frequency, their budget rows, and one
+	// single-pole fit per unit × test × temperature.
+	FreqResults []FreqResult
+	FreqBudgets []FreqBudgetRow
+	FreqFits    []FreqFitRow
+
 	// ReportID identifies this report (e.g. the plan hash and journal seal
 	// shortened); it is printed in every page header.
 	ReportID string

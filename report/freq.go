@@ -1,0 +1,109 @@
+package report
+
+// Frequency-response input types. The caller (cmd/nullbench) maps the
+// analysis's per-frequency results, single-pole fits and budgets into
+// these; report imports nothing of ours. The conventions of model.go hold:
+// NaN is "not available", units are in the field names, user and
+// instrument text is written as literal text.
+
+// FreqResult is the judged outcome of one unit × test × temperature at one
+// stimulus frequency. The embedded Result carries the figures as at DC,
+// with these differences:
+//   - CoefficientUVPerV is the magnitude |k(f)| ≥ 0 of the input-referred
+//     complex coefficient (response/stimulus, referred to the input by the
+//     fixture's gain at f), in µV/V; its sign lives in PhaseDeg;
+//   - RatioDB = 20·log10(10⁶ / |k(f)|) (JEDEC JESD99B, as at DC);
+//   - ExpandedUDB, CoverageK, DOFEffective, Resolved, LowerBoundDB,
+//     LimitDB (the limit at this frequency), Verdict, Rule (the decision
+//     rule, e.g. "guarded"), Flags and Notes mean what they mean at DC;
+//   - PredictedUUVPerV is NaN unless the caller has a prediction.
+type FreqResult struct {
+	Result
+	// Part and Lot name the part or board and its lot when they differ
+	// from the campaign's ("" = the campaign's Part / Lot).
+	Part string
+	Lot  string
+	// Quantity is the name the charts print, e.g. "CMRR", "PSRR+" ("" =
+	// Test).
+	Quantity string
+	// FrequencyHz is the stimulus frequency (> 0; a result at 0 Hz is a
+	// DC Result, not a FreqResult).
+	FrequencyHz float64
+	// Instrument is what measured the response: "digitizer" (magnitude
+	// and phase from IEEE Std 1057 sine fits) or "ac_meter" (magnitude
+	// only, HasPhase false).
+	Instrument string
+	// PhaseDeg is arg k(f) in degrees, in (−180, 180]: the phase of the
+	// input-referred response relative to the stimulus, positive when the
+	// response leads the stimulus. PhaseExpandedUDeg is its expanded
+	// uncertainty U = k·u (same CoverageK). Both NaN when HasPhase is false.
+	PhaseDeg          float64
+	PhaseExpandedUDeg float64
+	HasPhase          bool
+	// NoiseFloorDB is the largest ratio the setup resolves at this
+	// frequency (from a record with the stimulus off); a ratio above it
+	// is not resolved and only LowerBoundDB states something about the
+	// part. NaN: no floor record.
+	NoiseFloorDB float64
+}
+
+// QuantityName is the name charts and tables print for r.
+func (r FreqResult) QuantityName() string {
+	if r.Quantity != "" {
+		return r.Quantity
+	}
+	return r.Test
+}
+
+// FreqBudgetRow is one uncertainty-budget component (GUM §5.1) of a
+// frequency-response result. For Quantity "magnitude" (or "") the
+// embedded BudgetRow's Sensitivity and Contribution are in µV/V per
+// ValueUnit and µV/V as at DC; for Quantity "phase" they are in degrees
+// per ValueUnit and degrees.
+type FreqBudgetRow struct {
+	BudgetRow
+	Part        string
+	FrequencyHz float64
+	Quantity    string // "magnitude" or "phase"
+}
+
+// FreqFitRow is the single-pole model fitted across frequencies for one
+// unit × test × temperature,
+//
+//	|k(f)| = |k_0|·√(1 + (f/f_c)²),  i.e.  R(f) = R_0 − 10·log10(1 + (f/f_c)²) dB
+//
+// (one real pole; Sedra & Smith, Microelectronic Circuits, single-time-constant
+// networks; cited from memory), with the
+// DC cross-check of R_0 against the unit's DC result of the same test.
+type FreqFitRow struct {
+	Unit         string
+	Part         string // "" = the campaign's
+	Lot          string // "" = the campaign's
+	Test         string
+	Quantity     string // e.g. "CMRR"; "" = Test
+	TemperatureC float64
+	Points       int // frequencies in the fit
+	// LowFreqRatioDB is R_0 with its expanded uncertainty; CornerHz is
+	// f_c with its expanded uncertainty (both at CoverageK).
+	LowFreqRatioDB     float64
+	LowFreqExpandedUDB float64
+	CornerHz           float64
+	CornerExpandedUHz  float64
+	CoverageK          float64
+	// CornerResolved is false when the data do not show the corner: then
+	// only CornerLowerBoundHz (f_c above it) is a statement.
+	CornerResolved     bool
+	CornerLowerBoundHz float64
+	Note               string // why there is no fit, or what limits it
+	// DC cross-check: DCRatioDB ± DCExpandedUDB is the unit's DC result,
+	// DCDiffDB = R_0 − DCRatioDB with expanded uncertainty
+	// DCDiffExpandedUDB; DCConsistent when |DCDiffDB| ≤ DCDiffExpandedUDB.
+	// DCChecked false: no DC result to compare (DCNote says why).
+	DCChecked         bool
+	DCRatioDB         float64
+	DCExpandedUDB     float64
+	DCDiffDB          float64
+	DCDiffExpandedUDB float64
+	DCConsistent      bool
+	DCNote            string
+}
