@@ -74,6 +74,7 @@ func printFreqSummary(w io.Writer, rec campaignRecord) {
 		return
 	}
 	fmt.Fprintf(w, "\nFrequency response (%s):\n", rec.Plan.Source)
+	fmt.Fprintf(w, "  ratio in dB referred to the input, ± expanded uncertainty at 95 %% coverage; phase of the input-referred coefficient k(f) in degrees\n")
 	for _, r := range rec.Freq {
 		fmt.Fprintf(w, "  %s %s (%s, %.1f °C)\n", r.Unit, r.Quantity, r.Test, r.TemperatureC)
 		for _, pt := range r.Points {
