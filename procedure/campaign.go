@@ -7,7 +7,9 @@ import (
 	"time"
 
 	"nullbench/procedure/journal"
+	"nullbench/procedure/operator"
 	"nullbench/procedure/plan"
+	"nullbench/procedure/safety"
 )
 
 // enterTemperature brings the campaign to temperature pass ti (point °C):
@@ -39,13 +41,13 @@ func (r *runner) enterTemperature(ctx context.Context, ti int, point float64) er
 	case plan.TempThermometer:
 		if len(tp.PointsCelsius) > 1 {
 			r.at.stage = stageTemperature
-			if _, err := r.opt.Operator.Temperature(ctx, TemperatureRequest{PointCelsius: point, Index: ti + 1, Of: len(r.temps)}); err != nil {
+			if _, err := r.opt.Operator.Temperature(ctx, operator.TemperatureRequest{PointCelsius: point, Index: ti + 1, Of: len(r.temps)}); err != nil {
 				return fmt.Errorf("operator: temperature %g °C: %w", point, err)
 			}
 		}
 	case plan.TempManual:
 		r.at.stage = stageTemperature
-		c, err := r.opt.Operator.Temperature(ctx, TemperatureRequest{PointCelsius: point, Index: ti + 1, Of: len(r.temps), Typed: true})
+		c, err := r.opt.Operator.Temperature(ctx, operator.TemperatureRequest{PointCelsius: point, Index: ti + 1, Of: len(r.temps), Typed: true})
 		if err != nil {
 			return fmt.Errorf("operator: temperature %g °C: %w", point, err)
 		}
@@ -83,7 +85,7 @@ func (r *runner) rampChamber(ctx context.Context, target float64) error {
 		if err := r.clk.Sleep(ctx, tick); err != nil {
 			return err
 		}
-		sp = plan.StepToward(sp, target, step)
+		sp = safety.StepToward(sp, target, step)
 		if err := ch.SetPointCelsius(ctx, sp); err != nil {
 			return fmt.Errorf("chamber: set point %g °C: %w", sp, err)
 		}

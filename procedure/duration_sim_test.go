@@ -9,6 +9,7 @@ import (
 	"time"
 
 	"nullbench/instrument/sim"
+	"nullbench/procedure/clock"
 	"nullbench/procedure/estimate"
 	"nullbench/procedure/plan"
 )
@@ -17,7 +18,7 @@ import (
 // starts (the runner's note after configuring the meter) and each point
 // ends, on the run's clock.
 type timedProgress struct {
-	clk    Clock
+	clk    clock.Clock
 	starts map[string]float64 // "unit/test index/temp" -> bench s
 	ends   map[string]float64
 	temp   int

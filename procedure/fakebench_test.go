@@ -10,8 +10,11 @@ import (
 	"time"
 
 	"nullbench/instrument"
+	"nullbench/procedure/clock"
 	"nullbench/procedure/journal"
+	"nullbench/procedure/operator"
 	"nullbench/procedure/plan"
+	"nullbench/procedure/safety"
 )
 
 // fakeBench is an in-memory bench for the runner's tests. Every call is
@@ -33,7 +36,7 @@ import (
 type fakeBench struct {
 	mu  sync.Mutex
 	p   *plan.Plan
-	clk *ManualClock
+	clk *clock.Manual
 
 	calls []fakeCall
 	out   map[string]*fakeOutput // role -> output
@@ -108,7 +111,7 @@ type fakeSetPoint struct {
 }
 
 func newFakeBench(p *plan.Plan) *fakeBench {
-	fb := &fakeBench{p: p, clk: &ManualClock{}, out: map[string]*fakeOutput{}, closed: map[string]bool{},
+	fb := &fakeBench{p: p, clk: &clock.Manual{}, out: map[string]*fakeOutput{}, closed: map[string]bool{},
 		sp: p.Temperature.AmbientCelsius, air: p.Temperature.AmbientCelsius, chamberTau: 2 * time.Minute,
 		k: 1000, vos: 20e-6, kc: 3e-6, kp: 5e-6, ko: 1e-6, boardGain: p.Fixture.BoardGain}
 	for _, r := range []string{plan.RoleSupplyPos, plan.RoleSupplyNeg, plan.RoleSourceCM, plan.RoleSourceDiff, plan.RoleSourceRef} {
@@ -215,7 +218,7 @@ func (fb *fakeBench) setVolts(ctx context.Context, role string, v float64) error
 		return err
 	}
 	o := fb.out[role]
-	if o.on && math.Abs(v-o.volts) > plan.RampStep(fb.p)+1e-9 {
+	if o.on && math.Abs(v-o.volts) > safety.RampStep(fb.p)+1e-9 {
 		fb.violations = append(fb.violations, fmt.Sprintf("call %d (%s): step of %g V on a live output", len(fb.calls), c, v-o.volts))
 	}
 	if o.volts != v && o.on {
@@ -506,7 +509,7 @@ type fakeOperator struct {
 	ids      map[string]string // plan id -> id to answer ("" = confirm)
 	temps    []float64         // answers to Temperature, in order
 	swaps    []string
-	requests []TemperatureRequest
+	requests []operator.TemperatureRequest
 	swapErr  error
 	skip     map[string]string // plan id -> reason to skip it
 	hot      []string          // swaps asked while powered
@@ -524,12 +527,12 @@ func (o *fakeOperator) SwapUnit(ctx context.Context, next plan.Unit) (string, er
 		return "", o.swapErr
 	}
 	if why, ok := o.skip[next.ID]; ok {
-		return "", &SkipUnitError{Unit: next.ID, Reason: why}
+		return "", &operator.SkipUnitError{Unit: next.ID, Reason: why}
 	}
 	return o.ids[next.ID], nil
 }
 
-func (o *fakeOperator) Temperature(ctx context.Context, req TemperatureRequest) (float64, error) {
+func (o *fakeOperator) Temperature(ctx context.Context, req operator.TemperatureRequest) (float64, error) {
 	o.requests = append(o.requests, req)
 	if len(o.temps) == 0 {
 		return 0, errors.New("no more temperatures scripted")

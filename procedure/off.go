@@ -6,14 +6,16 @@ import (
 	"fmt"
 	"io"
 
+	"nullbench/procedure/clock"
 	"nullbench/procedure/plan"
+	"nullbench/procedure/safety"
 )
 
 // OffOptions are the options of Off.
 type OffOptions struct {
-	Clock  Clock     // nil: the plan's scaled wall clock
-	Log    io.Writer // one line per action; nil discards
-	Timing Timing    // RampDwell and SafeCallTimeout are used
+	Clock  clock.Clock // nil: the plan's scaled wall clock
+	Log    io.Writer   // one line per action; nil discards
+	Timing Timing      // RampDwell and SafeCallTimeout are used
 }
 
 // OffReport says what Off did per role.
@@ -25,7 +27,7 @@ type OffReport struct {
 // state without measuring: every source the plan binds is read back,
 // ramped to 0 V in steps of at most safety.ramp_step_volts and switched
 // off, BEFORE the supplies are ramped down and switched off (the order of
-// plan.PowerDownOrder: the inputs never stay driven while the rails are
+// safety.PowerDownOrder: the inputs never stay driven while the rails are
 // gone); then the switch opens every channel and the chamber's set point
 // returns to temperature.ambient_c. It carries on past a failing
 // instrument so that the others still reach their safe state, and returns
@@ -68,7 +70,7 @@ func Off(ctx context.Context, p *plan.Plan, rig *Rig, opt OffOptions) (*OffRepor
 			if v != 0 {
 				note("%s: ramping to 0 V %s", role, how)
 			}
-			for _, step := range rampTo(v, 0, plan.RampStep(p)) {
+			for _, step := range rampTo(v, 0, safety.RampStep(p)) {
 				if err = call(func(c context.Context) error { return o.SetVolts(c, step) }); err != nil {
 					errs = append(errs, fmt.Errorf("%s: ramp to 0 V at %s: %w", role, plan.FormatVolts(step), err))
 					break
@@ -99,7 +101,7 @@ func Off(ctx context.Context, p *plan.Plan, rig *Rig, opt OffOptions) (*OffRepor
 			note("generator output %s: off", ch)
 		}
 	}
-	for _, role := range plan.SourceRoles(p) {
+	for _, role := range safety.SourceRoles(p) {
 		if src := r.source(role); src != nil {
 			down(role, src, false)
 		}

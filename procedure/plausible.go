@@ -7,6 +7,7 @@ import (
 
 	"nullbench/instrument"
 	"nullbench/procedure/plan"
+	"nullbench/procedure/safety"
 )
 
 // Read-backs are never trusted blindly. A supply or source answers with
@@ -40,7 +41,7 @@ func (r *runner) plausibleReadBack(role string, v, programmed float64) error {
 		return fmt.Errorf("%s: read-back %s is %.3g V from the programmed %s (more than %.3g V): %w",
 			role, plan.FormatVolts(v), d, plan.FormatVolts(programmed), readBackSlack(programmed), instrument.ErrImplausible)
 	}
-	if lim := plan.MaxProgrammedVolts(r.p, role); math.Abs(v) > lim+readBackSlack(lim) {
+	if lim := safety.MaxProgrammedVolts(r.p, role); math.Abs(v) > lim+readBackSlack(lim) {
 		return fmt.Errorf("%s: read-back %s exceeds the largest voltage the plan programs on it (%s): %w",
 			role, plan.FormatVolts(v), plan.FormatVolts(lim), instrument.ErrImplausible)
 	}
@@ -71,7 +72,7 @@ type voltReader interface {
 // start is always finite and within what the plan could program, so the
 // ramp's length is bounded by the plan, never by an answer.
 func (r *runner) rampStart(ctx context.Context, role string, o voltReader, programmed float64, known bool) (start float64, ok bool, how string) {
-	lim := plan.MaxProgrammedVolts(r.p, role)
+	lim := safety.MaxProgrammedVolts(r.p, role)
 	if !known && isSourceRole(role) {
 		// A source the operator left on by hand may sit at a level the
 		// plan never programs; it is plausible up to the part's supply
@@ -136,7 +137,7 @@ const maxRampPoints = 100000
 // noteTried records the voltage of a failed set command: the instrument
 // may have applied it, so the safe state treats the larger of it and the
 // last good value as programmed.
-func (r *runner) noteTried(a plan.PowerAction) {
+func (r *runner) noteTried(a safety.PowerAction) {
 	if r.tried == nil {
 		r.tried = map[string]float64{}
 	}
@@ -170,7 +171,7 @@ func (r *runner) resolveUnsure(ctx context.Context) {
 		}
 		v, _, how := r.rampStart(ctx, role, o, programmed, true)
 		r.note("safe state: %s ramps down %s", role, how)
-		r.state = plan.ApplyAction(r.state, plan.PowerAction{Op: plan.PowerSetVolts, Role: role, Volts: v})
+		r.state = safety.ApplyAction(r.state, safety.PowerAction{Op: safety.PowerSetVolts, Role: role, Volts: v})
 		delete(r.unsure, role)
 		delete(r.tried, role)
 	}

@@ -17,6 +17,7 @@ import (
 	"nullbench/procedure/analysis"
 	"nullbench/procedure/journal"
 	"nullbench/procedure/plan"
+	"nullbench/procedure/safety"
 )
 
 // hostileSupply is a small test proxy in front of a real driver on the
@@ -161,7 +162,7 @@ func TestSafeStateAbsurdReadBackAfterFailedSet(t *testing.T) {
 			if !strings.Contains(log, "supply_pos ramps down from the programmed") {
 				t.Errorf("the log does not say where the ramp started:\n%s", log)
 			}
-			checkRampDown(t, hs.commanded(), plan.MaxProgrammedVolts(su.plan, plan.RoleSupplyPos), plan.RampStep(su.plan))
+			checkRampDown(t, hs.commanded(), safety.MaxProgrammedVolts(su.plan, plan.RoleSupplyPos), safety.RampStep(su.plan))
 		})
 	}
 }
@@ -228,14 +229,14 @@ func TestStartupSwitchOffAbsurdReadBack(t *testing.T) {
 					break
 				}
 			}
-			if len(off) == 0 || off[0] > 15 || off[0] < 15-plan.RampStep(su.plan)-0.01 {
+			if len(off) == 0 || off[0] > 15 || off[0] < 15-safety.RampStep(su.plan)-0.01 {
 				t.Errorf("switch-off commands %v: want the first within one ramp step below the 15 V programmed", off)
 			}
 			for i, v := range off {
 				if v > 15 {
 					t.Errorf("switch-off commanded %g V, above the 15 V programmed: %v", v, off)
 				}
-				if i > 0 && (v > off[i-1] || off[i-1]-v > plan.RampStep(su.plan)+1e-9) {
+				if i > 0 && (v > off[i-1] || off[i-1]-v > safety.RampStep(su.plan)+1e-9) {
 					t.Errorf("switch-off step %g V -> %g V goes up or exceeds the ramp step: %v", off[i-1], v, off)
 				}
 			}

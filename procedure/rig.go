@@ -60,7 +60,7 @@ func (r *Rig) check(p *plan.Plan) error {
 			missing = append(missing, fmt.Sprintf("%s (%s)", need.Role, need.Why))
 		}
 	}
-	// The power sequences drive every bound supply and source (PowerUpOrder
+	// The power sequences drive every bound supply and source (safety.PowerUpOrder
 	// switches a bound source off at 0 V even when no test uses it).
 	for _, role := range []string{plan.RoleSupplyPos, plan.RoleSupplyNeg, plan.RoleSourceCM, plan.RoleSourceDiff, plan.RoleSourceRef} {
 		if !seen[role] && p.Bench.Roles.Get(role).Bound() && !r.has(role) {

@@ -9,9 +9,12 @@ import (
 	"strings"
 	"time"
 
+	"nullbench/procedure/clock"
 	"nullbench/procedure/estimate"
 	"nullbench/procedure/journal"
+	"nullbench/procedure/operator"
 	"nullbench/procedure/plan"
+	"nullbench/procedure/safety"
 )
 
 // RunOptions configure Run. Every field may be left zero.
@@ -25,19 +28,19 @@ type RunOptions struct {
 	// journal.Resume); nil starts fresh. Points it holds are skipped
 	// exactly and their readings are returned in Outcome.Readings.
 	Resume *journal.Contents
-	// Clock is the bench time base; nil means NewScaledClock with the
+	// Clock is the bench time base; nil means clock.NewScaled with the
 	// plan's bench.time_scale.
-	Clock Clock
+	Clock clock.Clock
 	// Operator swaps units by hand and types temperatures. A plan that
-	// needs one (NeedsOperator) is refused when it is nil.
-	Operator Operator
+	// needs one (operator.NeedsOperator) is refused when it is nil.
+	Operator operator.Operator
 	// Progress receives progress; nil discards it.
 	Progress Progress
 	// Log receives one line per event and point, in words; nil discards.
 	Log io.Writer
 	// Consent is the operator's consent to a hazardous plan
-	// (CheckSafetyWith).
-	Consent plan.HazardConsent
+	// (safety.CheckSafetyWith).
+	Consent safety.HazardConsent
 	// Timing sets the sequencer's own waits; zero fields take defaults.
 	Timing Timing
 	// Skip leaves units out (unit id → reason: socket empty, part
@@ -123,7 +126,7 @@ type Outcome struct {
 // settle, averages the meter and reads back the stimulus, journals the
 // reading, and powers the part down again.
 //
-// Before any instrument contact it re-runs CheckSafetyWith (with
+// Before any instrument contact it re-runs safety.CheckSafetyWith (with
 // opt.Consent), checks that the rig has every role the plan needs and that
 // an Operator is there when the plan needs one, and, when resuming, that
 // the journal belongs to this plan. A refusal returns (nil, err) and
@@ -143,7 +146,7 @@ func Run(ctx context.Context, p *plan.Plan, rig *Rig, opt RunOptions) (*Outcome,
 	if p == nil {
 		return nil, errors.New("run: no plan")
 	}
-	if err := plan.CheckSafetyWith(p, opt.Consent); err != nil {
+	if err := safety.CheckSafetyWith(p, opt.Consent); err != nil {
 		return nil, err
 	}
 	if err := rig.check(p); err != nil {
@@ -152,12 +155,12 @@ func Run(ctx context.Context, p *plan.Plan, rig *Rig, opt RunOptions) (*Outcome,
 	if err := checkTimeScale(p, rig); err != nil {
 		return nil, err
 	}
-	if why := NeedsOperator(p); why != "" && opt.Operator == nil {
+	if why := operator.NeedsOperator(p); why != "" && opt.Operator == nil {
 		return nil, fmt.Errorf("%s, but there is no operator to ask (run it from an interactive terminal)", why)
 	}
-	if NeedsOperator(p) != "" && opt.Operator != nil {
+	if operator.NeedsOperator(p) != "" && opt.Operator != nil {
 		for i, t := range p.ACTests {
-			if _, ok := opt.Operator.(ThroughOperator); t.Through == plan.ThroughManual && !ok {
+			if _, ok := opt.Operator.(operator.ThroughOperator); t.Through == plan.ThroughManual && !ok {
 				return nil, fmt.Errorf("ac_test[%d] has through = \"manual\", but the operator cannot be asked to move a probe", i+1)
 			}
 		}
@@ -307,7 +310,7 @@ type runner struct {
 	rig    *Rig
 	opt    RunOptions
 	timing Timing
-	clk    Clock
+	clk    clock.Clock
 	log    io.Writer
 	prog   Progress
 	jw     *journal.Writer
@@ -330,7 +333,7 @@ type runner struct {
 	chamber           bool            // the chamber's set point was changed
 	at                position
 	tempC             float64 // temperature recorded with readings when not read per point
-	eta               etaEstimator
+	eta               *estimate.Remaining
 	finished          int // points done, recovered included
 	// skipped holds the units skipped so far (journalled), pending the
 	// ones asked for in RunOptions.Skip that the run has not reached yet.
@@ -342,7 +345,7 @@ func newRunner(p *plan.Plan, rig *Rig, opt RunOptions) *runner {
 		clk: opt.Clock, log: opt.Log, prog: opt.Progress, jw: opt.Journal,
 		out: &Outcome{}, temps: p.TemperaturePoints(), srcSafe: map[string]bool{}, unsure: map[string]bool{}}
 	if r.clk == nil {
-		r.clk = NewScaledClock(p.Bench.TimeScale)
+		r.clk = clock.NewScaled(p.Bench.TimeScale)
 	}
 	if r.log == nil {
 		r.log = io.Discard
@@ -354,12 +357,12 @@ func newRunner(p *plan.Plan, rig *Rig, opt RunOptions) *runner {
 	t := r.timing
 	figs.Waits = estimate.SequencerWaits{RampDwellSeconds: t.RampDwell.Seconds(), RelaySettleSeconds: t.RelaySettle.Seconds(),
 		SettleIntervalSeconds: t.SettleInterval.Seconds(), SoakIntervalSeconds: t.SoakInterval.Seconds(), ChamberTickSeconds: t.ChamberTick.Seconds()}
-	r.eta = newETA(figs.Timeline(p))
+	r.eta = estimate.NewRemaining(figs.Timeline(p))
 	if r.prog == nil {
 		r.prog = NopProgress{}
 	}
-	for _, role := range plan.SourceRoles(p) {
-		r.srcSafe[role] = true // untouched: its output is as the operator left it; PowerUpOrder switches it off first
+	for _, role := range safety.SourceRoles(p) {
+		r.srcSafe[role] = true // untouched: its output is as the operator left it; safety.PowerUpOrder switches it off first
 	}
 	if c := opt.Resume; c != nil {
 		r.done = c.Done()
@@ -381,7 +384,7 @@ func newRunner(p *plan.Plan, rig *Rig, opt RunOptions) *runner {
 			if gap := time.Since(last.Time); gap > 0 && !last.Time.IsZero() {
 				off += time.Duration(float64(gap) * timeScale(p))
 			}
-			r.clk = offsetClock{Clock: r.clk, offset: off}
+			r.clk = clock.Offset(r.clk, off)
 		}
 	} else {
 		r.done = (&journal.Contents{}).Done()
@@ -516,7 +519,7 @@ func (r *runner) campaign(ctx context.Context) error {
 			}
 			r.at.unit, r.at.test, r.at.atStep = u.ID, -1, false
 			if err := r.connectUnit(ctx, ti, u); err != nil {
-				if reason, ok := SkipReason(err); ok {
+				if reason, ok := operator.SkipReason(err); ok {
 					r.skipUnit(ti, u.ID, reason)
 					continue
 				}
@@ -555,7 +558,7 @@ func (r *runner) finish(ctx context.Context) error {
 		}
 		r.event(journal.Event{Type: journal.EventTemperatureSet, TemperatureC: amb, Detail: "campaign over: chamber set back to ambient"})
 	}
-	if r.rig.Switch != nil && !handSwap(r.p) {
+	if r.rig.Switch != nil && !operator.HandSwap(r.p) {
 		r.at.stage = stageOpenSwitch
 		if err := r.rig.Switch.OpenAll(ctx); err != nil {
 			return fmt.Errorf("switch: open all: %w", err)

@@ -11,6 +11,7 @@ import (
 	"nullbench/fit"
 	"nullbench/instrument"
 	"nullbench/procedure/journal"
+	"nullbench/procedure/operator"
 	"nullbench/procedure/plan"
 )
 
@@ -32,15 +33,6 @@ import (
 // not journalled: 20 000 samples × 2 channels per record would make a
 // campaign's journal tens of megabytes). An AC voltmeter's records are its
 // two RMS readings.
-
-// ThroughOperator is an Operator that can also be asked to move the
-// digitizer's channel-2 probe for a manual through calibration
-// (through = "manual"). LineOperator implements it.
-type ThroughOperator interface {
-	// MoveProbe shows msg (what to connect where) and returns when the
-	// operator confirms.
-	MoveProbe(ctx context.Context, msg string) error
-}
 
 // GeneratorLimiter is a Generator that can program its own output limits
 // (an instrument-side amplitude/offset limit). The runner sets them from
@@ -332,7 +324,7 @@ func (r *runner) acFrequency(ctx context.Context, ti int, unit string, t *plan.A
 // operator moving the probe.
 func (r *runner) throughOn(ctx context.Context, t *plan.ACTest, unit string) error {
 	if t.Through == plan.ThroughManual {
-		op, _ := r.opt.Operator.(ThroughOperator)
+		op, _ := r.opt.Operator.(operator.ThroughOperator)
 		if op == nil {
 			return fmt.Errorf("through = \"manual\" needs an operator to move the probe, and there is none")
 		}
@@ -349,7 +341,7 @@ func (r *runner) throughOn(ctx context.Context, t *plan.ACTest, unit string) err
 
 func (r *runner) throughOff(ctx context.Context, t *plan.ACTest, unit string) error {
 	if t.Through == plan.ThroughManual {
-		op, _ := r.opt.Operator.(ThroughOperator)
+		op, _ := r.opt.Operator.(operator.ThroughOperator)
 		if op == nil {
 			return fmt.Errorf("through = \"manual\" needs an operator to move the probe, and there is none")
 		}

@@ -14,6 +14,7 @@ import (
 
 	"nullbench/instrument"
 	"nullbench/procedure/journal"
+	"nullbench/procedure/operator"
 	"nullbench/procedure/plan"
 )
 
@@ -475,7 +476,7 @@ func TestRunACMeterManualThrough(t *testing.T) {
 	rig := a.rig()
 	rig.Digitizer = nil
 	rig.ACMeters = []instrument.ACVoltmeter{&fakeACMeter{a, 1}, &fakeACMeter{a, 2}}
-	if why := NeedsOperator(p); !strings.Contains(why, "manual") {
+	if why := operator.NeedsOperator(p); !strings.Contains(why, "manual") {
 		t.Fatalf("NeedsOperator = %q", why)
 	}
 	_, err := Run(context.Background(), p, rig, RunOptions{Clock: fb.clk, Operator: &fakeOperator{fb: fb}})

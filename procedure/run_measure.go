@@ -88,7 +88,7 @@ func (r *runner) record(rd journal.Reading, t *plan.Test, st plan.Step, sweepLen
 	}
 	r.finished++
 	left := r.out.Total - r.finished
-	eta := r.eta.point(journal.KeyOf(rd), r.clk.Now(), left)
+	eta := r.eta.Point(journal.KeyOf(rd), r.clk.Now(), left)
 	info := PointInfo{Unit: rd.Unit, Test: t.Kind, TestIndex: st.Test, Part: st.Part, TemperatureC: rd.TemperatureC,
 		Repeat: rd.Repeat, Step: rd.Step, Steps: sweepLen, LevelVolts: st.LevelVolts,
 		Done: r.finished, Total: r.out.Total, Left: eta,
@@ -107,7 +107,7 @@ func (r *runner) record(rd journal.Reading, t *plan.Test, st plan.Step, sweepLen
 // dwell, wait for the output to settle, read back the stimulus, average
 // the meter, read the temperature.
 func (r *runner) point(ctx context.Context, t *plan.Test, st plan.Step, key plan.WorkKey) (journal.Reading, error) {
-	r.eta.begin(key, r.clk.Now())
+	r.eta.Begin(key, r.clk.Now())
 	r.at.stage = stageLevel
 	if err := r.moveTo(ctx, st.State); err != nil {
 		return journal.Reading{}, err

@@ -9,16 +9,18 @@ import (
 
 	"nullbench/instrument"
 	"nullbench/procedure/journal"
+	"nullbench/procedure/operator"
 	"nullbench/procedure/plan"
+	"nullbench/procedure/safety"
 )
 
-// powerUp runs PowerUpOrder: sources off at 0 V, current limits, supplies
+// powerUp runs safety.PowerUpOrder: sources off at 0 V, current limits, supplies
 // on at 0 V and ramped to nominal, then the sources on at 0 V.
 func (r *runner) powerUp(ctx context.Context) error {
 	r.at.stage = stagePowerUp
 	r.note("unit %s: powering up (V+ %s, V- %s, current limit %g A)", r.at.unit,
 		plan.FormatVolts(r.p.Part.NominalPosVolts), plan.FormatVolts(r.p.Part.NominalNegVolts), r.p.Part.CurrentLimitAmps)
-	if err := r.execute(ctx, plan.PowerUpOrder(r.p)); err != nil {
+	if err := r.execute(ctx, safety.PowerUpOrder(r.p)); err != nil {
 		return err
 	}
 	if err := r.checkSupplyCurrent(ctx); err != nil {
@@ -85,7 +87,7 @@ func (r *runner) benchOff(ctx context.Context) error {
 		} else if v != 0 {
 			r.note("%s: ramping to 0 V %s", role, how)
 		}
-		for _, step := range rampTo(v, 0, plan.RampStep(r.p)) {
+		for _, step := range rampTo(v, 0, safety.RampStep(r.p)) {
 			if err := o.SetVolts(ctx, step); err != nil {
 				return fmt.Errorf("%s: ramp to 0 V before the first unit: %w", role, err)
 			}
@@ -107,7 +109,7 @@ func (r *runner) benchOff(ctx context.Context) error {
 	if errs := r.generatorsOff(ctx, 0); len(errs) > 0 {
 		return fmt.Errorf("before the first unit: %w", errs[0])
 	}
-	for _, role := range plan.SourceRoles(r.p) {
+	for _, role := range safety.SourceRoles(r.p) {
 		if src := r.source(role); src != nil {
 			if err := down(role, src, false); err != nil {
 				return err
@@ -158,7 +160,7 @@ func rampTo(v, target, step float64) []float64 {
 // and off, then the rails ramped down and off.
 func (r *runner) powerDown(ctx context.Context) error {
 	r.at.stage = stagePowerDown
-	if err := r.execute(ctx, plan.PowerDownFrom(r.p, r.state)); err != nil {
+	if err := r.execute(ctx, safety.PowerDownFrom(r.p, r.state)); err != nil {
 		return err
 	}
 	r.powered = false
@@ -170,7 +172,7 @@ func (r *runner) powerDown(ctx context.Context) error {
 // moveTo ramps the bench from its present state to s (Transition checks
 // every intermediate state against the plan's absolute maxima).
 func (r *runner) moveTo(ctx context.Context, s plan.BenchState) error {
-	acts, err := plan.Transition(r.p, r.state, s)
+	acts, err := safety.Transition(r.p, r.state, s)
 	if err != nil {
 		return err
 	}
@@ -183,13 +185,13 @@ func (r *runner) moveTo(ctx context.Context, s plan.BenchState) error {
 // profile's settle wait, the exchange itself) counts towards it, so the
 // dwell is a minimum, not an extra wait on top of the driver's. It stops
 // at the first error.
-func (r *runner) execute(ctx context.Context, acts []plan.PowerAction) error {
+func (r *runner) execute(ctx context.Context, acts []safety.PowerAction) error {
 	for _, a := range acts {
 		sent := r.clk.Now()
 		if err := r.do(ctx, a); err != nil {
 			return err
 		}
-		if a.Op == plan.PowerSetVolts {
+		if a.Op == safety.PowerSetVolts {
 			if rest := r.timing.RampDwell - (r.clk.Now() - sent); rest > 0 {
 				if err := r.clk.Sleep(ctx, rest); err != nil {
 					return err
@@ -203,17 +205,17 @@ func (r *runner) execute(ctx context.Context, acts []plan.PowerAction) error {
 // do sends one action to its role and tracks the programmed state. The
 // error names the role and the action; the driver's error inside names the
 // instrument and its command.
-func (r *runner) do(ctx context.Context, a plan.PowerAction) error {
+func (r *runner) do(ctx context.Context, a safety.PowerAction) error {
 	if err := ctx.Err(); err != nil {
 		return err
 	}
 	isSource := a.Role == plan.RoleSourceCM || a.Role == plan.RoleSourceDiff || a.Role == plan.RoleSourceRef
-	if isSource && a.Op == plan.PowerSetVolts && a.Volts != 0 {
+	if isSource && a.Op == safety.PowerSetVolts && a.Volts != 0 {
 		// From the moment it is attempted, the source may drive a
 		// non-zero voltage until it is set to 0 V or switched off.
 		r.srcSafe[a.Role] = false
 	}
-	if !isSource && a.Op == plan.PowerOutputOn {
+	if !isSource && a.Op == safety.PowerOutputOn {
 		r.powered = true
 	}
 	var err error
@@ -224,12 +226,12 @@ func (r *runner) do(ctx context.Context, a plan.PowerAction) error {
 			return fmt.Errorf("%s: not on this bench", a.Role)
 		}
 		switch a.Op {
-		case plan.PowerCurrentLimit:
+		case safety.PowerCurrentLimit:
 			err = s.SetCurrentLimit(ctx, a.Amps)
-		case plan.PowerSetVolts:
+		case safety.PowerSetVolts:
 			err = s.SetVolts(ctx, a.Volts)
-		case plan.PowerOutputOn, plan.PowerOutputOff:
-			err = s.SetOutput(ctx, a.Op == plan.PowerOutputOn)
+		case safety.PowerOutputOn, safety.PowerOutputOff:
+			err = s.SetOutput(ctx, a.Op == safety.PowerOutputOn)
 		default:
 			err = fmt.Errorf("unknown power operation %q", a.Op)
 		}
@@ -239,10 +241,10 @@ func (r *runner) do(ctx context.Context, a plan.PowerAction) error {
 			return fmt.Errorf("%s: not on this bench", a.Role)
 		}
 		switch a.Op {
-		case plan.PowerSetVolts:
+		case safety.PowerSetVolts:
 			err = s.SetVolts(ctx, a.Volts)
-		case plan.PowerOutputOn, plan.PowerOutputOff:
-			err = s.SetOutput(ctx, a.Op == plan.PowerOutputOn)
+		case safety.PowerOutputOn, safety.PowerOutputOff:
+			err = s.SetOutput(ctx, a.Op == safety.PowerOutputOn)
 		default:
 			err = fmt.Errorf("%s: a source has no %s", a.Role, a.Op)
 		}
@@ -250,15 +252,15 @@ func (r *runner) do(ctx context.Context, a plan.PowerAction) error {
 		err = fmt.Errorf("unknown role %q in a power action", a.Role)
 	}
 	if err != nil {
-		if a.Op == plan.PowerSetVolts {
+		if a.Op == safety.PowerSetVolts {
 			r.unsure[a.Role] = true
 			r.noteTried(a)
 		}
 		return fmt.Errorf("%s: %w", a, err)
 	}
 	delete(r.unsure, a.Role)
-	r.state = plan.ApplyAction(r.state, a)
-	if isSource && (a.Op == plan.PowerOutputOff || (a.Op == plan.PowerSetVolts && a.Volts == 0)) {
+	r.state = safety.ApplyAction(r.state, a)
+	if isSource && (a.Op == safety.PowerOutputOff || (a.Op == safety.PowerSetVolts && a.Volts == 0)) {
 		r.srcSafe[a.Role] = true
 	}
 	return nil
@@ -287,8 +289,8 @@ func (r *runner) safeState(runCtx context.Context) error {
 	defer cancel()
 	var errs []error
 	failed := map[string]bool{}
-	call := func(a plan.PowerAction) {
-		if failed[a.Role] && a.Op == plan.PowerSetVolts {
+	call := func(a safety.PowerAction) {
+		if failed[a.Role] && a.Op == safety.PowerSetVolts {
 			return
 		}
 		cctx, ccancel := context.WithTimeout(ctx, r.timing.SafeCallTimeout)
@@ -304,7 +306,7 @@ func (r *runner) safeState(runCtx context.Context) error {
 			errs = append(errs, err)
 			return
 		}
-		if a.Op == plan.PowerSetVolts {
+		if a.Op == safety.PowerSetVolts {
 			// The dwell between ramp steps runs on the fresh context; a
 			// failed sleep (deadline) only shortens the ramp.
 			_ = r.clk.Sleep(ctx, r.timing.RampDwell)
@@ -319,15 +321,15 @@ func (r *runner) safeState(runCtx context.Context) error {
 	// not outlive the rails it rides on.
 	errs = append(errs, r.generatorsOff(ctx, r.timing.SafeCallTimeout)...)
 	r.resolveUnsure(ctx)
-	acts := plan.PowerDownFrom(r.p, r.state)
+	acts := safety.PowerDownFrom(r.p, r.state)
 	i := 0
 	for ; i < len(acts) && isSourceRole(acts[i].Role); i++ {
 		call(acts[i])
 	}
 	var live []string
-	for _, role := range plan.SourceRoles(r.p) {
+	for _, role := range safety.SourceRoles(r.p) {
 		if !r.srcSafe[role] {
-			live = append(live, fmt.Sprintf("%s (last set to %s)", role, plan.FormatVolts(plan.SourceVolts(r.state, role))))
+			live = append(live, fmt.Sprintf("%s (last set to %s)", role, plan.FormatVolts(safety.SourceVolts(r.state, role))))
 		}
 	}
 	suppliesDown := false
@@ -354,7 +356,7 @@ func (r *runner) safeState(runCtx context.Context) error {
 		}
 		ccancel()
 	}
-	if suppliesDown && r.rig.Switch != nil && !handSwap(r.p) {
+	if suppliesDown && r.rig.Switch != nil && !operator.HandSwap(r.p) {
 		cctx, ccancel := context.WithTimeout(ctx, r.timing.SafeCallTimeout)
 		if err := r.rig.Switch.OpenAll(cctx); err != nil {
 			errs = append(errs, fmt.Errorf("switch: open all: %w", err))
@@ -443,5 +445,5 @@ func roleVolts(s plan.BenchState, role string) float64 {
 	case plan.RoleSupplyNeg:
 		return s.NegVolts
 	}
-	return plan.SourceVolts(s, role)
+	return safety.SourceVolts(s, role)
 }

@@ -14,6 +14,7 @@ import (
 	"nullbench/instrument"
 	"nullbench/procedure/journal"
 	"nullbench/procedure/plan"
+	"nullbench/procedure/safety"
 )
 
 // testPlan is a small nulling-loop plan for HX-4107 op-amps (invented part)
@@ -449,7 +450,7 @@ func TestRunRefusesUnsafePlanBeforeContact(t *testing.T) {
 			if err == nil {
 				t.Fatal("unsafe plan accepted")
 			}
-			var se *plan.SafetyError
+			var se *safety.SafetyError
 			var pe plan.Errors
 			if !errors.As(err, &se) && !errors.As(err, &pe) {
 				t.Errorf("error %T is neither a SafetyError nor plan.Errors: %v", err, err)
@@ -465,14 +466,14 @@ func TestRunRefusesUnsafePlanBeforeContact(t *testing.T) {
 		p.Part.NominalPosVolts, p.Part.NominalNegVolts = 35, -35 // 70 V across the part, above 60 V DC
 		p.Tests = p.Tests[1:2]
 		p.Units = p.Units[:1]
-		for _, consent := range []plan.HazardConsent{{AllowOption: true}, {AllowOption: true, Interactive: true}} {
+		for _, consent := range []safety.HazardConsent{{AllowOption: true}, {AllowOption: true, Interactive: true}} {
 			fb := newFakeBench(p)
 			if _, err := runFake(context.Background(), t, p, fb, RunOptions{Consent: consent}); err == nil || len(fb.calls) != 0 {
 				t.Fatalf("consent %+v: err %v after %d calls", consent, err, len(fb.calls))
 			}
 		}
 		fb := newFakeBench(p)
-		out, err := runFake(context.Background(), t, p, fb, RunOptions{Consent: plan.HazardConsent{AllowOption: true, Interactive: true, Confirmed: true}})
+		out, err := runFake(context.Background(), t, p, fb, RunOptions{Consent: safety.HazardConsent{AllowOption: true, Interactive: true, Confirmed: true}})
 		if err != nil || !out.Complete {
 			t.Fatalf("err %v", err)
 		}
@@ -587,7 +588,7 @@ func checkSafeState(t *testing.T, fb *fakeBench, p *plan.Plan, after int, suppli
 			t.Error("the safe state did not try the supplies")
 		}
 	case "down":
-		for _, role := range plan.SourceRoles(p) {
+		for _, role := range safety.SourceRoles(p) {
 			if o := fb.out[role]; o.on {
 				t.Errorf("%s left on at %g V", role, o.volts)
 			}

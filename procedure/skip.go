@@ -1,35 +1,10 @@
 package procedure
 
 import (
-	"errors"
-	"fmt"
 	"strings"
 
 	"nullbench/procedure/journal"
 )
-
-// SkipUnitError is what an Operator returns from SwapUnit to leave the
-// unit out (socket empty, part cracked): the run journals a unit-skipped
-// event with Reason and goes on with the next unit. A skipped unit is
-// not measured at any later temperature either, and a resumed run keeps
-// it skipped; the report shows it as skipped, not failed.
-type SkipUnitError struct {
-	Unit   string
-	Reason string
-}
-
-func (e *SkipUnitError) Error() string {
-	return fmt.Sprintf("unit %s skipped: %s", e.Unit, e.Reason)
-}
-
-// SkipReason says whether err asks to skip the unit, and why.
-func SkipReason(err error) (string, bool) {
-	var se *SkipUnitError
-	if errors.As(err, &se) {
-		return se.Reason, true
-	}
-	return "", false
-}
 
 // initSkips takes the skips already in the resumed journal and the ones
 // asked for in the options.

@@ -9,6 +9,7 @@ import (
 
 	"nullbench/fit"
 	"nullbench/procedure/analysis"
+	"nullbench/procedure/analysis/freq"
 	"nullbench/procedure/estimate"
 	"nullbench/procedure/journal"
 	"nullbench/procedure/plan"
@@ -22,9 +23,9 @@ type campaignRecord struct {
 	Readings []journal.Reading
 	Results  *analysis.Results
 	// ACReadings are the frequency-response records; Freq their analysis
-	// (analysis.AnalyzeFreq) and FreqProblems what could not be analysed.
+	// (freq.AnalyzeFreq) and FreqProblems what could not be analysed.
 	ACReadings   []journal.ACReading
-	Freq         []analysis.FreqResponse
+	Freq         []freq.FreqResponse
 	FreqProblems []analysis.Problem
 	Identities   []journal.Identity
 	Started      time.Time
@@ -130,7 +131,7 @@ func toReport(recs ...campaignRecord) *report.Campaign {
 	// Frequency-response campaigns add their method statement.
 	for _, r := range recs {
 		if len(r.Plan.ACTests) > 0 {
-			c.Method = append(c.Method, analysis.FreqMethodText()...)
+			c.Method = append(c.Method, freq.FreqMethodText()...)
 			break
 		}
 	}

@@ -13,6 +13,7 @@ import (
 	"nullbench/instrument"
 	"nullbench/procedure/estimate"
 	"nullbench/procedure/plan"
+	"nullbench/procedure/safety"
 )
 
 type checkOptions struct {
@@ -70,9 +71,9 @@ func runCheck(std streams, o checkOptions) error {
 	if err := checkBench(p); err != nil {
 		return err
 	}
-	consent := plan.HazardConsent{AllowOption: o.AllowHazardous, Interactive: o.AllowHazardous, Confirmed: o.AllowHazardous}
-	err = plan.CheckSafetyWith(p, consent)
-	if h := plan.AssessHazard(p); o.AllowHazardous && h.Hazardous {
+	consent := safety.HazardConsent{AllowOption: o.AllowHazardous, Interactive: o.AllowHazardous, Confirmed: o.AllowHazardous}
+	err = safety.CheckSafetyWith(p, consent)
+	if h := safety.AssessHazard(p); o.AllowHazardous && h.Hazardous {
 		// The step table above judges without consent and says REFUSED
 		// for the hazard; say what the exit status judges.
 		verdict := "the plan is safe apart from that"
@@ -90,7 +91,7 @@ func safetyExit(err error) error {
 	if err == nil {
 		return nil
 	}
-	var se *plan.SafetyError
+	var se *safety.SafetyError
 	if errors.As(err, &se) {
 		return withCode(exitSafety, err)
 	}
@@ -172,7 +173,7 @@ func writeCheckJSON(w io.Writer, p *plan.Plan, f estimate.Figures) error {
 		}
 		out.Tests = append(out.Tests, tj)
 	}
-	if err := plan.CheckSafety(p); err != nil {
+	if err := safety.CheckSafety(p); err != nil {
 		out.SafetyError = err.Error()
 	}
 	enc := json.NewEncoder(w)

@@ -16,8 +16,11 @@ import (
 	"nullbench/instrument"
 	"nullbench/instrument/sim"
 	"nullbench/procedure"
+	"nullbench/procedure/clock"
 	"nullbench/procedure/estimate"
+	"nullbench/procedure/operator"
 	"nullbench/procedure/plan"
+	"nullbench/procedure/safety"
 )
 
 // scaleProgress records, on the run's clock, when each test of each unit
@@ -25,7 +28,7 @@ import (
 // and when its last point ends.
 type scaleProgress struct {
 	mu     sync.Mutex
-	clk    procedure.Clock
+	clk    clock.Clock
 	starts map[string]float64 // "unit/test/temp" → bench s
 	ends   map[string]float64
 	temp   int
@@ -74,7 +77,7 @@ func (o socketOperator) SwapUnit(_ context.Context, next plan.Unit) (string, err
 	return "", o.b.Insert(next.ID)
 }
 
-func (o socketOperator) Temperature(context.Context, procedure.TemperatureRequest) (float64, error) {
+func (o socketOperator) Temperature(context.Context, operator.TemperatureRequest) (float64, error) {
 	return 25, nil
 }
 
@@ -223,7 +226,7 @@ func runAtScale(t testing.TB, sp shippedPlan, scale float64, maxUnits int) (*pla
 	if len(p.Units) > maxUnits {
 		p.Units = p.Units[:maxUnits]
 	}
-	if err := plan.CheckSafety(p); err != nil {
+	if err := safety.CheckSafety(p); err != nil {
 		t.Fatal(err)
 	}
 	f, problems := planFigures(p)
@@ -233,12 +236,12 @@ func runAtScale(t testing.TB, sp shippedPlan, scale float64, maxUnits int) (*pla
 	// The run's clock starts once the instruments are open (dialling and
 	// identifying them is not a wait of the run, and check does not count
 	// it), as on a bench whose instruments are already connected.
-	var clk procedure.Clock
-	newClock := func() procedure.Clock {
+	var clk clock.Clock
+	newClock := func() clock.Clock {
 		if mc != nil {
 			return e2eClock{c: mc, t0: mc.Now()}
 		}
-		return procedure.NewScaledClock(p.Bench.TimeScale)
+		return clock.NewScaled(p.Bench.TimeScale)
 	}
 	clk = newClock()
 	sleep := func(ctx context.Context, d time.Duration) error { return clk.Sleep(ctx, d) }
@@ -258,7 +261,7 @@ func runAtScale(t testing.TB, sp shippedPlan, scale float64, maxUnits int) (*pla
 	clk = newClock()
 	pr := &scaleProgress{clk: clk, starts: map[string]float64{}, ends: map[string]float64{}, temp: -1}
 	opt := procedure.RunOptions{Clock: clk, Progress: pr, Figures: &f}
-	if procedure.NeedsOperator(p) != "" {
+	if operator.NeedsOperator(p) != "" {
 		opt.Operator = socketOperator{b}
 	}
 	out, err := procedure.Run(ctx, p, rig, opt)

@@ -5,19 +5,19 @@ import (
 	"io"
 
 	"nullbench/instrument"
-	"nullbench/procedure/analysis"
+	"nullbench/procedure/analysis/freq"
 	"nullbench/procedure/plan"
 )
 
 // freqInputs takes the digitizer's and AC voltmeter's frequency-response
 // figures from the profiles the plan names (or a run folder's copies),
 // without contacting them.
-func freqInputs(p *plan.Plan, resolve profileResolver) (analysis.FreqInputs, error) {
-	var in analysis.FreqInputs
+func freqInputs(p *plan.Plan, resolve profileResolver) (freq.FreqInputs, error) {
+	var in freq.FreqInputs
 	if resolve == nil {
 		resolve = planProfiles(p)
 	}
-	figs := func(role string, rb plan.RoleBinding) (*analysis.ACFigures, error) {
+	figs := func(role string, rb plan.RoleBinding) (*freq.ACFigures, error) {
 		if !rb.Bound() {
 			return nil, nil
 		}
@@ -42,8 +42,8 @@ func freqInputs(p *plan.Plan, resolve profileResolver) (analysis.FreqInputs, err
 }
 
 // acFigures maps a profile's AC figures to the analysis's.
-func acFigures(a instrument.ACFigures) *analysis.ACFigures {
-	return &analysis.ACFigures{AmplitudeAccuracyPct: a.AmplitudeAccuracyPct, Hz: a.Hz, FlatnessDB: a.FlatnessDB,
+func acFigures(a instrument.ACFigures) *freq.ACFigures {
+	return &freq.ACFigures{AmplitudeAccuracyPct: a.AmplitudeAccuracyPct, Hz: a.Hz, FlatnessDB: a.FlatnessDB,
 		GainMismatchDB: a.GainMismatchDB, PhaseMismatchDeg: a.PhaseMismatchDeg}
 }
 
@@ -58,7 +58,7 @@ func analyseFreq(rec *campaignRecord, resolve profileResolver) error {
 		return withCode(exitUsage, err)
 	}
 	in.DC = rec.Results
-	fr, probs, err := analysis.AnalyzeFreq(rec.Plan, rec.ACReadings, in)
+	fr, probs, err := freq.AnalyzeFreq(rec.Plan, rec.ACReadings, in)
 	if err != nil {
 		return withCode(exitFailure, fmt.Errorf("analyse %s (frequency response): %w", rec.Plan.Source, err))
 	}

@@ -15,6 +15,7 @@ import (
 
 	"nullbench/instrument/sim"
 	"nullbench/procedure"
+	"nullbench/procedure/operator"
 	"nullbench/procedure/plan"
 )
 
@@ -137,7 +138,7 @@ func (h *benchHands) SwapUnit(_ context.Context, next plan.Unit) (string, error)
 	return id, nil
 }
 
-func (h *benchHands) Temperature(context.Context, procedure.TemperatureRequest) (float64, error) {
+func (h *benchHands) Temperature(context.Context, operator.TemperatureRequest) (float64, error) {
 	return 0, errors.New("the hand-swap plans here have temperature mode none: no temperature to ask for")
 }
 
@@ -175,7 +176,7 @@ func runHandSwap(t *testing.T, units []e2eUnit, hands *benchHands) *handSwapRun 
 	if err != nil {
 		t.Fatalf("plan: %v", err)
 	}
-	if why := procedure.NeedsOperator(p); !strings.Contains(why, "by hand") {
+	if why := operator.NeedsOperator(p); !strings.Contains(why, "by hand") {
 		t.Fatalf("the plan is not a hand-swap plan: NeedsOperator says %q", why)
 	}
 	r := &handSwapRun{bench: bench, plan: p, journal: filepath.Join(dir, "out", "journal.jsonl"), out: filepath.Join(dir, "out")}

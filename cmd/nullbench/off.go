@@ -7,6 +7,7 @@ import (
 	"github.com/spf13/cobra"
 
 	"nullbench/procedure"
+	"nullbench/procedure/clock"
 	"nullbench/procedure/plan"
 )
 
@@ -44,13 +45,13 @@ func runOff(ctx context.Context, std streams, o offOptions) error {
 	if err := checkBench(p); err != nil {
 		return err
 	}
-	clock := procedure.NewScaledClock(p.Bench.TimeScale)
-	rig, closeBench, err := openBench(ctx, p, planProfiles(p), clock.Sleep)
+	clk := clock.NewScaled(p.Bench.TimeScale)
+	rig, closeBench, err := openBench(ctx, p, planProfiles(p), clk.Sleep)
 	if err != nil {
 		return withCode(exitInstrument, err)
 	}
 	defer closeBench()
-	rep, err := procedure.Off(ctx, p, rig, procedure.OffOptions{Clock: clock})
+	rep, err := procedure.Off(ctx, p, rig, procedure.OffOptions{Clock: clk})
 	if rep != nil {
 		for _, a := range rep.Actions {
 			fmt.Fprintln(std.Out, a)

@@ -14,9 +14,12 @@ import (
 
 	"nullbench/procedure"
 	"nullbench/procedure/analysis"
+	"nullbench/procedure/clock"
 	"nullbench/procedure/estimate"
 	"nullbench/procedure/journal"
+	"nullbench/procedure/operator"
 	"nullbench/procedure/plan"
+	"nullbench/procedure/safety"
 	"nullbench/report"
 )
 
@@ -151,22 +154,22 @@ func writeFile(path string, write func(io.Writer) error) error {
 // consent asks for permission to run a hazardous plan. It returns an error
 // (exit code: safety) when the plan is hazardous and the operator has not
 // allowed it; it never asks without a terminal.
-func consent(std streams, in *bufio.Reader, p *plan.Plan, allow bool) (plan.HazardConsent, error) {
-	h := plan.AssessHazard(p)
-	c := plan.HazardConsent{AllowOption: allow, Interactive: std.IsTerm}
+func consent(std streams, in *bufio.Reader, p *plan.Plan, allow bool) (safety.HazardConsent, error) {
+	h := safety.AssessHazard(p)
+	c := safety.HazardConsent{AllowOption: allow, Interactive: std.IsTerm}
 	if !h.Hazardous {
 		return c, nil
 	}
 	if !allow {
 		return c, withCode(exitSafety, fmt.Errorf("plan %s takes a terminal to %.1f V (%s), above the %.0f V DC limit for extra-low voltage; "+
-			"see SAFETY.md, then run with --allow-hazardous from an interactive terminal", p.Source, h.MaxAcrossVolts, h.Where, plan.HazardousVolts))
+			"see SAFETY.md, then run with --allow-hazardous from an interactive terminal", p.Source, h.MaxAcrossVolts, h.Where, safety.HazardousVolts))
 	}
 	if !std.IsTerm {
 		return c, withCode(exitSafety, fmt.Errorf("plan %s is hazardous (%.1f V); it needs an interactive confirmation and there is no terminal", p.Source, h.MaxAcrossVolts))
 	}
-	fmt.Fprint(std.Err, plan.HazardPrompt(h))
+	fmt.Fprint(std.Err, safety.HazardPrompt(h))
 	line, _ := in.ReadString('\n')
-	c.Confirmed = plan.HazardAnswerOK(line)
+	c.Confirmed = safety.HazardAnswerOK(line)
 	if !c.Confirmed {
 		return c, withCode(exitSafety, errors.New("hazardous plan not confirmed; nothing was switched on"))
 	}
@@ -182,9 +185,9 @@ type measureOptions struct {
 	JournalPath    string
 	Resume         bool
 	AllowHazardous bool
-	Clock          procedure.Clock    // nil: scaled wall clock from the plan
-	Log            io.Writer          // nil: none
-	Operator       procedure.Operator // nil: a LineOperator on the terminal, if there is one
+	Clock          clock.Clock       // nil: scaled wall clock from the plan
+	Log            io.Writer         // nil: none
+	Operator       operator.Operator // nil: a LineOperator on the terminal, if there is one
 	// RunFolder copies the plan and its profiles beside a new journal
 	// (run): the folder can then be re-reported on its own.
 	RunFolder bool
@@ -205,7 +208,7 @@ func measure(ctx context.Context, std streams, o measureOptions) (campaignRecord
 	if err != nil {
 		return rec, nil, err
 	}
-	if err := plan.CheckSafetyWith(p, hc); err != nil {
+	if err := safety.CheckSafetyWith(p, hc); err != nil {
 		return rec, nil, safetyExit(err)
 	}
 	profiles := o.Profiles
@@ -215,12 +218,12 @@ func measure(ctx context.Context, std streams, o measureOptions) (campaignRecord
 	if err := checkBenchWith(p, profiles); err != nil {
 		return rec, nil, err
 	}
-	if why := procedure.NeedsOperator(p); why != "" && !std.IsTerm && o.Operator == nil {
+	if why := operator.NeedsOperator(p); why != "" && !std.IsTerm && o.Operator == nil {
 		return rec, nil, withCode(exitUsage, fmt.Errorf("plan %s needs an operator at a terminal (%s), and standard input is not a terminal", p.Source, why))
 	}
-	clock := o.Clock
-	if clock == nil {
-		clock = procedure.NewScaledClock(p.Bench.TimeScale)
+	clk := o.Clock
+	if clk == nil {
+		clk = clock.NewScaled(p.Bench.TimeScale)
 	}
 
 	// The journal records the plan's absolute path: resume and report
@@ -259,7 +262,7 @@ func measure(ctx context.Context, std streams, o measureOptions) (campaignRecord
 	}
 	defer jw.Close()
 
-	rig, closeBench, err := openBench(ctx, p, profiles, clock.Sleep)
+	rig, closeBench, err := openBench(ctx, p, profiles, clk.Sleep)
 	if err != nil {
 		return rec, nil, withCode(exitInstrument, err)
 	}
@@ -268,11 +271,11 @@ func measure(ctx context.Context, std streams, o measureOptions) (campaignRecord
 
 	op := o.Operator
 	if op == nil && std.IsTerm {
-		op = &procedure.LineOperator{In: in, Out: std.Err}
+		op = &operator.LineOperator{In: in, Out: std.Err}
 	}
 	figs, _ := planFigures(p) // problems were reported by open already
 	out, runErr := procedure.Run(ctx, p, rig, procedure.RunOptions{
-		Journal: jw, Resume: resume, Clock: clock, Operator: op, Figures: &figs,
+		Journal: jw, Resume: resume, Clock: clk, Operator: op, Figures: &figs,
 		Progress: newProgress(std.Err, std.IsTerm), Log: o.Log, Consent: hc, Skip: o.Skip,
 	})
 	rec.Finished = time.Now().UTC()
@@ -281,7 +284,7 @@ func measure(ctx context.Context, std streams, o measureOptions) (campaignRecord
 		rec.ACReadings = out.ACReadings
 	}
 	if runErr != nil {
-		var se *plan.SafetyError
+		var se *safety.SafetyError
 		switch {
 		case errors.As(runErr, &se):
 			runErr = withCode(exitSafety, runErr)

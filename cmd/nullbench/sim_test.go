@@ -12,6 +12,7 @@ import (
 
 	"nullbench/instrument/sim"
 	"nullbench/procedure/plan"
+	"nullbench/procedure/safety"
 )
 
 // cliEndpoint is one line "sim" prints: name, role, address, profile, *IDN?.
@@ -225,7 +226,7 @@ func TestSimAndProbeOverTCP(t *testing.T) {
 			t.Errorf("[bench.instrument.%s] = %+v, want address %s profile %s", e.name, in, e.address, e.profile)
 		}
 	}
-	if err := plan.CheckSafety(p); err != nil {
+	if err := safety.CheckSafety(p); err != nil {
 		t.Errorf("the plan on the simulated bench is refused: %v", err)
 	}
 }

@@ -256,7 +256,7 @@ func limitName(name string) string {
 //
 // Sign conventions. Every coefficient is signed and input referred, in µV
 // of ΔV_IO per volt of the named stimulus, with the level semantics of
-// StateAt (safety.go). With b1 the fitted slope of meter volts against
+// plan.StateAt (plan/state.go). With b1 the fitted slope of meter volts against
 // stimulus volts and K the fixture's noise gain (E0 − V_CM = K·V_IO):
 //
 //	cmrr, supply_shift:  rails at nominal − L, inputs at ground, so the inputs
@@ -1091,3 +1091,8 @@ func (a *analyzer) decide() {
 		r.Judged, r.Decision = true, d
 	}
 }
+
+// DecisionRule maps the plan's decision.rule ("" for the default) to the
+// ILAC-G8 rule of package fit, for the frequency-response analysis
+// (package freq) to judge as the DC analysis does.
+func DecisionRule(r string) (fit.Rule, error) { return decisionRule(r) }

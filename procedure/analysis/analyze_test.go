@@ -15,7 +15,7 @@ import (
 )
 
 // The readings in these tests are generated from known signed coefficients
-// through the level semantics of StateAt (safety.go) and the op-amp error
+// through the level semantics of plan.StateAt (plan/state.go) and the op-amp error
 // model of the simulated bench (package instrument/sim, "Physics"; derived
 // from kc + kp + kn + ko = 0, no published source):
 //

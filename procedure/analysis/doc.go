@@ -10,7 +10,9 @@
 // resistor-matching limit, lot statistics, temperature coefficients and
 // repeatability. Its doc comment states every sign convention. Inputs
 // carries the instruments' accuracies (estimate.Accuracy) for the Type B rows
-// of the budgets.
+// of the budgets. The frequency-response results ([[ac_test]]) are package
+// freq's (procedure/analysis/freq), which imports this one for the DC
+// results it compares with.
 //
 // Units: volts, degrees Celsius and seconds of bench time throughout.
 package analysis

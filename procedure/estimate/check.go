@@ -8,7 +8,7 @@ import (
 	"nullbench/procedure/plan"
 )
 
-// WriteCheck prints check's output for p (plan.WriteCheck: the step
+// WriteCheck prints check's output for p (writeCheck: the step
 // table, the power sequence, the hazard and the safety verdict) with the
 // forecast from f beside it: each step's bench seconds, each test's time,
 // predicted uncertainty and resolvable ratio next to its limit, the
@@ -16,12 +16,12 @@ import (
 // only write errors.
 func WriteCheck(w io.Writer, p *plan.Plan, f Figures) error {
 	if plan.Validate(p) != nil {
-		return plan.WriteCheck(w, p, nil)
+		return writeCheck(w, p, nil)
 	}
-	return plan.WriteCheck(w, p, newForecast(p, f))
+	return writeCheck(w, p, newForecast(p, f))
 }
 
-// forecast is Predict's result in the shape plan.WriteCheck prints.
+// forecast is Predict's result in the shape writeCheck prints.
 type forecast struct {
 	p         *plan.Plan
 	pred      Prediction

@@ -3,7 +3,8 @@
 // the profiles) it says, before anything is switched on, how long a run
 // takes, what uncertainty each test reaches, the largest ratio it can
 // resolve, and how to size a plan to a target uncertainty in the least
-// bench time. It imports package plan and nothing else of ours; plan does
+// bench time. It imports packages plan and safety (the power sequences it
+// times, the verdict check prints) and nothing else of ours; plan does
 // not import it, and it knows nothing of the runner, the journal or the
 // analysis. The runner uses its Timeline for the progress bar's remaining
 // time; the analysis and the rig carry its Accuracy.
@@ -24,7 +25,10 @@
 // target uncertainty in the least bench time within the part's safe
 // levels.
 //
-// Check. WriteCheck prints plan.WriteCheck's step table with this
+// Check. WriteCheck prints check's output (check_plan.go): for each test
+// and level the stimulus, the rails, the common mode and its distance to
+// each rail and the highest terminal voltage, then the power sequence, the
+// hazard assessment and the safety verdict (package safety), with this
 // package's forecast beside it.
 //
 // Units: volts, seconds of bench time (plan.Bench.TimeScale), µV/V for

@@ -1,9 +1,10 @@
 package estimate
 
 import (
-	"nullbench/procedure/plan"
-
 	"math"
+
+	"nullbench/procedure/plan"
+	"nullbench/procedure/safety"
 )
 
 // LineFrequencyHz is the mains frequency used to turn NPLC into seconds for
@@ -167,14 +168,14 @@ func (f *Figures) Timeline(p *plan.Plan) Timeline {
 	// A voltage step is followed by what is left of the ramp dwell after
 	// the set command and its settle (the runner's execute).
 	dwellAfter := func(c float64) float64 { return c + f.wait(w.RampDwellSeconds-c) }
-	actCost := func(a plan.PowerAction) float64 {
+	actCost := func(a safety.PowerAction) float64 {
 		c := setCost(a.Role)
-		if a.Op == plan.PowerSetVolts {
+		if a.Op == safety.PowerSetVolts {
 			c = dwellAfter(c)
 		}
 		return c
 	}
-	actsCost := func(acts []plan.PowerAction) float64 {
+	actsCost := func(acts []safety.PowerAction) float64 {
 		s := 0.0
 		for _, a := range acts {
 			s += actCost(a)
@@ -185,7 +186,7 @@ func (f *Figures) Timeline(p *plan.Plan) Timeline {
 
 	// Bench off: every source and supply read back and switched off (and
 	// the supplies programmed to 0 V), from outputs assumed at 0 V.
-	srcs := plan.SourceRoles(p)
+	srcs := safety.SourceRoles(p)
 	for _, r := range srcs {
 		tl.BenchOffSeconds += query(r) + setCost(r)
 	}
@@ -212,7 +213,7 @@ func (f *Figures) Timeline(p *plan.Plan) Timeline {
 				tl.ConnectSeconds += c
 				now += c
 			}
-			pw := actsCost(plan.PowerUpOrder(p))
+			pw := actsCost(safety.PowerUpOrder(p))
 			if p.Part.SupplyAmpsMin > 0 || p.Part.SupplyAmpsMax > 0 {
 				pw += query(plan.RoleSupplyPos) + query(plan.RoleSupplyNeg)
 			}
@@ -236,7 +237,7 @@ func (f *Figures) Timeline(p *plan.Plan) Timeline {
 				for rep := 0; rep < t.Repeats; rep++ {
 					for _, st := range steps {
 						ps := 0.0
-						if acts, err := plan.Transition(p, state, st.State); err == nil {
+						if acts, err := safety.Transition(p, state, st.State); err == nil {
 							ps += actsCost(acts)
 						}
 						state = st.State
@@ -258,13 +259,13 @@ func (f *Figures) Timeline(p *plan.Plan) Timeline {
 						tl.Points = append(tl.Points, TimedPoint{Key: st.Key(ti, u.ID, rep), Test: i, Seconds: ps, EndsAt: now})
 					}
 				}
-				if acts, err := plan.Transition(p, state, nominal); err == nil {
+				if acts, err := safety.Transition(p, state, nominal); err == nil {
 					now += actsCost(acts)
 				}
 				state = nominal
 				tl.TestCampaignSeconds[i] += now - testStart
 			}
-			pd := actsCost(plan.PowerDownFrom(p, nominal))
+			pd := actsCost(safety.PowerDownFrom(p, nominal))
 			tl.PowerSeconds += pd
 			now += pd
 		}
@@ -341,7 +342,7 @@ func rampChamberAt(f *Figures, p *plan.Plan, w SequencerWaits, air *float64, tar
 	for sp != target {
 		t += f.wait(w.ChamberTickSeconds) + set
 		*air = airAfter(*air, sp, w.ChamberTickSeconds, f.ChamberAirTauSeconds)
-		sp = plan.StepToward(sp, target, step)
+		sp = safety.StepToward(sp, target, step)
 	}
 	return t
 }

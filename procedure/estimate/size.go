@@ -1,10 +1,11 @@
 package estimate
 
 import (
-	"nullbench/procedure/plan"
-
 	"fmt"
 	"math"
+
+	"nullbench/procedure/plan"
+	"nullbench/procedure/safety"
 )
 
 // SizeTarget is what a sized plan must reach: an expanded uncertainty of
@@ -65,7 +66,7 @@ func Size(p *plan.Plan, f Figures, target SizeTarget) (*plan.Plan, []SizedTest) 
 		if p.Tests[i].Kind == plan.TestBoardCMRR {
 			part = plan.PartCM
 		}
-		lo, hi, ok := plan.SafeLevels(p, &p.Tests[i], part)
+		lo, hi, ok := safety.SafeLevels(p, &p.Tests[i], part)
 		if !ok {
 			res = append(res, st)
 			continue

@@ -1,7 +1,6 @@
 package plan
 
 import (
-	"fmt"
 	"math"
 	"strconv"
 )
@@ -155,6 +154,10 @@ func (t *ACTest) GeneratorPeakVolts() float64 {
 	return t.PeakVolts
 }
 
+// IsPSRR reports whether the test injects its sine onto a supply rail (a
+// PSRR kind) rather than the common-mode node.
+func (t *ACTest) IsPSRR() bool { return t.isPSRR() }
+
 func (t *ACTest) isPSRR() bool {
 	switch t.Kind {
 	case TestPSRRPos, TestPSRRNeg, TestBoardPSRRPos, TestBoardPSRRNeg:
@@ -265,38 +268,4 @@ func ACSettleSeconds(t *ACTest, f float64) float64 {
 		return t.DwellSeconds
 	}
 	return math.Max(float64(t.SettleCycles)/f, t.DwellSeconds)
-}
-
-// writeACTests adds the [[ac_test]] tables to check's output: per
-// frequency the limit, the generator setting, the sine's extremes at the
-// part and the bench time of its three records (floor, through, stimulus).
-func writeACTests(pf func(format string, args ...any), p *Plan) {
-	for i := range p.ACTests {
-		t := &p.ACTests[i]
-		how := "common-mode node"
-		if t.isPSRR() {
-			how = fmt.Sprintf("rail through a %s, coupling gain %g", t.Injection, t.CouplingGain)
-		}
-		ch := t.GeneratorChannel
-		if ch == "" {
-			ch = p.Bench.Roles.Generator.Channel
-		}
-		pf("\n%s %s: sine %s peak about %s on the %s (generator output %s at %s peak); through calibration by %s %s; %d record(s) per point\n",
-			acTestKey(i), t.Kind, fmtMag(t.PeakVolts), FormatVolts(t.OffsetVolts), how, ch, fmtMag(t.GeneratorPeakVolts()), t.Through, t.ThroughChannel, t.Records)
-		peaks := ACPeakStates(p, t)
-		pf("  at the peaks: V+ %s … %s, V- %s … %s, common mode %s … %s\n",
-			FormatVolts(peaks[1].PosVolts), FormatVolts(peaks[0].PosVolts), FormatVolts(peaks[1].NegVolts), FormatVolts(peaks[0].NegVolts),
-			FormatVolts(peaks[1].CMVolts), FormatVolts(peaks[0].CMVolts))
-		total := 0.0
-		for fi, f := range t.Frequencies() {
-			lim := "not judged"
-			if l, ok := t.LimitAtDB(fi); ok {
-				lim = fmt.Sprintf("≥ %g dB", l)
-			}
-			sec := 3 * (ACSettleSeconds(t, f) + float64(t.Records)*ACRecordSeconds(t, f))
-			total += sec
-			pf("  %10.4g Hz  limit %-12s record %s, with settling %s\n", f, lim, FormatSeconds(ACRecordSeconds(t, f)), FormatSeconds(sec))
-		}
-		pf("  about %s of bench time per unit and temperature (records and settling only)\n", FormatSeconds(total))
-	}
 }

@@ -46,7 +46,7 @@ type errorString string
 func (e errorString) Error() string { return string(e) }
 
 // A true negative output (negative_channels) serves only supply_neg, and
-// only bound with negative = true: the polarity rules of CheckSafety
+// only bound with negative = true: the polarity rules of safety.CheckSafety
 // depend on that flag.
 func TestCheckBenchNegativeOutput(t *testing.T) {
 	lookup := func(_, _ string) (BenchProfile, error) {

@@ -1,10 +1,10 @@
 // Package plan is the measurement plan and everything that follows from it
 // alone: the schema, TOML parsing with file/line/key errors, validation,
-// the safety rules, the power sequences as data, the order of the levels
-// and the step table. Its functions are pure: no I/O beyond reading the
-// plan file and no instrument contact. The runner (package procedure), the
-// journal, the analysis and the estimation model (package estimate) import
-// it; it imports none of them.
+// the bench state at each level, the order of the levels and the step
+// table. Its functions are pure: no I/O beyond reading the plan file and
+// no instrument contact. The safety rules (package safety), the runner
+// (package procedure), the journal, the analysis and the estimation model
+// (package estimate) import it; it imports none of them.
 //
 // Plans. Load and Parse read a TOML plan (go-toml v2, unknown keys
 // refused), apply the defaults of the keys left out and validate it. Every
@@ -14,32 +14,24 @@
 //
 // Key paths count [[test]] and [[unit]] tables from 1, as a reader does.
 //
-// Safety. CheckSafety refuses, from the plan alone and before any
-// instrument is touched, a plan whose rails exceed the part's maximum span
-// or have the wrong polarity for their channels, whose common mode leaves
-// the input range (with the plan's margin), whose inputs go beyond a rail,
-// whose sources exceed the fixture's maximum stimulus, whose supplies lack a
-// current limit, or whose terminals exceed HazardousVolts (60 V DC, the
-// SELV/ES1 limit of IEC 60950-1 §1.2.8 and IEC 62368-1) without the
-// operator's explicit consent. BenchState documents what each test's level
-// means (supply-shift common mode follows MIL-M-38510/114 Table III).
-// PowerUpOrder, PowerDownOrder and Transition give the power sequences as
-// data: current limits first, inputs only after the rails, everything
-// ramped in steps of at most safety.ramp_step_volts, and when the rails
-// shift, first the rail whose move shrinks the span.
+// Bench states. BenchState documents what each test's level means
+// (supply-shift common mode follows MIL-M-38510/114 Table III); StateAt and
+// TerminalsOf give the rails, sources and pin voltages at a level. The
+// safety rules that judge these states live in package safety, which
+// imports this one.
 //
 // Levels. OrderLevels visits the levels as a palindrome (zigzag about the
 // centre and back, or ascending then descending), so that every level's
 // mean time equals the pass's mean time and a drift linear in time adds
 // exactly nothing to the fitted slope.
 //
-// The step table. StepTable and WriteCheck show what a run would do: each
-// level's rails, common mode and its distance to each rail and the
-// highest terminal voltage. Each Step names its point of the campaign with
-// a WorkKey, the key the journal and the runner use to skip finished work
+// The step table. StepTable lays out what a run would do: each level's
+// rails, common mode and its distance to each rail and the highest
+// terminal voltage. Each Step names its point of the campaign with a
+// WorkKey, the key the journal and the runner use to skip finished work
 // on resume. How long a run takes and what uncertainty it reaches are not
 // the plan's: package estimate models them from the instruments' figures
-// and hands WriteCheck its forecast (CheckForecast).
+// and prints check's output (estimate.WriteCheck).
 //
 // Units: volts, amps, degrees Celsius and seconds of bench time
 // (Bench.TimeScale) throughout.

@@ -84,7 +84,8 @@ func (es Errors) sorted() Errors {
 }
 
 // Load reads, decodes, defaults and validates the plan file at path.
-// It does not judge safety: call CheckSafety before any instrument contact.
+// It does not judge safety: call safety.CheckSafety (package
+// procedure/safety) before any instrument contact.
 func Load(path string) (*Plan, error) {
 	data, err := os.ReadFile(path)
 	if err != nil {

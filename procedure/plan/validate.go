@@ -121,7 +121,7 @@ func (c *planChecker) addElem(key string, i int, fix, format string, args ...any
 // needs bound to instruments that exist, units, levels, limits and the
 // temperature plan. It returns Errors listing every problem, or nil.
 // Electrical limits (spans, common-mode range, current limits, stimulus
-// size, hazardous voltage) are CheckSafety's business.
+// size, hazardous voltage) are safety.CheckSafety's business.
 func Validate(p *Plan) error {
 	c := &planChecker{p: p, nonFinite: map[string]bool{}}
 	c.finite(reflect.ValueOf(p).Elem(), "")

@@ -1,4 +1,4 @@
-package analysis
+package freq
 
 import (
 	"errors"
@@ -8,6 +8,7 @@ import (
 	"sort"
 
 	"nullbench/fit"
+	"nullbench/procedure/analysis"
 	"nullbench/procedure/journal"
 	"nullbench/procedure/plan"
 )
@@ -79,7 +80,7 @@ type FreqInputs struct {
 	Coverage float64
 	// DC holds the campaign's DC results, for the check of each pole
 	// fit's low-frequency ratio against the unit's DC ratio (nil: none).
-	DC *Results
+	DC *analysis.Results
 }
 
 // CalibrationResidualFraction is the part of the digitizer's specified
@@ -163,11 +164,11 @@ type FreqResponse struct {
 
 // AnalyzeFreq analyses every [[ac_test]] of plan p from the journal's AC
 // records. Groups that cannot be analysed are returned as problems.
-func AnalyzeFreq(p *plan.Plan, recs []journal.ACReading, in FreqInputs) ([]FreqResponse, []Problem, error) {
+func AnalyzeFreq(p *plan.Plan, recs []journal.ACReading, in FreqInputs) ([]FreqResponse, []analysis.Problem, error) {
 	if p == nil {
 		return nil, nil, errors.New("analysis: no plan")
 	}
-	rule, err := decisionRule(p.Decision.Rule)
+	rule, err := analysis.DecisionRule(p.Decision.Rule)
 	if err != nil {
 		return nil, nil, err
 	}
@@ -189,11 +190,11 @@ func AnalyzeFreq(p *plan.Plan, recs []journal.ACReading, in FreqInputs) ([]FreqR
 		groups[k] = append(groups[k], r)
 	}
 	var out []FreqResponse
-	var probs []Problem
+	var probs []analysis.Problem
 	for _, k := range order {
 		t := acTestOf(p, k.test)
 		if t == nil {
-			probs = append(probs, Problem{Unit: k.unit, Test: k.test, TempIndex: k.ti,
+			probs = append(probs, analysis.Problem{Unit: k.unit, Test: k.test, TempIndex: k.ti,
 				Problem: fmt.Sprintf("ac records of kind %q, which the plan has no [[ac_test]] for; left out", k.test)})
 			continue
 		}
@@ -216,7 +217,7 @@ func AnalyzeFreq(p *plan.Plan, recs []journal.ACReading, in FreqInputs) ([]FreqR
 		for _, fi := range idx {
 			pt, err := freqPoint(p, t, fi, byFreq[fi], gain, gainTol, in, cov)
 			if err != nil {
-				probs = append(probs, Problem{Unit: k.unit, Test: k.test, TempIndex: k.ti, TemperatureC: fr.TemperatureC,
+				probs = append(probs, analysis.Problem{Unit: k.unit, Test: k.test, TempIndex: k.ti, TemperatureC: fr.TemperatureC,
 					Problem: fmt.Sprintf("%g Hz: %v", byFreq[fi][0].FrequencyHz, err)})
 				continue
 			}
@@ -698,7 +699,7 @@ func roundTenth(x float64) float64 { return math.Round(x*10) / 10 }
 
 // polePlusDC fits the single-pole model to the resolved points and checks
 // its low-frequency ratio against the unit's DC result.
-func polePlusDC(fr *FreqResponse, dc *Results, cov float64) {
+func polePlusDC(fr *FreqResponse, dc *analysis.Results, cov float64) {
 	var fs, dbs, us []float64
 	for _, pt := range fr.Points {
 		if pt.Rejection.Resolved && pt.Rejection.StdUncDB > 0 {
@@ -726,9 +727,9 @@ func polePlusDC(fr *FreqResponse, dc *Results, cov float64) {
 	// the one to compare with when there is no corrected cmrr.
 	names := []string{fr.Test}
 	if fr.Test == plan.TestCMRR {
-		names = append(names, ResultCMRRUncorrected)
+		names = append(names, analysis.ResultCMRRUncorrected)
 	}
-	var match []RatioResult
+	var match []analysis.RatioResult
 	for _, name := range names {
 		for _, r := range dc.Ratios {
 			if r.Unit == fr.Unit && r.Name == name && r.TempIndex == fr.TempIndex {

@@ -1,6 +1,7 @@
-package procedure
+package operator
 
 import (
+	"bytes"
 	"context"
 	"errors"
 	"io"
@@ -61,4 +62,23 @@ func TestLineOperator(t *testing.T) {
 			t.Fatalf("err %v", err)
 		}
 	})
+}
+
+// At a hand-swap prompt the operator types "skip REASON".
+func TestLineOperatorSkip(t *testing.T) {
+	for _, tc := range []struct{ input, reason string }{
+		{"skip part cracked\n", "part cracked"},
+		{"SKIP\n", "skipped by the operator"},
+	} {
+		var out bytes.Buffer
+		o := &LineOperator{In: bytes.NewBufferString(tc.input), Out: &out}
+		_, err := o.SwapUnit(context.Background(), plan.Unit{ID: "U03"})
+		reason, ok := SkipReason(err)
+		if !ok || reason != tc.reason {
+			t.Errorf("%q: err %v, want a skip with reason %q", tc.input, err, tc.reason)
+		}
+		if !bytes.Contains(out.Bytes(), []byte("skip REASON leaves it out")) {
+			t.Errorf("the prompt does not offer skip: %s", out.String())
+		}
+	}
 }

@@ -1,4 +1,4 @@
-package analysis_test
+package freq_test
 
 import (
 	"context"
@@ -12,7 +12,7 @@ import (
 	"nullbench/instrument"
 	"nullbench/instrument/sim"
 	"nullbench/procedure"
-	"nullbench/procedure/analysis"
+	"nullbench/procedure/analysis/freq"
 	"nullbench/procedure/plan"
 )
 
@@ -98,14 +98,14 @@ func (s simClock) Sleep(ctx context.Context, d time.Duration) error { return s.c
 
 // digitizerFigures reads the built-in digitizer profile's figures as the
 // analysis takes them (cmd does the same).
-func digitizerFigures(t testing.TB) *analysis.ACFigures {
+func digitizerFigures(t testing.TB) *freq.ACFigures {
 	t.Helper()
 	prof, err := instrument.ResolveProfile("digitizer")
 	if err != nil {
 		t.Fatal(err)
 	}
 	a := prof.Figures.AC
-	return &analysis.ACFigures{AmplitudeAccuracyPct: a.AmplitudeAccuracyPct, Hz: a.Hz, FlatnessDB: a.FlatnessDB,
+	return &freq.ACFigures{AmplitudeAccuracyPct: a.AmplitudeAccuracyPct, Hz: a.Hz, FlatnessDB: a.FlatnessDB,
 		GainMismatchDB: a.GainMismatchDB, PhaseMismatchDeg: a.PhaseMismatchDeg}
 }
 
@@ -170,7 +170,7 @@ type freqRun struct {
 	bench *sim.Bench
 	plan  *plan.Plan
 	out   *procedure.Outcome
-	res   []analysis.FreqResponse
+	res   []freq.FreqResponse
 }
 
 // runFreq runs the frequency plan on units (their switch channels from
@@ -215,7 +215,7 @@ func runFreqPlan(t *testing.T, rest string, units []string, mis sim.DigitizerMis
 	if err != nil {
 		t.Fatal(err)
 	}
-	res, probs, err := analysis.AnalyzeFreq(p, out.ACReadings, analysis.FreqInputs{Digitizer: digitizerFigures(t)})
+	res, probs, err := freq.AnalyzeFreq(p, out.ACReadings, freq.FreqInputs{Digitizer: digitizerFigures(t)})
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -1,4 +1,4 @@
-package procedure
+package operator
 
 import (
 	"bufio"
@@ -46,7 +46,7 @@ type TemperatureRequest struct {
 // or thermometer mode with several points. cmd refuses such plans when it
 // has no terminal to ask on.
 func NeedsOperator(p *plan.Plan) string {
-	if handSwap(p) {
+	if HandSwap(p) {
 		return "the units have no switch channels, so the operator swaps them by hand"
 	}
 	for i, t := range p.ACTests {
@@ -65,10 +65,10 @@ func NeedsOperator(p *plan.Plan) string {
 	return ""
 }
 
-// handSwap reports whether the plan's units are swapped by hand: no unit
+// HandSwap reports whether the plan's units are swapped by hand: no unit
 // has a switch channel (validation refuses a mix). A plan with a single
 // unit and no channel needs one swap: the operator inserts that unit.
-func handSwap(p *plan.Plan) bool {
+func HandSwap(p *plan.Plan) bool {
 	for _, u := range p.Units {
 		if u.Channel != "" {
 			return false
@@ -185,4 +185,36 @@ func (o *LineOperator) Temperature(ctx context.Context, req TemperatureRequest) 
 		}
 		fmt.Fprintf(o.Out, "%q is not a temperature in °C; type a number such as 24.6: ", t)
 	}
+}
+
+// ThroughOperator is an Operator that can also be asked to move the
+// digitizer's channel-2 probe for a manual through calibration
+// (through = "manual"). LineOperator implements it.
+type ThroughOperator interface {
+	// MoveProbe shows msg (what to connect where) and returns when the
+	// operator confirms.
+	MoveProbe(ctx context.Context, msg string) error
+}
+
+// SkipUnitError is what an Operator returns from SwapUnit to leave the
+// unit out (socket empty, part cracked): the run journals a unit-skipped
+// event with Reason and goes on with the next unit. A skipped unit is
+// not measured at any later temperature either, and a resumed run keeps
+// it skipped; the report shows it as skipped, not failed.
+type SkipUnitError struct {
+	Unit   string
+	Reason string
+}
+
+func (e *SkipUnitError) Error() string {
+	return fmt.Sprintf("unit %s skipped: %s", e.Unit, e.Reason)
+}
+
+// SkipReason says whether err asks to skip the unit, and why.
+func SkipReason(err error) (string, bool) {
+	var se *SkipUnitError
+	if errors.As(err, &se) {
+		return se.Reason, true
+	}
+	return "", false
 }

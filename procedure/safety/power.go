@@ -1,9 +1,11 @@
-package plan
+package safety
 
 import (
 	"fmt"
 	"math"
 	"strings"
+
+	"nullbench/procedure/plan"
 )
 
 // Power operations, in the order the runner carries them out.
@@ -27,7 +29,7 @@ type PowerAction struct {
 func (a PowerAction) String() string {
 	switch a.Op {
 	case PowerSetVolts:
-		return fmt.Sprintf("%s %s %s", a.Role, a.Op, FormatVolts(a.Volts))
+		return fmt.Sprintf("%s %s %s", a.Role, a.Op, plan.FormatVolts(a.Volts))
 	case PowerCurrentLimit:
 		return fmt.Sprintf("%s %s %g A", a.Role, a.Op, a.Amps)
 	}
@@ -35,9 +37,9 @@ func (a PowerAction) String() string {
 }
 
 // SourceRoles lists the bound source roles in power-up order.
-func SourceRoles(p *Plan) []string {
+func SourceRoles(p *plan.Plan) []string {
 	var out []string
-	for _, r := range []string{RoleSourceRef, RoleSourceCM, RoleSourceDiff} {
+	for _, r := range []string{plan.RoleSourceRef, plan.RoleSourceCM, plan.RoleSourceDiff} {
 		if p.Bench.Roles.Get(r).Bound() {
 			out = append(out, r)
 		}
@@ -47,11 +49,11 @@ func SourceRoles(p *Plan) []string {
 
 // RampStep is the largest voltage step of any ramp: the plan's
 // safety.ramp_step_volts, or DefaultRampStepVolts when it is not set.
-func RampStep(p *Plan) float64 {
+func RampStep(p *plan.Plan) float64 {
 	if s := p.Safety.RampStepVolts; s > 0 && !math.IsInf(s, 0) {
 		return s
 	}
-	return DefaultRampStepVolts
+	return plan.DefaultRampStepVolts
 }
 
 // PowerUpOrder is the power-up sequence (common practice, no published
@@ -63,18 +65,18 @@ func RampStep(p *Plan) float64 {
 // than that); then the sources' outputs on at 0 V. The inputs stay at
 // ground (or open) until both rails are up; the runner then moves to each
 // test state with Transition.
-func PowerUpOrder(p *Plan) []PowerAction {
+func PowerUpOrder(p *plan.Plan) []PowerAction {
 	var a []PowerAction
 	for _, r := range SourceRoles(p) {
 		a = append(a, PowerAction{Op: PowerOutputOff, Role: r}, PowerAction{Op: PowerSetVolts, Role: r})
 	}
-	for _, r := range []string{RoleSupplyPos, RoleSupplyNeg} {
+	for _, r := range []string{plan.RoleSupplyPos, plan.RoleSupplyNeg} {
 		a = append(a,
 			PowerAction{Op: PowerOutputOff, Role: r},
 			PowerAction{Op: PowerCurrentLimit, Role: r, Amps: p.Part.CurrentLimitAmps},
 			PowerAction{Op: PowerSetVolts, Role: r})
 	}
-	a = append(a, PowerAction{Op: PowerOutputOn, Role: RoleSupplyPos}, PowerAction{Op: PowerOutputOn, Role: RoleSupplyNeg})
+	a = append(a, PowerAction{Op: PowerOutputOn, Role: plan.RoleSupplyPos}, PowerAction{Op: PowerOutputOn, Role: plan.RoleSupplyNeg})
 	a = append(a, rampRails(0, 0, p.Part.NominalPosVolts, p.Part.NominalNegVolts, RampStep(p))...)
 	for _, r := range SourceRoles(p) {
 		a = append(a, PowerAction{Op: PowerOutputOn, Role: r})
@@ -84,7 +86,7 @@ func PowerUpOrder(p *Plan) []PowerAction {
 
 // PowerDownOrder is the power-down sequence from the nominal state:
 // PowerDownFrom(p, NominalState(p)).
-func PowerDownOrder(p *Plan) []PowerAction { return PowerDownFrom(p, NominalState(p)) }
+func PowerDownOrder(p *plan.Plan) []PowerAction { return PowerDownFrom(p, plan.NominalState(p)) }
 
 // PowerDownFrom is the reverse of power-up from any state (an abort
 // mid-test): each source ramped to 0 V in steps ≤ ramp_step_volts and
@@ -95,7 +97,7 @@ func PowerDownOrder(p *Plan) []PowerAction { return PowerDownFrom(p, NominalStat
 // A state beyond what the plan could program (a bad read-back) is first
 // clamped to it (boundedDown): the list never panics and never commands
 // more than the plan's largest voltage on a role.
-func PowerDownFrom(p *Plan, from BenchState) []PowerAction {
+func PowerDownFrom(p *plan.Plan, from plan.BenchState) []PowerAction {
 	from = boundedDown(p, from)
 	step := RampStep(p)
 	var a []PowerAction
@@ -106,7 +108,7 @@ func PowerDownFrom(p *Plan, from BenchState) []PowerAction {
 		a = append(a, PowerAction{Op: PowerOutputOff, Role: r})
 	}
 	a = append(a, rampRails(from.PosVolts, from.NegVolts, 0, 0, step)...)
-	a = append(a, PowerAction{Op: PowerOutputOff, Role: RoleSupplyNeg}, PowerAction{Op: PowerOutputOff, Role: RoleSupplyPos})
+	a = append(a, PowerAction{Op: PowerOutputOff, Role: plan.RoleSupplyNeg}, PowerAction{Op: PowerOutputOff, Role: plan.RoleSupplyPos})
 	return a
 }
 
@@ -120,7 +122,7 @@ func PowerDownFrom(p *Plan, from BenchState) []PowerAction {
 // intermediate state is checked against the
 // absolute maxima (span, rail polarity, inputs beyond the rails, source
 // size); a violation is returned as an error and no actions.
-func Transition(p *Plan, from, to BenchState) ([]PowerAction, error) {
+func Transition(p *plan.Plan, from, to plan.BenchState) ([]PowerAction, error) {
 	step := RampStep(p)
 	var a []PowerAction
 	towardZero := func(r string) bool {
@@ -147,7 +149,7 @@ func Transition(p *Plan, from, to BenchState) ([]PowerAction, error) {
 
 // checkRamp replays actions from a state and checks the hard limits after
 // each one.
-func checkRamp(p *Plan, s BenchState, actions []PowerAction) error {
+func checkRamp(p *plan.Plan, s plan.BenchState, actions []PowerAction) error {
 	var hard []safetyLimit
 	for _, l := range safetyLimits(p) {
 		if l.hard {
@@ -167,20 +169,20 @@ func checkRamp(p *Plan, s BenchState, actions []PowerAction) error {
 
 // ApplyAction returns the state after a PowerSetVolts action (other
 // actions leave the programmed state as it is).
-func ApplyAction(s BenchState, a PowerAction) BenchState {
+func ApplyAction(s plan.BenchState, a PowerAction) plan.BenchState {
 	if a.Op != PowerSetVolts {
 		return s
 	}
 	switch a.Role {
-	case RoleSupplyPos:
+	case plan.RoleSupplyPos:
 		s.PosVolts = a.Volts
-	case RoleSupplyNeg:
+	case plan.RoleSupplyNeg:
 		s.NegVolts = a.Volts
-	case RoleSourceCM:
+	case plan.RoleSourceCM:
 		s.CMVolts = a.Volts
-	case RoleSourceDiff:
+	case plan.RoleSourceDiff:
 		s.DiffVolts = a.Volts
-	case RoleSourceRef:
+	case plan.RoleSourceRef:
 		s.RefVolts = a.Volts
 	}
 	return s
@@ -188,13 +190,13 @@ func ApplyAction(s BenchState, a PowerAction) BenchState {
 
 // SourceVolts is the voltage a source role has in state s (0 V for a role
 // that is not a source).
-func SourceVolts(s BenchState, role string) float64 {
+func SourceVolts(s plan.BenchState, role string) float64 {
 	switch role {
-	case RoleSourceCM:
+	case plan.RoleSourceCM:
 		return s.CMVolts
-	case RoleSourceDiff:
+	case plan.RoleSourceDiff:
 		return s.DiffVolts
-	case RoleSourceRef:
+	case plan.RoleSourceRef:
 		return s.RefVolts
 	}
 	return 0
@@ -248,11 +250,11 @@ func rampRails(p0, n0, p1, n1, step float64) []PowerAction {
 	pv, nv := p0, n0
 	movePos := func() {
 		pv = StepToward(pv, p1, step)
-		a = append(a, PowerAction{Op: PowerSetVolts, Role: RoleSupplyPos, Volts: pv})
+		a = append(a, PowerAction{Op: PowerSetVolts, Role: plan.RoleSupplyPos, Volts: pv})
 	}
 	moveNeg := func() {
 		nv = StepToward(nv, n1, step)
-		a = append(a, PowerAction{Op: PowerSetVolts, Role: RoleSupplyNeg, Volts: nv})
+		a = append(a, PowerAction{Op: PowerSetVolts, Role: plan.RoleSupplyNeg, Volts: nv})
 	}
 	for pv != p1 || nv != n1 {
 		posShrinks := p1 < pv

@@ -1,4 +1,9 @@
-package procedure
+// Package clock is the runner's time base: bench time, which on a real
+// bench is wall time and against a simulated bench started with
+// --time-scale N runs N times faster (NewScaled); Manual only moves when
+// told, for tests and dry runs; Offset continues a resumed run's
+// bench-time axis. It imports nothing of ours.
+package clock
 
 import (
 	"context"
@@ -21,10 +26,10 @@ type Clock interface {
 	Sleep(ctx context.Context, d time.Duration) error
 }
 
-// NewScaledClock returns a Clock on wall time multiplied by scale: Now
+// NewScaled returns a Clock on wall time multiplied by scale: Now
 // advances scale times faster than the wall clock and Sleep(d) sleeps d/scale
 // of wall time. A scale ≤ 0 (or NaN) means 1, a real bench.
-func NewScaledClock(scale float64) Clock {
+func NewScaled(scale float64) Clock {
 	if !(scale > 0) {
 		scale = 1
 	}
@@ -65,19 +70,22 @@ type offsetClock struct {
 	offset time.Duration
 }
 
+// Offset returns c shifted by offset of bench time.
+func Offset(c Clock, offset time.Duration) Clock { return offsetClock{Clock: c, offset: offset} }
+
 func (c offsetClock) Now() time.Duration { return c.Clock.Now() + c.offset }
 
-// ManualClock is a Clock that only moves when told: Sleep advances it
+// Manual is a Clock that only moves when told: Sleep advances it
 // instantly by d. It serves tests and dry runs (an estimate of the
 // duration of a plan against fake instruments). It is safe for concurrent
 // use.
-type ManualClock struct {
+type Manual struct {
 	mu  sync.Mutex
 	now time.Duration
 }
 
 // Now returns the bench time reached so far.
-func (c *ManualClock) Now() time.Duration {
+func (c *Manual) Now() time.Duration {
 	c.mu.Lock()
 	defer c.mu.Unlock()
 	return c.now
@@ -85,7 +93,7 @@ func (c *ManualClock) Now() time.Duration {
 
 // Sleep advances the clock by d at once (negative d does nothing); it
 // returns ctx's error, without advancing, when ctx is already done.
-func (c *ManualClock) Sleep(ctx context.Context, d time.Duration) error {
+func (c *Manual) Sleep(ctx context.Context, d time.Duration) error {
 	if err := ctx.Err(); err != nil {
 		return err
 	}
@@ -95,7 +103,7 @@ func (c *ManualClock) Sleep(ctx context.Context, d time.Duration) error {
 
 // Advance moves the clock forward by d (negative d does nothing), as an
 // instrument exchange that takes time would.
-func (c *ManualClock) Advance(d time.Duration) {
+func (c *Manual) Advance(d time.Duration) {
 	if d <= 0 {
 		return
 	}

@@ -1,4 +1,4 @@
-package procedure
+package clock
 
 import (
 	"context"
@@ -11,12 +11,12 @@ func TestScaledClock(t *testing.T) {
 	for _, tc := range []struct {
 		scale, want float64
 	}{{200, 200}, {1, 1}, {0, 1}, {-3, 1}} {
-		c := NewScaledClock(tc.scale).(*scaledClock)
+		c := NewScaled(tc.scale).(*scaledClock)
 		if c.scale != tc.want {
-			t.Errorf("NewScaledClock(%g): scale %g, want %g", tc.scale, c.scale, tc.want)
+			t.Errorf("NewScaled(%g): scale %g, want %g", tc.scale, c.scale, tc.want)
 		}
 	}
-	c := NewScaledClock(1000)
+	c := NewScaled(1000)
 	ctx, cancel := context.WithCancel(context.Background())
 	cancel()
 	// A cancelled context ends a sleep at once, whatever its length.
@@ -36,7 +36,7 @@ func TestScaledClock(t *testing.T) {
 }
 
 func TestManualAndOffsetClock(t *testing.T) {
-	var m ManualClock
+	var m Manual
 	if err := m.Sleep(context.Background(), 90*time.Second); err != nil || m.Now() != 90*time.Second {
 		t.Fatalf("Sleep: %v, now %v", err, m.Now())
 	}
@@ -49,7 +49,7 @@ func TestManualAndOffsetClock(t *testing.T) {
 	if err := m.Sleep(ctx, time.Second); err == nil || m.Now() != 90*time.Second {
 		t.Errorf("Sleep on a cancelled context: %v, now %v", err, m.Now())
 	}
-	o := offsetClock{Clock: &m, offset: time.Hour}
+	o := Offset(&m, time.Hour)
 	if o.Now() != time.Hour+90*time.Second {
 		t.Errorf("offset clock reads %v", o.Now())
 	}

@@ -1,4 +1,4 @@
-package analysis
+package freq
 
 import (
 	"math"
@@ -6,6 +6,7 @@ import (
 	"testing"
 
 	"nullbench/fit"
+	"nullbench/procedure/analysis"
 	"nullbench/procedure/journal"
 	"nullbench/procedure/plan"
 )
@@ -174,7 +175,7 @@ func TestFreqPoleAndDCCheck(t *testing.T) {
 			db := 100 - 10*math.Log10(1+(f/300)*(f/300))
 			fr.Points = append(fr.Points, FreqPoint{FrequencyHz: f, Rejection: fit.Rejection{Resolved: true, RatioDB: db, StdUncDB: 0.05}})
 		}
-		dc := &Results{Ratios: []RatioResult{{Unit: "N01", Name: plan.TestCMRR, Rejection: fit.Rejection{Resolved: true, RatioDB: dcDB, ExpandedUDB: 0.2}}}}
+		dc := &analysis.Results{Ratios: []analysis.RatioResult{{Unit: "N01", Name: plan.TestCMRR, Rejection: fit.Rejection{Resolved: true, RatioDB: dcDB, ExpandedUDB: 0.2}}}}
 		polePlusDC(fr, dc, 0.95)
 		return fr
 	}
@@ -195,7 +196,7 @@ func TestFreqPoleAndDCCheck(t *testing.T) {
 // carried to the text fails here.
 func TestFreqMethodTextNamesWhatTheCodeDoes(t *testing.T) {
 	text := strings.Join(FreqMethodText(), "\n")
-	for _, want := range []string{"three-parameter", "K/(1 + j·f·K/GBW)", "(1 + G)", "a tenth", ResultCMRRUncorrected, "10·log10(1 + (f/f_p)²)", "zero sensitivity"} {
+	for _, want := range []string{"three-parameter", "K/(1 + j·f·K/GBW)", "(1 + G)", "a tenth", analysis.ResultCMRRUncorrected, "10·log10(1 + (f/f_p)²)", "zero sensitivity"} {
 		if !strings.Contains(text, want) {
 			t.Errorf("method text lacks %q", want)
 		}

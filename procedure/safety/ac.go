@@ -1,6 +1,10 @@
-package plan
+package safety
 
-import "fmt"
+import (
+	"fmt"
+
+	"nullbench/procedure/plan"
+)
 
 // checkACSafety applies every safety condition of CheckSafetyWith to the
 // sine of each [[ac_test]] at both of its peaks, DC level plus peak
@@ -9,12 +13,12 @@ import "fmt"
 // input-beyond-rail, span and polarity rules and the fixture's maximum
 // stimulus are all checked this way; the hazardous-voltage gate
 // (AssessHazard) counts the same peak states.
-func checkACSafety(p *Plan, limits []safetyLimit, nominalBad map[string]bool,
+func checkACSafety(p *plan.Plan, limits []safetyLimit, nominalBad map[string]bool,
 	refuse func(key string, line int, fix, format string, args ...any)) {
 	for i := range p.ACTests {
 		t := &p.ACTests[i]
-		key := acTestKey(i) + ".peak_volts"
-		peaks := ACPeakStates(p, t)
+		key := plan.ACTestKey(i) + ".peak_volts"
+		peaks := plan.ACPeakStates(p, t)
 		for _, l := range limits {
 			if nominalBad[l.id] {
 				continue
@@ -22,9 +26,9 @@ func checkACSafety(p *Plan, limits []safetyLimit, nominalBad map[string]bool,
 			for j, s := range peaks {
 				if l.slack(s) < -slackTolerance {
 					refuse(key, 0, fmt.Sprintf("lower peak_volts (or move offset_volts) so that DC level ± peak stays inside; the largest safe peak here is %s",
-						fmtMag(maxSafePeak(p, t, limits))),
+						plan.FormatMag(maxSafePeak(p, t, limits))),
 						"%s sine %s peak (%s %s %s): %s", t.Kind, [2]string{"positive", "negative"}[j],
-						FormatVolts(t.OffsetVolts), [2]string{"+", "−"}[j], fmtMag(t.PeakVolts), l.problem(s))
+						plan.FormatVolts(t.OffsetVolts), [2]string{"+", "−"}[j], plan.FormatMag(t.PeakVolts), l.problem(s))
 					break
 				}
 			}
@@ -35,10 +39,10 @@ func checkACSafety(p *Plan, limits []safetyLimit, nominalBad map[string]bool,
 // maxSafePeak is the largest peak amplitude for which both peaks of the
 // test's sine satisfy every limit (0 when even the DC level fails), found
 // by bisection on the affine slacks.
-func maxSafePeak(p *Plan, t *ACTest, limits []safetyLimit) float64 {
+func maxSafePeak(p *plan.Plan, t *plan.ACTest, limits []safetyLimit) float64 {
 	ok := func(a float64) bool {
 		for _, v := range []float64{a, -a} {
-			s := ACStateAt(p, t, v)
+			s := plan.ACStateAt(p, t, v)
 			for _, l := range limits {
 				if l.slack(s) < -slackTolerance {
 					return false

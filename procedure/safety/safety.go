@@ -1,10 +1,11 @@
-package plan
+package safety
 
 import (
 	"fmt"
 	"math"
-	"strconv"
 	"strings"
+
+	"nullbench/procedure/plan"
 )
 
 // HazardousVolts is the DC voltage above which a terminal is treated as
@@ -16,132 +17,13 @@ import (
 // typed at a terminal.
 const HazardousVolts = 60.0
 
-// BenchState is what the bench applies to the part at one point, in volts
-// to ground. Level semantics (all from the plan's nominal rails Vp0, Vn0):
-//
-//	cmrr, supply_shift:  V+ = Vp0 - L, V- = Vn0 - L, inputs at ground.
-//	                     The inputs then sit at +L from the rails' centre
-//	                     (equivalent V_CM = -(V+ + V-)/2 + (Vp0 + Vn0)/2),
-//	                     the convention of MIL-M-38510/114 Table III
-//	                     (Group A): ±20 V rails, L = +15 gives +5/-35 V.
-//	cmrr, input_drive:   V_CM = L at the inputs (source_cm), rails nominal.
-//	psrr_pos:            V+ = Vp0 + d (V- nominal).
-//	psrr_neg:            V- = Vn0 - d: a positive d grows the rail's
-//	                     magnitude, like psrr_pos (V+ nominal).
-//	psrr_sym:            V+ = Vp0 + d/2, V- = Vn0 - d/2: the span grows by d.
-//	aol:                 source_ref = r holds the part's output at r; rails
-//	                     nominal, inputs at ground.
-//	board_cmrr:          levels: V_CM = L from source_cm (V_d = 0);
-//	                     diff_levels: V_d from source_diff (V_CM = 0).
-//	board_psrr_pos/neg:  as psrr_pos/neg.
-//
-// MIL-M-38510/114 tests 14 and 15 (+10/-20 V and +20/-10 V from ±20 V) are
-// psrr_pos and psrr_neg at d = -10 V.
-type BenchState struct {
-	PosVolts  float64 // V+ rail
-	NegVolts  float64 // V- rail (negative on a split supply)
-	CMVolts   float64 // source_cm: the inputs' common-mode node (0 when unused)
-	DiffVolts float64 // source_diff: a board's differential drive
-	RefVolts  float64 // source_ref: where the nulling loop holds the output
-}
-
-// NominalState is the bench at the part's nominal rails with every source
-// at 0 V: where power-up ends and every test starts and ends.
-func NominalState(p *Plan) BenchState {
-	return BenchState{PosVolts: p.Part.NominalPosVolts, NegVolts: p.Part.NominalNegVolts}
-}
-
-// StateAt returns the bench state at one level of a test (part is "" or,
-// for board_cmrr, PartCM or PartDiff). See BenchState for the semantics.
-func StateAt(p *Plan, t *Test, part string, level float64) BenchState {
-	s := NominalState(p)
-	switch t.Kind {
-	case TestCMRR:
-		if p.Fixture.CommonMode == CMByInputDrive {
-			s.CMVolts = level
-		} else {
-			s.PosVolts -= level
-			s.NegVolts -= level
-		}
-	case TestPSRRPos, TestBoardPSRRPos:
-		s.PosVolts += level
-	case TestPSRRNeg, TestBoardPSRRNeg:
-		s.NegVolts -= level
-	case TestPSRRSym:
-		s.PosVolts += level / 2
-		s.NegVolts -= level / 2
-	case TestAOL:
-		s.RefVolts = level
-	case TestBoardCMRR:
-		if part == PartDiff {
-			s.DiffVolts = level
-		} else {
-			s.CMVolts = level
-		}
-	}
-	return s
-}
-
-// Terminals are the voltages to ground at the part's pins.
-type Terminals struct {
-	PosVolts    float64 // V+
-	NegVolts    float64 // V-
-	InHighVolts float64 // the highest input pin
-	InLowVolts  float64 // the lowest input pin
-	OutVolts    float64 // the output, as far as the plan fixes it
-}
-
-// TerminalsOf derives the pin voltages from a bench state. The inputs of
-// an op-amp fixture sit at the common-mode node. A board's inputs are taken
-// at V_CM ± |V_d|, which covers both a drive split about the common mode
-// and a drive on one input. The output is the held reference in a nulling
-// loop, follows the inputs in a noise-gain stage (plus K·V_IO, ignored),
-// and is G·V_d on a board (its common-mode gain ignored).
-func TerminalsOf(p *Plan, s BenchState) Terminals {
-	t := Terminals{PosVolts: s.PosVolts, NegVolts: s.NegVolts, InHighVolts: s.CMVolts, InLowVolts: s.CMVolts}
-	switch p.Fixture.Kind {
-	case FixtureNullingLoop:
-		t.OutVolts = s.RefVolts
-	case FixtureNoiseGain:
-		t.OutVolts = s.CMVolts
-	case FixtureBoard:
-		d := math.Abs(s.DiffVolts)
-		t.InHighVolts, t.InLowVolts = s.CMVolts+d, s.CMVolts-d
-		t.OutVolts = p.Fixture.BoardGain * s.DiffVolts
-	}
-	return t
-}
-
-// MaxToGroundVolts is the largest |voltage| of any pin or source to ground.
-func (t Terminals) MaxToGroundVolts(s BenchState) float64 {
-	m := 0.0
-	for _, v := range t.all(s) {
-		m = math.Max(m, math.Abs(v))
-	}
-	return m
-}
-
-// AcrossVolts is the largest voltage between any two pins, sources or
-// ground.
-func (t Terminals) AcrossVolts(s BenchState) float64 {
-	lo, hi := 0.0, 0.0
-	for _, v := range t.all(s) {
-		lo, hi = math.Min(lo, v), math.Max(hi, v)
-	}
-	return hi - lo
-}
-
-func (t Terminals) all(s BenchState) []float64 {
-	return []float64{t.PosVolts, t.NegVolts, t.InHighVolts, t.InLowVolts, t.OutVolts, s.CMVolts, s.DiffVolts, s.RefVolts}
-}
-
 // A safetyLimit is one condition slack(state) ≥ 0. Every slack is affine
 // in a test's level (the states are), which lets safeLevels solve for the
 // range of safe levels.
 type safetyLimit struct {
 	id      string
-	slack   func(s BenchState) float64
-	problem func(s BenchState) string
+	slack   func(s plan.BenchState) float64
+	problem func(s plan.BenchState) string
 	planKey string // the key that sets the limit, for refusals not tied to a level
 	fix     string
 	hard    bool // an absolute maximum: also checked on every ramp step
@@ -150,43 +32,43 @@ type safetyLimit struct {
 // slackTolerance absorbs floating-point rounding in level arithmetic.
 const slackTolerance = 1e-9
 
-func safetyLimits(p *Plan) []safetyLimit {
+func safetyLimits(p *plan.Plan) []safetyLimit {
 	pt := &p.Part
 	var ls []safetyLimit
 	if pt.MaxSupplySpanVolts > 0 {
 		ls = append(ls, safetyLimit{
 			id:    "span",
-			slack: func(s BenchState) float64 { return pt.MaxSupplySpanVolts - (s.PosVolts - s.NegVolts) },
-			problem: func(s BenchState) string {
+			slack: func(s plan.BenchState) float64 { return pt.MaxSupplySpanVolts - (s.PosVolts - s.NegVolts) },
+			problem: func(s plan.BenchState) string {
 				return fmt.Sprintf("V+ = %s, V- = %s: the span %s exceeds the part's absolute maximum %g V (part.max_supply_span_volts)",
-					FormatVolts(s.PosVolts), FormatVolts(s.NegVolts), fmtMag(s.PosVolts-s.NegVolts), pt.MaxSupplySpanVolts)
+					plan.FormatVolts(s.PosVolts), plan.FormatVolts(s.NegVolts), plan.FormatMag(s.PosVolts-s.NegVolts), pt.MaxSupplySpanVolts)
 			},
 			planKey: "part.max_supply_span_volts", fix: "lower the nominal rails or check the rating", hard: true,
 		})
 	}
 	ls = append(ls, safetyLimit{
 		id:    "polarity-pos",
-		slack: func(s BenchState) float64 { return s.PosVolts },
-		problem: func(s BenchState) string {
-			return fmt.Sprintf("V+ = %s: the supply_pos channel programs only 0 V or more", FormatVolts(s.PosVolts))
+		slack: func(s plan.BenchState) float64 { return s.PosVolts },
+		problem: func(s plan.BenchState) string {
+			return fmt.Sprintf("V+ = %s: the supply_pos channel programs only 0 V or more", plan.FormatVolts(s.PosVolts))
 		},
 		planKey: "part.nominal_pos_volts", fix: "keep V+ at or above 0 V", hard: true,
 	})
 	if p.Bench.Roles.SupplyNeg.Negative {
 		ls = append(ls, safetyLimit{
 			id:    "polarity-neg",
-			slack: func(s BenchState) float64 { return -s.NegVolts },
-			problem: func(s BenchState) string {
-				return fmt.Sprintf("V- = %s, but supply_neg is a negative-rail channel (negative = true) and makes only 0 V or less", FormatVolts(s.NegVolts))
+			slack: func(s plan.BenchState) float64 { return -s.NegVolts },
+			problem: func(s plan.BenchState) string {
+				return fmt.Sprintf("V- = %s, but supply_neg is a negative-rail channel (negative = true) and makes only 0 V or less", plan.FormatVolts(s.NegVolts))
 			},
 			planKey: "part.nominal_neg_volts", fix: "keep V- at or below 0 V", hard: true,
 		})
 	} else {
 		ls = append(ls, safetyLimit{
 			id:    "polarity-neg",
-			slack: func(s BenchState) float64 { return s.NegVolts },
-			problem: func(s BenchState) string {
-				return fmt.Sprintf("V- = %s, but supply_neg is not marked negative = true: a supply channel programs only 0 V or more", FormatVolts(s.NegVolts))
+			slack: func(s plan.BenchState) float64 { return s.NegVolts },
+			problem: func(s plan.BenchState) string {
+				return fmt.Sprintf("V- = %s, but supply_neg is not marked negative = true: a supply channel programs only 0 V or more", plan.FormatVolts(s.NegVolts))
 			},
 			planKey: "bench.roles.supply_neg",
 			fix:     "if that channel is wired floating with its + terminal on ground, set negative = true on bench.roles.supply_neg",
@@ -198,65 +80,65 @@ func safetyLimits(p *Plan) []safetyLimit {
 	ls = append(ls,
 		safetyLimit{
 			id: "cm-pos",
-			slack: func(s BenchState) float64 {
-				return s.PosVolts - TerminalsOf(p, s).InHighVolts - needPos
+			slack: func(s plan.BenchState) float64 {
+				return s.PosVolts - plan.TerminalsOf(p, s).InHighVolts - needPos
 			},
-			problem: func(s BenchState) string {
-				t := TerminalsOf(p, s)
+			problem: func(s plan.BenchState) string {
+				t := plan.TerminalsOf(p, s)
 				return fmt.Sprintf("an input at %s is %s below V+ = %s; the common-mode range needs %g V (cm_headroom_pos_volts %g + cm_margin_volts %g)",
-					FormatVolts(t.InHighVolts), fmtMag(s.PosVolts-t.InHighVolts), FormatVolts(s.PosVolts), needPos, pt.CMHeadroomPosVolts, pt.CMMarginVolts)
+					plan.FormatVolts(t.InHighVolts), plan.FormatMag(s.PosVolts-t.InHighVolts), plan.FormatVolts(s.PosVolts), needPos, pt.CMHeadroomPosVolts, pt.CMMarginVolts)
 			},
 			planKey: "part.cm_headroom_pos_volts", fix: "keep the inputs inside the common-mode range",
 		},
 		safetyLimit{
 			id: "cm-neg",
-			slack: func(s BenchState) float64 {
-				return TerminalsOf(p, s).InLowVolts - s.NegVolts - needNeg
+			slack: func(s plan.BenchState) float64 {
+				return plan.TerminalsOf(p, s).InLowVolts - s.NegVolts - needNeg
 			},
-			problem: func(s BenchState) string {
-				t := TerminalsOf(p, s)
+			problem: func(s plan.BenchState) string {
+				t := plan.TerminalsOf(p, s)
 				return fmt.Sprintf("an input at %s is %s above V- = %s; the common-mode range needs %g V (cm_headroom_neg_volts %g + cm_margin_volts %g)",
-					FormatVolts(t.InLowVolts), fmtMag(t.InLowVolts-s.NegVolts), FormatVolts(s.NegVolts), needNeg, pt.CMHeadroomNegVolts, pt.CMMarginVolts)
+					plan.FormatVolts(t.InLowVolts), plan.FormatMag(t.InLowVolts-s.NegVolts), plan.FormatVolts(s.NegVolts), needNeg, pt.CMHeadroomNegVolts, pt.CMMarginVolts)
 			},
 			planKey: "part.cm_headroom_neg_volts", fix: "keep the inputs inside the common-mode range",
 		},
 		safetyLimit{
 			id: "beyond-pos",
-			slack: func(s BenchState) float64 {
-				return s.PosVolts + pt.InputBeyondRailVolts - TerminalsOf(p, s).InHighVolts
+			slack: func(s plan.BenchState) float64 {
+				return s.PosVolts + pt.InputBeyondRailVolts - plan.TerminalsOf(p, s).InHighVolts
 			},
-			problem: func(s BenchState) string {
-				t := TerminalsOf(p, s)
+			problem: func(s plan.BenchState) string {
+				t := plan.TerminalsOf(p, s)
 				return fmt.Sprintf("an input at %s is beyond V+ = %s by more than %g V (part.input_beyond_rail_volts): its protection diodes would conduct",
-					FormatVolts(t.InHighVolts), FormatVolts(s.PosVolts), pt.InputBeyondRailVolts)
+					plan.FormatVolts(t.InHighVolts), plan.FormatVolts(s.PosVolts), pt.InputBeyondRailVolts)
 			},
 			planKey: "part.input_beyond_rail_volts", fix: "keep every input between the rails", hard: true,
 		},
 		safetyLimit{
 			id: "beyond-neg",
-			slack: func(s BenchState) float64 {
-				return TerminalsOf(p, s).InLowVolts - s.NegVolts + pt.InputBeyondRailVolts
+			slack: func(s plan.BenchState) float64 {
+				return plan.TerminalsOf(p, s).InLowVolts - s.NegVolts + pt.InputBeyondRailVolts
 			},
-			problem: func(s BenchState) string {
-				t := TerminalsOf(p, s)
+			problem: func(s plan.BenchState) string {
+				t := plan.TerminalsOf(p, s)
 				return fmt.Sprintf("an input at %s is beyond V- = %s by more than %g V (part.input_beyond_rail_volts): its protection diodes would conduct",
-					FormatVolts(t.InLowVolts), FormatVolts(s.NegVolts), pt.InputBeyondRailVolts)
+					plan.FormatVolts(t.InLowVolts), plan.FormatVolts(s.NegVolts), pt.InputBeyondRailVolts)
 			},
 			planKey: "part.input_beyond_rail_volts", fix: "keep every input between the rails", hard: true,
 		},
 		safetyLimit{
 			id:    "out-pos",
-			slack: func(s BenchState) float64 { return s.PosVolts - TerminalsOf(p, s).OutVolts },
-			problem: func(s BenchState) string {
-				return fmt.Sprintf("the part's output would have to sit at %s, above V+ = %s", FormatVolts(TerminalsOf(p, s).OutVolts), FormatVolts(s.PosVolts))
+			slack: func(s plan.BenchState) float64 { return s.PosVolts - plan.TerminalsOf(p, s).OutVolts },
+			problem: func(s plan.BenchState) string {
+				return fmt.Sprintf("the part's output would have to sit at %s, above V+ = %s", plan.FormatVolts(plan.TerminalsOf(p, s).OutVolts), plan.FormatVolts(s.PosVolts))
 			},
 			planKey: "part.nominal_pos_volts", fix: "keep the output between the rails",
 		},
 		safetyLimit{
 			id:    "out-neg",
-			slack: func(s BenchState) float64 { return TerminalsOf(p, s).OutVolts - s.NegVolts },
-			problem: func(s BenchState) string {
-				return fmt.Sprintf("the part's output would have to sit at %s, below V- = %s", FormatVolts(TerminalsOf(p, s).OutVolts), FormatVolts(s.NegVolts))
+			slack: func(s plan.BenchState) float64 { return plan.TerminalsOf(p, s).OutVolts - s.NegVolts },
+			problem: func(s plan.BenchState) string {
+				return fmt.Sprintf("the part's output would have to sit at %s, below V- = %s", plan.FormatVolts(plan.TerminalsOf(p, s).OutVolts), plan.FormatVolts(s.NegVolts))
 			},
 			planKey: "part.nominal_neg_volts", fix: "keep the output between the rails",
 		},
@@ -264,19 +146,19 @@ func safetyLimits(p *Plan) []safetyLimit {
 	if m := p.Fixture.MaxStimulusVolts; m > 0 {
 		src := []struct {
 			role string
-			get  func(BenchState) float64
+			get  func(plan.BenchState) float64
 		}{
-			{RoleSourceCM, func(s BenchState) float64 { return s.CMVolts }},
-			{RoleSourceDiff, func(s BenchState) float64 { return s.DiffVolts }},
-			{RoleSourceRef, func(s BenchState) float64 { return s.RefVolts }},
+			{plan.RoleSourceCM, func(s plan.BenchState) float64 { return s.CMVolts }},
+			{plan.RoleSourceDiff, func(s plan.BenchState) float64 { return s.DiffVolts }},
+			{plan.RoleSourceRef, func(s plan.BenchState) float64 { return s.RefVolts }},
 		}
 		for _, sr := range src {
 			for _, sign := range []float64{1, -1} {
 				ls = append(ls, safetyLimit{
 					id:    "stimulus-" + sr.role,
-					slack: func(s BenchState) float64 { return m - sign*sr.get(s) },
-					problem: func(s BenchState) string {
-						return fmt.Sprintf("%s at %s exceeds the fixture's max_stimulus_volts %g V", sr.role, FormatVolts(sr.get(s)), m)
+					slack: func(s plan.BenchState) float64 { return m - sign*sr.get(s) },
+					problem: func(s plan.BenchState) string {
+						return fmt.Sprintf("%s at %s exceeds the fixture's max_stimulus_volts %g V", sr.role, plan.FormatVolts(sr.get(s)), m)
 					},
 					planKey: "fixture.max_stimulus_volts", fix: "keep every source within ±max_stimulus_volts", hard: true,
 				})
@@ -289,9 +171,9 @@ func safetyLimits(p *Plan) []safetyLimit {
 // SafeLevels returns the range of levels [lo, hi] of one sweep of t (part
 // as in StateAt) that passes every electrical limit of the plan; ok is
 // false when no level does. Infinite bounds mean no limit on that side.
-func SafeLevels(p *Plan, t *Test, part string) (lo, hi float64, ok bool) {
+func SafeLevels(p *plan.Plan, t *plan.Test, part string) (lo, hi float64, ok bool) {
 	lo, hi = math.Inf(-1), math.Inf(1)
-	s0, s1 := StateAt(p, t, part, 0), StateAt(p, t, part, 1)
+	s0, s1 := plan.StateAt(p, t, part, 0), plan.StateAt(p, t, part, 1)
 	for _, l := range safetyLimits(p) {
 		g0, g1 := l.slack(s0), l.slack(s1)
 		slope := g1 - g0
@@ -312,7 +194,7 @@ func SafeLevels(p *Plan, t *Test, part string) (lo, hi float64, ok bool) {
 // SafetyError is a plan refused before any instrument contact: every
 // refusal with its file, line and key, and the hazard assessment.
 type SafetyError struct {
-	Refusals Errors
+	Refusals plan.Errors
 	Hazard   Hazard
 }
 
@@ -332,31 +214,31 @@ type Hazard struct {
 }
 
 // AssessHazard scans the nominal state and every level of every test.
-func AssessHazard(p *Plan) Hazard {
+func AssessHazard(p *plan.Plan) Hazard {
 	var h Hazard
-	look := func(s BenchState, where string) {
-		t := TerminalsOf(p, s)
+	look := func(s plan.BenchState, where string) {
+		t := plan.TerminalsOf(p, s)
 		g, a := t.MaxToGroundVolts(s), t.AcrossVolts(s)
 		h.MaxToGroundVolts = math.Max(h.MaxToGroundVolts, g)
 		if a > h.MaxAcrossVolts || h.Where == "" {
 			h.MaxAcrossVolts = a
 			h.Where = fmt.Sprintf("%s: V+ = %s, V- = %s, inputs %s … %s, output %s",
-				where, FormatVolts(s.PosVolts), FormatVolts(s.NegVolts), FormatVolts(t.InLowVolts), FormatVolts(t.InHighVolts), FormatVolts(t.OutVolts))
+				where, plan.FormatVolts(s.PosVolts), plan.FormatVolts(s.NegVolts), plan.FormatVolts(t.InLowVolts), plan.FormatVolts(t.InHighVolts), plan.FormatVolts(t.OutVolts))
 		}
 	}
-	look(NominalState(p), "nominal rails")
+	look(plan.NominalState(p), "nominal rails")
 	for i := range p.Tests {
 		t := &p.Tests[i]
-		for _, sw := range Sweeps(t) {
+		for _, sw := range plan.Sweeps(t) {
 			for _, l := range sw.Levels {
-				look(StateAt(p, t, sw.Part, l), fmt.Sprintf("%s (%s%s) level %s", testKey(i), t.Kind, PartSuffix(sw.Part), FormatVolts(l)))
+				look(plan.StateAt(p, t, sw.Part, l), fmt.Sprintf("%s (%s%s) level %s", plan.TestKey(i), t.Kind, plan.PartSuffix(sw.Part), plan.FormatVolts(l)))
 			}
 		}
 	}
 	for i := range p.ACTests {
 		t := &p.ACTests[i]
-		for j, s := range ACPeakStates(p, t) {
-			look(s, fmt.Sprintf("%s (%s) sine %s peak", acTestKey(i), t.Kind, [2]string{"positive", "negative"}[j]))
+		for j, s := range plan.ACPeakStates(p, t) {
+			look(s, fmt.Sprintf("%s (%s) sine %s peak", plan.ACTestKey(i), t.Kind, [2]string{"positive", "negative"}[j]))
 		}
 	}
 	h.Hazardous = h.MaxAcrossVolts > HazardousVolts || h.MaxToGroundVolts > HazardousVolts
@@ -378,7 +260,7 @@ type HazardConsent struct {
 func HazardPrompt(h Hazard) string {
 	return fmt.Sprintf("DANGER: this plan puts %s across the bench (%s to ground), above the %g V DC limit of safety extra-low voltage (SELV/ES1).\n"+
 		"Worst step: %s.\nCheck guarding, insulation and interlocks, and local rules. Type \"yes\" to energise: ",
-		fmtMag(h.MaxAcrossVolts), fmtMag(h.MaxToGroundVolts), HazardousVolts, h.Where)
+		plan.FormatMag(h.MaxAcrossVolts), plan.FormatMag(h.MaxToGroundVolts), HazardousVolts, h.Where)
 }
 
 // HazardAnswerOK accepts exactly "yes" (any case, surrounding space
@@ -388,7 +270,7 @@ func HazardAnswerOK(answer string) bool { return strings.EqualFold(strings.TrimS
 // CheckSafety refuses a plan that would harm the part or the operator,
 // computed from the plan alone, before any instrument contact. It is
 // CheckSafetyWith with no consent: hazardous plans are refused.
-func CheckSafety(p *Plan) error { return CheckSafetyWith(p, HazardConsent{}) }
+func CheckSafety(p *plan.Plan) error { return CheckSafetyWith(p, HazardConsent{}) }
 
 // CheckSafetyWith validates the plan, then checks the nominal state and
 // every level of every test and refuses when
@@ -408,16 +290,16 @@ func CheckSafety(p *Plan) error { return CheckSafetyWith(p, HazardConsent{}) }
 //
 // It returns a *SafetyError listing every refusal, Errors when the plan
 // is not valid, or nil.
-func CheckSafetyWith(p *Plan, consent HazardConsent) error {
-	if err := Validate(p); err != nil {
+func CheckSafetyWith(p *plan.Plan, consent HazardConsent) error {
+	if err := plan.Validate(p); err != nil {
 		return err
 	}
-	var rs Errors
+	var rs plan.Errors
 	refuse := func(key string, line int, fix, format string, args ...any) {
 		if line == 0 {
-			line = p.keys.line(key)
+			line = p.KeyLine(key)
 		}
-		rs = append(rs, &Error{File: p.Source, Line: line, Key: key, Problem: fmt.Sprintf(format, args...), Fix: fix})
+		rs = append(rs, &plan.Error{File: p.Source, Line: line, Key: key, Problem: fmt.Sprintf(format, args...), Fix: fix})
 	}
 	pt := &p.Part
 	if pt.CurrentLimitAmps <= 0 {
@@ -441,7 +323,7 @@ func CheckSafetyWith(p *Plan, consent HazardConsent) error {
 			"the fixture's maximum stimulus is not given")
 	}
 	limits := safetyLimits(p)
-	nominal := NominalState(p)
+	nominal := plan.NominalState(p)
 	nominalBad := map[string]bool{}
 	for _, l := range limits {
 		if l.slack(nominal) < -slackTolerance && !nominalBad[l.id] {
@@ -452,16 +334,16 @@ func CheckSafetyWith(p *Plan, consent HazardConsent) error {
 	for i := range p.Tests {
 		t := &p.Tests[i]
 		parts := []string{""}
-		if t.Kind == TestBoardCMRR {
-			parts = []string{PartCM, PartDiff}
+		if t.Kind == plan.TestBoardCMRR {
+			parts = []string{plan.PartCM, plan.PartDiff}
 		}
 		for _, part := range parts {
-			key, levels := testKey(i)+".levels", t.Levels
-			if part == PartDiff {
-				key, levels = testKey(i)+".diff_levels", t.DiffLevels
+			key, levels := plan.TestKey(i)+".levels", t.Levels
+			if part == plan.PartDiff {
+				key, levels = plan.TestKey(i)+".diff_levels", t.DiffLevels
 			}
 			lo, hi, any := SafeLevels(p, t, part)
-			fix := fmt.Sprintf("keep %s within %s … %s", key, FormatVolts(lo), FormatVolts(hi))
+			fix := fmt.Sprintf("keep %s within %s … %s", key, plan.FormatVolts(lo), plan.FormatVolts(hi))
 			if !any {
 				fix = "no level of this test is safe with these rails and limits; check [part] and [fixture]"
 			}
@@ -472,10 +354,10 @@ func CheckSafetyWith(p *Plan, consent HazardConsent) error {
 				var bad []int
 				worst := -1
 				for j, x := range levels {
-					g := l.slack(StateAt(p, t, part, x))
+					g := l.slack(plan.StateAt(p, t, part, x))
 					if g < -slackTolerance {
 						bad = append(bad, j)
-						if worst < 0 || g < l.slack(StateAt(p, t, part, levels[worst])) {
+						if worst < 0 || g < l.slack(plan.StateAt(p, t, part, levels[worst])) {
 							worst = j
 						}
 					}
@@ -483,17 +365,17 @@ func CheckSafetyWith(p *Plan, consent HazardConsent) error {
 				if worst < 0 {
 					continue
 				}
-				msg := fmt.Sprintf("%s level %s: %s", t.Kind+PartSuffix(part), FormatVolts(levels[worst]), l.problem(StateAt(p, t, part, levels[worst])))
+				msg := fmt.Sprintf("%s level %s: %s", t.Kind+plan.PartSuffix(part), plan.FormatVolts(levels[worst]), l.problem(plan.StateAt(p, t, part, levels[worst])))
 				if len(bad) > 1 {
 					others := make([]string, 0, len(bad)-1)
 					for _, j := range bad {
 						if j != worst {
-							others = append(others, FormatVolts(levels[j]))
+							others = append(others, plan.FormatVolts(levels[j]))
 						}
 					}
 					msg += " (also at " + strings.Join(others, ", ") + ")"
 				}
-				refuse(key, p.keys.elemLine(key, worst), fix, "%s", msg)
+				refuse(key, p.ElemLine(key, worst), fix, "%s", msg)
 			}
 		}
 	}
@@ -504,50 +386,18 @@ func CheckSafetyWith(p *Plan, consent HazardConsent) error {
 		case !consent.AllowOption:
 			refuse("part", 0, "if the bench is built for it, run with the allow-hazardous option from a terminal and confirm",
 				"%s across the bench (%s to ground) exceeds %g V DC (SELV/ES1; IEC 61010-1 allows 70 V DC; local codes may differ): %s",
-				fmtMag(h.MaxAcrossVolts), fmtMag(h.MaxToGroundVolts), HazardousVolts, h.Where)
+				plan.FormatMag(h.MaxAcrossVolts), plan.FormatMag(h.MaxToGroundVolts), HazardousVolts, h.Where)
 		case !consent.Interactive:
 			refuse("part", 0, "run it from an interactive terminal, where the confirmation can be typed",
 				"%s exceeds %g V DC: the allow-hazardous option also needs a confirmation typed at a terminal, and there is none",
-				fmtMag(h.MaxAcrossVolts), HazardousVolts)
+				plan.FormatMag(h.MaxAcrossVolts), HazardousVolts)
 		case !consent.Confirmed:
 			refuse("part", 0, "answer \"yes\" only when the bench is guarded for it",
-				"%s exceeds %g V DC and the operator did not confirm", fmtMag(h.MaxAcrossVolts), HazardousVolts)
+				"%s exceeds %g V DC and the operator did not confirm", plan.FormatMag(h.MaxAcrossVolts), HazardousVolts)
 		}
 	}
 	if len(rs) == 0 {
 		return nil
 	}
-	return &SafetyError{Refusals: rs.sorted(), Hazard: h}
-}
-
-// PartSuffix is "/"+part for a board sweep part ("/cm", "/diff") and "" for
-// a test without parts, for naming a test in messages.
-func PartSuffix(part string) string {
-	if part == "" {
-		return ""
-	}
-	return "/" + part
-}
-
-// fmtMag writes a distance or magnitude in volts without a sign ("2.5 V").
-func fmtMag(v float64) string { return strings.TrimPrefix(FormatVolts(v), "+") }
-
-// FormatVolts writes a voltage with its sign, rounded to the microvolt, as
-// "+15 V", "-2.5 V" or "0 V"; infinities as "+inf V".
-func FormatVolts(v float64) string {
-	if math.IsInf(v, 0) {
-		if v > 0 {
-			return "+inf V"
-		}
-		return "-inf V"
-	}
-	r := math.Round(v*1e6) / 1e6
-	if r == 0 {
-		return "0 V"
-	}
-	s := strconv.FormatFloat(r, 'f', -1, 64)
-	if r > 0 {
-		s = "+" + s
-	}
-	return s + " V"
+	return &SafetyError{Refusals: rs.Sorted(), Hazard: h}
 }

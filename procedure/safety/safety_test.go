@@ -1,4 +1,4 @@
-package plan
+package safety
 
 import (
 	"errors"
@@ -7,6 +7,8 @@ import (
 	"path/filepath"
 	"strings"
 	"testing"
+
+	"nullbench/procedure/plan"
 )
 
 // TestStateAtMILM38510Table checks the level semantics against MIL-M-38510/114
@@ -16,9 +18,9 @@ import (
 // +5/-35 V (equivalent V_CM = -(V+ + V-)/2 = -15 and +15 V); test 14 is
 // +10/-20 V and test 15 is +20/-10 V (one rail 10 V closer to ground).
 func TestStateAtMILM38510Table(t *testing.T) {
-	p := &Plan{
-		Fixture: Fixture{Kind: FixtureNullingLoop, CommonMode: CMBySupplyShift},
-		Part:    Part{NominalPosVolts: 20, NominalNegVolts: -20},
+	p := &plan.Plan{
+		Fixture: plan.Fixture{Kind: plan.FixtureNullingLoop, CommonMode: plan.CMBySupplyShift},
+		Part:    plan.Part{NominalPosVolts: 20, NominalNegVolts: -20},
 	}
 	cases := []struct {
 		name           string
@@ -27,45 +29,45 @@ func TestStateAtMILM38510Table(t *testing.T) {
 		wantPos, wantN float64
 		wantEquivCM    float64 // -(V+ + V-)/2, MIL-M-38510/114 convention
 	}{
-		{"test 1", TestCMRR, -15, 35, -5, -15},
-		{"test 2", TestCMRR, +15, 5, -35, +15},
-		{"test 3 (nominal)", TestCMRR, 0, 20, -20, 0},
-		{"test 14", TestPSRRPos, -10, 10, -20, 5},
-		{"test 15", TestPSRRNeg, -10, 20, -10, -5},
+		{"test 1", plan.TestCMRR, -15, 35, -5, -15},
+		{"test 2", plan.TestCMRR, +15, 5, -35, +15},
+		{"test 3 (nominal)", plan.TestCMRR, 0, 20, -20, 0},
+		{"test 14", plan.TestPSRRPos, -10, 10, -20, 5},
+		{"test 15", plan.TestPSRRNeg, -10, 20, -10, -5},
 	}
 	for _, c := range cases {
-		s := StateAt(p, &Test{Kind: c.kind}, "", c.level)
+		s := plan.StateAt(p, &plan.Test{Kind: c.kind}, "", c.level)
 		if s.PosVolts != c.wantPos || s.NegVolts != c.wantN {
 			t.Errorf("%s: rails %+g/%+g V, want %+g/%+g V", c.name, s.PosVolts, s.NegVolts, c.wantPos, c.wantN)
 		}
 		if eq := -(s.PosVolts + s.NegVolts) / 2; eq != c.wantEquivCM {
 			t.Errorf("%s: equivalent V_CM %+g V, want %+g V", c.name, eq, c.wantEquivCM)
 		}
-		if c.kind == TestCMRR && s.PosVolts-s.NegVolts != 40 {
+		if c.kind == plan.TestCMRR && s.PosVolts-s.NegVolts != 40 {
 			t.Errorf("%s: the span must stay 40 V while shifting, got %g", c.name, s.PosVolts-s.NegVolts)
 		}
 	}
 	// The remaining semantics (BenchState doc).
-	sym := StateAt(p, &Test{Kind: TestPSRRSym}, "", 4)
+	sym := plan.StateAt(p, &plan.Test{Kind: plan.TestPSRRSym}, "", 4)
 	if sym.PosVolts != 22 || sym.NegVolts != -22 {
 		t.Errorf("psrr_sym +4 V: %+v", sym)
 	}
-	neg := StateAt(p, &Test{Kind: TestPSRRNeg}, "", 4)
+	neg := plan.StateAt(p, &plan.Test{Kind: plan.TestPSRRNeg}, "", 4)
 	if neg.NegVolts != -24 {
 		t.Errorf("psrr_neg +4 V must grow the rail's magnitude: %+v", neg)
 	}
-	aol := StateAt(p, &Test{Kind: TestAOL}, "", 7)
-	if aol.RefVolts != 7 || TerminalsOf(p, aol).OutVolts != 7 {
+	aol := plan.StateAt(p, &plan.Test{Kind: plan.TestAOL}, "", 7)
+	if aol.RefVolts != 7 || plan.TerminalsOf(p, aol).OutVolts != 7 {
 		t.Errorf("aol +7 V: %+v", aol)
 	}
-	p.Fixture.CommonMode = CMByInputDrive
-	in := StateAt(p, &Test{Kind: TestCMRR}, "", 6)
+	p.Fixture.CommonMode = plan.CMByInputDrive
+	in := plan.StateAt(p, &plan.Test{Kind: plan.TestCMRR}, "", 6)
 	if in.CMVolts != 6 || in.PosVolts != 20 || in.NegVolts != -20 {
 		t.Errorf("cmrr input drive +6 V: %+v", in)
 	}
-	b := &Plan{Fixture: Fixture{Kind: FixtureBoard, BoardGain: 10}, Part: Part{NominalPosVolts: 15, NominalNegVolts: -15}}
-	d := StateAt(b, &Test{Kind: TestBoardCMRR}, PartDiff, 0.5)
-	pins := TerminalsOf(b, d)
+	b := &plan.Plan{Fixture: plan.Fixture{Kind: plan.FixtureBoard, BoardGain: 10}, Part: plan.Part{NominalPosVolts: 15, NominalNegVolts: -15}}
+	d := plan.StateAt(b, &plan.Test{Kind: plan.TestBoardCMRR}, plan.PartDiff, 0.5)
+	pins := plan.TerminalsOf(b, d)
 	if d.DiffVolts != 0.5 || d.CMVolts != 0 || pins.OutVolts != 5 || pins.InHighVolts != 0.5 || pins.InLowVolts != -0.5 {
 		t.Errorf("board diff +0.5 V: %+v %+v", d, pins)
 	}
@@ -75,10 +77,10 @@ func TestStateAtMILM38510Table(t *testing.T) {
 // under the 60 V DC SELV/ES1 limit (IEC 60950-1 §1.2.8, IEC 62368-1); that
 // such a bench is not hazardous is common practice, no published source.
 func TestShiftedRailsNotHazardous(t *testing.T) {
-	p := &Plan{
-		Fixture: Fixture{Kind: FixtureNullingLoop, CommonMode: CMBySupplyShift},
-		Part:    Part{NominalPosVolts: 20, NominalNegVolts: -20},
-		Tests:   []Test{{Kind: TestCMRR, Levels: []float64{-15, 0, 15}, Order: OrderZigzag}},
+	p := &plan.Plan{
+		Fixture: plan.Fixture{Kind: plan.FixtureNullingLoop, CommonMode: plan.CMBySupplyShift},
+		Part:    plan.Part{NominalPosVolts: 20, NominalNegVolts: -20},
+		Tests:   []plan.Test{{Kind: plan.TestCMRR, Levels: []float64{-15, 0, 15}, Order: plan.OrderZigzag}},
 	}
 	h := AssessHazard(p)
 	if h.MaxToGroundVolts != 35 || h.MaxAcrossVolts != 40 || h.Hazardous {
@@ -130,7 +132,7 @@ func TestCheckSafetyUnsafePlans(t *testing.T) {
 			}
 			data, _ := os.ReadFile(filepath.Join(examplePlanDir, c.file+".toml"))
 			line := lineContaining(t, string(data), c.lineOf, 1)
-			var hit *Error
+			var hit *plan.Error
 			for _, r := range se.Refusals {
 				ok := r.Key == c.key
 				for _, s := range c.contains {
@@ -205,29 +207,29 @@ func TestHazardConsent(t *testing.T) {
 func TestCheckSafetyRefusals(t *testing.T) {
 	cases := []struct {
 		name     string
-		edit     func(p *Plan)
+		edit     func(p *plan.Plan)
 		key      string
 		contains []string
 	}{
-		{"negative rail channel not marked", func(p *Plan) { p.Bench.Roles.SupplyNeg.Negative = false },
+		{"negative rail channel not marked", func(p *plan.Plan) { p.Bench.Roles.SupplyNeg.Negative = false },
 			"bench.roles.supply_neg", []string{"not marked negative", "set negative = true"}},
-		{"V+ below ground", func(p *Plan) { p.Tests[1].Levels = []float64{-16, -5, 0, 5} }, // V+ = 15 - 16 = -1 V
+		{"V+ below ground", func(p *plan.Plan) { p.Tests[1].Levels = []float64{-16, -5, 0, 5} }, // V+ = 15 - 16 = -1 V
 			"test[2].levels", []string{"V+ = -1 V", "programs only 0 V or more"}},
-		{"V- above ground on a negative channel", func(p *Plan) { p.Tests[2].Levels = []float64{-16, -5, 0, 5} }, // V- = -15 + 16 = +1 V
+		{"V- above ground on a negative channel", func(p *plan.Plan) { p.Tests[2].Levels = []float64{-16, -5, 0, 5} }, // V- = -15 + 16 = +1 V
 			"test[3].levels", []string{"V- = +1 V", "negative-rail channel"}},
-		{"stimulus above the fixture's maximum", func(p *Plan) { p.Tests[4].Levels = []float64{-10, 0, 10, 13} },
+		{"stimulus above the fixture's maximum", func(p *plan.Plan) { p.Tests[4].Levels = []float64{-10, 0, 10, 13} },
 			"test[5].levels", []string{"source_ref at +13 V", "max_stimulus_volts 12 V"}},
-		{"output beyond a rail", func(p *Plan) {
+		{"output beyond a rail", func(p *plan.Plan) {
 			p.Fixture.MaxStimulusVolts = 20
 			p.Tests[4].Levels = []float64{-10, 0, 16}
 		}, "test[5].levels", []string{"output would have to sit at +16 V, above V+ = +15 V"}},
-		{"missing span rating", func(p *Plan) { p.Part.MaxSupplySpanVolts = 0 },
+		{"missing span rating", func(p *plan.Plan) { p.Part.MaxSupplySpanVolts = 0 },
 			"part.max_supply_span_volts", []string{"absolute maximum supply span is not given"}},
-		{"missing stimulus rating", func(p *Plan) { p.Fixture.MaxStimulusVolts = 0 },
+		{"missing stimulus rating", func(p *plan.Plan) { p.Fixture.MaxStimulusVolts = 0 },
 			"fixture.max_stimulus_volts", []string{"maximum stimulus is not given"}},
-		{"negative current limit", func(p *Plan) { p.Part.CurrentLimitAmps = -0.1 },
+		{"negative current limit", func(p *plan.Plan) { p.Part.CurrentLimitAmps = -0.1 },
 			"part.current_limit_amps", []string{"no supply current limit"}},
-		{"nominal span above rating", func(p *Plan) { p.Part.MaxSupplySpanVolts = 28 },
+		{"nominal span above rating", func(p *plan.Plan) { p.Part.MaxSupplySpanVolts = 28 },
 			"part.max_supply_span_volts", []string{"at the nominal rails", "span 30 V exceeds"}},
 	}
 	for _, c := range cases {
@@ -265,7 +267,7 @@ func TestCheckSafetyRefusals(t *testing.T) {
 // so only the inputs move.)
 func TestInputBeyondRail(t *testing.T) {
 	p := loadExamplePlan(t, "lot") // rails ±15 V
-	p.Fixture.CommonMode = CMByInputDrive
+	p.Fixture.CommonMode = plan.CMByInputDrive
 	p.Part.CMHeadroomPosVolts, p.Part.CMHeadroomNegVolts, p.Part.CMMarginVolts = -0.5, -0.5, 0
 	p.Fixture.MaxStimulusVolts = 20
 	p.Tests[0].Levels = []float64{-15.3, 0, 15.3} // at the limit: allowed
@@ -295,7 +297,7 @@ func TestSafeLevelsAgreeWithChecks(t *testing.T) {
 				}
 				try := func(levels []float64) error {
 					p := loadExamplePlan(t, name)
-					if part == PartDiff {
+					if part == plan.PartDiff {
 						p.Tests[i].DiffLevels = levels
 					} else {
 						p.Tests[i].Levels = levels
@@ -332,12 +334,12 @@ func TestSafeLevelsAgreeWithChecks(t *testing.T) {
 func TestFmtVolts(t *testing.T) {
 	cases := map[float64]string{15: "+15 V", -2.5: "-2.5 V", 0: "0 V", math.Copysign(0, -1): "0 V", 1e-9: "0 V", 0.0002: "+0.0002 V", math.Inf(1): "+inf V"}
 	for v, want := range cases {
-		if got := FormatVolts(v); got != want {
+		if got := plan.FormatVolts(v); got != want {
 			t.Errorf("FormatVolts(%g) = %q, want %q", v, got, want)
 		}
 	}
-	if got := fmtMag(2.5); got != "2.5 V" {
-		t.Errorf("fmtMag = %q", got)
+	if got := plan.FormatMag(2.5); got != "2.5 V" {
+		t.Errorf("FormatMag = %q", got)
 	}
 }
 

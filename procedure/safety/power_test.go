@@ -1,19 +1,21 @@
-package plan
+package safety
 
 import (
 	"math"
 	"strings"
 	"testing"
+
+	"nullbench/procedure/plan"
 )
 
 // replayPower follows a list of actions and reports every state it passes
 // through, and which outputs are on after each action.
 type powerTrace struct {
-	states []BenchState
+	states []plan.BenchState
 	on     []map[string]bool
 }
 
-func replayPower(from BenchState, on map[string]bool, actions []PowerAction) powerTrace {
+func replayPower(from plan.BenchState, on map[string]bool, actions []PowerAction) powerTrace {
 	var tr powerTrace
 	s := from
 	cur := map[string]bool{}
@@ -40,7 +42,7 @@ func replayPower(from BenchState, on map[string]bool, actions []PowerAction) pow
 
 // checkSteps verifies that no supply or source moves by more than step in
 // one action.
-func checkSteps(t *testing.T, from BenchState, actions []PowerAction, step float64) {
+func checkSteps(t *testing.T, from plan.BenchState, actions []PowerAction, step float64) {
 	t.Helper()
 	s := from
 	for i, a := range actions {
@@ -49,9 +51,9 @@ func checkSteps(t *testing.T, from BenchState, actions []PowerAction, step float
 		}
 		var prev float64
 		switch a.Role {
-		case RoleSupplyPos:
+		case plan.RoleSupplyPos:
 			prev = s.PosVolts
-		case RoleSupplyNeg:
+		case plan.RoleSupplyNeg:
 			prev = s.NegVolts
 		default:
 			prev = SourceVolts(s, a.Role)
@@ -71,11 +73,11 @@ func TestPowerUpOrder(t *testing.T) {
 	for _, name := range []string{"lot", "board", "noise_gain"} {
 		p := loadExamplePlan(t, name)
 		up := PowerUpOrder(p)
-		tr := replayPower(BenchState{}, nil, up)
+		tr := replayPower(plan.BenchState{}, nil, up)
 		firstSupplyOn, firstSourceOn, lastLimit := -1, -1, -1
 		limits := map[string]float64{}
 		for i, a := range up {
-			isSupply := a.Role == RoleSupplyPos || a.Role == RoleSupplyNeg
+			isSupply := a.Role == plan.RoleSupplyPos || a.Role == plan.RoleSupplyNeg
 			switch {
 			case a.Op == PowerCurrentLimit:
 				lastLimit = i
@@ -90,40 +92,40 @@ func TestPowerUpOrder(t *testing.T) {
 			case a.Op == PowerSetVolts && !isSupply && a.Volts != 0:
 				t.Errorf("%s: power-up drives %s to %g V", name, a.Role, a.Volts)
 			}
-			if (tr.on[i][RoleSourceCM] || tr.on[i][RoleSourceDiff] || tr.on[i][RoleSourceRef]) &&
-				(!tr.on[i][RoleSupplyPos] || !tr.on[i][RoleSupplyNeg] || tr.states[i] != NominalState(p)) {
+			if (tr.on[i][plan.RoleSourceCM] || tr.on[i][plan.RoleSourceDiff] || tr.on[i][plan.RoleSourceRef]) &&
+				(!tr.on[i][plan.RoleSupplyPos] || !tr.on[i][plan.RoleSupplyNeg] || tr.states[i] != plan.NominalState(p)) {
 				t.Errorf("%s: a source is on before the rails are up (action %d)", name, i+1)
 			}
 		}
-		if limits[RoleSupplyPos] != p.Part.CurrentLimitAmps || limits[RoleSupplyNeg] != p.Part.CurrentLimitAmps {
+		if limits[plan.RoleSupplyPos] != p.Part.CurrentLimitAmps || limits[plan.RoleSupplyNeg] != p.Part.CurrentLimitAmps {
 			t.Errorf("%s: current limits %v, want %g A", name, limits, p.Part.CurrentLimitAmps)
 		}
 		if !(lastLimit < firstSupplyOn && firstSupplyOn < firstSourceOn) {
 			t.Errorf("%s: order limit %d, supply on %d, source on %d", name, lastLimit, firstSupplyOn, firstSourceOn)
 		}
-		if got := tr.states[len(tr.states)-1]; got != NominalState(p) {
+		if got := tr.states[len(tr.states)-1]; got != plan.NominalState(p) {
 			t.Errorf("%s: ends at %+v", name, got)
 		}
-		checkSteps(t, BenchState{}, up, p.Safety.RampStepVolts)
+		checkSteps(t, plan.BenchState{}, up, p.Safety.RampStepVolts)
 	}
 }
 
 func TestPowerDownOrder(t *testing.T) {
 	p := loadExamplePlan(t, "board")
 	// From a board's differential step: the drive comes off first.
-	from := StateAt(p, &p.Tests[0], PartCM, 8)
+	from := plan.StateAt(p, &p.Tests[0], plan.PartCM, 8)
 	from.DiffVolts = 0.5
 	down := PowerDownFrom(p, from)
-	on := map[string]bool{RoleSupplyPos: true, RoleSupplyNeg: true, RoleSourceCM: true, RoleSourceDiff: true}
+	on := map[string]bool{plan.RoleSupplyPos: true, plan.RoleSupplyNeg: true, plan.RoleSourceCM: true, plan.RoleSourceDiff: true}
 	tr := replayPower(from, on, down)
 	for i, a := range down {
-		isSupply := a.Role == RoleSupplyPos || a.Role == RoleSupplyNeg
-		if isSupply && (tr.on[i][RoleSourceCM] || tr.on[i][RoleSourceDiff]) {
+		isSupply := a.Role == plan.RoleSupplyPos || a.Role == plan.RoleSupplyNeg
+		if isSupply && (tr.on[i][plan.RoleSourceCM] || tr.on[i][plan.RoleSourceDiff]) {
 			t.Errorf("action %d (%v) moves a rail while a source is still on", i+1, a)
 		}
 	}
 	end := tr.states[len(tr.states)-1]
-	if end != (BenchState{}) {
+	if end != (plan.BenchState{}) {
 		t.Errorf("ends at %+v, want all 0 V", end)
 	}
 	last := tr.on[len(tr.on)-1]
@@ -158,11 +160,11 @@ func TestPowerDownOrder(t *testing.T) {
 func TestTransitionShrinkFirst(t *testing.T) {
 	p := loadExamplePlan(t, "lot")
 	p.Safety.RampStepVolts = 0.7 // not a divisor of the distances: the last step must land exactly
-	var all []BenchState
-	for _, s := range StepTable(p) {
+	var all []plan.BenchState
+	for _, s := range plan.StepTable(p) {
 		all = append(all, s.State)
 	}
-	all = append(all, NominalState(p))
+	all = append(all, plan.NominalState(p))
 	for i, from := range all {
 		for j, to := range all {
 			if i == j {
@@ -188,15 +190,15 @@ func TestTransitionShrinkFirst(t *testing.T) {
 			}
 			firstRail := ""
 			for _, a := range acts {
-				if a.Role == RoleSupplyPos || a.Role == RoleSupplyNeg {
+				if a.Role == plan.RoleSupplyPos || a.Role == plan.RoleSupplyNeg {
 					firstRail = a.Role
 					break
 				}
 			}
-			if to.PosVolts > from.PosVolts && to.NegVolts > from.NegVolts && firstRail != RoleSupplyNeg {
+			if to.PosVolts > from.PosVolts && to.NegVolts > from.NegVolts && firstRail != plan.RoleSupplyNeg {
 				t.Fatalf("shifting up from %+v: first rail %s, want V- first", from, firstRail)
 			}
-			if to.PosVolts < from.PosVolts && to.NegVolts < from.NegVolts && firstRail != RoleSupplyPos {
+			if to.PosVolts < from.PosVolts && to.NegVolts < from.NegVolts && firstRail != plan.RoleSupplyPos {
 				t.Fatalf("shifting down from %+v: first rail %s, want V+ first", from, firstRail)
 			}
 		}
@@ -212,20 +214,20 @@ func between(v, a, b float64) bool {
 // before the rails, one moving away after them.
 func TestTransitionSourcesAroundRails(t *testing.T) {
 	p := loadExamplePlan(t, "board")
-	cm := StateAt(p, &p.Tests[0], PartCM, 8)
-	psrr := StateAt(p, &p.Tests[1], "", 2)
+	cm := plan.StateAt(p, &p.Tests[0], plan.PartCM, 8)
+	psrr := plan.StateAt(p, &p.Tests[1], "", 2)
 	acts, err := Transition(p, cm, psrr)
 	if err != nil {
 		t.Fatal(err)
 	}
-	if acts[0].Role != RoleSourceCM || acts[len(acts)-1].Role != RoleSupplyPos {
+	if acts[0].Role != plan.RoleSourceCM || acts[len(acts)-1].Role != plan.RoleSupplyPos {
 		t.Errorf("cm -> psrr: %s", FormatActions(acts))
 	}
 	acts, err = Transition(p, psrr, cm)
 	if err != nil {
 		t.Fatal(err)
 	}
-	if acts[0].Role != RoleSupplyPos || acts[len(acts)-1].Role != RoleSourceCM {
+	if acts[0].Role != plan.RoleSupplyPos || acts[len(acts)-1].Role != plan.RoleSourceCM {
 		t.Errorf("psrr -> cm: %s", FormatActions(acts))
 	}
 }
@@ -234,15 +236,15 @@ func TestTransitionSourcesAroundRails(t *testing.T) {
 // refused before any action is given.
 func TestTransitionRefusesUnsafeTarget(t *testing.T) {
 	p := loadExamplePlan(t, "lot")
-	to := NominalState(p)
+	to := plan.NominalState(p)
 	to.PosVolts = 35 // span 50 V > 36 V
-	acts, err := Transition(p, NominalState(p), to)
+	acts, err := Transition(p, plan.NominalState(p), to)
 	if err == nil || acts != nil || !strings.Contains(err.Error(), "exceeds the part's absolute maximum 36 V") {
 		t.Fatalf("got %v, %v", acts, err)
 	}
-	to = NominalState(p)
+	to = plan.NominalState(p)
 	to.RefVolts = 13 // above max_stimulus_volts 12
-	if _, err := Transition(p, NominalState(p), to); err == nil || !strings.Contains(err.Error(), "source_ref") {
+	if _, err := Transition(p, plan.NominalState(p), to); err == nil || !strings.Contains(err.Error(), "source_ref") {
 		t.Fatalf("source above max stimulus: %v", err)
 	}
 }
@@ -253,14 +255,14 @@ func TestRampPanicsOnUncheckedValues(t *testing.T) {
 			t.Error("no panic for an infinite ramp")
 		}
 	}()
-	rampOne(RoleSourceCM, 0, math.Inf(1), 1)
+	rampOne(plan.RoleSourceCM, 0, math.Inf(1), 1)
 }
 
 func TestPowerActionString(t *testing.T) {
 	cases := map[string]PowerAction{
-		"supply_neg set-volts -15 V":      {Op: PowerSetVolts, Role: RoleSupplyNeg, Volts: -15},
-		"supply_pos current-limit 0.05 A": {Op: PowerCurrentLimit, Role: RoleSupplyPos, Amps: 0.05},
-		"source_cm output-off":            {Op: PowerOutputOff, Role: RoleSourceCM},
+		"supply_neg set-volts -15 V":      {Op: PowerSetVolts, Role: plan.RoleSupplyNeg, Volts: -15},
+		"supply_pos current-limit 0.05 A": {Op: PowerCurrentLimit, Role: plan.RoleSupplyPos, Amps: 0.05},
+		"source_cm output-off":            {Op: PowerOutputOff, Role: plan.RoleSourceCM},
 	}
 	for want, a := range cases {
 		if got := a.String(); got != want {

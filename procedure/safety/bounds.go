@@ -1,18 +1,22 @@
-package plan
+package safety
 
-import "math"
+import (
+	"math"
+
+	"nullbench/procedure/plan"
+)
 
 // MaxProgrammedVolts is the largest magnitude the plan ever programs on a
 // supply or source role: over the nominal state and every level of every
 // test (StateAt). A switch-off or safe state never commands more than this
 // on the role, whatever an instrument answers.
-func MaxProgrammedVolts(p *Plan, role string) float64 {
-	m := math.Abs(roleOf(NominalState(p), role))
+func MaxProgrammedVolts(p *plan.Plan, role string) float64 {
+	m := math.Abs(roleOf(plan.NominalState(p), role))
 	for i := range p.Tests {
 		t := &p.Tests[i]
-		for _, sw := range Sweeps(t) {
+		for _, sw := range plan.Sweeps(t) {
 			for _, l := range sw.Levels {
-				if v := math.Abs(roleOf(StateAt(p, t, sw.Part, l), role)); v > m && !math.IsInf(v, 0) {
+				if v := math.Abs(roleOf(plan.StateAt(p, t, sw.Part, l), role)); v > m && !math.IsInf(v, 0) {
 					m = v
 				}
 			}
@@ -21,11 +25,11 @@ func MaxProgrammedVolts(p *Plan, role string) float64 {
 	return m
 }
 
-func roleOf(s BenchState, role string) float64 {
+func roleOf(s plan.BenchState, role string) float64 {
 	switch role {
-	case RoleSupplyPos:
+	case plan.RoleSupplyPos:
 		return s.PosVolts
-	case RoleSupplyNeg:
+	case plan.RoleSupplyNeg:
 		return s.NegVolts
 	}
 	return SourceVolts(s, role)
@@ -36,7 +40,7 @@ func roleOf(s BenchState, role string) float64 {
 // with the rail's sign (0 V for a source, whose sign is not known), a
 // larger one is clamped to it. PowerDownFrom ramps from the result, so a
 // ramp's length is bounded by the plan and never panics.
-func boundedDown(p *Plan, s BenchState) BenchState {
+func boundedDown(p *plan.Plan, s plan.BenchState) plan.BenchState {
 	clamp := func(v float64, role string, sign float64) float64 {
 		lim := MaxProgrammedVolts(p, role)
 		switch {
@@ -49,10 +53,10 @@ func boundedDown(p *Plan, s BenchState) BenchState {
 		}
 		return v
 	}
-	s.PosVolts = clamp(s.PosVolts, RoleSupplyPos, 1)
-	s.NegVolts = clamp(s.NegVolts, RoleSupplyNeg, -1)
-	s.CMVolts = clamp(s.CMVolts, RoleSourceCM, 0)
-	s.DiffVolts = clamp(s.DiffVolts, RoleSourceDiff, 0)
-	s.RefVolts = clamp(s.RefVolts, RoleSourceRef, 0)
+	s.PosVolts = clamp(s.PosVolts, plan.RoleSupplyPos, 1)
+	s.NegVolts = clamp(s.NegVolts, plan.RoleSupplyNeg, -1)
+	s.CMVolts = clamp(s.CMVolts, plan.RoleSourceCM, 0)
+	s.DiffVolts = clamp(s.DiffVolts, plan.RoleSourceDiff, 0)
+	s.RefVolts = clamp(s.RefVolts, plan.RoleSourceRef, 0)
 	return s
 }

@@ -1,10 +1,9 @@
-package procedure
+package estimate
 
 import (
 	"testing"
 	"time"
 
-	"nullbench/procedure/estimate"
 	"nullbench/procedure/plan"
 )
 
@@ -12,23 +11,23 @@ import (
 // campaign 10 s); the bench takes 2 s per point, so after three points
 // the 7 s the model still predicts are stretched to 14 s (worked by hand).
 func TestETACorrectedByMeasurement(t *testing.T) {
-	var tl estimate.Timeline
+	var tl Timeline
 	for i := range 10 {
-		tl.Points = append(tl.Points, estimate.TimedPoint{Key: plan.WorkKey{Unit: "U", Step: i}, Seconds: 1, EndsAt: float64(i + 1)})
+		tl.Points = append(tl.Points, TimedPoint{Key: plan.WorkKey{Unit: "U", Step: i}, Seconds: 1, EndsAt: float64(i + 1)})
 	}
 	tl.TotalSeconds = 10
-	e := newETA(tl)
+	e := NewRemaining(tl)
 	var left time.Duration
 	for i := range 3 {
 		k := plan.WorkKey{Unit: "U", Step: i}
-		e.begin(k, time.Duration(2*i)*time.Second)
-		left = e.point(k, time.Duration(2*(i+1))*time.Second, 10-(i+1))
+		e.Begin(k, time.Duration(2*i)*time.Second)
+		left = e.Point(k, time.Duration(2*(i+1))*time.Second, 10-(i+1))
 	}
 	if left != 14*time.Second {
 		t.Errorf("left %v, want 14s", left)
 	}
 	// An unknown point falls back to the time per point measured.
-	if got := e.point(plan.WorkKey{Unit: "X"}, 8*time.Second, 6); got != 12*time.Second {
+	if got := e.Point(plan.WorkKey{Unit: "X"}, 8*time.Second, 6); got != 12*time.Second {
 		t.Errorf("fallback left %v, want 12s (8 s over 4 points × 6)", got)
 	}
 }
