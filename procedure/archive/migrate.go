@@ -146,11 +146,8 @@ func (d dialect) ddl(s string) string {
 // callers are serialised (SQLite: the immediate write lock; PostgreSQL:
 // an advisory lock), so a step is applied once.
 func (s *Store) migrate(ctx context.Context, target int) error {
-	if _, err := s.db.ExecContext(ctx, `CREATE TABLE IF NOT EXISTS schema_version (
-		version INTEGER PRIMARY KEY,
-		name TEXT NOT NULL,
-		applied TEXT NOT NULL)`); err != nil {
-		return s.wrap("create the schema_version table", err)
+	if err := s.createVersionTable(ctx); err != nil {
+		return err
 	}
 	for _, m := range migrations {
 		if m.Version > target {
@@ -170,17 +167,51 @@ func (s *Store) migrate(ctx context.Context, target int) error {
 	return nil
 }
 
+// createVersionTable creates schema_version when missing. On PostgreSQL
+// two sessions creating the same table at once collide in the catalogue
+// even with IF NOT EXISTS, so the creation holds the migration lock.
+func (s *Store) createVersionTable(ctx context.Context) error {
+	tx, err := s.db.BeginTx(ctx, nil)
+	if err != nil {
+		return s.wrap("begin", err)
+	}
+	defer tx.Rollback()
+	if err := s.lockMigrations(ctx, tx); err != nil {
+		return err
+	}
+	if _, err := tx.ExecContext(ctx, `CREATE TABLE IF NOT EXISTS schema_version (
+		version INTEGER PRIMARY KEY,
+		name TEXT NOT NULL,
+		applied TEXT NOT NULL)`); err != nil {
+		return s.wrap("create the schema_version table", err)
+	}
+	if err := tx.Commit(); err != nil {
+		return s.wrap("create the schema_version table", err)
+	}
+	return nil
+}
+
+// lockMigrations serialises migrators on PostgreSQL until tx ends (an
+// advisory lock; the number is this package's own). SQLite's immediate
+// transactions are serialised already.
+func (s *Store) lockMigrations(ctx context.Context, tx *sql.Tx) error {
+	if s.d.name != "postgres" {
+		return nil
+	}
+	if _, err := tx.ExecContext(ctx, `SELECT pg_advisory_xact_lock(7461029)`); err != nil {
+		return s.wrap("lock for migration", err)
+	}
+	return nil
+}
+
 func (s *Store) applyMigration(ctx context.Context, m migration) error {
 	tx, err := s.db.BeginTx(ctx, nil)
 	if err != nil {
 		return s.wrap("begin migration", err)
 	}
 	defer tx.Rollback()
-	if s.d.name == "postgres" {
-		// Serialise concurrent migrators; released at commit.
-		if _, err := tx.ExecContext(ctx, `SELECT pg_advisory_xact_lock(7461029)`); err != nil {
-			return s.wrap("lock for migration", err)
-		}
+	if err := s.lockMigrations(ctx, tx); err != nil {
+		return err
 	}
 	var n int
 	if err := tx.QueryRowContext(ctx, `SELECT COUNT(*) FROM schema_version WHERE version = $1`, m.Version).Scan(&n); err != nil {
