@@ -3,24 +3,15 @@ package archive
 import (
 	"context"
 	"crypto/sha256"
-	"database/sql"
 	"encoding/hex"
 	"fmt"
 	"math"
-	"net/url"
-	"os"
 	"path/filepath"
-	"sync/atomic"
 	"testing"
 	"time"
+
+	"nullbench/procedure/archive/archivetest"
 )
-
-// postgresEnv names the environment variable with a PostgreSQL URL whose
-// user may create databases; .ci/run starts a throw-away server and sets
-// it.
-const postgresEnv = "NULLBENCH_TEST_POSTGRES"
-
-var dbCounter atomic.Int64
 
 // backend opens fresh, empty stores of one kind.
 type backend struct {
@@ -32,42 +23,8 @@ type backend struct {
 func backends() []backend {
 	return []backend{
 		{"sqlite", func(t testing.TB) string { return filepath.Join(t.TempDir(), "archive.db") }},
-		{"postgres", postgresLocation},
+		{"postgres", archivetest.PostgresURL},
 	}
-}
-
-// postgresLocation creates an empty database on the server named by
-// NULLBENCH_TEST_POSTGRES and drops it when the test ends.
-func postgresLocation(t testing.TB) string {
-	base := os.Getenv(postgresEnv)
-	if base == "" {
-		t.Skipf("%s is not set: no PostgreSQL server for this test (.ci/run starts one and sets it)", postgresEnv)
-	}
-	admin, err := sql.Open("pgx", base)
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer admin.Close()
-	name := fmt.Sprintf("nbtest_%d_%d_%d", os.Getpid(), time.Now().UnixNano()%1e6, dbCounter.Add(1))
-	if _, err := admin.Exec("CREATE DATABASE " + name); err != nil {
-		t.Fatalf("create test database on %s: %v", base, err)
-	}
-	t.Cleanup(func() {
-		admin, err := sql.Open("pgx", base)
-		if err != nil {
-			return
-		}
-		defer admin.Close()
-		if _, err := admin.Exec("DROP DATABASE IF EXISTS " + name + " WITH (FORCE)"); err != nil {
-			t.Logf("drop test database %s: %v", name, err)
-		}
-	})
-	u, err := url.Parse(base)
-	if err != nil {
-		t.Fatal(err)
-	}
-	u.Path = "/" + name
-	return u.String()
 }
 
 func openStore(t testing.TB, location string) *Store {
