@@ -23,10 +23,14 @@ var counter atomic.Int64
 
 // PostgresURL creates an empty database on the server named by
 // NULLBENCH_TEST_POSTGRES, drops it when the test ends, and returns its
-// URL. Without the variable the test is skipped, saying so.
+// URL. Without the variable the test is skipped, saying so, except under
+// CI (CI=true), where it fails: CI must start a server.
 func PostgresURL(t testing.TB) string {
 	t.Helper()
 	base := os.Getenv(Env)
+	if base == "" && os.Getenv("CI") == "true" {
+		t.Fatalf("%s is not set under CI: .ci/run must start a PostgreSQL server (.ci/postgres.sh) and set it", Env)
+	}
 	if base == "" {
 		t.Skipf("%s is not set: no PostgreSQL server for this test (.ci/run starts one and sets it)", Env)
 	}
