@@ -41,6 +41,13 @@ func (s *Store) Add(ctx context.Context, c *Campaign) (int64, Outcome, error) {
 	if c.JournalHash == "" {
 		return 0, 0, errors.New("archive: a campaign without a journal hash cannot be stored")
 	}
+	seen := map[string]bool{}
+	for _, u := range c.Units {
+		if seen[u.ID] {
+			return 0, 0, fmt.Errorf("archive: campaign %s lists unit %q twice", c.Name, u.ID)
+		}
+		seen[u.ID] = true
+	}
 	runKey := c.RunKey
 	if runKey == "" {
 		runKey = c.JournalHash
@@ -195,8 +202,15 @@ func (s *Store) insertRows(ctx context.Context, tx *sql.Tx, table string, cols [
 					if j > 0 {
 						b.WriteString(", ")
 					}
-					b.WriteByte('$')
-					b.WriteString(strconv.Itoa(p))
+					// SQLite looks a named parameter ($N) up by a
+					// linear scan, quadratic in a long statement; its
+					// anonymous ? binds by position.
+					if s.d.name == "sqlite" {
+						b.WriteByte('?')
+					} else {
+						b.WriteByte('$')
+						b.WriteString(strconv.Itoa(p))
+					}
 					p++
 				}
 				b.WriteByte(')')

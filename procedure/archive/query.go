@@ -63,6 +63,10 @@ type Row struct {
 	Started     time.Time
 	PlanHash    string
 	JournalHash string
+	// Serial is the unit's serial number from the campaign's unit list
+	// ("" when not given): what matches a unit measured again in another
+	// campaign or on another bench.
+	Serial string
 	Result
 }
 
@@ -170,8 +174,9 @@ func (s *Store) Query(ctx context.Context, f Filter) ([]Row, error) {
 	q := `SELECT c.id, c.part, c.lot, c.bench, c.started, c.plan_hash, c.journal_hash,
 		r.unit, r.test, r.temperature_c, r.frequency_hz, r.coefficient_uv_per_v, r.std_u_uv_per_v, r.expanded_u_uv_per_v,
 		r.ratio_db, r.expanded_u_db, r.coverage_k, r.dof_effective, r.resolved, r.lower_bound_db, r.limit_db, r.phase_deg,
-		r.verdict, r.rule, r.flags, r.notes
-		FROM result r JOIN campaign c ON c.id = r.campaign_id` + w.String() +
+		r.verdict, r.rule, r.flags, r.notes, COALESCE(u.serial, '')
+		FROM result r JOIN campaign c ON c.id = r.campaign_id
+		LEFT JOIN unit u ON u.campaign_id = r.campaign_id AND u.unit = r.unit` + w.String() +
 		` ORDER BY c.started, c.id, r.seq`
 	rows, err := s.db.QueryContext(ctx, q, w.args...)
 	if err != nil {
@@ -186,7 +191,7 @@ func (s *Store) Query(ctx context.Context, f Filter) ([]Row, error) {
 		if err := rows.Scan(&r.Campaign, &r.Part, &r.Lot, &r.Bench, &started, &r.PlanHash, &r.JournalHash,
 			&r.Unit, &r.Test, &r.TemperatureC, &r.FrequencyHz, &coef, &stdU, &expU,
 			&ratio, &uDB, &k, &dof, &r.Resolved, &lower, &limit, &phase,
-			&r.Verdict, &r.Rule, &flags, &notes); err != nil {
+			&r.Verdict, &r.Rule, &flags, &notes, &r.Serial); err != nil {
 			return nil, s.wrap("query results", err)
 		}
 		r.Started = parseTime(started)

@@ -162,6 +162,9 @@ func TestQueryFilters(t *testing.T) {
 				}
 			}
 		}
+		if rows, _ := s.Query(ctx, Filter{Lot: "L2", Unit: "U03"}); len(rows) == 0 || rows[0].Serial != "S1-03" {
+			t.Errorf("serial of L2/U03: %+v", rows)
+		}
 		list, err := s.List(ctx, Filter{Bench: "bench-A"})
 		if err != nil {
 			t.Fatal(err)
