@@ -211,3 +211,41 @@ func TestArchiveBenchName(t *testing.T) {
 		t.Errorf("from %s: %q", benchEnv, got)
 	}
 }
+
+// TestArchiveLongerJournalReplacesShorter archives a run cut short (the
+// first lines of its journal, as a run stopped midway leaves it) and then
+// the whole run: the archive keeps one campaign, the complete one.
+func TestArchiveLongerJournalReplacesShorter(t *testing.T) {
+	out := archiveRun(t, filepath.Join(t.TempDir(), "first.db"))
+	full, err := os.ReadFile(filepath.Join(out, runJournalName))
+	if err != nil {
+		t.Fatal(err)
+	}
+	lines := strings.SplitAfter(string(full), "\n")
+	short := cliWriteFile(t, t.TempDir(), "short-journal.jsonl", strings.Join(lines[:len(lines)/2], ""))
+	db := filepath.Join(t.TempDir(), "second.db")
+
+	args := []string{"archive", "--db", db, "add", short}
+	r := cliExec(t, args...)
+	cliWantCode(t, r, exitOK, args...)
+	if !strings.Contains(r.out, ": added to ") {
+		t.Fatalf("add the short journal: %s", r.out)
+	}
+	args = []string{"archive", "--db", db, "list", "--format", "jsonl"}
+	r = cliExec(t, args...)
+	if l := cliJSONLines(t, r.out); len(l) != 1 || l[0]["incomplete"] != true {
+		t.Fatalf("after the short journal: %s", r.out)
+	}
+	args = []string{"archive", "--db", db, "add", out}
+	r = cliExec(t, args...)
+	cliWantCode(t, r, exitOK, args...)
+	if !strings.Contains(r.out, "replaced the shorter journal of the same run") {
+		t.Errorf("add the whole run: %s", r.out)
+	}
+	args = []string{"archive", "--db", db, "list", "--format", "jsonl"}
+	r = cliExec(t, args...)
+	l := cliJSONLines(t, r.out)
+	if len(l) != 1 || l[0]["incomplete"] != false || l[0]["results"] != 4.0 {
+		t.Errorf("after the whole run: %s", r.out)
+	}
+}
