@@ -9,6 +9,9 @@ import (
 	"strconv"
 	"strings"
 	"time"
+
+	"github.com/jackc/pgx/v5"
+	"github.com/jackc/pgx/v5/stdlib"
 )
 
 // Outcome says what Add did.
@@ -52,105 +55,131 @@ func (s *Store) Add(ctx context.Context, c *Campaign) (int64, Outcome, error) {
 	if runKey == "" {
 		runKey = c.JournalHash
 	}
+	if s.d.name == "postgres" {
+		// COPY for the rows: a long multi-row INSERT costs PostgreSQL
+		// more to parse and plan than to store.
+		var id int64
+		var out Outcome
+		err := s.withPgxTx(ctx, func(tx pgx.Tx) error {
+			var err error
+			id, out, err = s.add(ctx, pgxTx{tx}, c, runKey)
+			return err
+		})
+		return id, out, err
+	}
 	tx, err := s.db.BeginTx(ctx, nil)
 	if err != nil {
 		return 0, 0, s.wrap("begin", err)
 	}
 	defer tx.Rollback()
+	id, out, err := s.add(ctx, sqlTx{tx, s}, c, runKey)
+	if err != nil || out == Unchanged {
+		return id, out, err
+	}
+	if err := tx.Commit(); err != nil {
+		return 0, 0, s.wrap("commit the campaign", err)
+	}
+	return id, out, nil
+}
 
+// addTx is what add needs of a transaction; sqlTx and pgxTx provide it.
+type addTx interface {
+	// idHashes runs q and returns its (id, text) rows.
+	idHashes(ctx context.Context, q string, args ...any) ([]idHash, error)
+	exec(ctx context.Context, q string, args ...any) error
+	// insertID runs an INSERT … RETURNING id; ok is false when it
+	// inserted nothing.
+	insertID(ctx context.Context, q string, args ...any) (id int64, ok bool, err error)
+	// bulk inserts rows into table.
+	bulk(ctx context.Context, table string, cols []string, rows [][]any) error
+}
+
+type idHash struct {
+	id   int64
+	hash string
+}
+
+// add does Add's work inside tx, which the caller commits unless the
+// outcome is Unchanged.
+func (s *Store) add(ctx context.Context, tx addTx, c *Campaign, runKey string) (int64, Outcome, error) {
 	outcome := Added
-	rows, err := tx.QueryContext(ctx, `SELECT id, journal_hash FROM campaign WHERE journal_hash = $1 OR run_key = $2`, c.JournalHash, runKey)
+	found, err := tx.idHashes(ctx, `SELECT id, journal_hash FROM campaign WHERE journal_hash = $1 OR run_key = $2`, c.JournalHash, runKey)
 	if err != nil {
 		return 0, 0, s.wrap("look the campaign up", err)
 	}
-	var replace []int64
-	for rows.Next() {
-		var id int64
-		var h string
-		if err := rows.Scan(&id, &h); err != nil {
-			rows.Close()
-			return 0, 0, s.wrap("look the campaign up", err)
+	for _, f := range found {
+		if f.hash == c.JournalHash {
+			return f.id, Unchanged, nil
 		}
-		if h == c.JournalHash {
-			rows.Close()
-			return id, Unchanged, nil
-		}
-		replace = append(replace, id)
 	}
-	rows.Close()
-	if err := rows.Err(); err != nil {
-		return 0, 0, s.wrap("look the campaign up", err)
-	}
-	for _, id := range replace {
-		if _, err := tx.ExecContext(ctx, `DELETE FROM campaign WHERE id = $1`, id); err != nil {
+	for _, f := range found {
+		if err := tx.exec(ctx, `DELETE FROM campaign WHERE id = $1`, f.id); err != nil {
 			return 0, 0, s.wrap("replace the earlier journal of the run", err)
 		}
 		outcome = Replaced
 	}
 
-	var id int64
-	err = tx.QueryRowContext(ctx, `INSERT INTO campaign (journal_hash, run_key, journal_path, plan_hash, plan_file, name, part, lot,
+	id, ok, err := tx.insertID(ctx, `INSERT INTO campaign (journal_hash, run_key, journal_path, plan_hash, plan_file, name, part, lot,
 		operator, notes, bench, started, finished, added, tool, decision_rule, temperatures_c, incomplete, missing_points, integrity)
 		VALUES ($1, $2, $3, $4, $5, $6, $7, $8, $9, $10, $11, $12, $13, $14, $15, $16, $17, $18, $19, $20)
 		ON CONFLICT DO NOTHING RETURNING id`,
 		c.JournalHash, runKey, c.JournalPath, c.PlanHash, c.PlanFile, c.Name, c.Part, c.Lot,
 		c.Operator, c.Notes, c.Bench, timeText(c.Started), timeText(c.Finished), timeText(time.Now()), c.Tool, c.DecisionRule,
-		floatsText(c.TemperaturesC), c.Incomplete, c.MissingPoints, c.Integrity).Scan(&id)
-	if errors.Is(err, sql.ErrNoRows) {
+		floatsText(c.TemperaturesC), c.Incomplete, c.MissingPoints, c.Integrity)
+	if err != nil {
+		return 0, 0, s.wrap("insert the campaign", err)
+	}
+	if !ok {
 		// Another process stored the same journal between our look-up
 		// and the insert (PostgreSQL waits for its commit, then skips).
 		return 0, Unchanged, nil
 	}
-	if err != nil {
-		return 0, 0, s.wrap("insert the campaign", err)
+	for _, t := range childRows(c, id) {
+		if err := tx.bulk(ctx, t.table, t.cols, t.rows); err != nil {
+			return 0, 0, s.wrap("insert into "+t.table, err)
+		}
 	}
+	return id, outcome, nil
+}
 
-	var ins [][]any
+type tableRows struct {
+	table string
+	cols  []string
+	rows  [][]any
+}
+
+// childRows are c's rows of every table but campaign, for campaign id.
+func childRows(c *Campaign, id int64) []tableRows {
+	var ins, units, results, budgets, readings [][]any
 	for _, in := range c.Instruments {
 		ins = append(ins, []any{id, in.Name, strings.Join(in.Roles, ","), in.Address, in.Identity, in.CalibrationDue})
 	}
-	if err := s.insertRows(ctx, tx, "instrument", []string{"campaign_id", "name", "roles", "address", "identity", "calibration_due"}, ins); err != nil {
-		return 0, 0, err
-	}
-	ins = ins[:0]
 	for _, u := range c.Units {
-		ins = append(ins, []any{id, u.ID, u.Serial, u.Channel, u.Notes, u.Skipped})
+		units = append(units, []any{id, u.ID, u.Serial, u.Channel, u.Notes, u.Skipped})
 	}
-	if err := s.insertRows(ctx, tx, "unit", []string{"campaign_id", "unit", "serial", "channel", "notes", "skipped"}, ins); err != nil {
-		return 0, 0, err
-	}
-	ins = ins[:0]
 	for i, r := range c.Results {
-		ins = append(ins, []any{id, i, r.Unit, r.Test, r.TemperatureC, r.FrequencyHz,
+		results = append(results, []any{id, i, r.Unit, r.Test, r.TemperatureC, r.FrequencyHz,
 			num(r.CoefficientUVPerV), num(r.CoefficientStdUUVPerV), num(r.CoefficientExpandedUUVPerV),
 			num(r.RatioDB), num(r.ExpandedUDB), num(r.CoverageK), num(r.DOFEffective), r.Resolved,
 			num(r.LowerBoundDB), num(r.LimitDB), num(r.PhaseDeg), r.Verdict, r.Rule,
 			strings.Join(r.Flags, ","), strings.Join(r.Notes, "\n")})
 	}
-	if err := s.insertRows(ctx, tx, "result", resultColumns, ins); err != nil {
-		return 0, 0, err
-	}
-	ins = ins[:0]
 	for i, b := range c.Budgets {
-		ins = append(ins, []any{id, i, b.Unit, b.Test, b.TemperatureC, b.FrequencyHz, b.Quantity, b.Component, b.Kind,
+		budgets = append(budgets, []any{id, i, b.Unit, b.Test, b.TemperatureC, b.FrequencyHz, b.Quantity, b.Component, b.Kind,
 			b.Distribution, num(b.Value), b.ValueUnit, num(b.StdUncertainty), num(b.Sensitivity), num(b.Contribution), num(b.DOF)})
 	}
-	if err := s.insertRows(ctx, tx, "budget", budgetColumns, ins); err != nil {
-		return 0, 0, err
-	}
-	ins = ins[:0]
 	for i, r := range c.Readings {
-		ins = append(ins, []any{id, i, timeText(r.Time), num(r.BenchSeconds), r.Unit, r.Test, r.Sweep, r.TemperatureC,
+		readings = append(readings, []any{id, i, timeText(r.Time), num(r.BenchSeconds), r.Unit, r.Test, r.Sweep, r.TemperatureC,
 			num(r.MeasuredC), r.Repeat, r.Step, num(r.SetVolts), num(r.ReadVolts), num(r.MeterVolts), num(r.MeterSDVolts),
 			r.N, num(r.SettleSeconds), strings.Join(r.Flags, ",")})
 	}
-	if err := s.insertRows(ctx, tx, "reading", readingColumns, ins); err != nil {
-		return 0, 0, err
+	return []tableRows{
+		{"instrument", []string{"campaign_id", "name", "roles", "address", "identity", "calibration_due"}, ins},
+		{"unit", []string{"campaign_id", "unit", "serial", "channel", "notes", "skipped"}, units},
+		{"result", resultColumns, results},
+		{"budget", budgetColumns, budgets},
+		{"reading", readingColumns, readings},
 	}
-	if err := tx.Commit(); err != nil {
-		return 0, 0, s.wrap("commit the campaign", err)
-	}
-	return id, outcome, nil
 }
 
 var (
@@ -164,9 +193,47 @@ var (
 		"n", "settle_s", "flags"}
 )
 
-// insertRows inserts rows in multi-row statements of up to maxParams
+// sqlTx is a database/sql transaction (SQLite).
+type sqlTx struct {
+	tx *sql.Tx
+	s  *Store
+}
+
+func (t sqlTx) idHashes(ctx context.Context, q string, args ...any) ([]idHash, error) {
+	rows, err := t.tx.QueryContext(ctx, q, args...)
+	if err != nil {
+		return nil, err
+	}
+	defer rows.Close()
+	var out []idHash
+	for rows.Next() {
+		var f idHash
+		if err := rows.Scan(&f.id, &f.hash); err != nil {
+			return nil, err
+		}
+		out = append(out, f)
+	}
+	return out, rows.Err()
+}
+
+func (t sqlTx) exec(ctx context.Context, q string, args ...any) error {
+	_, err := t.tx.ExecContext(ctx, q, args...)
+	return err
+}
+
+func (t sqlTx) insertID(ctx context.Context, q string, args ...any) (int64, bool, error) {
+	var id int64
+	err := t.tx.QueryRowContext(ctx, q, args...).Scan(&id)
+	if errors.Is(err, sql.ErrNoRows) {
+		return 0, false, nil
+	}
+	return id, err == nil, err
+}
+
+// bulk inserts rows in multi-row statements of up to maxParams
 // parameters each.
-func (s *Store) insertRows(ctx context.Context, tx *sql.Tx, table string, cols []string, rows [][]any) error {
+func (t sqlTx) bulk(ctx context.Context, table string, cols []string, rows [][]any) error {
+	s, tx := t.s, t.tx
 	if len(rows) == 0 {
 		return nil
 	}
@@ -217,7 +284,7 @@ func (s *Store) insertRows(ctx context.Context, tx *sql.Tx, table string, cols [
 			}
 			var err error
 			if stmt, err = tx.PrepareContext(ctx, b.String()); err != nil {
-				return s.wrap("prepare insert into "+table, err)
+				return err
 			}
 			stmtRows = n
 		}
@@ -229,7 +296,7 @@ func (s *Store) insertRows(ctx context.Context, tx *sql.Tx, table string, cols [
 			args = append(args, r...)
 		}
 		if _, err := stmt.ExecContext(ctx, args...); err != nil {
-			return s.wrap("insert into "+table, err)
+			return err
 		}
 	}
 	return nil
@@ -291,4 +358,74 @@ func splitList(s, sep string) []string {
 		return nil
 	}
 	return strings.Split(s, sep)
+}
+
+// pgxTx is a PostgreSQL transaction on pgx's own connection, for COPY.
+type pgxTx struct{ tx pgx.Tx }
+
+func (t pgxTx) idHashes(ctx context.Context, q string, args ...any) ([]idHash, error) {
+	rows, err := t.tx.Query(ctx, q, args...)
+	if err != nil {
+		return nil, err
+	}
+	defer rows.Close()
+	var out []idHash
+	for rows.Next() {
+		var f idHash
+		if err := rows.Scan(&f.id, &f.hash); err != nil {
+			return nil, err
+		}
+		out = append(out, f)
+	}
+	return out, rows.Err()
+}
+
+func (t pgxTx) exec(ctx context.Context, q string, args ...any) error {
+	_, err := t.tx.Exec(ctx, q, args...)
+	return err
+}
+
+func (t pgxTx) insertID(ctx context.Context, q string, args ...any) (int64, bool, error) {
+	var id int64
+	err := t.tx.QueryRow(ctx, q, args...).Scan(&id)
+	if errors.Is(err, pgx.ErrNoRows) {
+		return 0, false, nil
+	}
+	return id, err == nil, err
+}
+
+func (t pgxTx) bulk(ctx context.Context, table string, cols []string, rows [][]any) error {
+	if len(rows) == 0 {
+		return nil
+	}
+	_, err := t.tx.CopyFrom(ctx, pgx.Identifier{table}, cols, pgx.CopyFromRows(rows))
+	return err
+}
+
+// withPgxTx runs f in a transaction on one of the pool's connections,
+// unwrapped to pgx's own, and commits when f succeeds.
+func (s *Store) withPgxTx(ctx context.Context, f func(pgx.Tx) error) error {
+	conn, err := s.db.Conn(ctx)
+	if err != nil {
+		return s.wrap("connect", err)
+	}
+	defer conn.Close()
+	return conn.Raw(func(dc any) error {
+		pc, ok := dc.(*stdlib.Conn)
+		if !ok {
+			return fmt.Errorf("archive: internal: driver connection %T", dc)
+		}
+		tx, err := pc.Conn().Begin(ctx)
+		if err != nil {
+			return s.wrap("begin", err)
+		}
+		defer tx.Rollback(ctx)
+		if err := f(tx); err != nil {
+			return err
+		}
+		if err := tx.Commit(ctx); err != nil {
+			return s.wrap("commit the campaign", err)
+		}
+		return nil
+	})
 }

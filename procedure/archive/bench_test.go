@@ -68,6 +68,7 @@ func BenchmarkAdd1000Campaigns(b *testing.B) {
 					}
 				}
 				b.StopTimer()
+				reportSize(b, s)
 				s.Close()
 				b.StartTimer()
 			}
@@ -105,4 +106,22 @@ func BenchmarkTrendQuery(b *testing.B) {
 			}
 		})
 	}
+}
+
+// reportSize reports the store's size on disk (SQLite: the file after a
+// checkpoint; PostgreSQL: pg_database_size).
+func reportSize(b *testing.B, s *Store) {
+	var n int64
+	q := `SELECT page_count * page_size FROM pragma_page_count(), pragma_page_size()`
+	if s.d.name == "sqlite" {
+		if _, err := s.db.Exec(`PRAGMA wal_checkpoint(TRUNCATE)`); err != nil {
+			b.Fatal(err)
+		}
+	} else {
+		q = `SELECT pg_database_size(current_database())`
+	}
+	if err := s.db.QueryRow(q).Scan(&n); err != nil {
+		b.Fatal(err)
+	}
+	b.ReportMetric(float64(n)/1e6, "MB-on-disk")
 }
