@@ -197,7 +197,7 @@ func TestHelpListsEveryCommand(t *testing.T) {
 	cliWantCode(t, r, exitOK, "--help")
 	// Commands of the tool and cobra's own two, each on one line
 	// "  name   short description".
-	commands := []string{"demo", "sim", "probe", "check", "run", "resume", "report", "fit", "off", "size", "completion", "help"}
+	commands := []string{"demo", "sim", "probe", "check", "run", "resume", "report", "fit", "off", "size", "archive", "completion", "help"}
 	listed := map[string]string{}
 	inList := false
 	for _, line := range strings.Split(r.out, "\n") {

@@ -65,6 +65,7 @@ prints what the simulation holds.`,
 		},
 	}
 	addOutputFlags(cmd, &o.outputOptions, "folder for everything the demo writes (default: a new folder under the current one)")
+	addArchiveFlag(cmd, &o.outputOptions)
 	cmd.Flags().StringVar(&o.DUT, "dut", "", "DUT file (TOML) describing the simulated parts; default: the built-in demo lot")
 	cmd.Flags().Float64Var(&o.TimeScale, "time-scale", 10000, "run the simulated bench and the plan's waits this many times faster than real time")
 	cmd.Flags().Int64Var(&o.Seed, "seed", 0, "seed of the simulated instruments' errors and noise (0: the DUT file's)")

@@ -170,6 +170,7 @@ Start with "nullbench demo": it runs a whole campaign on a simulated bench.`,
 		newFitCmd(std, v.fit),
 		newOffCmd(std, v.off),
 		newSizeCmd(std, v.size),
+		newArchiveCmd(std),
 	)
 	return root
 }

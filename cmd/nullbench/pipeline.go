@@ -29,6 +29,9 @@ type outputOptions struct {
 	Plots    string // folder for PNG plots ("" = none)
 	JSON     bool   // one JSON object per result on standard output
 	NoCharts bool
+	// Archive is the results archive (--archive on run, resume and demo)
+	// that finish adds the measured campaigns to; "" = none.
+	Archive string
 }
 
 // analysisInputs takes the instruments' accuracy from the profiles the plan

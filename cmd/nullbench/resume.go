@@ -38,6 +38,7 @@ measured again. The workbook is written beside the journal.`,
 	cmd.Flags().StringVar(&o.Plan, "plan", "", "the plan file (default: the path recorded in the journal)")
 	cmd.Flags().BoolVar(&o.AllowHazardous, "allow-hazardous", false, "allow a plan above 60 V DC (asks for confirmation at a terminal; see SAFETY.md)")
 	addOutputFlags(cmd, &o.outputOptions, "folder for the workbook and exports (default: the journal's folder)")
+	addArchiveFlag(cmd, &o.outputOptions)
 	return cmd
 }
 

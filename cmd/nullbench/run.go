@@ -50,6 +50,7 @@ Exit status: 0 all judged results pass, 5 some result failed its limit,
 	addOutputFlags(cmd, &o.outputOptions, "folder for the journal, workbook and exports (default: a new folder named after the plan)")
 	cmd.Flags().BoolVar(&o.AllowHazardous, "allow-hazardous", false, "allow a plan above 60 V DC (asks for confirmation at a terminal; see SAFETY.md)")
 	cmd.Flags().BoolVar(&o.Force, "force", false, "write into an --out folder that holds other files (files of the same names are replaced)")
+	addArchiveFlag(cmd, &o.outputOptions)
 	cmd.Flags().StringArrayVar(&o.Skip, "skip", nil, "leave a unit out: UNIT or UNIT=REASON (socket empty, part cracked); repeatable")
 	return cmd
 }
@@ -175,11 +176,15 @@ func finish(std streams, o outputOptions, runErr error, recs ...campaignRecord) 
 			return withCode(exitFailure, fmt.Errorf("update the run folder's manifest: %w", err))
 		}
 	}
+	archiveErr := archiveMeasured(std, o.Archive, runErr, measured)
 	if runErr != nil {
 		return runErr
 	}
 	if integrity != nil {
 		return withCode(exitFailure, fmt.Errorf("%w: the workbook %s says so on its Summary sheet; compare the journal with a backup", integrity, book))
+	}
+	if archiveErr != nil {
+		return archiveErr
 	}
 	if anyFailed(c) || freqFailed(measured) {
 		return withCode(exitOutOfLimits, fmt.Errorf("some results did not pass their limits (see %s)", book))
