@@ -73,8 +73,10 @@ the bench powered down.
 
 --dialect NAME[,NAME...] makes instruments speak another common dialect,
 each with its own identity and profile name (the printed profile= and
---bench-out follow it; the mux_ and psu_ dialects have built-in profiles of
-those names, the meter dialects' profiles are not shipped yet):
+--bench-out follow it; every dialect has a built-in profile of its own
+name: dmm_single, dmm_initfetch, dmm_trigfetch, dmm_opc and dmm_buffer for
+the meter, mux_noopenall for the switch, psu_chanlist, psu_single,
+psu_negout and psu_slow for the supply; instrument/profiles/README.md):
 ` + dialectHelp(),
 		Args: cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, args []string) error {
