@@ -155,7 +155,7 @@ func TestMeterDialectsRefuseTheDefaultProfile(t *testing.T) {
 		t.Fatal(err)
 	}
 	dmm := *p
-	dmm.IDNPattern = "^NULLBENCH-SIM," // past the identity check, to the commands
+	dmm.IDNPattern = "^NULLBENCH-SIM,"   // past the identity check, to the commands
 	dmm.Timeout = 300 * time.Millisecond // a command the dialect lacks gets no reply
 	for _, tc := range []struct{ dialect, cmd string }{
 		{"dmm_single", "SAMP:COUN"},
