@@ -11,6 +11,7 @@ import (
 	"testing"
 
 	"nullbench/instrument/sim"
+	"nullbench/procedure/plan"
 )
 
 // The meter dialects of the simulated bench change only how readings are
@@ -144,6 +145,55 @@ offset_ppm_of_range = 4.0
 				if !strings.Contains(r.out+r.err, want) {
 					t.Errorf("check's refusal does not say %q:\n%s%s", want, r.out, r.err)
 				}
+			}
+		})
+	}
+}
+
+// The duration model learns each meter profile's way of reading: n
+// triggers without a count, and the init, *TRG and *OPC? exchanges of a
+// trigger (procedure/estimate TestTimelineMeterWithoutCount works out
+// their cost).
+func TestPlanFiguresKnowTheMeterMode(t *testing.T) {
+	for _, tc := range []struct {
+		dialect       string
+		onePerTrigger bool
+		sets, queries int
+	}{
+		{"", false, 0, 0},
+		{"dmm_single", true, 0, 0},
+		{"dmm_initfetch", false, 1, 0},
+		{"dmm_trigfetch", false, 2, 0},
+		{"dmm_opc", false, 1, 1},
+		{"dmm_buffer", false, 1, 0},
+	} {
+		t.Run(tc.dialect, func(t *testing.T) {
+			var ds []string
+			if tc.dialect != "" {
+				ds = []string{tc.dialect}
+			}
+			b, err := sim.New(sim.Config{Dialects: ds})
+			if err != nil {
+				t.Fatal(err)
+			}
+			ctx, cancel := context.WithCancel(context.Background())
+			if err := b.Start(ctx, sim.ServeOptions{}); err != nil {
+				cancel()
+				t.Fatal(err)
+			}
+			t.Cleanup(func() { cancel(); b.Close() })
+			planFile := cliWriteFile(t, t.TempDir(), "plan.toml", b.BenchSection()+strings.ReplaceAll(cliPlanBody, "%CMRR_LIMIT%", "90.0"))
+			p, err := plan.Load(planFile)
+			if err != nil {
+				t.Fatal(err)
+			}
+			f, problems := planFigures(p)
+			if len(problems) > 0 {
+				t.Fatalf("problems: %v", problems)
+			}
+			if f.MeterOnePerTrigger != tc.onePerTrigger || f.MeterTriggerSets != tc.sets || f.MeterTriggerQueries != tc.queries {
+				t.Errorf("one per trigger %v, sets %d, queries %d; want %v, %d, %d",
+					f.MeterOnePerTrigger, f.MeterTriggerSets, f.MeterTriggerQueries, tc.onePerTrigger, tc.sets, tc.queries)
 			}
 		})
 	}
