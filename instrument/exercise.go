@@ -56,6 +56,9 @@ type exerciseCmd struct {
 	vals     map[string]string
 	skip     string
 	block    bool // the reply is an IEEE 488.2 definite-length block
+	// decode shows a block's contents (a meter's binary readings), so
+	// that a wrong data format or byte order shows as absurd values.
+	decode func([]byte) string
 }
 
 // ExerciseOptions adjust a dry exercise.
@@ -191,6 +194,7 @@ func exercisePlan(p *Profile, o ExerciseOptions) []exerciseCmd {
 		add("meter.fetch", m.Fetch, "", PhCount, count)
 		if m.kind() != WaveASCII && len(out) > 0 && (out[len(out)-1].key == "meter.fetch" || out[len(out)-1].key == "meter.read") {
 			out[len(out)-1].block = true
+			out[len(out)-1].decode = m.blockText
 		}
 	}
 	if a := p.ACMeter; a != nil {
@@ -260,6 +264,9 @@ func Exercise(ctx context.Context, s exerciser, p *Profile, o ExerciseOptions) (
 			var b []byte
 			if b, st.Err = s.QueryBlock(ctx, cmd); st.Err == nil {
 				st.Reply = fmt.Sprintf("(block of %d bytes)", len(b))
+				if c.decode != nil {
+					st.Reply += " " + c.decode(b)
+				}
 			}
 		case isQuery(cmd):
 			st.Reply, st.Err = s.Query(ctx, cmd)

@@ -2,6 +2,10 @@ package instrument
 
 import (
 	"encoding/binary"
+	"fmt"
+	"math"
+	"strconv"
+	"strings"
 	"time"
 )
 
@@ -174,4 +178,27 @@ func (m *MeterCommands) validate(pr *problems) {
 	nonNegative(pr, "meter.gain_ppm", m.Accuracy.GainPPM)
 	nonNegative(pr, "meter.offset_ppm_of_range", m.Accuracy.OffsetPPMOfRange)
 	nonNegativeDuration(pr, "meter.settle", m.Settle)
+}
+
+// blockText shows a binary block of readings as the profile's data and
+// byte_order read it: the values in volts (OVERLOAD and NAN for the SCPI
+// codes), or why they cannot be read. The dry exercise prints it, so
+// that a wrong byte order shows as absurd values.
+func (m *MeterCommands) blockText(data []byte) string {
+	vs, err := DecodeWaveform(data, m.kind(), m.order(), 0, 0)
+	if err != nil {
+		return fmt.Sprintf("not %s %s-endian readings: %v", m.Data, m.ByteOrder, err)
+	}
+	parts := make([]string, len(vs))
+	for i, v := range vs {
+		switch v = scpiSpecialReal(v, m.kind()); {
+		case math.IsInf(v, 0):
+			parts[i] = "OVERLOAD"
+		case math.IsNaN(v):
+			parts[i] = "NAN"
+		default:
+			parts[i] = strconv.FormatFloat(v, 'E', 6, 64)
+		}
+	}
+	return m.Data + " " + m.ByteOrder + "-endian: " + strings.Join(parts, ",")
 }
