@@ -10,6 +10,7 @@ import (
 	"strings"
 	"testing"
 
+	"nullbench/instrument"
 	"nullbench/instrument/sim"
 	"nullbench/procedure/plan"
 )
@@ -194,6 +195,50 @@ func TestPlanFiguresKnowTheMeterMode(t *testing.T) {
 			if f.MeterOnePerTrigger != tc.onePerTrigger || f.MeterTriggerSets != tc.sets || f.MeterTriggerQueries != tc.queries {
 				t.Errorf("one per trigger %v, sets %d, queries %d; want %v, %d, %d",
 					f.MeterOnePerTrigger, f.MeterTriggerSets, f.MeterTriggerQueries, tc.onePerTrigger, tc.sets, tc.queries)
+			}
+		})
+	}
+}
+
+// sim's help names each dialect's built-in profile by the dialect's name:
+// that profile exists, is what the endpoint prints, and matches the
+// identity the changed instrument answers.
+func TestEveryDialectHasItsProfile(t *testing.T) {
+	help := dialectHelp()
+	for _, d := range sim.Dialects() {
+		t.Run(d.Name, func(t *testing.T) {
+			if !strings.Contains(help, "(profile "+d.Name+")") {
+				t.Errorf("sim's help does not name profile %s", d.Name)
+			}
+			p, err := instrument.BuiltinProfile(d.Name)
+			if err != nil {
+				t.Fatal(err)
+			}
+			b, err := sim.New(sim.Config{Dialects: []string{d.Name}})
+			if err != nil {
+				t.Fatal(err)
+			}
+			ctx, cancel := context.WithCancel(context.Background())
+			if err := b.Start(ctx, sim.ServeOptions{}); err != nil {
+				cancel()
+				t.Fatal(err)
+			}
+			t.Cleanup(func() { cancel(); b.Close() })
+			found := false
+			for _, ep := range b.Endpoints() {
+				if ep.Name != d.Instrument {
+					continue
+				}
+				found = true
+				if ep.Profile != d.Name {
+					t.Errorf("%s prints profile=%s, want %s", ep.Name, ep.Profile, d.Name)
+				}
+				if !p.Matches(ep.IDN) {
+					t.Errorf("profile %s does not match %s's identity %q", d.Name, ep.Name, ep.IDN)
+				}
+			}
+			if !found {
+				t.Errorf("no endpoint %s", d.Instrument)
 			}
 		})
 	}

@@ -73,10 +73,8 @@ the bench powered down.
 
 --dialect NAME[,NAME...] makes instruments speak another common dialect,
 each with its own identity and profile name (the printed profile= and
---bench-out follow it; every dialect has a built-in profile of its own
-name: dmm_single, dmm_initfetch, dmm_trigfetch, dmm_opc and dmm_buffer for
-the meter, mux_noopenall for the switch, psu_chanlist, psu_single,
-psu_negout and psu_slow for the supply; instrument/profiles/README.md):
+--bench-out follow it; each dialect's built-in profile is named at the end
+of its line, and instrument/profiles/README.md says what each shows):
 ` + dialectHelp(),
 		Args: cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, args []string) error {
@@ -104,7 +102,7 @@ psu_negout and psu_slow for the supply; instrument/profiles/README.md):
 func dialectHelp() string {
 	var sb strings.Builder
 	for _, d := range sim.Dialects() {
-		fmt.Fprintf(&sb, "\n  %-15s %-8s %s", d.Name, d.Instrument, d.Doc)
+		fmt.Fprintf(&sb, "\n  %-15s %-8s %s (profile %s)", d.Name, d.Instrument, d.Doc, d.Name)
 	}
 	return sb.String()
 }
