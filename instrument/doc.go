@@ -23,8 +23,12 @@
 //   - Drivers (driver.go) implement the roles of roles.go (Meter, Supply,
 //     Source, Switch, Chamber, Thermometer) from a Session and a Profile.
 //     A negative supply rail wired floating is programmed as a magnitude
-//     and read back with its sign; meter overloads come back as ±Inf with
-//     an error wrapping ErrOverload. For frequency response
+//     and read back with its sign. The meter (driver_meter.go,
+//     profile_meter.go) takes n readings however its profile says: a
+//     count then one query, n triggers of one reading, init/trigger/
+//     *OPC?/fetch, or a buffer as ASCII or a block of binary reals;
+//     overloads (9.9E37) come back as ±Inf with an error wrapping
+//     ErrOverload, 9.91E37 as NaN with ErrNotANumber. For frequency response
 //     (driver_generator.go, driver_digitizer.go, driver_acvm.go): a
 //     generator output's sine (SCPI-99 SOURce forms, peak volts converted
 //     to the profile's VPP or VPK), a digitizer's records as ASCII or

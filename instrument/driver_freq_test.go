@@ -312,16 +312,18 @@ func TestDecodeWaveform(t *testing.T) {
 }
 
 // FuzzDecodeWaveform: any bytes decode without panic; what decodes has one
-// sample per 2 (int16) or 4 (real32) bytes, all finite, and re-encodes to
-// the same bytes.
+// sample per 2 (int16), 4 (real32) or 8 (real64, a meter's REAL,64
+// buffer) bytes, all finite, and re-encodes to the same bytes.
 func FuzzDecodeWaveform(f *testing.F) {
 	f.Add([]byte{0x01, 0x02, 0xFF, 0xFE}, uint8(1), true)
 	f.Add([]byte{0x3F, 0x80, 0x00, 0x00}, uint8(2), false)
 	f.Add([]byte("1.5,-2E-3,+7"), uint8(0), true)
 	f.Add([]byte("#15HELLO"), uint8(0), false)
 	f.Add([]byte{0x7F, 0x80, 0, 0, 0xFF, 0x80, 0, 0}, uint8(2), true)
+	f.Add([]byte{0x47, 0xD2, 0x9E, 0xAD, 0x3C, 0x2E, 0xFC, 0x7E}, uint8(3), true) // 9.9E37 as binary64
+	f.Add([]byte{0x7F, 0xF0, 0, 0, 0, 0, 0, 0}, uint8(3), true)                   // +Inf: refused
 	f.Fuzz(func(t *testing.T, data []byte, kind uint8, big bool) {
-		k := instrument.WaveformKind(kind % 3)
+		k := instrument.WaveformKind(kind % 4)
 		order := binary.ByteOrder(binary.LittleEndian)
 		if big {
 			order = binary.BigEndian
@@ -351,6 +353,13 @@ func FuzzDecodeWaveform(f *testing.F) {
 			again, err := instrument.DecodeWaveform(back, k, order, 0, 0)
 			if err != nil || fmt.Sprint(again) != fmt.Sprint(v) {
 				t.Fatalf("real32 round trip: %v -> %v (%v)", v, again, err)
+			}
+		case instrument.WaveReal64:
+			if len(v) != len(data)/8 {
+				t.Fatalf("%d samples from %d bytes", len(v), len(data))
+			}
+			if back := instrument.EncodeWaveform(v, k, order, 0, 0); string(back) != string(data) {
+				t.Fatalf("real64 round trip: % x -> % x", data, back)
 			}
 		}
 	})

@@ -83,7 +83,7 @@ func TestMeterDriver(t *testing.T) {
 	}
 	// Overload (SCPI-99; IEEE 488.2: 9.9E37 = +INF): +Inf and ErrOverload.
 	r, err := m.Read(ctx)
-	if !math.IsInf(r, 1) || !errors.Is(err, instrument.ErrOverload) || !strings.Contains(err.Error(), "range 10 V") {
+	if !math.IsInf(r, 1) || !errors.Is(err, instrument.ErrOverload) || !strings.Contains(err.Error(), "the 10 V range is too small") {
 		t.Errorf("Read on overload = %v, %v", r, err)
 	}
 	v, err = m.ReadN(ctx, 2)

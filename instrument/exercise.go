@@ -56,6 +56,9 @@ type exerciseCmd struct {
 	vals     map[string]string
 	skip     string
 	block    bool // the reply is an IEEE 488.2 definite-length block
+	// decode shows a block's contents (a meter's binary readings), so
+	// that a wrong data format or byte order shows as absurd values.
+	decode func([]byte) string
 }
 
 // ExerciseOptions adjust a dry exercise.
@@ -176,10 +179,23 @@ func exercisePlan(p *Profile, o ExerciseOptions) []exerciseCmd {
 	}
 	if m := p.Meter; m != nil {
 		channel = pick(nil, true)
+		count := exerciseCount
+		if !m.Counted() {
+			count = "1" // one reading per trigger
+		}
 		add("meter.configure", m.Configure, "")
 		add("meter.nplc", m.NPLC, "")
-		add("meter.count", m.Count, "")
-		add("meter.read", m.Read, "")
+		add("meter.format", m.Format, "")
+		add("meter.count", m.Count, "", PhCount, count)
+		add("meter.read", m.Read, "", PhCount, count)
+		add("meter.init", m.Init, "")
+		add("meter.trigger", m.Trigger, "")
+		add("meter.sync", m.Sync, "")
+		add("meter.fetch", m.Fetch, "", PhCount, count)
+		if m.kind() != WaveASCII && len(out) > 0 && (out[len(out)-1].key == "meter.fetch" || out[len(out)-1].key == "meter.read") {
+			out[len(out)-1].block = true
+			out[len(out)-1].decode = m.blockText
+		}
 	}
 	if a := p.ACMeter; a != nil {
 		channel = pick(a.Channels, true)
@@ -248,6 +264,9 @@ func Exercise(ctx context.Context, s exerciser, p *Profile, o ExerciseOptions) (
 			var b []byte
 			if b, st.Err = s.QueryBlock(ctx, cmd); st.Err == nil {
 				st.Reply = fmt.Sprintf("(block of %d bytes)", len(b))
+				if c.decode != nil {
+					st.Reply += " " + c.decode(b)
+				}
 			}
 		case isQuery(cmd):
 			st.Reply, st.Err = s.Query(ctx, cmd)
@@ -343,7 +362,8 @@ func (p *Profile) TemplateKeys() map[string]bool {
 		}
 	}
 	if m := p.Meter; m != nil {
-		put("meter", "configure", m.Configure, "nplc", m.NPLC, "count", m.Count, "read", m.Read)
+		put("meter", "configure", m.Configure, "nplc", m.NPLC, "count", m.Count, "read", m.Read,
+			"format", m.Format, "init", m.Init, "trigger", m.Trigger, "sync", m.Sync, "fetch", m.Fetch)
 	}
 	if s := p.Supply; s != nil {
 		put("supply", "select", s.Select, "set_volts", s.SetVolts, "set_current_limit", s.SetCurrentLimit,

@@ -82,20 +82,6 @@ type Profile struct {
 	File string
 }
 
-// MeterCommands is the [meter] table: a DC voltmeter.
-//
-//	configure = "CONF:VOLT:DC {range}"   select DC volts and range; may use {range} {nplc} {unit}
-//	nplc      = "VOLT:DC:NPLC {nplc}"    integration time; must use {nplc}
-//	count     = "SAMP:COUN {count}"      readings per trigger; must use {count}
-//	read      = "READ?"                  trigger and return the readings
-//	gain_ppm            = 15             accuracy, ppm of reading (required)
-//	offset_ppm_of_range = 4              accuracy, ppm of range (required)
-type MeterCommands struct {
-	Configure, NPLC, Count, Read string
-	Settle                       time.Duration // after configure; the profile's settle unless the table sets one
-	Accuracy                     MeterAccuracy
-}
-
 // MeterAccuracy is a DMM's DC accuracy specification in the usual
 // two-term form, ± (gain × reading + offset × range). The offset is given
 // in ppm of range because that is how DMM specifications state it
@@ -280,16 +266,6 @@ type figuresDoc struct {
 	acFiguresDoc
 }
 
-type meterDoc struct {
-	Configure        string   `toml:"configure"`
-	NPLC             string   `toml:"nplc"`
-	Count            string   `toml:"count"`
-	Read             string   `toml:"read"`
-	Settle           string   `toml:"settle"`
-	GainPPM          *float64 `toml:"gain_ppm"`
-	OffsetPPMOfRange *float64 `toml:"offset_ppm_of_range"`
-}
-
 type accuracyDoc struct {
 	ProgramGainPPM      *float64 `toml:"program_gain_ppm"`
 	ProgramOffsetVolts  *float64 `toml:"program_offset_volts"`
@@ -397,14 +373,7 @@ func ParseProfile(data []byte, file string) (*Profile, error) {
 		return pr.duration(key, s)
 	}
 	if d := doc.Meter; d != nil {
-		p.Meter = &MeterCommands{
-			Configure: d.Configure, NPLC: d.NPLC, Count: d.Count, Read: d.Read,
-			Settle: roleSettle("meter.settle", d.Settle),
-			Accuracy: MeterAccuracy{
-				GainPPM:          pr.required("meter.gain_ppm", d.GainPPM),
-				OffsetPPMOfRange: pr.required("meter.offset_ppm_of_range", d.OffsetPPMOfRange),
-			},
-		}
+		p.Meter = pr.parseMeter(d, roleSettle("meter.settle", d.Settle)) // profile_meter.go
 	}
 	if d := doc.Supply; d != nil {
 		p.Supply = &SupplyCommands{
@@ -640,15 +609,7 @@ func (p *Profile) validate(pr *problems) {
 	}
 	p.validateFreqTables(pr)
 	if m := p.Meter; m != nil {
-		checkTemplates(pr, "meter", "", nil, []tplSpec{
-			{key: "configure", value: &m.Configure, allowed: []string{PhRange, PhNPLC, PhUnit}, must: []string{PhRange}},
-			{key: "nplc", value: &m.NPLC, allowed: []string{PhNPLC}, must: []string{PhNPLC}},
-			{key: "count", value: &m.Count, allowed: []string{PhCount}, must: []string{PhCount}},
-			{key: "read", value: &m.Read, allowed: []string{PhCount}},
-		})
-		nonNegative(pr, "meter.gain_ppm", m.Accuracy.GainPPM)
-		nonNegative(pr, "meter.offset_ppm_of_range", m.Accuracy.OffsetPPMOfRange)
-		nonNegativeDuration(pr, "meter.settle", m.Settle)
+		m.validate(pr) // profile_meter.go
 	}
 	chValue := []string{PhChannel, PhValue, PhUnit}
 	ch := []string{PhChannel}

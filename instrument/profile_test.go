@@ -9,6 +9,7 @@ import (
 	"time"
 
 	"nullbench/instrument"
+	"nullbench/instrument/sim"
 )
 
 // benchIdentities are the *IDN? answers of the simulated bench (instrument/sim/doc.go).
@@ -27,11 +28,17 @@ var benchIdentities = map[string]string{
 	"psu_single":    "NULLBENCH-SIM,PSU-1CH,SIM0042,1.0",
 	"psu_negout":    "NULLBENCH-SIM,PSU-2NO,SIM0044,1.0",
 	"psu_slow":      "NULLBENCH-SIM,PSU-2SL,SIM0045,1.0",
+	// meter dialects (instrument/sim/dialect_meter.go)
+	"dmm_single":    sim.IDNDMMSingle,
+	"dmm_initfetch": sim.IDNDMMInitFetch,
+	"dmm_trigfetch": sim.IDNDMMTrigFetch,
+	"dmm_opc":       sim.IDNDMMOPC,
+	"dmm_buffer":    sim.IDNDMMBuffer,
 }
 
 func TestBuiltinProfiles(t *testing.T) {
 	names := instrument.BuiltinProfileNames()
-	if strings.Join(names, ",") != "acvm,chamber,digitizer,dmm,generator,mux_noopenall,psu_chanlist,psu_negout,psu_single,psu_slow,source3,supply2,switch" { // the built-in profile files
+	if strings.Join(names, ",") != "acvm,chamber,digitizer,dmm,dmm_buffer,dmm_initfetch,dmm_opc,dmm_single,dmm_trigfetch,generator,mux_noopenall,psu_chanlist,psu_negout,psu_single,psu_slow,source3,supply2,switch" { // the built-in profile files
 		t.Fatalf("built-in profiles = %v", names)
 	}
 	all, err := instrument.BuiltinProfiles()
@@ -136,7 +143,7 @@ offset_ppm_of_range = 4
 		{"unknown top-level key", "bogus = 1\n" + good,
 			[]string{"profile t.toml:1: key bogus: unknown key", "known keys at the top level: name, description"}},
 		{"unknown key in a table", strings.Replace(good, "read = ", "raed = \"x\"\nread = ", 1),
-			[]string{"t.toml:6: key meter.raed: unknown key", "known keys in [meter]: configure, nplc, count, read"}},
+			[]string{"t.toml:6: key meter.raed: unknown key", "known keys in [meter]: configure, nplc, format, count, one_per_trigger, read, init"}},
 		{"wrong type", strings.Replace(good, "gain_ppm = 15", "gain_ppm = \"15\"", 1),
 			[]string{"t.toml:7: key meter.gain_ppm: found a TOML string; want a number"}},
 		{"wrong type for a template", strings.Replace(good, `read = "READ?"`, "read = 5", 1),
@@ -251,6 +258,11 @@ func FuzzParseProfile(f *testing.F) {
 	f.Add([]byte("name = \"x\"\nmeter = { configure = \"{range}\" }\n"))
 	f.Add([]byte("[supply]\nselect = \"{channel\"\n"))
 	f.Add([]byte("a.b.c = 1\n[[x]]\n"))
+	meter := "name = \"m\"\n[meter]\nconfigure = \"CONF {range}\"\nnplc = \"NPLC {nplc}\"\ngain_ppm = 1\noffset_ppm_of_range = 1\n"
+	f.Add([]byte(meter + "one_per_trigger = true\nread = \"READ?\"\n"))
+	f.Add([]byte(meter + "count = \"SAMP:COUN {count}\"\ninit = \"INIT\"\ntrigger = \"*TRG\"\nsync = \"*OPC?\"\nfetch = \"FETC?\"\n"))
+	f.Add([]byte(meter + "init = \"INIT\"\nfetch = \"TRAC:DATA? {count}\"\ndata = \"real64\"\nbyte_order = \"little\"\nformat = \"FORM REAL,64\"\n"))
+	f.Add([]byte(meter + "read = \"READ?\"\ninit = \"INIT\"\nbyte_order = \"little\"\none_per_trigger = false\n"))
 	f.Fuzz(func(t *testing.T, data []byte) {
 		p, err := instrument.ParseProfile(data, "fuzz.toml")
 		if err != nil {
@@ -261,6 +273,13 @@ func FuzzParseProfile(f *testing.F) {
 		}
 		if err := p.Validate(); err != nil {
 			t.Fatalf("parsed profile fails Validate: %v", err)
+		}
+		// A meter that parsed has exactly one way of reading, and a count
+		// only when it takes several readings per trigger.
+		if m := p.Meter; m != nil {
+			if (m.Read != "") == m.Fetches() || (m.Fetches() && m.Fetch == "") || m.Counted() != (m.Count != "") {
+				t.Fatalf("meter parsed with read %q init %q fetch %q count %q one_per_trigger %v", m.Read, m.Init, m.Fetch, m.Count, m.OnePerTrigger)
+			}
 		}
 	})
 }

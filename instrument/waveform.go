@@ -15,6 +15,7 @@ const (
 	WaveASCII  WaveformKind = iota // comma-separated NR1/NR2/NR3 volts
 	WaveInt16                      // IEEE 488.2 definite-length block of int16 codes
 	WaveReal32                     // definite-length block of IEEE 754 binary32 volts
+	WaveReal64                     // definite-length block of IEEE 754 binary64 volts (a meter's REAL,64)
 )
 
 var waveformKinds = map[string]WaveformKind{"ascii": WaveASCII, "int16": WaveInt16, "real32": WaveReal32}
@@ -28,11 +29,14 @@ var ErrClipped = errors.New("samples clipped at full scale")
 //	ASCII:  the reply text, comma-separated numbers (ParseNumbers)
 //	int16:  the block's data, 2 bytes per sample, volts = code·scale + offset
 //	real32: the block's data, 4 bytes per sample, volts as sent
+//	real64: the block's data, 8 bytes per sample, volts as sent
 //
 // order is the byte order of binary data (SCPI-99 FORMat:BORDer NORMal is
 // big-endian, SWAPped little-endian). A binary length that is not a whole
 // number of samples, a non-finite real32 sample or an empty record is an
 // error wrapping ErrBadResponse.
+// (A meter's readings come the same way: MeterDriver decodes its blocks
+// here, then maps the SCPI overload and not-a-number codes.)
 func DecodeWaveform(data []byte, kind WaveformKind, order binary.ByteOrder, scale, offset float64) ([]float64, error) {
 	switch kind {
 	case WaveASCII:
@@ -62,12 +66,26 @@ func DecodeWaveform(data []byte, kind WaveformKind, order binary.ByteOrder, scal
 			out[i] = v
 		}
 		return out, nil
+	case WaveReal64:
+		if len(data) == 0 || len(data)%8 != 0 {
+			return nil, fmt.Errorf("%w: real64 record of %d bytes is not a whole, non-zero number of 8-byte samples", ErrBadResponse, len(data))
+		}
+		out := make([]float64, len(data)/8)
+		for i := range out {
+			v := math.Float64frombits(order.Uint64(data[8*i:]))
+			if !finite(v) {
+				return nil, fmt.Errorf("%w: real64 sample %d of %d is %v", ErrBadResponse, i+1, len(out), v)
+			}
+			out[i] = v
+		}
+		return out, nil
 	}
 	return nil, fmt.Errorf("unknown waveform kind %d", kind)
 }
 
 // EncodeWaveform is DecodeWaveform's inverse for binary kinds (tests and
-// fakes): int16 codes round(v − offset)/scale clamped to int16, or real32.
+// fakes): int16 codes round(v − offset)/scale clamped to int16, real32 or
+// real64.
 func EncodeWaveform(volts []float64, kind WaveformKind, order binary.ByteOrder, scale, offset float64) []byte {
 	switch kind {
 	case WaveInt16:
@@ -82,6 +100,12 @@ func EncodeWaveform(volts []float64, kind WaveformKind, order binary.ByteOrder, 
 		buf := make([]byte, 4*len(volts))
 		for i, v := range volts {
 			order.PutUint32(buf[4*i:], math.Float32bits(float32(v)))
+		}
+		return buf
+	case WaveReal64:
+		buf := make([]byte, 8*len(volts))
+		for i, v := range volts {
+			order.PutUint64(buf[8*i:], math.Float64bits(v))
 		}
 		return buf
 	}

@@ -373,6 +373,7 @@ func (m *badMeter) ReadN(ctx context.Context, n int) ([]float64, error) {
 
 // An implausible meter answer (a finite value far beyond 1.2 × range, or
 // SCPI NaN 9.91E37; IEEE 488.2/SCPI-99 vol. 1 §7.2.1.5 for the NaN code)
+// or an overload (9.9E37)
 // is an error of that point: the run goes on, the point is journalled
 // with the flag and the driver's message, and the fit leaves it out with
 // a note.
@@ -381,9 +382,12 @@ func TestImplausibleMeterAnswerIsAPointError(t *testing.T) {
 		name  string
 		value float64
 		cause error
+		flag  string
 	}{
-		{"beyond range", 5e3, instrument.ErrImplausible},
-		{"scpi nan", math.NaN(), instrument.ErrNotANumber},
+		{"beyond range", 5e3, instrument.ErrImplausible, journal.FlagImplausible},
+		{"scpi nan", math.NaN(), instrument.ErrNotANumber, journal.FlagImplausible},
+		// SCPI overload 9.9E37 (SCPI-99 vol. 1 §7.2.1.5): the range too small.
+		{"scpi overload", math.Inf(1), instrument.ErrOverload, journal.FlagOverload},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			su := startSim(t, plan.CMBySupplyShift, false, 500*time.Millisecond)
@@ -406,12 +410,15 @@ func TestImplausibleMeterAnswerIsAPointError(t *testing.T) {
 			checkSimBench(t, su.bench, true)
 			var bad []journal.Reading
 			for _, r := range c.Readings {
-				if slices.Contains(r.Flags, journal.FlagImplausible) {
+				if slices.Contains(r.Flags, tc.flag) {
 					bad = append(bad, r)
 				}
 			}
 			if len(bad) != 1 {
-				t.Fatalf("%d readings flagged %q, want 1", len(bad), journal.FlagImplausible)
+				t.Fatalf("%d readings flagged %q, want 1", len(bad), tc.flag)
+			}
+			if tc.flag == journal.FlagOverload && slices.Contains(bad[0].Flags, journal.FlagImplausible) {
+				t.Errorf("an overload flagged %v: it is not an implausible answer", bad[0].Flags)
 			}
 			if !strings.Contains(bad[0].Problem, "meter") || !strings.Contains(bad[0].Problem, "READ?") {
 				t.Errorf("the problem does not name the instrument and command: %q", bad[0].Problem)

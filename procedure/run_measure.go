@@ -154,7 +154,9 @@ func (r *runner) point(ctx context.Context, t *plan.Test, st plan.Step, key plan
 		rd.Flags = append(rd.Flags, journal.FlagOverload)
 	}
 	if bad != nil {
-		rd.Flags = append(rd.Flags, journal.FlagImplausible)
+		if !over {
+			rd.Flags = append(rd.Flags, journal.FlagImplausible)
+		}
 		rd.Problem = bad.Error()
 		r.logf("%s %s step %d: %v; the point is journalled and left out of the fit", rd.Unit, t.Kind, rd.Step+1, bad)
 	}
@@ -236,10 +238,11 @@ func (r *runner) readMean(ctx context.Context, n int) (float64, error) {
 	return m, nil
 }
 
-// readN takes n readings in one trigger. Overloaded readings (the driver
-// wraps instrument.ErrOverload and returns ±Inf) are kept as ±9.9E37, the
-// SCPI overload value, so the journal stays finite JSON and the point is
-// flagged. An implausible answer (the driver wraps instrument.ErrNotANumber
+// readN takes n readings (one trigger, or n of one reading each, as the
+// meter's profile says). Overloaded readings (the driver wraps
+// instrument.ErrOverload and returns ±Inf) are kept as ±9.9E37, the SCPI
+// overload value, so the journal stays finite JSON, the point is flagged
+// and bad carries the driver's message (the range too small). An implausible answer (the driver wraps instrument.ErrNotANumber
 // for SCPI NaN, instrument.ErrImplausible for a finite value beyond
 // 1.2 × range) is a problem of this point, not of the run: bad carries the
 // driver's message (instrument and command named), the values are kept
@@ -249,7 +252,7 @@ func (r *runner) readN(ctx context.Context, n int) (vals []float64, overload boo
 	if err != nil {
 		switch {
 		case errors.Is(err, instrument.ErrOverload):
-			overload = true
+			overload, bad = true, err // the driver's message: instrument, command, range too small
 		case errors.Is(err, instrument.ErrNotANumber), errors.Is(err, instrument.ErrImplausible):
 			bad = err
 		default:

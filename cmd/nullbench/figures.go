@@ -61,6 +61,8 @@ func planFigures(p *plan.Plan) (estimate.Figures, []string) {
 				f.NoiseNPLC, f.NoiseRelOfRange = fig.NoiseNPLC, fig.NoiseRelOfRange
 				f.FloorRelOfRange = fig.FloorRelOfRange
 				f.MeterGainPPM, f.MeterOffsetPPMOfRange = m.Accuracy.GainPPM, m.Accuracy.OffsetPPMOfRange
+				f.MeterOnePerTrigger = !m.Counted()
+				f.MeterTriggerSets, f.MeterTriggerQueries = nonEmpty(m.Init, m.Trigger), nonEmpty(m.Sync)
 			}
 		case plan.RoleSupplyPos, plan.RoleSupplyNeg:
 			if s := prof.Supply; s != nil {
@@ -108,3 +110,14 @@ const (
 	hostTimerLateSeconds  = 0.0003
 	hostTimerFloorSeconds = 0.0011
 )
+
+// nonEmpty counts the templates given.
+func nonEmpty(tpls ...string) int {
+	n := 0
+	for _, t := range tpls {
+		if t != "" {
+			n++
+		}
+	}
+	return n
+}

@@ -73,8 +73,8 @@ the bench powered down.
 
 --dialect NAME[,NAME...] makes instruments speak another common dialect,
 each with its own identity and profile name (the printed profile= and
---bench-out follow it; the mux_ and psu_ dialects have built-in profiles of
-those names, the meter dialects' profiles are not shipped yet):
+--bench-out follow it; each dialect's built-in profile is named at the end
+of its line, and instrument/profiles/README.md says what each shows):
 ` + dialectHelp(),
 		Args: cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, args []string) error {
@@ -102,7 +102,7 @@ those names, the meter dialects' profiles are not shipped yet):
 func dialectHelp() string {
 	var sb strings.Builder
 	for _, d := range sim.Dialects() {
-		fmt.Fprintf(&sb, "\n  %-15s %-8s %s", d.Name, d.Instrument, d.Doc)
+		fmt.Fprintf(&sb, "\n  %-15s %-8s %s (profile %s)", d.Name, d.Instrument, d.Doc, d.Name)
 	}
 	return sb.String()
 }

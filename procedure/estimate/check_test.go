@@ -149,3 +149,27 @@ func TestTimelineCountsTimerLateness(t *testing.T) {
 		}
 	}
 }
+
+// TestTimelineMeterWithoutCount works the board plan's first point out by
+// hand, as in TestTimelineCountsTimerLateness (waits 0.3 s late, at least
+// 1.1 s), for a meter that takes one reading per trigger: each of the
+// point's three takes of 5 readings is 5 triggers, each integrating 20 ms
+// → 1.1 s, so 5.5 s a take: dwell 1.3 + 3 × 5.5 = 17.8 s, plus the
+// expected further comparisons (0.00890, TestTimelineBoardByHand) of
+// 5.5 s each: 17.8490 s. With an init and a sync query per trigger and
+// exchanges of 10 ms (set: 20 ms with the error check), each trigger costs
+// 2 × 10 + 20 = 40 ms more: 15 triggers and 0.00890 × 5 more, 0.6018 s.
+func TestTimelineMeterWithoutCount(t *testing.T) {
+	p := loadExamplePlan(t, "board")
+	f := DefaultFigures()
+	f.WaitOverrunSeconds, f.WaitFloorSeconds = 0.3, 1.1
+	f.MeterOnePerTrigger = true
+	if got := f.Timeline(p).Points[0].Seconds; math.Abs(got-17.8490) > 1e-3 {
+		t.Errorf("first point %.5f s, want 17.8490 s", got)
+	}
+	f.MeterTriggerSets, f.MeterTriggerQueries = 1, 1
+	f.Roles[plan.RoleMeter] = RoleFigures{SetSeconds: 0.02, QuerySeconds: 0.01}
+	if got := f.Timeline(p).Points[0].Seconds; math.Abs(got-(17.8490+0.6018)) > 1e-3 {
+		t.Errorf("first point with init and sync %.5f s, want %.4f s", got, 17.8490+0.6018)
+	}
+}

@@ -60,6 +60,13 @@ type Figures struct {
 	// Meter: a reading lasts NPLC/LineHz × ReadingOverhead; each trigger
 	// costs TriggerSeconds more.
 	LineHz, ReadingOverhead, TriggerSeconds float64
+	// MeterOnePerTrigger: the meter takes one reading per trigger (its
+	// profile has no count template), so n readings are n triggers.
+	// MeterTriggerSets and MeterTriggerQueries are the commands (init,
+	// *TRG) and queries (*OPC?) of one trigger besides the one that
+	// returns the readings.
+	MeterOnePerTrigger                    bool
+	MeterTriggerSets, MeterTriggerQueries int
 	// Meter noise: rms of one reading relative to the range at each of
 	// NoiseNPLC (ascending), and the low-frequency floor relative to the
 	// range, which averaging does not reduce.
@@ -225,9 +232,16 @@ func (f *Figures) Timeline(p *plan.Plan) Timeline {
 				testStart := now
 				now += 2 * setCost(plan.RoleMeter) // configure, NPLC
 				countSent := false
+				// One point's readings: a trigger of n, or n triggers of one.
 				trigger := func() float64 {
-					c := query(plan.RoleMeter) + f.TriggerSeconds + f.wait(float64(max(t.Readings, 1))*f.readingSeconds(t.NPLC))
-					if !countSent {
+					triggers, per := 1, max(t.Readings, 1)
+					if f.MeterOnePerTrigger {
+						triggers, per = per, 1
+					}
+					one := float64(1+f.MeterTriggerQueries)*query(plan.RoleMeter) + float64(f.MeterTriggerSets)*role(plan.RoleMeter).SetSeconds +
+						f.TriggerSeconds + f.wait(float64(per)*f.readingSeconds(t.NPLC))
+					c := float64(triggers) * one
+					if !countSent && !f.MeterOnePerTrigger {
 						c += role(plan.RoleMeter).SetSeconds
 						countSent = true
 					}

@@ -40,7 +40,8 @@ type Reading struct {
 	SettleSeconds float64  `json:"settle_s"`        // bench time from the step to the first accepted reading
 	Flags         []string `json:"flags,omitempty"` // e.g. "settle-timeout", "overload"
 	// Problem says, cause first, why a flagged point is not a measurement
-	// (FlagImplausible: the instrument, command and value refused).
+	// (FlagImplausible: the instrument, command and value refused;
+	// FlagOverload: the instrument, command and the range too small).
 	Problem string `json:"problem,omitempty"`
 }
 

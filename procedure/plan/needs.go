@@ -60,13 +60,9 @@ func TemplateNeeds(p *Plan) []TemplateNeed {
 		case RoleMeter:
 			need(role, "the plan needs it to select DC volts and the range", "configure")
 			need(role, "the plan needs it to set the integration time (nplc)", "nplc")
-			need(role, "the plan needs it to take readings", "read")
-			for _, t := range p.Tests {
-				if t.Readings >= 2 {
-					need(role, fmt.Sprintf("the plan's %s test needs it to take %d readings per point", t.Kind, t.Readings), "count")
-					break
-				}
-			}
+			// read, or init … fetch; without a count template the meter
+			// takes the readings one trigger each (profile_meter.go).
+			need(role, "the plan needs it to take readings", "read", "fetch")
 		case RoleSupplyPos, RoleSupplyNeg, RoleSourceCM, RoleSourceDiff, RoleSourceRef:
 			what := roleWhat[role]
 			stepped := ""

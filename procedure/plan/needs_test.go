@@ -52,11 +52,22 @@ func TestCheckBenchRoleTemplates(t *testing.T) {
 			"dmm": {Roles: map[string]bool{"meter": true}, Templates: full("meter", "configure", "nplc", "count", "read")},
 			"mux": {Roles: map[string]bool{"switch": true}, Templates: full("switch", "close", "open_all")},
 		}, []string{`lab/p.toml: key "bench.roles.supply_pos.instrument": profiles/xyz.toml: no "set_volts" template in [supply]; the plan's psrr_pos test needs it to step V+`}},
+		// Without count the meter takes 5 triggers of one reading each.
 		{"meter without count while readings = 5", nil, map[string]BenchProfile{
 			"psu": {Roles: map[string]bool{"supply": true}, Templates: full("supply", supplyAll...)},
 			"dmm": {Roles: map[string]bool{"meter": true}, Templates: full("meter", "configure", "nplc", "read")},
 			"mux": {Roles: map[string]bool{"switch": true}, Templates: full("switch", "close", "open")},
-		}, []string{`key "bench.roles.meter.instrument": built-in profile "dmm": no "count" template in [meter]; the plan's psrr_pos test needs it to take 5 readings per point`}},
+		}, nil},
+		{"meter read with init and fetch", nil, map[string]BenchProfile{
+			"psu": {Roles: map[string]bool{"supply": true}, Templates: full("supply", supplyAll...)},
+			"dmm": {Roles: map[string]bool{"meter": true}, Templates: full("meter", "configure", "nplc", "count", "init", "fetch")},
+			"mux": {Roles: map[string]bool{"switch": true}, Templates: full("switch", "close", "open")},
+		}, nil},
+		{"meter that cannot take readings", nil, map[string]BenchProfile{
+			"psu": {Roles: map[string]bool{"supply": true}, Templates: full("supply", supplyAll...)},
+			"dmm": {Roles: map[string]bool{"meter": true}, Templates: full("meter", "configure", "nplc", "count", "init")},
+			"mux": {Roles: map[string]bool{"switch": true}, Templates: full("switch", "close", "open")},
+		}, []string{`key "bench.roles.meter.instrument": built-in profile "dmm": no "read" or "fetch" template in [meter]; the plan needs it to take readings`}},
 		{"meter without count, one reading a point", func(p *Plan) { p.Tests[0].Readings = 1 }, map[string]BenchProfile{
 			"psu": {Roles: map[string]bool{"supply": true}, Templates: full("supply", supplyAll...)},
 			"dmm": {Roles: map[string]bool{"meter": true}, Templates: full("meter", "configure", "nplc", "read")},

@@ -402,8 +402,8 @@ func (c *planChecker) tests() {
 		if t.Repeats < 1 || t.Repeats > 1000 {
 			c.add(k+".repeats", "give 1 to 1000 passes", "repeats %d is out of range", t.Repeats)
 		}
-		if t.Readings < 2 || t.Readings > 1000 {
-			c.add(k+".readings", "give 2 to 1000 (the meter's SAMP:COUN range; a standard deviation needs 2)",
+		if t.Readings < 1 || t.Readings > 1000 {
+			c.add(k+".readings", "give 1 to 1000 readings averaged per point (the common SAMP:COUN range; with 1, settling compares successive single readings)",
 				"readings %d is out of range", t.Readings)
 		}
 		if t.NPLC <= 0 || t.NPLC > 100 {
