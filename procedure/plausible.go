@@ -117,8 +117,9 @@ type voltReader interface {
 //     the read-back when it is within readBackSlack of programmed or
 //     below it in magnitude with the same sign, else programmed itself;
 //   - known false (the bench as a crash left it): the read-back when it
-//     is finite and within the plan's largest voltage for the role (for
-//     a source: or the part's maximum supply span). An
+//     is finite, of the rail's sign (a supply) and within the plan's
+//     largest voltage for the role (for a source: or the part's maximum
+//     supply span) and the channel's rating (max_volts). An
 //     implausible answer is read once more (a transient glitch); when it
 //     stays implausible a supply starts from its nominal rail — the level
 //     the bench rests at between tests, never more than the plan
@@ -138,6 +139,11 @@ func (r *runner) rampStart(ctx context.Context, role string, o voltReader, progr
 	lim = r.plausibleLimit(role, lim)
 	accept := func(v float64) bool {
 		if math.IsNaN(v) || math.IsInf(v, 0) || math.Abs(v) > lim+readBackSlack(lim) {
+			return false
+		}
+		// A rail never reads the other sign: V+ below 0 V or V- above it
+		// (beyond the slack of an output at 0 V) is a faulty answer.
+		if (role == plan.RoleSupplyPos && v < -readBackSlack(0)) || (role == plan.RoleSupplyNeg && v > readBackSlack(0)) {
 			return false
 		}
 		if !known {
