@@ -153,6 +153,10 @@ type SupplyCommands struct {
 	// sheet); 0 when the profile does not state it. check refuses a plan
 	// whose current limit exceeds it.
 	MaxAmps float64
+	// MaxVolts is the channels' voltage rating in magnitude (max_volts,
+	// from the data sheet); 0 when not stated. A read-back beyond it is
+	// implausible, and check refuses a plan that programs more.
+	MaxVolts float64
 	// NegativeChannels are the channels that make a negative voltage
 	// themselves (negative_channels).
 	NegativeChannels []string
@@ -170,6 +174,7 @@ type SourceCommands struct {
 	Select, SetVolts, SetOutput, ReadVolts string
 	Settle                                 time.Duration
 	Accuracy                               SupplyAccuracy
+	MaxVolts                               float64 // max_volts, as SupplyCommands.MaxVolts
 }
 
 // SwitchCommands is the [switch] table: a relay multiplexer.
@@ -283,6 +288,7 @@ type supplyDoc struct {
 	ReadAmps        string   `toml:"read_amps"`
 	Settle          string   `toml:"settle"`
 	MaxAmps         float64  `toml:"max_amps"`
+	MaxVolts        float64  `toml:"max_volts"`
 	NegChannels     []string `toml:"negative_channels"`
 	accuracyDoc
 }
@@ -294,6 +300,7 @@ type sourceDoc struct {
 	SetOutput string   `toml:"set_output"`
 	ReadVolts string   `toml:"read_volts"`
 	Settle    string   `toml:"settle"`
+	MaxVolts  float64  `toml:"max_volts"`
 	accuracyDoc
 }
 
@@ -381,9 +388,10 @@ func ParseProfile(data []byte, file string) (*Profile, error) {
 			SetOutput: d.SetOutput, ReadVolts: d.ReadVolts, ReadAmps: d.ReadAmps,
 			Settle:   roleSettle("supply.settle", d.Settle),
 			Accuracy: pr.accuracy("supply", d.accuracyDoc),
-			MaxAmps:  d.MaxAmps, NegativeChannels: d.NegChannels,
+			MaxAmps:  d.MaxAmps, MaxVolts: d.MaxVolts, NegativeChannels: d.NegChannels,
 		}
 		nonNegative(pr, "supply.max_amps", d.MaxAmps)
+		nonNegative(pr, "supply.max_volts", d.MaxVolts)
 	}
 	if d := doc.Source; d != nil {
 		p.Source = &SourceCommands{
@@ -391,7 +399,9 @@ func ParseProfile(data []byte, file string) (*Profile, error) {
 			SetOutput: d.SetOutput, ReadVolts: d.ReadVolts,
 			Settle:   roleSettle("source.settle", d.Settle),
 			Accuracy: pr.accuracy("source", d.accuracyDoc),
+			MaxVolts: d.MaxVolts,
 		}
+		nonNegative(pr, "source.max_volts", d.MaxVolts)
 	}
 	if d := doc.Switch; d != nil {
 		p.Switch = &SwitchCommands{Close: d.Close, Open: d.Open, OpenAll: d.OpenAll, QueryClosed: d.QueryClosed,

@@ -29,23 +29,80 @@ func readBackSlack(bound float64) float64 {
 	return readBackSlackVolts + readBackSlackRel*math.Abs(bound)
 }
 
-// plausibleReadBack checks a read-back v of role against the value the
-// runner programmed and against the plan's largest voltage for the role.
-// The error names the role, the value and the bound; it wraps
-// instrument.ErrImplausible.
-func (r *runner) plausibleReadBack(role string, v, programmed float64) error {
-	if math.IsNaN(v) || math.IsInf(v, 0) {
-		return fmt.Errorf("%s: read-back %g V is not a number: %w", role, v, instrument.ErrImplausible)
+// outputDescriber is a supply or source driver that can say which
+// instrument, channel and read-back command it is, and the channel's
+// rating from its profile (instrument.SupplyDriver, SourceDriver).
+type outputDescriber interface {
+	Output() instrument.OutputInfo
+}
+
+// outputInfo describes the output behind role; ok is false when the
+// driver cannot (a test fake), and then only the role is named.
+func (r *runner) outputInfo(role string) (instrument.OutputInfo, bool) {
+	if r.rig == nil {
+		return instrument.OutputInfo{}, false
 	}
-	if d := math.Abs(v - programmed); d > readBackSlack(programmed) {
-		return fmt.Errorf("%s: read-back %s is %.3g V from the programmed %s (more than %.3g V): %w",
-			role, plan.FormatVolts(v), d, plan.FormatVolts(programmed), readBackSlack(programmed), instrument.ErrImplausible)
+	var o any
+	if isSourceRole(role) {
+		o = r.source(role)
+	} else {
+		o = r.supply(role)
+	}
+	if d, ok := o.(outputDescriber); ok {
+		return d.Output(), true
+	}
+	return instrument.OutputInfo{}, false
+}
+
+// readBackWhere names role with its instrument, channel and read-back
+// command where the driver knows them: `supply_pos (psu channel 1,
+// "INST:NSEL 1; MEAS:VOLT?")`.
+func (r *runner) readBackWhere(role string) string {
+	if oi, ok := r.outputInfo(role); ok {
+		return fmt.Sprintf("%s (%s channel %s, %q)", role, oi.Instrument, oi.Channel, oi.ReadVolts)
+	}
+	return role
+}
+
+// plausibleReadBack checks a read-back v of role, in this order, against:
+//
+//   - being a finite number (NaN, ±Inf, the overload code are refused);
+//   - the channel's voltage rating from its profile (max_volts), plus
+//     readBackSlack: no working channel reads beyond what it can make;
+//   - the largest voltage the plan programs on the role
+//     (plan.MaxProgrammedVolts), plus readBackSlack;
+//   - the value the runner programmed, within readBackSlack.
+//
+// The error names the role, the instrument, channel and command, the
+// value and the bound it broke; it wraps instrument.ErrImplausible.
+func (r *runner) plausibleReadBack(role string, v, programmed float64) error {
+	where := r.readBackWhere(role)
+	if math.IsNaN(v) || math.IsInf(v, 0) {
+		return fmt.Errorf("%s: read-back %g V is not a number: %w", where, v, instrument.ErrImplausible)
+	}
+	if oi, ok := r.outputInfo(role); ok && oi.MaxVolts > 0 && math.Abs(v) > oi.MaxVolts+readBackSlack(oi.MaxVolts) {
+		return fmt.Errorf("%s: read-back %s is beyond the channel's %s rating (max_volts in its profile): %w",
+			where, plan.FormatVolts(v), plan.FormatVolts(oi.MaxVolts), instrument.ErrImplausible)
 	}
 	if lim := safety.MaxProgrammedVolts(r.p, role); math.Abs(v) > lim+readBackSlack(lim) {
 		return fmt.Errorf("%s: read-back %s exceeds the largest voltage the plan programs on it (%s): %w",
-			role, plan.FormatVolts(v), plan.FormatVolts(lim), instrument.ErrImplausible)
+			where, plan.FormatVolts(v), plan.FormatVolts(lim), instrument.ErrImplausible)
+	}
+	if d := math.Abs(v - programmed); d > readBackSlack(programmed) {
+		return fmt.Errorf("%s: read-back %s is %.3g V from the programmed %s (more than %.3g V): %w",
+			where, plan.FormatVolts(v), d, plan.FormatVolts(programmed), readBackSlack(programmed), instrument.ErrImplausible)
 	}
 	return nil
+}
+
+// plausibleLimit is the largest read-back magnitude accepted on role:
+// lim (from the plan) and, where the profile states one, the channel's
+// rating, whichever is smaller.
+func (r *runner) plausibleLimit(role string, lim float64) float64 {
+	if oi, ok := r.outputInfo(role); ok && oi.MaxVolts > 0 {
+		return math.Min(lim, oi.MaxVolts)
+	}
+	return lim
 }
 
 // voltReader is the read-back half of a supply or source.
@@ -61,8 +118,9 @@ type voltReader interface {
 //     the read-back when it is within readBackSlack of programmed or
 //     below it in magnitude with the same sign, else programmed itself;
 //   - known false (the bench as a crash left it): the read-back when it
-//     is finite and within the plan's largest voltage for the role (for
-//     a source: or the part's maximum supply span). An
+//     is finite, of the rail's sign (a supply) and within the plan's
+//     largest voltage for the role (for a source: or the part's maximum
+//     supply span) and the channel's rating (max_volts). An
 //     implausible answer is read once more (a transient glitch); when it
 //     stays implausible a supply starts from its nominal rail — the level
 //     the bench rests at between tests, never more than the plan
@@ -79,8 +137,14 @@ func (r *runner) rampStart(ctx context.Context, role string, o voltReader, progr
 		// span (no input can be further from ground on a powered part).
 		lim = math.Max(lim, r.p.Part.MaxSupplySpanVolts)
 	}
+	lim = r.plausibleLimit(role, lim)
 	accept := func(v float64) bool {
 		if math.IsNaN(v) || math.IsInf(v, 0) || math.Abs(v) > lim+readBackSlack(lim) {
+			return false
+		}
+		// A rail never reads the other sign: V+ below 0 V or V- above it
+		// (beyond the slack of an output at 0 V) is a faulty answer.
+		if (role == plan.RoleSupplyPos && v < -readBackSlack(0)) || (role == plan.RoleSupplyNeg && v > readBackSlack(0)) {
 			return false
 		}
 		if !known {
@@ -113,7 +177,7 @@ func (r *runner) rampStart(ctx context.Context, role string, o voltReader, progr
 		case accept(v):
 			return v, true, "from its read-back " + plan.FormatVolts(v)
 		default:
-			why = fmt.Sprintf("read-back %g V implausible (plan's largest %s)", v, plan.FormatVolts(lim))
+			why = fmt.Sprintf("%s: read-back %g V implausible (largest accepted %s)", r.readBackWhere(role), v, plan.FormatVolts(lim))
 		}
 	}
 	if known {

@@ -270,36 +270,68 @@ func TestRunRecoversPanic(t *testing.T) {
 	}
 }
 
-// A supply read-back during a measurement is checked against the value
-// programmed and the plan's largest voltage before it enters the fit.
+// ratedSupply is a supply driver stand-in that describes itself as the
+// profile-driven driver does (instrument, channel, read command, rating).
+type ratedSupply struct {
+	instrument.Supply
+	info instrument.OutputInfo
+}
+
+func (s ratedSupply) Output() instrument.OutputInfo { return s.info }
+
+// A supply read-back during a measurement is checked against the channel's
+// rating from its profile, the plan's largest voltage for the role and the
+// value programmed, before it enters the fit; the error names the
+// instrument, channel and command and which bound the value broke. The
+// bounds are the project's own (readBackSlack: 0.1 V + 2 %, common
+// practice, no published source); the rating is the profile's max_volts.
 func TestPlausibleReadBack(t *testing.T) {
 	p := &plan.Plan{}
 	p.Part.NominalPosVolts, p.Part.NominalNegVolts = 15, -15
-	p.Tests = []plan.Test{{Kind: plan.TestPSRRPos, Levels: []float64{-3, 3}}}
-	r := &runner{p: p}
+	p.Tests = []plan.Test{{Kind: plan.TestPSRRPos, Levels: []float64{-3, 3}}} // V+ reaches 18 V
+	rig := &Rig{SupplyPos: ratedSupply{info: instrument.OutputInfo{
+		Instrument: "psu", Channel: "1", ReadVolts: "INST:NSEL 1; MEAS:VOLT?", MaxVolts: 40}}}
+	r := &runner{p: p, rig: rig}
 	cases := []struct {
+		name          string
 		v, programmed float64
-		ok            bool
+		want          string // "" for plausible, else a part of the message
 	}{
-		{15.001, 15, true},
-		{18.05, 18, true},
-		{15.5, 15, false},                         // 0.5 V off the set point
-		{1e300, 15, false},                        // absurd
-		{math.NaN(), 15, false},                   // not a number
-		{math.Inf(1), 15, false},                  // overload code
-		{30, 30, false},                           // beyond the plan's largest (18 V)
-		{-15, 15, false},                          // wrong sign
-		{0.05, 0, true},                           // an output at 0 V
-		{math.MaxFloat64, math.MaxFloat64, false}, // never a plan value
+		{"plausible at nominal", 15.001, 15, ""},
+		{"plausible at the top level", 18.05, 18, ""},
+		{"plausible at 0 V", 0.05, 0, ""},
+		{"absurd 1E300", 1e300, 15, "beyond the channel's +40 V rating"},
+		{"absurd MaxFloat64", math.MaxFloat64, math.MaxFloat64, "beyond the channel's +40 V rating"},
+		{"not a number", math.NaN(), 15, "is not a number"},
+		{"overload code", math.Inf(1), 15, "is not a number"},
+		{"beyond rating", 45, 15, "beyond the channel's +40 V rating (max_volts in its profile)"},
+		{"beyond the plan's limit", 30, 15, "exceeds the largest voltage the plan programs on it (+18 V)"},
+		{"beyond the plan's limit though programmed", 30, 30, "exceeds the largest voltage the plan programs on it (+18 V)"},
+		{"off the programmed value", 15.5, 15, "from the programmed +15 V"},
+		{"wrong sign", -15, 15, "from the programmed +15 V"},
 	}
 	for _, tc := range cases {
-		err := r.plausibleReadBack(plan.RoleSupplyPos, tc.v, tc.programmed)
-		if (err == nil) != tc.ok {
-			t.Errorf("read-back %g V programmed %g V: err %v, want ok %v", tc.v, tc.programmed, err, tc.ok)
-		}
-		if err != nil && !errors.Is(err, instrument.ErrImplausible) {
-			t.Errorf("%v does not wrap ErrImplausible", err)
-		}
+		t.Run(tc.name, func(t *testing.T) {
+			err := r.plausibleReadBack(plan.RoleSupplyPos, tc.v, tc.programmed)
+			if tc.want == "" {
+				if err != nil {
+					t.Fatalf("read-back %g V programmed %g V refused: %v", tc.v, tc.programmed, err)
+				}
+				return
+			}
+			if err == nil {
+				t.Fatalf("read-back %g V programmed %g V accepted", tc.v, tc.programmed)
+			}
+			if !errors.Is(err, instrument.ErrImplausible) {
+				t.Errorf("%v does not wrap ErrImplausible", err)
+			}
+			msg := err.Error()
+			for _, w := range []string{tc.want, "supply_pos", "psu channel 1", `"INST:NSEL 1; MEAS:VOLT?"`} {
+				if !strings.Contains(msg, w) {
+					t.Errorf("message %q lacks %q", msg, w)
+				}
+			}
+		})
 	}
 }
 

@@ -159,6 +159,9 @@ type resultJSON struct {
 	Verdict                    string   `json:"verdict"`
 	Rule                       string   `json:"rule"`
 	Flags                      []string `json:"flags,omitempty"`
+	// Error is the cause of a result that could not be formed (verdict
+	// "no result"); absent otherwise.
+	Error string `json:"error,omitempty"`
 	// Notes is always present (an empty list when the result has none).
 	Notes              []string `json:"notes"`
 	CampaignIncomplete bool     `json:"campaign_incomplete"`
@@ -203,7 +206,7 @@ func WriteResultsJSONL(w io.Writer, results []Result) error {
 			LimitDB: jnum(r.LimitDB), Verdict: r.Verdict, Rule: r.Rule, Flags: r.Flags,
 			CoefficientExpandedUUVPerV: jnum(r.CoefficientExpandedUUVPerV), Notes: notesOrEmpty(r.Notes),
 			CampaignIncomplete: r.Incomplete, MissingPoints: r.MissingPoints,
-			PredictedUUVPerV: jnum(r.PredictedUUVPerV),
+			PredictedUUVPerV: jnum(r.PredictedUUVPerV), Error: resultError(r),
 		}); err != nil {
 			return fmt.Errorf("report: results JSON line %d (unit %q): %w", i+1, r.Unit, err)
 		}
@@ -234,6 +237,18 @@ func WriteReadingsJSONL(w io.Writer, readings []Reading) error {
 		return fmt.Errorf("report: readings JSON lines: %w", err)
 	}
 	return nil
+}
+
+// resultError is the cause of a result that could not be formed: its
+// flags, where addProblems-style callers put the problem; "" for a result.
+func resultError(r *Result) string {
+	if r.Verdict != VerdictNoResult {
+		return ""
+	}
+	if len(r.Flags) == 0 {
+		return "no result"
+	}
+	return strings.Join(r.Flags, "; ")
 }
 
 // notesOrEmpty returns notes, or an empty list for none, so that the JSON

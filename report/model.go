@@ -49,6 +49,9 @@ type Campaign struct {
 	Temperature []TempRow    // ratio against temperature, per unit and for the lot
 	Closures    []ClosureRow // CMRR/PSRR closure checks (the identity derived in fit/doc.go), optional
 	Boards      []BoardRow   // finished-board CMRR against worst-case limits, optional
+	// Problems: what the analysis could not do, with the cause (the
+	// Problems sheet, problems.jsonl); a campaign with any is not all pass.
+	Problems []Problem
 
 	// Frequency response (see freq.go), optional: one FreqResult per unit ×
 	// test × temperature × frequency, their budget rows, and one

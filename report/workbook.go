@@ -128,6 +128,9 @@ func buildWorkbook(f *excelize.File, c *Campaign, opt WorkbookOptions) error {
 	if len(temps) > 1 && len(c.Temperature) > 0 {
 		sheets = append(sheets, SheetTemperature)
 	}
+	if len(c.Problems) > 0 {
+		sheets = append(sheets, SheetProblems)
+	}
 	if hasCharts {
 		sheets = append(sheets, SheetCharts, SheetChartData)
 	}
@@ -176,6 +179,8 @@ func buildWorkbook(f *excelize.File, c *Campaign, opt WorkbookOptions) error {
 			err = writeBoards(f, st, c)
 		case SheetTemperature:
 			err = writeTemperature(f, st, c)
+		case SheetProblems:
+			err = writeProblems(f, st, c)
 		case SheetCharts:
 			err = writeCharts(f, st, plan)
 		}

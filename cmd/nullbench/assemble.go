@@ -504,11 +504,20 @@ func fitRow(unit, test, sweep string, t float64, l fit.LineFit, gain float64, nl
 // VerdictNoResult: see report.VerdictNoResult.
 const VerdictNoResult = report.VerdictNoResult
 
-// addProblems lists every unit × test whose result could not be formed,
-// with the cause, among the results: such a result is an error, never a
-// ratio, and it shows on the Results and Units sheets and in the exports.
+// addProblems lists every problem of the analysis (the Problems sheet,
+// problems.jsonl, the console, the exit status), and every unit × test
+// whose result could not be formed, with the cause, among the results:
+// such a result is an error, never a ratio, and it shows on the Results
+// and Units sheets and in the exports.
 func addProblems(c *report.Campaign, p *plan.Plan, res *analysis.Results) {
 	seen := map[string]bool{}
+	for _, pr := range res.Problems {
+		t := math.NaN()
+		if pr.TempIndex >= 0 {
+			t = setPoint(p, pr.TempIndex)
+		}
+		c.Problems = append(c.Problems, report.Problem{Unit: pr.Unit, Test: pr.Test, Part: pr.Part, TemperatureC: t, Problem: pr.Problem})
+	}
 	for _, pr := range res.Problems {
 		if pr.Unit == "" || pr.Test == "" || pr.TempIndex < 0 {
 			continue

@@ -30,6 +30,7 @@ const (
 	exitInstrument  = 3 // an instrument fault, time-out or lost connection
 	exitSafety      = 4 // a plan refused as unsafe
 	exitOutOfLimits = 5 // the measurement ran and at least one result failed its limit
+	exitProblems    = 6 // the measurement ran, none failed, but some results could not be formed or judged (analysis problems)
 )
 
 // exitError carries an exit code through cobra's error return.

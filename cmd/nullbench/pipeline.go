@@ -129,6 +129,7 @@ func writeOutputs(std streams, o outputOptions, c *report.Campaign) (string, err
 		{"readings.csv", func(w io.Writer) error { return report.WriteReadingsCSV(w, c.Readings, csvOpt) }},
 		{"results.jsonl", func(w io.Writer) error { return report.WriteResultsJSONL(w, c.Results) }},
 		{"readings.jsonl", func(w io.Writer) error { return report.WriteReadingsJSONL(w, c.Readings) }},
+		{"problems.jsonl", func(w io.Writer) error { return report.WriteProblemsJSONL(w, c.Problems) }},
 	}
 	for _, f := range files {
 		if err := writeFile(filepath.Join(o.Out, f.name), f.write); err != nil {
@@ -408,6 +409,31 @@ func printSummary(w io.Writer, c *report.Campaign, book string) {
 			limit = fmt.Sprintf(" (limit %.1f dB: %s)", r.LimitDB, r.Verdict)
 		}
 		fmt.Fprintf(w, "  lowest %-16s %s%7.2f dB ± %.2f  unit %s at %.0f °C%s\n", t, mark, r.ReportedDB(), r.ExpandedUDB, r.Unit, r.TemperatureC, limit)
+	}
+	// Problems not shown above as NO RESULT: lot-wide ones, those of a
+	// result that exists but could not be judged, and any other.
+	shown := map[string]bool{}
+	for _, r := range c.Results {
+		if r.Verdict == VerdictNoResult {
+			shown[fmt.Sprintf("%s/%s/%g/%s", r.Unit, r.Test, r.TemperatureC, strings.Join(r.Flags, "; "))] = true
+		}
+	}
+	for _, pr := range c.Problems {
+		if shown[fmt.Sprintf("%s/%s/%g/%s", pr.Unit, pr.Test, pr.TemperatureC, pr.Problem)] {
+			continue
+		}
+		who := pr.Unit
+		if who == "" {
+			who = "lot"
+		}
+		at := ""
+		if !math.IsNaN(pr.TemperatureC) {
+			at = fmt.Sprintf(" at %g °C", pr.TemperatureC)
+		}
+		fmt.Fprintf(w, "  PROBLEM %s %s%s: %s\n", who, pr.Test, at, pr.Problem)
+	}
+	if n := len(c.Problems); n > 0 {
+		fmt.Fprintf(w, "problems: %d (the %s sheet, problems.jsonl); the exit status says so (%d)\n", n, report.SheetProblems, exitProblems)
 	}
 	if n := notedResults(c); n > 0 {
 		fmt.Fprintf(w, "notes:   %d of %d results carry notes (the notes list in the JSON lines, the Notes column of the CSV and the Results sheet)\n", n, len(c.Results))

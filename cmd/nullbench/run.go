@@ -10,6 +10,7 @@ import (
 	"github.com/spf13/cobra"
 
 	"nullbench/procedure/plan"
+	"nullbench/report"
 )
 
 type runOptions struct {
@@ -188,6 +189,9 @@ func finish(std streams, o outputOptions, runErr error, recs ...campaignRecord) 
 	}
 	if anyFailed(c) || freqFailed(measured) {
 		return withCode(exitOutOfLimits, fmt.Errorf("some results did not pass their limits (see %s)", book))
+	}
+	if n := len(c.Problems); n > 0 {
+		return withCode(exitProblems, fmt.Errorf("%d result(s) could not be formed or judged (the %s sheet of %s, problems.jsonl)", n, report.SheetProblems, book))
 	}
 	return nil
 }

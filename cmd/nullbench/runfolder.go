@@ -288,7 +288,7 @@ func sealRunFolder(dir, journalPath string, jc *journal.Contents, k journal.Comp
 }
 
 // runOutputs are the files writeOutputs writes into the output folder.
-var runOutputs = []string{"campaign.xlsx", "results.csv", "readings.csv", "results.jsonl", "readings.jsonl"}
+var runOutputs = []string{"campaign.xlsx", "results.csv", "readings.csv", "results.jsonl", "readings.jsonl", "problems.jsonl"}
 
 func sameDir(a, b string) bool {
 	if s, err := sameFile(a, b); err == nil {
