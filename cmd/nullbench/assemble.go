@@ -120,6 +120,9 @@ func toReport(recs ...campaignRecord) *report.Campaign {
 	for i := range c.Results {
 		c.Results[i].Incomplete, c.Results[i].MissingPoints = c.Incomplete, c.MissingPoints
 	}
+	for i := range c.FreqResults {
+		c.FreqResults[i].Incomplete, c.FreqResults[i].MissingPoints = c.Incomplete, c.MissingPoints
+	}
 	// cmrr_uncorrected is kept for reference, out of the unit verdicts,
 	// where a corrected cmrr stands beside it (the plan measured aol);
 	// without one it is the campaign's only common-mode figure and judged.

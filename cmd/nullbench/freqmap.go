@@ -25,7 +25,7 @@ func addFreq(c *report.Campaign, p *plan.Plan, frs []freq.FreqResponse, probs []
 	for _, fr := range frs {
 		t := setPoint(p, fr.TempIndex)
 		for _, pt := range fr.Points {
-			c.FreqResults = append(c.FreqResults, freqResult(fr, pt, t))
+			c.FreqResults = append(c.FreqResults, freqResult(fr, pt, t, cov))
 			for _, b := range pt.Rejection.Budget.Rows {
 				c.FreqBudgets = append(c.FreqBudgets, report.FreqBudgetRow{
 					BudgetRow:   budgetRow(fr.Unit, fr.Test, t, b),
@@ -46,13 +46,13 @@ func addFreq(c *report.Campaign, p *plan.Plan, frs []freq.FreqResponse, probs []
 				RatioDB: nan, ExpandedUDB: nan, ExpandedUDBLow: nan, ExpandedUDBHigh: nan, CoverageK: nan, DOFEffective: nan,
 				LowerBoundDB: nan, LimitDB: nan, PredictedUUVPerV: nan, Verdict: VerdictNoResult, Flags: []string{pr.Problem},
 			},
-			FrequencyHz: nan, PhaseDeg: nan, PhaseExpandedUDeg: nan, NoiseFloorDB: nan,
+			FrequencyHz: nan, PhaseDeg: nan, PhaseExpandedUDeg: nan, NoiseFloorDB: nan, Coverage: nan,
 		})
 	}
 }
 
 // freqResult is one frequency point in the report's terms.
-func freqResult(fr freq.FreqResponse, pt freq.FreqPoint, t float64) report.FreqResult {
+func freqResult(fr freq.FreqResponse, pt freq.FreqPoint, t, cov float64) report.FreqResult {
 	rj := pt.Rejection
 	limit, verdict, rule := math.NaN(), report.VerdictNotJudged, ""
 	if pt.Judged {
@@ -89,7 +89,7 @@ func freqResult(fr freq.FreqResponse, pt freq.FreqPoint, t float64) report.FreqR
 			LimitDB: limit, Verdict: verdict, Rule: rule, Flags: flags, Notes: notes, PredictedUUVPerV: math.NaN(),
 		},
 		Quantity: fr.Quantity, FrequencyHz: pt.FrequencyHz, Instrument: pt.Instrument,
-		PhaseDeg: phase, PhaseExpandedUDeg: uPhase, HasPhase: pt.HasPhase, NoiseFloorDB: floor,
+		PhaseDeg: phase, PhaseExpandedUDeg: uPhase, HasPhase: pt.HasPhase, NoiseFloorDB: floor, Coverage: cov,
 	}
 }
 

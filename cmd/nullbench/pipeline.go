@@ -131,6 +131,15 @@ func writeOutputs(std streams, o outputOptions, c *report.Campaign) (string, err
 		{"readings.jsonl", func(w io.Writer) error { return report.WriteReadingsJSONL(w, c.Readings) }},
 		{"problems.jsonl", func(w io.Writer) error { return report.WriteProblemsJSONL(w, c.Problems) }},
 	}
+	if len(c.FreqResults) > 0 {
+		files = append(files, []struct {
+			name  string
+			write func(io.Writer) error
+		}{
+			{freqOutputs[0], func(w io.Writer) error { return report.WriteFreqResultsCSV(w, c.FreqResults, csvOpt) }},
+			{freqOutputs[1], func(w io.Writer) error { return report.WriteFreqResultsJSONL(w, c.FreqResults) }},
+		}...)
+	}
 	for _, f := range files {
 		if err := writeFile(filepath.Join(o.Out, f.name), f.write); err != nil {
 			return "", withCode(exitFailure, err)
@@ -143,6 +152,11 @@ func writeOutputs(std streams, o outputOptions, c *report.Campaign) (string, err
 	}
 	if o.JSON {
 		if err := report.WriteResultsJSONL(std.Out, c.Results); err != nil {
+			return "", err
+		}
+		// Frequency-response results follow, one object each, told apart
+		// by their frequency_hz key (absent from DC results).
+		if err := report.WriteFreqResultsJSONL(std.Out, c.FreqResults); err != nil {
 			return "", err
 		}
 	}

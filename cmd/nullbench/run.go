@@ -173,7 +173,7 @@ func finish(std streams, o outputOptions, runErr error, recs ...campaignRecord) 
 		if rec.Journal == nil || rec.Completeness == nil || !sameDir(filepath.Dir(rec.JournalPath), o.Out) {
 			continue
 		}
-		if err := sealRunFolder(o.Out, rec.JournalPath, rec.Journal, *rec.Completeness, runOutputs); err != nil {
+		if err := sealRunFolder(o.Out, rec.JournalPath, rec.Journal, *rec.Completeness, outputsOf(c)); err != nil {
 			return withCode(exitFailure, fmt.Errorf("update the run folder's manifest: %w", err))
 		}
 	}
