@@ -29,12 +29,12 @@ func TestAddFreqMapsPointsFitsAndProblems(t *testing.T) {
 		Judged: true, Decision: fit.Decision{State: fit.StatePass, Rule: "guarded", LimitDB: 90}}
 	floor := freq.FreqPoint{FrequencyHz: 1000, Instrument: "digitizer", HasPhase: true, PhaseDeg: 3, UPhaseDeg: 40, NoiseFloorDB: 128,
 		Rejection: fit.Rejection{CoefficientUVPerV: 0.2, RatioDB: 134, ExpandedUDB: 3, CoverageK: 2, Resolved: false, LowerBoundDB: 127.5},
-		Judged: true, Decision: fit.Decision{State: fit.StatePass, Rule: "guarded", LimitDB: 80}}
+		Judged:    true, Decision: fit.Decision{State: fit.StatePass, Rule: "guarded", LimitDB: 80}}
 	meter := freq.FreqPoint{FrequencyHz: 50, Instrument: "ac_meter", HasPhase: false, PhaseDeg: 0, NoiseFloorDB: 120,
 		Rejection: fit.Rejection{CoefficientUVPerV: 100, RatioDB: 80, StdUncDB: 0.25, ExpandedUDB: 0.5, CoverageK: 2, Resolved: true}}
 	fr := freq.FreqResponse{Unit: "F01", Test: "cmrr", Quantity: "CMRR", TempIndex: 0,
-		Points: []freq.FreqPoint{resolved, floor, meter},
-		Pole:   &fit.PoleFit{RatioDCDB: 100.2, URatioDCDB: 0.1, PoleHz: 300, UPoleHz: 5, Resolved: true, DOF: 6},
+		Points:    []freq.FreqPoint{resolved, floor, meter},
+		Pole:      &fit.PoleFit{RatioDCDB: 100.2, URatioDCDB: 0.1, PoleHz: 300, UPoleHz: 5, Resolved: true, DOF: 6},
 		DCChecked: true, DCRatioDB: 100.1, DCExpandedDB: 0.2, DCDiffDB: 0.1, DCDiffUDB: 0.33, DCConsistent: true}
 	flat := freq.FreqResponse{Unit: "F02", Test: "psrr_pos", Quantity: "PSRR+", PoleNote: "2 resolved frequencies: a pole fit needs 3"}
 	probs := []analysis.Problem{{Unit: "F03", Test: "cmrr", TempIndex: 0, Problem: "60 Hz: stimulus records: none usable"}}
