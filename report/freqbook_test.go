@@ -210,3 +210,38 @@ func TestWorkbookWithBodeChartsOpensInLibreOffice(t *testing.T) {
 		t.Errorf("the magnitude chart's frequency axis is not labelled in decades:\n%s", chart)
 	}
 }
+
+// TestWritePlotsBode: --plots writes the Bode plots as PNG, the frequency
+// axis logarithmic with its labelled ticks at the decades.
+func TestWritePlotsBode(t *testing.T) {
+	dir := filepath.Join(t.TempDir(), "plots")
+	files, err := WritePlots(dir, freqCampaign())
+	if err != nil {
+		t.Fatal(err)
+	}
+	var names []string
+	for _, f := range files {
+		names = append(names, filepath.Base(f))
+		checkPNG(t, f)
+	}
+	if want := []string{"01-bode-ratio-cmrr-25C.png", "02-bode-phase-cmrr-25C.png"}; !slices.Equal(names, want) {
+		t.Fatalf("files %q, want %q", names, want)
+	}
+	bc := bodeCharts(freqCampaign(), DefaultMaxChartUnits)
+	ps, err := bodePlots(bc[0])
+	if err != nil {
+		t.Fatal(err)
+	}
+	var labels []string
+	for _, tk := range ps[0].X.Tick.Marker.Ticks(ps[0].X.Min, ps[0].X.Max) {
+		if tk.Label != "" {
+			labels = append(labels, tk.Label)
+		}
+	}
+	if want := []string{"10", "100", "1000", "10000", "100000"}; !slices.Equal(labels, want) || ps[0].X.Min != 10 || ps[0].X.Max != 1e5 {
+		t.Errorf("frequency axis %g … %g labelled %q, want decades %q", ps[0].X.Min, ps[0].X.Max, labels, want)
+	}
+	if len(bc[0].Limit) != 8 || len(bc[0].Floor) != 8 || bc[0].Floor[0].Y != 150 {
+		t.Errorf("limit %v, noise floor %v (the lowest of the units at each frequency)", bc[0].Limit, bc[0].Floor)
+	}
+}

@@ -4,12 +4,17 @@ import (
 	"bytes"
 	"cmp"
 	"fmt"
+	"image/color"
 	"math"
 	"regexp"
 	"slices"
 	"strings"
 
 	"github.com/xuri/excelize/v2"
+	"gonum.org/v1/plot"
+	"gonum.org/v1/plot/plotter"
+	"gonum.org/v1/plot/vg"
+	"gonum.org/v1/plot/vg/draw"
 )
 
 // bodeSeries is one unit's frequency response in a Bode chart: resolved
@@ -297,3 +302,100 @@ func logFrequencyAxes(f *excelize.File) (int, error) {
 // xScaling finds the <scaling> of the horizontal value axis (axId
 // 100000000), with or without the chart namespace prefix.
 var xScaling = regexp.MustCompile(`<((?:c:)?)valAx><(?:c:)?axId val="100000000"></(?:c:)?axId><(?:c:)?scaling>`)
+
+// bodePlots are the PNG magnitude and (when any point has one) phase
+// plots of b: against a base-10 logarithmic frequency axis (gonum
+// plot.LogScale with ticks at the decades), the limit dashed black, the
+// noise floor dotted grey, lower bounds as open triangles.
+func bodePlots(b bodeChart) ([]*plot.Plot, error) {
+	lo, hi := b.frequencyRange()
+	logX := func(p *plot.Plot) {
+		p.X.Scale = plot.LogScale{}
+		p.X.Tick.Marker = plot.LogTicks{Prec: -1}
+		p.X.Min, p.X.Max = lo, hi
+	}
+	title := b.title()
+	mag := newPlot(title, bodeXAxis, bodeMagAxis)
+	logX(mag)
+	entries := 0
+	for i, s := range b.Series {
+		col := hexColour(seriesColours[i%len(seriesColours)])
+		if xys := toXYs(s.Mag); len(xys) > 0 {
+			ln, sc, err := plotter.NewLinePoints(xys)
+			if err != nil {
+				return nil, fmt.Errorf("report: plot %q unit %q: %w", title, s.Unit, err)
+			}
+			ln.Color, ln.Dashes = col, dashes[i%len(dashes)]
+			sc.Color, sc.Shape, sc.Radius = col, glyphs[i%len(glyphs)], vg.Points(2.5)
+			mag.Add(ln, sc)
+			mag.Legend.Add(s.Unit, ln, sc)
+			entries++
+		}
+		if xys := toXYs(s.Bound); len(xys) > 0 {
+			sc, err := plotter.NewScatter(xys)
+			if err != nil {
+				return nil, fmt.Errorf("report: plot %q unit %q bounds: %w", title, s.Unit, err)
+			}
+			sc.Color, sc.Shape, sc.Radius = col, draw.TriangleGlyph{}, vg.Points(3.5)
+			mag.Add(sc)
+			mag.Legend.Add(s.Unit+" lower bound", sc)
+			entries++
+		}
+	}
+	if xys := toXYs(b.Limit); len(xys) > 0 {
+		ln, err := plotter.NewLine(xys)
+		if err != nil {
+			return nil, fmt.Errorf("report: plot %q limit: %w", title, err)
+		}
+		ln.Color, ln.Width, ln.Dashes = color.Black, vg.Points(1.5), []vg.Length{vg.Points(6), vg.Points(3)}
+		mag.Add(ln)
+		mag.Legend.Add("limit", ln)
+		entries++
+	}
+	if xys := toXYs(b.Floor); len(xys) > 0 {
+		ln, err := plotter.NewLine(xys)
+		if err != nil {
+			return nil, fmt.Errorf("report: plot %q noise floor: %w", title, err)
+		}
+		ln.Color, ln.Width, ln.Dashes = color.Gray{Y: 120}, vg.Points(1.5), []vg.Length{vg.Points(1), vg.Points(2)}
+		mag.Add(ln)
+		mag.Legend.Add("noise floor", ln)
+		entries++
+	}
+	mag.Legend.Left = false // ratios fall with frequency: the top right is empty
+	legendRoom(mag, entries)
+	out := []*plot.Plot{mag}
+	if !b.HasPhase {
+		return out, nil
+	}
+	ptitle := b.phaseTitle()
+	ph := newPlot(ptitle, bodeXAxis, bodePhaseAxis)
+	logX(ph)
+	for i, s := range b.Series {
+		xys := toXYs(s.Phase)
+		if len(xys) == 0 {
+			continue
+		}
+		col := hexColour(seriesColours[i%len(seriesColours)])
+		ln, sc, err := plotter.NewLinePoints(xys)
+		if err != nil {
+			return nil, fmt.Errorf("report: plot %q unit %q: %w", ptitle, s.Unit, err)
+		}
+		ln.Color, ln.Dashes = col, dashes[i%len(dashes)]
+		sc.Color, sc.Shape, sc.Radius = col, glyphs[i%len(glyphs)], vg.Points(2.5)
+		ph.Add(ln, sc)
+		ph.Legend.Add(s.Unit, ln, sc)
+	}
+	ph.Y.Min, ph.Y.Max = -180, 180
+	ph.Y.Tick.Marker = plot.ConstantTicks(phaseTicks())
+	return append(out, ph), nil
+}
+
+// phaseTicks are labelled ticks every 45° from −180° to 180°.
+func phaseTicks() []plot.Tick {
+	var t []plot.Tick
+	for v := -180; v <= 180; v += 45 {
+		t = append(t, plot.Tick{Value: float64(v), Label: fmt.Sprintf("%d", v)})
+	}
+	return t
+}
