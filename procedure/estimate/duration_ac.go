@@ -43,10 +43,10 @@ func (f *Figures) acTestSeconds(p *plan.Plan, t *plan.ACTest, w SequencerWaits) 
 		}
 		settle := f.wait(math.Max(float64(t.SettleCycles)/fr, t.DwellSeconds))
 		gen := setCost(plan.RoleGenerator)
-		total += configure + gen // sine: frequency, amplitude, offset
-		total += gen + settle + float64(records)*capture           // floor
-		total += relay + gen + settle + float64(records)*capture   // through
-		total += relay + gen + settle + float64(records)*capture   // stimulus
+		total += configure + gen                                 // sine: frequency, amplitude, offset
+		total += gen + settle + float64(records)*capture         // floor
+		total += relay + gen + settle + float64(records)*capture // through
+		total += relay + gen + settle + float64(records)*capture // stimulus
 	}
 	return total + setCost(plan.RoleGenerator) // output off
 }
