@@ -61,34 +61,24 @@ func WriteFreqResultsCSV(w io.Writer, results []FreqResult, opt CSVOptions) erro
 	return nil
 }
 
-// freqJSON is one line of WriteFreqResultsJSONL (see freqCSVHeader).
+// freqJSON is one line of WriteFreqResultsJSONL (see freqCSVHeader): every
+// key of a DC result line (resultJSON, so that a program reading --json
+// reads both), then the frequency keys; u_db, decision and note repeat
+// expanded_u_db, verdict and notes under the frequency table's names.
 type freqJSON struct {
-	Unit               string   `json:"unit"`
-	Part               string   `json:"part,omitempty"`
-	Lot                string   `json:"lot,omitempty"`
-	Test               string   `json:"test"`
-	Quantity           string   `json:"quantity"`
-	TemperatureC       jnum     `json:"temperature_c"`
-	FrequencyHz        jnum     `json:"frequency_hz"`
-	Instrument         string   `json:"instrument"`
-	CoefficientUVPerV  jnum     `json:"coefficient_uv_per_v"`
-	RatioDB            jnum     `json:"ratio_db"`
-	UDB                jnum     `json:"u_db"`
-	CoverageK          jnum     `json:"coverage_k"`
-	Coverage           jnum     `json:"coverage"`
-	DOFEffective       jnum     `json:"dof_effective"`
-	Resolved           bool     `json:"resolved"`
-	LowerBoundDB       jnum     `json:"lower_bound_db"`
-	ReportedDB         jnum     `json:"reported_db"`
-	NoiseFloorDB       jnum     `json:"noise_floor_db"`
-	PhaseDeg           jnum     `json:"phase_deg"`
-	UPhaseDeg          jnum     `json:"u_phase_deg"`
-	LimitDB            jnum     `json:"limit_db"`
-	Decision           string   `json:"decision"`
-	Rule               string   `json:"rule"`
-	Flags              []string `json:"flags,omitempty"`
-	Note               []string `json:"note"`
-	CampaignIncomplete bool     `json:"campaign_incomplete"`
+	resultJSON
+	Part         string   `json:"part,omitempty"`
+	Lot          string   `json:"lot,omitempty"`
+	Quantity     string   `json:"quantity"`
+	FrequencyHz  jnum     `json:"frequency_hz"`
+	Instrument   string   `json:"instrument"`
+	UDB          jnum     `json:"u_db"`
+	Coverage     jnum     `json:"coverage"`
+	NoiseFloorDB jnum     `json:"noise_floor_db"`
+	PhaseDeg     jnum     `json:"phase_deg"`
+	UPhaseDeg    jnum     `json:"u_phase_deg"`
+	Decision     string   `json:"decision"`
+	Note         []string `json:"note"`
 }
 
 // WriteFreqResultsJSONL writes one JSON object per frequency-response
@@ -101,13 +91,12 @@ func WriteFreqResultsJSONL(w io.Writer, results []FreqResult) error {
 	for i := range results {
 		r := &results[i]
 		if err := enc.Encode(freqJSON{
-			Unit: r.Unit, Part: r.Part, Lot: r.Lot, Test: r.Test, Quantity: r.QuantityName(), TemperatureC: jnum(r.TemperatureC),
-			FrequencyHz: jnum(r.FrequencyHz), Instrument: r.Instrument, CoefficientUVPerV: jnum(r.CoefficientUVPerV),
-			RatioDB: jnum(r.RatioDB), UDB: jnum(r.ExpandedUDB), CoverageK: jnum(r.CoverageK), Coverage: jnum(r.Coverage),
-			DOFEffective: jnum(r.DOFEffective), Resolved: r.Resolved, LowerBoundDB: jnum(r.LowerBoundDB), ReportedDB: jnum(r.ReportedDB()),
+			resultJSON: resultLine(&r.Result),
+			Part:       r.Part, Lot: r.Lot, Quantity: r.QuantityName(),
+			FrequencyHz: jnum(r.FrequencyHz), Instrument: r.Instrument,
+			UDB: jnum(r.ExpandedUDB), Coverage: jnum(r.Coverage),
 			NoiseFloorDB: jnum(r.NoiseFloorDB), PhaseDeg: jnum(r.PhaseDeg), UPhaseDeg: jnum(r.PhaseExpandedUDeg),
-			LimitDB: jnum(r.LimitDB), Decision: r.Verdict, Rule: r.Rule, Flags: r.Flags, Note: notesOrEmpty(r.Notes),
-			CampaignIncomplete: r.Incomplete,
+			Decision: r.Verdict, Note: notesOrEmpty(r.Notes),
 		}); err != nil {
 			return fmt.Errorf("report: frequency results JSON line %d (unit %q): %w", i+1, r.Unit, err)
 		}
