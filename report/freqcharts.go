@@ -200,10 +200,11 @@ func bodeExcelCharts(dw *chartDataWriter, b bodeChart) []*excelize.Chart {
 	}
 	title := b.title()
 	mag := base(title, bodeMagAxis)
-	// The ratios sit far from zero: fit the vertical axis to the data.
+	// The ratios sit far from zero: fit the vertical axis to the data,
+	// the limit and the noise floor (so the margin to both shows).
 	ylo, yhi := math.Inf(1), math.Inf(-1)
 	for _, s := range b.Series {
-		for _, p := range append(append(slices.Clone(s.Mag), s.Bound...), b.Limit...) {
+		for _, p := range append(append(append(slices.Clone(s.Mag), s.Bound...), b.Limit...), b.Floor...) {
 			ylo, yhi = math.Min(ylo, p.Y), math.Max(yhi, p.Y)
 		}
 	}
