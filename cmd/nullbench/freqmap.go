@@ -35,10 +35,13 @@ func addFreq(c *report.Campaign, p *plan.Plan, frs []freq.FreqResponse, probs []
 		}
 		c.FreqFits = append(c.FreqFits, freqFitRow(fr, t, cov))
 	}
-	// A unit × test × frequency that could not be analysed is listed as
-	// "no result" with its cause, as at DC.
+	// A unit × test × frequency that could not be analysed is a problem
+	// (the Problems sheet, problems.jsonl, the exit status) and is listed
+	// as "no result" with its cause, as at DC.
 	for _, pr := range probs {
 		nan := math.NaN()
+		c.Problems = append(c.Problems, report.Problem{Unit: pr.Unit, Test: pr.Test, Part: pr.Part, TemperatureC: setPoint(p, pr.TempIndex),
+			Problem: "frequency response: " + pr.Problem})
 		c.FreqResults = append(c.FreqResults, report.FreqResult{
 			Result: report.Result{
 				Unit: pr.Unit, Test: pr.Test, TemperatureC: setPoint(p, pr.TempIndex),

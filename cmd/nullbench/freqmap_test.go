@@ -81,6 +81,9 @@ func TestAddFreqMapsPointsFitsAndProblems(t *testing.T) {
 	if pr := c.FreqResults[3]; pr.Verdict != report.VerdictNoResult || pr.Unit != "F03" || !strings.Contains(pr.Flags[0], "none usable") {
 		t.Errorf("problem mapped to %+v", pr)
 	}
+	if len(c.Problems) != 1 || !strings.HasPrefix(c.Problems[0].Problem, "frequency response: 60 Hz") {
+		t.Errorf("problems %+v", c.Problems)
+	}
 	if len(c.FreqBudgets) != 1 || c.FreqBudgets[0].FrequencyHz != 60 || c.FreqBudgets[0].Quantity != "magnitude" || c.FreqBudgets[0].ValueUnit != "dB" {
 		t.Errorf("budget rows %+v", c.FreqBudgets)
 	}
