@@ -88,6 +88,7 @@ type chartPlan struct {
 	Responses    []responseChart
 	Histograms   []histogram
 	Temperatures []tempChart // only with more than one temperature
+	Bodes        []bodeChart // frequency response, per test and temperature
 }
 
 type fitKey struct {
@@ -135,6 +136,9 @@ func planCharts(c *Campaign, opt ChartOptions) chartPlan {
 				p.Temperatures = append(p.Temperatures, tc)
 			}
 		}
+	}
+	if maxUnits > 0 {
+		p.Bodes = bodeCharts(c, maxUnits)
 	}
 	return p
 }

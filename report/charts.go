@@ -129,6 +129,11 @@ func writeCharts(f *excelize.File, st *styles, plan chartPlan) error {
 	for _, h := range plan.Histograms {
 		add(histogramExcelChart(dw, h))
 	}
+	for _, b := range plan.Bodes {
+		for _, c := range bodeExcelCharts(dw, b) {
+			add(c)
+		}
+	}
 	if dw.err != nil {
 		return fmt.Errorf("report: chart data: %w", dw.err)
 	}
@@ -150,6 +155,9 @@ func writeCharts(f *excelize.File, st *styles, plan chartPlan) error {
 		if err := f.AddChart(SheetCharts, cell, c, combos[i]...); err != nil {
 			return fmt.Errorf("report: chart %d (%s): %w", i+1, titleText(c), err)
 		}
+	}
+	if _, err := logFrequencyAxes(f); err != nil {
+		return err
 	}
 	return nil
 }

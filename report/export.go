@@ -169,6 +169,21 @@ type resultJSON struct {
 	PredictedUUVPerV   jnum     `json:"predicted_u_uv_per_v"`
 }
 
+// resultLine is r as one line of WriteResultsJSONL.
+func resultLine(r *Result) resultJSON {
+	return resultJSON{
+		Unit: r.Unit, Test: r.Test, TemperatureC: jnum(r.TemperatureC),
+		CoefficientUVPerV: jnum(r.CoefficientUVPerV), CoefficientStdUUVPerV: jnum(r.CoefficientStdUUVPerV),
+		RatioDB: jnum(r.RatioDB), ExpandedUDB: jnum(r.ExpandedUDB), ExpandedUDBLow: jnum(r.ExpandedUDBLow),
+		ExpandedUDBHigh: jnum(r.ExpandedUDBHigh), CoverageK: jnum(r.CoverageK), DOFEffective: jnum(r.DOFEffective),
+		Resolved: r.Resolved, LowerBoundDB: jnum(r.LowerBoundDB), ReportedDB: jnum(r.ReportedDB()),
+		LimitDB: jnum(r.LimitDB), Verdict: r.Verdict, Rule: r.Rule, Flags: r.Flags,
+		CoefficientExpandedUUVPerV: jnum(r.CoefficientExpandedUUVPerV), Notes: notesOrEmpty(r.Notes),
+		CampaignIncomplete: r.Incomplete, MissingPoints: r.MissingPoints,
+		PredictedUUVPerV: jnum(r.PredictedUUVPerV), Error: resultError(r),
+	}
+}
+
 // readingJSON is one line of WriteReadingsJSONL.
 type readingJSON struct {
 	Time          string   `json:"time,omitempty"` // RFC 3339, UTC
@@ -197,17 +212,7 @@ func WriteResultsJSONL(w io.Writer, results []Result) error {
 	enc.SetEscapeHTML(false)
 	for i := range results {
 		r := &results[i]
-		if err := enc.Encode(resultJSON{
-			Unit: r.Unit, Test: r.Test, TemperatureC: jnum(r.TemperatureC),
-			CoefficientUVPerV: jnum(r.CoefficientUVPerV), CoefficientStdUUVPerV: jnum(r.CoefficientStdUUVPerV),
-			RatioDB: jnum(r.RatioDB), ExpandedUDB: jnum(r.ExpandedUDB), ExpandedUDBLow: jnum(r.ExpandedUDBLow),
-			ExpandedUDBHigh: jnum(r.ExpandedUDBHigh), CoverageK: jnum(r.CoverageK), DOFEffective: jnum(r.DOFEffective),
-			Resolved: r.Resolved, LowerBoundDB: jnum(r.LowerBoundDB), ReportedDB: jnum(r.ReportedDB()),
-			LimitDB: jnum(r.LimitDB), Verdict: r.Verdict, Rule: r.Rule, Flags: r.Flags,
-			CoefficientExpandedUUVPerV: jnum(r.CoefficientExpandedUUVPerV), Notes: notesOrEmpty(r.Notes),
-			CampaignIncomplete: r.Incomplete, MissingPoints: r.MissingPoints,
-			PredictedUUVPerV: jnum(r.PredictedUUVPerV), Error: resultError(r),
-		}); err != nil {
+		if err := enc.Encode(resultLine(r)); err != nil {
 			return fmt.Errorf("report: results JSON line %d (unit %q): %w", i+1, r.Unit, err)
 		}
 	}

@@ -40,6 +40,9 @@ type FreqResult struct {
 	PhaseDeg          float64
 	PhaseExpandedUDeg float64
 	HasPhase          bool
+	// Coverage is the two-sided coverage probability of ExpandedUDB and
+	// PhaseExpandedUDeg (e.g. 0.95; NaN: not stated).
+	Coverage float64
 	// NoiseFloorDB is the largest ratio the setup resolves at this
 	// frequency (from a record with the stimulus off); a ratio above it
 	// is not resolved and only LowerBoundDB states something about the
@@ -57,9 +60,10 @@ func (r FreqResult) QuantityName() string {
 
 // FreqBudgetRow is one uncertainty-budget component (GUM §5.1) of a
 // frequency-response result. For Quantity "magnitude" (or "") the
-// embedded BudgetRow's Sensitivity and Contribution are in µV/V per
-// ValueUnit and µV/V as at DC; for Quantity "phase" they are in degrees
-// per ValueUnit and degrees.
+// embedded BudgetRow's component is an input's standard uncertainty
+// expressed in dB of the ratio (ValueUnit "dB", first order: 20/ln 10 dB
+// per unit relative change), Sensitivity is dimensionless and
+// Contribution is in dB; for Quantity "phase" they are in degrees.
 type FreqBudgetRow struct {
 	BudgetRow
 	Part        string

@@ -27,7 +27,8 @@ const (
 // per test, output change against stimulus with the fitted curves and the
 // residuals (at the chart temperature); ratio against temperature (more
 // than one temperature); the lot histogram of each test at each
-// temperature with the limit marked.
+// temperature with the limit marked; per frequency-response test and
+// temperature, the Bode plots (ratio and phase against log frequency).
 func WritePlots(dir string, c *Campaign) ([]string, error) {
 	return WritePlotsWith(dir, c, ChartOptions{})
 }
@@ -85,6 +86,21 @@ func WritePlotsWith(dir string, c *Campaign, opt ChartOptions) ([]string, error)
 		}
 		if err != nil {
 			return files, err
+		}
+	}
+	for _, b := range plan.Bodes {
+		ps, err := bodePlots(b)
+		if err != nil {
+			return files, err
+		}
+		for i, p := range ps {
+			kind := "bode-ratio-"
+			if i == 1 {
+				kind = "bode-phase-"
+			}
+			if err := save(p, kind+b.Test+"-"+tempName(b.TemperatureC)); err != nil {
+				return files, err
+			}
 		}
 	}
 	return files, nil

@@ -44,6 +44,22 @@ func UnitVerdicts(c *Campaign, skipTests ...string) []UnitVerdict {
 			byUnit[r.Unit] = append(byUnit[r.Unit], r)
 		}
 	}
+	// Frequency-response results decide as DC results do; each is named
+	// by its test and frequency.
+	for _, fr := range c.FreqResults {
+		r := fr.Result
+		if _, ok := info[r.Unit]; !ok {
+			info[r.Unit] = UnitInfo{ID: r.Unit}
+			order = append(order, r.Unit)
+		}
+		if skip[r.Test] {
+			continue
+		}
+		if !math.IsNaN(fr.FrequencyHz) {
+			r.Test = fmt.Sprintf("%s at %g Hz", r.Test, fr.FrequencyHz)
+		}
+		byUnit[r.Unit] = append(byUnit[r.Unit], r)
+	}
 	out := make([]UnitVerdict, 0, len(order))
 	for _, id := range order {
 		u := info[id]

@@ -112,7 +112,7 @@ func buildWorkbook(f *excelize.File, c *Campaign, opt WorkbookOptions) error {
 	if !opt.NoCharts {
 		plan = planCharts(c, opt.Charts)
 	}
-	hasCharts := len(plan.Responses)+len(plan.Histograms)+len(plan.Temperatures) > 0
+	hasCharts := len(plan.Responses)+len(plan.Histograms)+len(plan.Temperatures)+len(plan.Bodes) > 0
 
 	sheets := []string{SheetSummary}
 	if len(c.Units) > 0 {
@@ -127,6 +127,9 @@ func buildWorkbook(f *excelize.File, c *Campaign, opt WorkbookOptions) error {
 	}
 	if len(temps) > 1 && len(c.Temperature) > 0 {
 		sheets = append(sheets, SheetTemperature)
+	}
+	if len(c.FreqResults) > 0 {
+		sheets = append(sheets, SheetFreq, SheetFreqBudget, SheetFreqFits)
 	}
 	if len(c.Problems) > 0 {
 		sheets = append(sheets, SheetProblems)
@@ -181,6 +184,12 @@ func buildWorkbook(f *excelize.File, c *Campaign, opt WorkbookOptions) error {
 			err = writeTemperature(f, st, c)
 		case SheetProblems:
 			err = writeProblems(f, st, c)
+		case SheetFreq:
+			err = writeFreqResults(f, st, c)
+		case SheetFreqBudget:
+			err = writeFreqBudgets(f, st, c)
+		case SheetFreqFits:
+			err = writeFreqFits(f, st, c)
 		case SheetCharts:
 			err = writeCharts(f, st, plan)
 		}
@@ -420,6 +429,8 @@ func writeSummary(f *excelize.File, st *styles, c *Campaign, temps []float64) er
 			})
 		}
 	}
+
+	freqSummary(w, c)
 
 	// Verdict key: the palette, in the workbook itself.
 	w.heading("Verdict key")

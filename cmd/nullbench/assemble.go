@@ -114,10 +114,14 @@ func toReport(recs ...campaignRecord) *report.Campaign {
 			addResults(c, r.Results, predictedU(p))
 			addProblems(c, p, r.Results)
 		}
+		addFreq(c, p, r.Freq, r.FreqProblems, 0)
 	}
 	c.Incomplete = c.MissingPoints > 0
 	for i := range c.Results {
 		c.Results[i].Incomplete, c.Results[i].MissingPoints = c.Incomplete, c.MissingPoints
+	}
+	for i := range c.FreqResults {
+		c.FreqResults[i].Incomplete, c.FreqResults[i].MissingPoints = c.Incomplete, c.MissingPoints
 	}
 	// cmrr_uncorrected is kept for reference, out of the unit verdicts,
 	// where a corrected cmrr stands beside it (the plan measured aol);

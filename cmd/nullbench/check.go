@@ -137,12 +137,15 @@ func checkBenchWith(p *plan.Plan, resolve profileResolver) error {
 // checkJSON is `check --json`: field names are fixed so that scripts can
 // rely on them.
 type checkJSON struct {
-	Plan        string          `json:"plan"`
-	DurationS   float64         `json:"duration_s"`
-	WallS       float64         `json:"wall_s"`
-	Tests       []checkTestJSON `json:"tests"`
-	Warnings    []string        `json:"warnings"`
-	SafetyError string          `json:"safety_error,omitempty"`
+	Plan      string          `json:"plan"`
+	DurationS float64         `json:"duration_s"`
+	WallS     float64         `json:"wall_s"`
+	Tests     []checkTestJSON `json:"tests"`
+	// ACTests are the [[ac_test]] tables' durations (no uncertainty
+	// prediction: check predicts the DC tests' only).
+	ACTests     []checkACTestJSON `json:"ac_tests,omitempty"`
+	Warnings    []string          `json:"warnings"`
+	SafetyError string            `json:"safety_error,omitempty"`
 }
 
 type checkTestJSON struct {
@@ -158,12 +161,19 @@ type checkTestJSON struct {
 	LimitDB             *float64 `json:"limit_db,omitempty"`
 }
 
+type checkACTestJSON struct {
+	Test        string  `json:"test"`
+	Frequencies int     `json:"frequencies"`
+	DurationS   float64 `json:"duration_s"` // every unit and temperature
+}
+
 func writeCheckJSON(w io.Writer, p *plan.Plan, f estimate.Figures) error {
 	pr := estimate.Predict(p, f)
 	out := checkJSON{Plan: p.Source, DurationS: round3(pr.TotalSeconds), WallS: round3(pr.WallSeconds), Warnings: pr.Warnings()}
 	if out.Warnings == nil {
 		out.Warnings = []string{}
 	}
+	out.Tests = []checkTestJSON{}
 	for _, t := range pr.Tests {
 		tj := checkTestJSON{Test: t.Kind, DurationS: round3(t.Seconds), PredictedUUVPerV: t.ExpandedUUVPerV,
 			PredictedStdUUVPerV: t.StdUncUVPerV, ResolvableDB: round3(t.ResolvableDB)}
@@ -172,6 +182,9 @@ func writeCheckJSON(w io.Writer, p *plan.Plan, f estimate.Figures) error {
 			tj.LimitDB = &l
 		}
 		out.Tests = append(out.Tests, tj)
+	}
+	for i, t := range p.ACTests {
+		out.ACTests = append(out.ACTests, checkACTestJSON{Test: t.Kind, Frequencies: len(t.Frequencies()), DurationS: round3(pr.Timeline.ACTestCampaignSeconds[i])})
 	}
 	if err := safety.CheckSafety(p); err != nil {
 		out.SafetyError = err.Error()

@@ -235,3 +235,57 @@ func TestCheckJSONFields(t *testing.T) {
 		t.Errorf("no warning for a 200 dB limit:\n%s", buf.String())
 	}
 }
+
+// TestCheckAndSizeCountACTests: check's totals include the [[ac_test]]
+// tables (text and --json, with the noise-floor, through and stimulus
+// records timed) and size says plainly that it leaves them as written.
+func TestCheckAndSizeCountACTests(t *testing.T) {
+	path := cliRepoFile("testdata", "plans", "freq_noise_gain.toml")
+	p, err := plan.Load(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var buf bytes.Buffer
+	if err := writeCheckJSON(&buf, p, estimate.DefaultFigures()); err != nil {
+		t.Fatal(err)
+	}
+	var got struct {
+		DurationS float64 `json:"duration_s"`
+		Tests     []any   `json:"tests"`
+		ACTests   []struct {
+			Test        string  `json:"test"`
+			Frequencies int     `json:"frequencies"`
+			DurationS   float64 `json:"duration_s"`
+		} `json:"ac_tests"`
+	}
+	if err := json.Unmarshal(buf.Bytes(), &got); err != nil {
+		t.Fatal(err)
+	}
+	if got.Tests == nil || len(got.ACTests) != 3 || got.ACTests[0].Test != "cmrr" || got.ACTests[0].Frequencies != 8 {
+		t.Fatalf("check --json: %s", buf.String())
+	}
+	sum := 0.0
+	for _, a := range got.ACTests {
+		if !(a.DurationS > 0) {
+			t.Errorf("ac test %s has no duration", a.Test)
+		}
+		sum += a.DurationS
+	}
+	if !(got.DurationS > sum) {
+		t.Errorf("total %.1f s does not hold the ac tests' %.1f s", got.DurationS, sum)
+	}
+	r := cliExec(t, "check", path)
+	cliWantCode(t, r, exitOK, "check", path)
+	for _, want := range []string{"ac_test[1] cmrr", "8 frequencies × 3 records", "noise-floor, through and stimulus records"} {
+		if !strings.Contains(r.out, want) {
+			t.Errorf("check lacks %q:\n%s", want, r.out)
+		}
+	}
+	sized := filepath.Join(t.TempDir(), "sized.toml")
+	args := []string{"size", path, "--target-u-db", "0.5", "--at", "90", "-o", sized}
+	rs := cliExec(t, args...)
+	cliWantCode(t, rs, exitOK, args...)
+	if !strings.Contains(rs.out, "not sized") || !strings.Contains(rs.out, "3 [[ac_test]] table(s) are kept as written") {
+		t.Errorf("size does not say it leaves the ac tests alone:\n%s", rs.out)
+	}
+}

@@ -66,11 +66,21 @@ func TestDemoWithSmallDUT(t *testing.T) {
 	lines := cliJSONLines(t, r.out)
 	count := map[string]int{}
 	verdicts := map[string]string{}
+	freqLines := 0
 	for _, m := range lines {
 		for _, k := range cliResultKeys {
 			if _, ok := m[k]; !ok {
 				t.Errorf("result lacks %q: %v", k, m)
 			}
+		}
+		// Frequency-response results follow the DC ones, with the same
+		// keys and frequency_hz and the phase (absent from DC results).
+		if f, ok := m["frequency_hz"].(float64); ok {
+			freqLines++
+			if _, ok := m["phase_deg"]; !(f > 0) || !ok {
+				t.Errorf("frequency result %v", m)
+			}
+			continue
 		}
 		key := m["unit"].(string) + "/" + m["test"].(string)
 		count[key]++
@@ -89,7 +99,7 @@ func TestDemoWithSmallDUT(t *testing.T) {
 		want["B01/"+test] = 1
 	}
 	// The frequency campaign's short DC sweep: k_c + k_o of each of its
-	// three noise-gain units (its frequency results go to the summary).
+	// three noise-gain units.
 	for _, u := range []string{"F01", "F02", "F03"} {
 		want[u+"/cmrr_uncorrected"] = 1
 	}
@@ -98,8 +108,10 @@ func TestDemoWithSmallDUT(t *testing.T) {
 			t.Errorf("%s: %d results, want %d", k, count[k], n)
 		}
 	}
-	if len(lines) != 27 {
-		t.Errorf("%d results, want 27: %v", len(lines), count)
+	// Frequency lines: the board's CMRR at 50 and 60 Hz and three op-amps
+	// × three tests × 8 frequencies (demo/freq.toml).
+	if len(lines)-freqLines != 27 || freqLines != 2+3*3*8 {
+		t.Errorf("%d DC results (want 27: %v) and %d frequency results (want 74)", len(lines)-freqLines, count, freqLines)
 	}
 	for _, s := range []string{"Frequency response", "F01 CMRR (cmrr", "B01 board CMRR (board_cmrr", "single pole", "agrees with the DC result"} {
 		if !strings.Contains(r.err, s) {
@@ -115,15 +127,25 @@ func TestDemoWithSmallDUT(t *testing.T) {
 		t.Fatal(err)
 	}
 	rows, err := f.GetRows(report.SheetResults)
+	freqRows, ferr := f.GetRows(report.SheetFreq)
 	f.Close()
+	for i, row := range freqRows {
+		if len(row) == 0 {
+			freqRows = freqRows[:i]
+			break
+		}
+	}
+	if ferr != nil || len(freqRows) != 1+freqLines {
+		t.Errorf("sheet %s: %d rows (%v), want %d", report.SheetFreq, len(freqRows), ferr, 1+freqLines)
+	}
 	for i, row := range rows { // the table ends at the first blank row (the key follows it)
 		if len(row) == 0 {
 			rows = rows[:i]
 			break
 		}
 	}
-	if err != nil || len(rows) != 1+len(lines) {
-		t.Errorf("sheet %s: %d rows (%v), want %d", report.SheetResults, len(rows), err, 1+len(lines))
+	if err != nil || len(rows) != 1+len(lines)-freqLines {
+		t.Errorf("sheet %s: %d rows (%v), want %d", report.SheetResults, len(rows), err, 1+len(lines)-freqLines)
 	}
 
 	// report from the three journals alone: the same results, the same

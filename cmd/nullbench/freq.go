@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"io"
 
+	"nullbench/fit"
 	"nullbench/instrument"
 	"nullbench/procedure/analysis/freq"
 	"nullbench/procedure/plan"
@@ -97,11 +98,13 @@ func printFreqSummary(w io.Writer, rec campaignRecord) {
 		case r.Pole == nil:
 			fmt.Fprintf(w, "    single pole: %s\n", r.PoleNote)
 		case r.Pole.Resolved:
-			fmt.Fprintf(w, "    single pole: low-frequency %.2f ± %.2f dB, corner %.4g ± %.2g Hz (k = 2)\n",
-				r.Pole.RatioDCDB, 2*r.Pole.URatioDCDB, r.Pole.PoleHz, 2*r.Pole.UPoleHz)
+			k := poleCoverageK(r.Pole, fit.DefaultCoverage)
+			fmt.Fprintf(w, "    single pole: low-frequency %.2f ± %.2f dB, corner %.4g ± %.2g Hz (k = %.2f, 95 %%)\n",
+				r.Pole.RatioDCDB, k*r.Pole.URatioDCDB, r.Pole.PoleHz, k*r.Pole.UPoleHz, k)
 		default:
-			fmt.Fprintf(w, "    single pole: low-frequency %.2f ± %.2f dB, corner above %.4g Hz (not resolved)\n",
-				r.Pole.RatioDCDB, 2*r.Pole.URatioDCDB, r.Pole.PoleLowerBoundHz)
+			k := poleCoverageK(r.Pole, fit.DefaultCoverage)
+			fmt.Fprintf(w, "    single pole: low-frequency %.2f ± %.2f dB (k = %.2f, 95 %%), corner above %.4g Hz (not resolved)\n",
+				r.Pole.RatioDCDB, k*r.Pole.URatioDCDB, k, r.Pole.PoleLowerBoundHz)
 		}
 		if !r.DCChecked && r.DCNote != "" && r.Pole != nil {
 			fmt.Fprintf(w, "    DC check: %s\n", r.DCNote)
@@ -117,18 +120,4 @@ func printFreqSummary(w io.Writer, rec campaignRecord) {
 	for _, p := range rec.FreqProblems {
 		fmt.Fprintf(w, "  problem: %s %s: %s\n", p.Unit, p.Test, p.Problem)
 	}
-}
-
-// freqFailed says whether any judged frequency-response result failed.
-func freqFailed(recs []campaignRecord) bool {
-	for _, rec := range recs {
-		for _, r := range rec.Freq {
-			for _, pt := range r.Points {
-				if pt.Judged && (pt.Decision.State == "fail" || pt.Decision.State == "conditional fail") {
-					return true
-				}
-			}
-		}
-	}
-	return false
 }

@@ -1,6 +1,7 @@
 package main
 
 import (
+	"os"
 	"path/filepath"
 	"strings"
 	"testing"
@@ -73,6 +74,21 @@ func TestRunAndReportFrequencyPlan(t *testing.T) {
 		if !strings.Contains(section1, s) {
 			t.Errorf("run's frequency response lacks %q:\n%s", s, section1)
 		}
+	}
+	// The frequency rows travel in their own exports, and the summary
+	// counts them instead of calling the unit resultless.
+	csvText, err := os.ReadFile(filepath.Join(out, "freq_results.csv"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !strings.HasPrefix(string(csvText), "unit,part,lot,test,quantity,temperature_c,frequency_hz,") || !strings.Contains(string(csvText), "N01,,,cmrr,CMRR,25,50,digitizer,") {
+		t.Errorf("freq_results.csv:\n%s", csvText)
+	}
+	if _, err := os.Stat(filepath.Join(out, "freq_results.jsonl")); err != nil {
+		t.Error(err)
+	}
+	if strings.Contains(r.out, "NO RESULTS") || !strings.Contains(r.out, "frequency results (unit × test × frequency): 3 pass") {
+		t.Errorf("run's summary does not count the frequency results:\n%s", r.out)
 	}
 	rargs := []string{"report", out, "--out", filepath.Join(dir, "again"), "--no-charts"}
 	rr := cliExec(t, rargs...)

@@ -131,6 +131,15 @@ func writeOutputs(std streams, o outputOptions, c *report.Campaign) (string, err
 		{"readings.jsonl", func(w io.Writer) error { return report.WriteReadingsJSONL(w, c.Readings) }},
 		{"problems.jsonl", func(w io.Writer) error { return report.WriteProblemsJSONL(w, c.Problems) }},
 	}
+	if len(c.FreqResults) > 0 {
+		files = append(files, []struct {
+			name  string
+			write func(io.Writer) error
+		}{
+			{freqOutputs[0], func(w io.Writer) error { return report.WriteFreqResultsCSV(w, c.FreqResults, csvOpt) }},
+			{freqOutputs[1], func(w io.Writer) error { return report.WriteFreqResultsJSONL(w, c.FreqResults) }},
+		}...)
+	}
 	for _, f := range files {
 		if err := writeFile(filepath.Join(o.Out, f.name), f.write); err != nil {
 			return "", withCode(exitFailure, err)
@@ -143,6 +152,11 @@ func writeOutputs(std streams, o outputOptions, c *report.Campaign) (string, err
 	}
 	if o.JSON {
 		if err := report.WriteResultsJSONL(std.Out, c.Results); err != nil {
+			return "", err
+		}
+		// Frequency-response results follow, one object each, told apart
+		// by their frequency_hz key (absent from DC results).
+		if err := report.WriteFreqResultsJSONL(std.Out, c.FreqResults); err != nil {
 			return "", err
 		}
 	}
@@ -310,6 +324,11 @@ func anyFailed(c *report.Campaign) bool {
 			return true
 		}
 	}
+	for _, r := range c.FreqResults {
+		if k := report.VerdictClass(r.Verdict); k == report.KindFail || k == report.KindConditionalFail {
+			return true
+		}
+	}
 	return false
 }
 
@@ -347,8 +366,27 @@ func printSummary(w io.Writer, c *report.Campaign, book string) {
 			fmt.Fprintf(w, "unit %s skipped: %s\n", u.ID, u.Skipped)
 		}
 	}
-	fmt.Fprintf(w, "results: %d pass, %d conditional pass, %d conditional fail, %d fail, %d not judged\n",
-		counts[report.KindPass], counts[report.KindConditionalPass], counts[report.KindConditionalFail], counts[report.KindFail], counts[report.KindNotJudged])
+	if len(c.Results) > 0 || len(c.FreqResults) == 0 {
+		fmt.Fprintf(w, "results: %d pass, %d conditional pass, %d conditional fail, %d fail, %d not judged\n",
+			counts[report.KindPass], counts[report.KindConditionalPass], counts[report.KindConditionalFail], counts[report.KindFail], counts[report.KindNotJudged])
+	}
+	if len(c.FreqResults) > 0 {
+		fc := map[report.VerdictKind]int{}
+		noResult := 0
+		for _, r := range c.FreqResults {
+			if r.Verdict == VerdictNoResult {
+				noResult++
+				continue
+			}
+			fc[report.VerdictClass(r.Verdict)]++
+		}
+		fmt.Fprintf(w, "frequency results (unit × test × frequency): %d pass, %d conditional pass, %d conditional fail, %d fail, %d not judged",
+			fc[report.KindPass], fc[report.KindConditionalPass], fc[report.KindConditionalFail], fc[report.KindFail], fc[report.KindNotJudged])
+		if noResult > 0 {
+			fmt.Fprintf(w, ", %d no result", noResult)
+		}
+		fmt.Fprintln(w)
+	}
 	// Units by their verdict (report.UnitVerdicts: the most severe ILAC-G8
 	// zone, or skipped, incomplete, no result).
 	byKind := map[report.VerdictKind][]string{}

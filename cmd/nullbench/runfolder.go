@@ -6,6 +6,7 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
+	"nullbench/report"
 	"os"
 	"path/filepath"
 	"sort"
@@ -287,8 +288,21 @@ func sealRunFolder(dir, journalPath string, jc *journal.Contents, k journal.Comp
 	return writeManifest(dir, m)
 }
 
-// runOutputs are the files writeOutputs writes into the output folder.
-var runOutputs = []string{"campaign.xlsx", "results.csv", "readings.csv", "results.jsonl", "readings.jsonl", "problems.jsonl"}
+// runOutputs are the files writeOutputs writes into the output folder;
+// freqOutputs the ones it adds for a campaign with frequency-response
+// results.
+var (
+	runOutputs  = []string{"campaign.xlsx", "results.csv", "readings.csv", "results.jsonl", "readings.jsonl", "problems.jsonl"}
+	freqOutputs = []string{"freq_results.csv", "freq_results.jsonl"}
+)
+
+// outputsOf lists the files writeOutputs wrote for c.
+func outputsOf(c *report.Campaign) []string {
+	if len(c.FreqResults) == 0 {
+		return runOutputs
+	}
+	return append(append([]string(nil), runOutputs...), freqOutputs...)
+}
 
 func sameDir(a, b string) bool {
 	if s, err := sameFile(a, b); err == nil {

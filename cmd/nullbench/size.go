@@ -34,7 +34,8 @@ expanded uncertainty of --target-u-db dB on a ratio of --at dB in the least
 bench time, by the same prediction check makes (the profiles' [figures],
 the part's noise). It prints each test's proposal with its predicted U and
 time against the plan as written, and writes the sized plan (the same file
-with those five keys of each [[test]] replaced).`,
+with those five keys of each [[test]] replaced). [[ac_test]] tables are
+not sized: they are kept as written and size says so.`,
 		Args: cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			o.Plan = args[0]
@@ -78,8 +79,21 @@ func runSize(std streams, o sizeOptions) error {
 	if d < 0 {
 		verb, d = "needs", -d
 	}
-	fmt.Fprintf(std.Out, "per unit and temperature %s (was %s): %s %s; over the campaign (%g unit-temperatures) %s %s\n",
-		plan.FormatSeconds(after), plan.FormatSeconds(before), verb, plan.FormatSeconds(d), n, verb, plan.FormatSeconds(d*n))
+	if len(tests) > 0 {
+		fmt.Fprintf(std.Out, "per unit and temperature %s (was %s): %s %s; over the campaign (%g unit-temperatures) %s %s\n",
+			plan.FormatSeconds(after), plan.FormatSeconds(before), verb, plan.FormatSeconds(d), n, verb, plan.FormatSeconds(d*n))
+	} else {
+		fmt.Fprintf(std.Out, "no [[test]] tables to size\n")
+	}
+	if len(p.ACTests) > 0 {
+		tl := figs.Timeline(p)
+		ac := 0.0
+		for _, s := range tl.ACTestSeconds {
+			ac += s
+		}
+		fmt.Fprintf(std.Out, "ac tests  not sized: size proposes settings for [[test]] tables only; the plan's %d [[ac_test]] table(s) are kept as written (%s per unit and temperature, not in the times above; check shows them)\n",
+			len(p.ACTests), plan.FormatSeconds(ac))
+	}
 	text, err := os.ReadFile(o.Plan)
 	if err != nil {
 		return withCode(exitUsage, err)

@@ -62,6 +62,10 @@ func (fc *forecast) WriteSummary(w io.Writer) {
 	for _, tp := range pred.Tests {
 		fmt.Fprintf(w, "  %s %-14s %s\n", testKey(tp.Test), tp.Kind, plan.FormatSeconds(tp.Seconds))
 	}
+	for i, t := range p.ACTests {
+		fmt.Fprintf(w, "  ac_test[%d] %-11s %s (%d frequencies × 3 records of %d; %s per unit and temperature)\n", i+1, t.Kind,
+			plan.FormatSeconds(tl.ACTestCampaignSeconds[i]), len(t.Frequencies()), max(t.Records, 1), plan.FormatSeconds(tl.ACTestSeconds[i]))
+	}
 	fmt.Fprintf(w, "  bench off %s; units connected %s; power up/down %s; chamber ramps and soaks %s; finish %s\n",
 		plan.FormatSeconds(tl.BenchOffSeconds), plan.FormatSeconds(tl.ConnectSeconds), plan.FormatSeconds(tl.PowerSeconds),
 		plan.FormatSeconds(tl.ChamberSeconds), plan.FormatSeconds(tl.FinishSeconds))
@@ -70,6 +74,9 @@ func (fc *forecast) WriteSummary(w io.Writer) {
 		fmt.Fprintf(w, "; at time_scale %g about %s of wall time", p.Bench.TimeScale, plan.FormatSeconds(pred.WallSeconds))
 	}
 	fmt.Fprintf(w, "\n  (every ramp step, dwell, settling reading, read-back, power-up and down, relay, chamber ramp and soak, from the profiles' [figures]; unit swaps by hand not counted)\n")
+	if len(p.ACTests) > 0 {
+		fmt.Fprintf(w, "  (ac_test: per frequency the noise-floor, through and stimulus records at the coherent sample rate and record length, each after the generator settle; a manual through calibration's prompts not counted)\n")
+	}
 	if warns := pred.Warnings(); len(warns) > 0 {
 		fmt.Fprintf(w, "\nwarnings\n")
 		for _, s := range warns {

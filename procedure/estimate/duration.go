@@ -135,6 +135,10 @@ type Timeline struct {
 	// same over every unit and temperature, with the meter's configuration
 	// and the return to the nominal rails.
 	TestSeconds, TestCampaignSeconds []float64
+	// ACTestSeconds[i] is [[ac_test]] i's time for one unit at one
+	// temperature (acTestSeconds), ACTestCampaignSeconds[i] the same over
+	// every unit and temperature.
+	ACTestSeconds, ACTestCampaignSeconds []float64
 	// Overheads: bench switched off at the start, unit connections,
 	// power-ups and downs, chamber ramps and soaks, the finish.
 	BenchOffSeconds, ConnectSeconds, PowerSeconds, ChamberSeconds, FinishSeconds float64
@@ -160,6 +164,8 @@ type TimedPoint struct {
 //	point            = ramp + dwell + settling (two triggers, SettleInterval apart) + read-back + trigger + thermometer
 //	chamber ramp     = ⌈|ΔT| / (rate·tick)⌉ ticks of ChamberTick
 //	soak             = the air's first-order approach (air_tau_s) until within tolerance, + soak_s, polled
+//	ac_test          = per frequency: configure, sine, three records (floor, through, stimulus) each after
+//	                   the generator settle, each records × (record N/f_s + transfer); see acTestSeconds
 //
 // The settling check is taken to pass at its first comparison, and hand
 // swaps and operator prompts take no time.
@@ -168,7 +174,8 @@ func (f *Figures) Timeline(p *plan.Plan) Timeline {
 	if w == (SequencerWaits{}) {
 		w = DefaultSequencerWaits()
 	}
-	tl := Timeline{TestSeconds: make([]float64, len(p.Tests)), TestCampaignSeconds: make([]float64, len(p.Tests))}
+	tl := Timeline{TestSeconds: make([]float64, len(p.Tests)), TestCampaignSeconds: make([]float64, len(p.Tests)),
+		ACTestSeconds: make([]float64, len(p.ACTests)), ACTestCampaignSeconds: make([]float64, len(p.ACTests))}
 	role := func(r string) RoleFigures { return f.Roles[r] }
 	now := 0.0
 	setCost := func(r string) float64 { rf := role(r); return rf.SetSeconds + f.wait(rf.SettleSeconds) }
@@ -278,6 +285,14 @@ func (f *Figures) Timeline(p *plan.Plan) Timeline {
 				}
 				state = nominal
 				tl.TestCampaignSeconds[i] += now - testStart
+			}
+			// The [[ac_test]] tables, after the DC tests, at the nominal
+			// rails (procedure.runACTests).
+			for i := range p.ACTests {
+				s := f.acTestSeconds(p, &p.ACTests[i], w)
+				tl.ACTestSeconds[i] = s
+				tl.ACTestCampaignSeconds[i] += s
+				now += s
 			}
 			pd := actsCost(safety.PowerDownFrom(p, nominal))
 			tl.PowerSeconds += pd
