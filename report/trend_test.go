@@ -114,6 +114,11 @@ func TestTrendWorkbookSheetsAndValues(t *testing.T) {
 	if got := cellStr(t, f, s1, headerCol(t, f, s1, "Run-rule signals")+itoa(r)); got != "1: beyond a control limit" {
 		t.Errorf("L2603 signals = %q", got)
 	}
+	// the key names quantity, unit and convention
+	kr := rowWith(t, f, s1, "A", "Quantity")
+	if got := cellStr(t, f, s1, "B"+itoa(kr)); !strings.Contains(got, "in dB: input-referred ratio 20·log10|ΔV_CM/ΔV_IO|") {
+		t.Errorf("quantity key %q", got)
+	}
 	// NaN stays empty, never 0
 	if got := cellStr(t, f, s2, headerCol(t, f, s2, "X̄ UCL (µV/V)")+"2"); got != "" {
 		t.Errorf("a lot without limits shows UCL %q", got)
