@@ -64,3 +64,21 @@ func ExampleRejectionFromBudget() {
 	// Output:
 	// resolved false, CMRR ≥ 143.7 dB (k = 2.00)
 }
+
+// Three lots of unequal size on a Shewhart X̄–S chart with limits from the
+// pooled SD (hand-computed: ν = 6, s_p = 2, σ̂ = s_p/c4(7) = 2.085; lot 3
+// has n = 4, so its X̄ limits are 4 ± 3·2.085/2 and its s chart UCL
+// B6(4)·σ̂ = 2.088·2.085 = 4.35, B6 from the published table).
+func ExampleXbarS() {
+	cc, err := fit.XbarS([][]float64{{1, 2, 3}, {2, 4}, {3, 5, 7, 9}}, fit.ControlOptions{})
+	if err != nil {
+		fmt.Println(err)
+		return
+	}
+	fmt.Printf("x̿ = %.3f, s_p = %.3f (ν = %d), σ̂ = %.3f\n", cc.GrandMean, cc.PooledSD, cc.PooledDOF, cc.SigmaHat)
+	p := cc.Points[2]
+	fmt.Printf("lot 3: X̄ %.3f … %.3f, s chart %.3f … %.3f\n", p.MeanLCL, p.MeanUCL, p.SDLCL, p.SDUCL)
+	// Output:
+	// x̿ = 4.000, s_p = 2.000 (ν = 6), σ̂ = 2.085
+	// lot 3: X̄ 0.873 … 7.127, s chart 0.000 … 4.352
+}

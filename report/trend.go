@@ -478,6 +478,24 @@ func writeTrendChart(f *excelize.File, st *styles, t *Trend, c TrendChart, sheet
 		series(13, "000000", excelize.LineDashSolid, false),
 		series(14, "D55E00", excelize.LineDashDash, false),
 		series(15, "D55E00", excelize.LineDashDash, false))
+	// Lot means sit far from zero (a ratio near 120 dB): fit the X̄ chart's
+	// vertical axis to the points and limits, with a tenth of their span to
+	// spare, so no spreadsheet starts it at zero.
+	lo, hi := math.Inf(1), math.Inf(-1)
+	for _, l := range lots {
+		for _, v := range []float64{l.Mean, l.MeanLCL, l.MeanUCL, c.GrandMean} {
+			if !math.IsNaN(v) && !math.IsInf(v, 0) {
+				lo, hi = math.Min(lo, v), math.Max(hi, v)
+			}
+		}
+	}
+	if lo <= hi {
+		pad := (hi - lo) / 10
+		if pad == 0 {
+			pad = math.Max(math.Abs(hi)/1000, 1e-9)
+		}
+		xbar.YAxis.Minimum, xbar.YAxis.Maximum = ptr(lo-pad), ptr(hi+pad)
+	}
 	at := r + 1
 	for i, ch := range []*excelize.Chart{xbar, schart} {
 		cell, _ := excelize.CoordinatesToCellName(1+i*8, at)

@@ -114,6 +114,11 @@ func TestTrendWorkbookSheetsAndValues(t *testing.T) {
 	if got := cellStr(t, f, s1, headerCol(t, f, s1, "Run-rule signals")+itoa(r)); got != "1: beyond a control limit" {
 		t.Errorf("L2603 signals = %q", got)
 	}
+	// the key names quantity, unit and convention
+	kr := rowWith(t, f, s1, "A", "Quantity")
+	if got := cellStr(t, f, s1, "B"+itoa(kr)); !strings.Contains(got, "in dB: input-referred ratio 20·log10|ΔV_CM/ΔV_IO|") {
+		t.Errorf("quantity key %q", got)
+	}
 	// NaN stays empty, never 0
 	if got := cellStr(t, f, s2, headerCol(t, f, s2, "X̄ UCL (µV/V)")+"2"); got != "" {
 		t.Errorf("a lot without limits shows UCL %q", got)
@@ -161,6 +166,11 @@ func TestTrendWorkbookSheetsAndValues(t *testing.T) {
 			}
 		}
 	}
+	// the X̄ axis spans the points and limits (118.2 … 121.1 dB) with a
+	// tenth of the span to spare, not from zero
+	if len(xc.ValAx) != 1 || !approx(xc.ValAx[0].Min.Val, 117.91) || !approx(xc.ValAx[0].Max.Val, 121.39) {
+		t.Errorf("X̄ chart vertical axis %+v, want 117.91 … 121.39", xc.ValAx)
+	}
 	// a sheet with a single lot still gets its two charts
 	if len(charts) != 4 {
 		t.Errorf("%d charts, want 4", len(charts))
@@ -205,6 +215,14 @@ func headerCol2(t *testing.T, f *excelize.File, sheet string, r int, header stri
 type lineChartXML struct {
 	Title []string   `xml:"chart>title>tx>rich>p>r>t"`
 	Ser   []chartSer `xml:"chart>plotArea>lineChart>ser"`
+	ValAx []struct {
+		Min struct {
+			Val string `xml:"val,attr"`
+		} `xml:"scaling>min"`
+		Max struct {
+			Val string `xml:"val,attr"`
+		} `xml:"scaling>max"`
+	} `xml:"chart>plotArea>valAx"`
 }
 
 // readLineCharts parses every xl/charts/chartN.xml as a line chart, keyed
@@ -223,6 +241,11 @@ func readLineCharts(t *testing.T, path string) map[string]lineChartXML {
 		out[strings.Join(c.Title, "")] = c
 	}
 	return out
+}
+
+func approx(s string, want float64) bool {
+	v, err := strconv.ParseFloat(s, 64)
+	return err == nil && math.Abs(v-want) < 1e-9
 }
 
 func itoa(i int) string { return strconv.Itoa(i) }
