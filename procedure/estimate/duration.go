@@ -142,6 +142,9 @@ type Timeline struct {
 	// same over every unit and temperature, with the meter's configuration
 	// and the return to the nominal rails.
 	TestSeconds, TestCampaignSeconds []float64
+	// ACTestSeconds[i] is [[ac_test]] i's time for one unit at one
+	// temperature (acTestSeconds); it is in TotalSeconds, not in Points.
+	ACTestSeconds []float64
 	// Overheads: bench switched off at the start, unit connections,
 	// power-ups and downs, chamber ramps and soaks, the finish.
 	BenchOffSeconds, ConnectSeconds, PowerSeconds, ChamberSeconds, FinishSeconds float64
@@ -175,7 +178,8 @@ func (f *Figures) Timeline(p *plan.Plan) Timeline {
 	if w == (SequencerWaits{}) {
 		w = DefaultSequencerWaits()
 	}
-	tl := Timeline{TestSeconds: make([]float64, len(p.Tests)), TestCampaignSeconds: make([]float64, len(p.Tests))}
+	tl := Timeline{TestSeconds: make([]float64, len(p.Tests)), TestCampaignSeconds: make([]float64, len(p.Tests)),
+		ACTestSeconds: make([]float64, len(p.ACTests))}
 	role := func(r string) RoleFigures { return f.Roles[r] }
 	now := 0.0
 	setCost := func(r string) float64 { rf := role(r); return rf.SetSeconds + f.wait(rf.SettleSeconds) }
@@ -286,6 +290,11 @@ func (f *Figures) Timeline(p *plan.Plan) Timeline {
 				state = nominal
 				tl.TestCampaignSeconds[i] += now - testStart
 			}
+			for i := range p.ACTests {
+				c := f.acTestSeconds(p, &p.ACTests[i], w)
+				tl.ACTestSeconds[i] = c
+				now += c
+			}
 			pd := actsCost(safety.PowerDownFrom(p, nominal))
 			tl.PowerSeconds += pd
 			now += pd
@@ -307,6 +316,49 @@ func (f *Figures) Timeline(p *plan.Plan) Timeline {
 	now += tl.FinishSeconds
 	tl.TotalSeconds = now
 	return tl
+}
+
+// acTestSeconds is one [[ac_test]] on one unit at one temperature, as the
+// runner takes it (run_ac.go): per frequency the digitizer's
+// configuration (a set per channel range, the points, the rate and the
+// format, then its scale, offset and rate read back) or each AC
+// voltmeter input's, the generator's sine (function, frequency,
+// amplitude, offset); then for each of the floor, through and stimulus
+// records the generator output switched (and the through relay moved,
+// with the relay settle), the wait of ACSettleSeconds and the records,
+// each an arm, a wait of the record's length (plan.ACRecordSeconds) and
+// a fetch per channel; at the end the generator output off. A manual
+// through calibration's wait for the operator is not counted. On a
+// time-scaled bench the waveform transfer and the runner's sine fits take
+// wall time beyond the exchanges, which this does not count either.
+func (f *Figures) acTestSeconds(p *plan.Plan, t *plan.ACTest, w SequencerWaits) float64 {
+	gen, sw := f.Roles[plan.RoleGenerator], f.Roles[plan.RoleSwitch]
+	inst := f.Roles[plan.RoleDigitizer]
+	configure := 5*inst.SetSeconds + 5*inst.QuerySeconds
+	fetch := 2 * inst.QuerySeconds
+	if !p.Bench.Roles.Digitizer.Bound() {
+		inst = f.Roles[plan.RoleACMeter]
+		configure, fetch = 2*inst.SetSeconds, 2*inst.QuerySeconds
+	}
+	relay := 0.0
+	if t.Through == plan.ThroughSwitch {
+		relay = sw.SetSeconds + f.wait(sw.SettleSeconds) + f.wait(w.RelaySettleSeconds)
+	}
+	total := 0.0
+	for _, hz := range t.Frequencies() {
+		c := configure + 4*gen.SetSeconds
+		records := float64(max(t.Records, 1))
+		capture := inst.SetSeconds + inst.QuerySeconds + f.wait(plan.ACRecordSeconds(t, hz)) + fetch
+		for r := range 3 { // floor, through, stimulus
+			c += gen.SetSeconds
+			if r > 0 {
+				c += relay
+			}
+			c += f.wait(plan.ACSettleSeconds(t, hz)) + records*capture
+		}
+		total += c
+	}
+	return total + gen.SetSeconds
 }
 
 // settleRetries is the expected number of further comparisons the
