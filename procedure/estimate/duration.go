@@ -78,22 +78,29 @@ type Figures struct {
 	// this first-order time constant (0: at once).
 	ChamberAirTauSeconds float64
 	Waits                SequencerWaits
-	// WaitOverrunSeconds is how much longer than asked every timed wait
-	// lasts, WaitFloorSeconds the shortest wait there is, both in bench
-	// seconds: a timer wakes late by the host's scheduling latency and no
-	// sooner than its granularity. On a real bench (microseconds against
-	// waits of tens of ms) they are negligible and 0; on a simulated bench
+	// WaitGranularitySeconds and WaitOverrunSeconds describe the host's
+	// timer, in bench seconds: a timed wait of d lasts d rounded up to a
+	// whole number of granules, plus the overrun (the scheduling latency
+	// of the wake-up). A host whose timer rounds waits up to whole
+	// milliseconds turns a wait of 0.2 ms into about 1.1 ms and one of
+	// 1.2 ms into about 2.2 ms. On a real bench (microseconds against
+	// waits of tens of ms) both are negligible and 0; on a simulated bench
 	// at time_scale N each is the host's wall-clock figure × N, which is
 	// where the time of a fast simulated run goes (cmd measures them).
-	WaitOverrunSeconds, WaitFloorSeconds float64
+	WaitGranularitySeconds, WaitOverrunSeconds float64
 }
 
-// wait is the bench time a timed wait of d seconds takes.
+// wait is the bench time a timed wait of d seconds takes:
+// ⌈d/g⌉·g + overrun with g = WaitGranularitySeconds (d + overrun when g
+// is 0).
 func (f *Figures) wait(d float64) float64 {
 	if !(d > 0) {
 		return 0
 	}
-	return math.Max(d+f.WaitOverrunSeconds, f.WaitFloorSeconds)
+	if g := f.WaitGranularitySeconds; g > 0 {
+		d = math.Ceil(d/g-1e-9) * g
+	}
+	return d + f.WaitOverrunSeconds
 }
 
 // DefaultFigures are the built-in profiles' figures with exchanges taking
@@ -315,6 +322,50 @@ func (f *Figures) Timeline(p *plan.Plan) Timeline {
 	now += tl.FinishSeconds
 	tl.TotalSeconds = now
 	return tl
+}
+
+// acTestSeconds is one [[ac_test]] on one unit at one temperature, as the
+// runner takes it (run_ac.go): per frequency the digitizer's
+// configuration (a set per channel range, the points, the rate and the
+// format, then its scale, offset and rate read back) or each AC
+// voltmeter input's, the generator's sine (function, frequency,
+// amplitude, offset); then for each of the floor, through and stimulus
+// records the generator output switched (and the through relay moved,
+// with the relay settle), the wait of ACSettleSeconds and the records,
+// each an arm, a wait of the record's length (recordSeconds: the runner's coherent
+// plan, whole cycles) and
+// a fetch per channel; at the end the generator output off. A manual
+// through calibration's wait for the operator is not counted. On a
+// time-scaled bench the waveform transfer and the runner's sine fits take
+// wall time beyond the exchanges, which this does not count either.
+func (f *Figures) acTestSeconds(p *plan.Plan, t *plan.ACTest, w SequencerWaits) float64 {
+	gen, sw := f.Roles[plan.RoleGenerator], f.Roles[plan.RoleSwitch]
+	inst := f.Roles[plan.RoleDigitizer]
+	configure := 5*inst.SetSeconds + 5*inst.QuerySeconds
+	fetch := 2 * inst.QuerySeconds
+	if !p.Bench.Roles.Digitizer.Bound() {
+		inst = f.Roles[plan.RoleACMeter]
+		configure, fetch = 2*inst.SetSeconds, 2*inst.QuerySeconds
+	}
+	relay := 0.0
+	if t.Through == plan.ThroughSwitch {
+		relay = sw.SetSeconds + f.wait(sw.SettleSeconds) + f.wait(w.RelaySettleSeconds)
+	}
+	total := 0.0
+	for _, hz := range t.Frequencies() {
+		c := configure + 4*gen.SetSeconds
+		records := float64(max(t.Records, 1))
+		capture := inst.SetSeconds + inst.QuerySeconds + f.wait(recordSeconds(t, hz)) + fetch
+		for r := range 3 { // floor, through, stimulus
+			c += gen.SetSeconds
+			if r > 0 {
+				c += relay
+			}
+			c += f.wait(plan.ACSettleSeconds(t, hz)) + records*capture
+		}
+		total += c
+	}
+	return total + gen.SetSeconds
 }
 
 // settleRetries is the expected number of further comparisons the
