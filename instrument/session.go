@@ -14,7 +14,8 @@ import (
 // supplies its own through Profile.SessionOptions.
 type SessionOptions struct {
 	// Terminator is appended to every program message ("\n" by default;
-	// IEEE 488.2 program message terminator NL).
+	// IEEE 488.2 program message terminator NL; any string
+	// CheckTerminator accepts).
 	Terminator string
 	// Timeout bounds each exchange (one message out and, for a query, its
 	// reply in) unless ctx has an earlier deadline; default 5 s. A
@@ -294,6 +295,9 @@ func (t *Tx) begin(ctx context.Context, cmd string) error {
 	}
 	if cmd == "" || strings.ContainsAny(cmd, "\r\n") {
 		return &OpError{Instrument: t.s.name, Command: cmd, Err: errors.New("a command must be one non-empty line")}
+	}
+	if strings.Contains(cmd, t.s.term) {
+		return &OpError{Instrument: t.s.name, Command: cmd, Err: fmt.Errorf("the command holds the terminator %q", t.s.term)}
 	}
 	return t.s.sync(ctx)
 }
