@@ -21,6 +21,11 @@ type OffOptions struct {
 // OffReport says what Off did per role.
 type OffReport struct {
 	Actions []string // in order, in words
+	// Relays says what is known about the switch's relays ("" without a
+	// switch); EveryChannelOpen only after an accepted open-all command
+	// (instrument.Opening).
+	Relays           string
+	EveryChannelOpen bool
 }
 
 // Off brings a bench left on — by a crash, or by hand — to the plan's safe
@@ -28,7 +33,9 @@ type OffReport struct {
 // ramped to 0 V in steps of at most safety.ramp_step_volts and switched
 // off, BEFORE the supplies are ramped down and switched off (the order of
 // safety.PowerDownOrder: the inputs never stay driven while the rails are
-// gone); then the switch opens every channel and the chamber's set point
+// gone); then the switch opens its relays (every channel with an open-all
+// command, else those the plan names: OffReport.Relays says which) and
+// the chamber's set point
 // returns to temperature.ambient_c. It carries on past a failing
 // instrument so that the others still reach their safe state, and returns
 // every failure. A role the rig lacks is skipped (the plan may bind
@@ -112,11 +119,13 @@ func Off(ctx context.Context, p *plan.Plan, rig *Rig, opt OffOptions) (*OffRepor
 		}
 	}
 	if rig.Switch != nil {
-		if err := call(rig.Switch.OpenAll); err != nil {
-			errs = append(errs, fmt.Errorf("switch: open all: %w", err))
-		} else {
-			note("switch: every channel open")
+		var rs relayState
+		err := call(func(c context.Context) (err error) { rs, err = openSwitch(c, rig.Switch); return })
+		if err != nil {
+			errs = append(errs, fmt.Errorf("switch: %w", err))
 		}
+		rep.Relays, rep.EveryChannelOpen = rs.words, rs.every
+		note("switch: %s", rs.words)
 	}
 	if rig.Chamber != nil && p.Temperature.Mode == plan.TempChamber {
 		amb := p.Temperature.AmbientCelsius

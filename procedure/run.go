@@ -198,6 +198,10 @@ type RunError struct {
 	// SafeState is nil when the bench reached its safe state, else every
 	// problem met on the way (the bench needs a look by hand).
 	SafeState error
+	// Relays says what is known about the switch's relays after the safe
+	// state opened them ("" when it did not try): "every channel open"
+	// only after an accepted open-all command (instrument.Opening).
+	Relays string
 }
 
 func (e *RunError) Error() string {
@@ -217,6 +221,9 @@ func (e *RunError) Error() string {
 	fmt.Fprintf(&b, ": %v", e.Err)
 	if e.SafeState == nil {
 		b.WriteString("; the bench is in its safe state (sources at 0 V and off, supplies ramped down and off)")
+		if e.Relays != "" {
+			b.WriteString("; switch: " + e.Relays)
+		}
 	} else {
 		fmt.Fprintf(&b, "; SAFE STATE NOT REACHED, check the bench by hand: %v", e.SafeState)
 	}
@@ -329,6 +336,7 @@ type runner struct {
 	// whose limits were checked and set (run_ac.go).
 	genOn, genLimited map[string]bool
 	redialed          map[string]bool // sessions the safe state dialed again (recover.go)
+	relays            relayState      // what the last opening of the switch found (relays.go)
 	powered           bool            // a supply output may be on
 	chamber           bool            // the chamber's set point was changed
 	at                position
@@ -560,9 +568,12 @@ func (r *runner) finish(ctx context.Context) error {
 	}
 	if r.rig.Switch != nil && !operator.HandSwap(r.p) {
 		r.at.stage = stageOpenSwitch
-		if err := r.rig.Switch.OpenAll(ctx); err != nil {
-			return fmt.Errorf("switch: open all: %w", err)
+		rs, err := openSwitch(ctx, r.rig.Switch)
+		if err != nil {
+			return fmt.Errorf("switch: %w", err)
 		}
+		r.relays = rs
+		r.note("switch: %s", rs.words)
 	}
 	return nil
 }
@@ -590,6 +601,7 @@ func (r *runner) abort(ctx context.Context, err error) error {
 	r.event(journal.Event{Type: journal.EventAbort, Reason: fmt.Sprintf("%s: %v", at.stage, e.Err), Unit: at.unit,
 		TempIndex: max(at.tempIndex, 0), TemperatureC: at.tempPoint})
 	e.SafeState = r.safeStateGuarded(ctx)
+	e.Relays = r.relays.words
 	detail := "reached: sources at 0 V and off, then supplies ramped down and off"
 	if e.SafeState != nil {
 		detail = "NOT reached: " + e.SafeState.Error()

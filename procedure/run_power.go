@@ -358,9 +358,11 @@ func (r *runner) safeState(runCtx context.Context) error {
 	}
 	if suppliesDown && r.rig.Switch != nil && !operator.HandSwap(r.p) {
 		cctx, ccancel := context.WithTimeout(ctx, r.timing.SafeCallTimeout)
-		if err := r.rig.Switch.OpenAll(cctx); err != nil {
-			errs = append(errs, fmt.Errorf("switch: open all: %w", err))
+		rs, err := openSwitch(cctx, r.rig.Switch)
+		if err != nil {
+			errs = append(errs, fmt.Errorf("switch: %w", err))
 		}
+		r.relays = rs
 		ccancel()
 	}
 	return errors.Join(errs...)

@@ -24,7 +24,10 @@ func newOffCmd(std streams, run func(context.Context, streams, offOptions) error
 them to the safe state, as a run does after a fault: every source read back,
 ramped to 0 V in steps of at most safety.ramp_step_volts and switched off,
 then the supplies the same way, then the switch opened and the chamber set
-back to ambient_c. Use it after a crash or when a bench was left on by
+back to ambient_c. A switch whose profile has open_all gets it, and off
+says "every switch channel open"; without open_all it opens the plan's
+unit channels one by one (read back where the profile has query_closed)
+and says which, and that a relay closed by other means may remain closed. Use it after a crash or when a bench was left on by
 hand. It measures nothing and writes no journal.
 
 Exit status: 0 the bench is in its safe state, 2 bad plan, 3 some
@@ -60,6 +63,13 @@ func runOff(ctx context.Context, std streams, o offOptions) error {
 	if err != nil {
 		return withCode(exitInstrument, fmt.Errorf("the bench may NOT be in its safe state; check these outputs by hand:\n%w", err))
 	}
-	fmt.Fprintln(std.Out, "the bench is in its safe state: every source and supply at 0 V and off")
+	switch {
+	case rep.Relays == "":
+		fmt.Fprintln(std.Out, "the bench is in its safe state: every source and supply at 0 V and off")
+	case rep.EveryChannelOpen:
+		fmt.Fprintln(std.Out, "the bench is in its safe state: every source and supply at 0 V and off, every switch channel open")
+	default:
+		fmt.Fprintf(std.Out, "every source and supply is at 0 V and off; switch: %s\n", rep.Relays)
+	}
 	return nil
 }
