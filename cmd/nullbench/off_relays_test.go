@@ -38,9 +38,9 @@ func cliStartSimDialects(t *testing.T, dialects ...string) *sim.Bench {
 // not to claim more.
 func TestOffSaysWhatItKnowsOfTheRelays(t *testing.T) {
 	for _, tc := range []struct {
-		dialect   string
-		every     bool
-		want      []string
+		dialect     string
+		every       bool
+		want        []string
 		stillClosed []string // relays the sim still has closed afterwards
 	}{
 		{"", true, []string{`every channel open ("ROUT:OPEN:ALL" sent and accepted)`, "every switch channel open"}, nil},
