@@ -92,11 +92,29 @@ func (b *driverBase) errorf(format string, args ...any) error {
 	return fmt.Errorf("%s: "+format, append([]any{b.label}, args...)...)
 }
 
-// wrap prefixes an error from the session with the role label; session
-// errors already name the instrument and the command.
+// wrap ties an error to the driver: a session error of this instrument
+// (which already names the instrument and the command) gets the role part
+// of the label in its Where, so the instrument is named once ("psu
+// (supply channel 1): ..."), not twice; any other error is prefixed with
+// the label.
 func (b *driverBase) wrap(err error) error {
 	if err == nil {
 		return nil
+	}
+	where := strings.TrimPrefix(b.label, b.s.Name()+" ")
+	var op *OpError
+	if errors.As(err, &op) && op.Instrument == b.s.Name() {
+		if op.Where == "" {
+			op.Where = where
+		}
+		return err
+	}
+	var ie *InstrumentError
+	if errors.As(err, &ie) && ie.Instrument == b.s.Name() {
+		if ie.Where == "" {
+			ie.Where = where
+		}
+		return err
 	}
 	return fmt.Errorf("%s: %w", b.label, err)
 }

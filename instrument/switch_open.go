@@ -18,6 +18,10 @@ type Opening struct {
 	// AllCommand is the open-all command sent and accepted; "" when the
 	// profile has none (or it was refused: then Err is set).
 	AllCommand string
+	// AllFailed is the open-all command that was sent and failed (Err
+	// returned); the relays this driver closed (Failed) may still be
+	// closed.
+	AllFailed string
 	// Opened lists the channels opened one by one (no open-all), sorted;
 	// Failed those whose opening failed.
 	Opened, Failed []string
@@ -44,6 +48,15 @@ func (o Opening) String() string {
 		return fmt.Sprintf("every channel open (%q sent and accepted)", o.AllCommand)
 	}
 	var b strings.Builder
+	if o.AllFailed != "" {
+		fmt.Fprintf(&b, "%q failed: ", o.AllFailed)
+		if len(o.Failed) > 0 {
+			fmt.Fprintf(&b, "channel(s) %s, closed by this tool, may still be CLOSED, and any relay closed by other means", strings.Join(o.Failed, ", "))
+		} else {
+			b.WriteString("any relay may still be closed")
+		}
+		return b.String()
+	}
 	switch {
 	case len(o.Opened) == 0 && len(o.Failed) == 0:
 		b.WriteString("no channel known to be closed, none opened")
@@ -78,7 +91,8 @@ func (d *SwitchDriver) OpenAllReport(ctx context.Context) (Opening, error) {
 			return o, d.wrap(err)
 		}
 		if err := d.s.Write(ctx, cmd); err != nil {
-			return o, err
+			o.AllFailed, o.Failed = cmd, d.Tracked()
+			return o, d.wrap(err)
 		}
 		o.AllCommand = cmd
 		d.mu.Lock()

@@ -2,7 +2,6 @@ package procedure
 
 import (
 	"context"
-	"errors"
 	"fmt"
 	"math"
 	"strings"
@@ -289,6 +288,7 @@ func (r *runner) safeState(runCtx context.Context) error {
 	defer cancel()
 	var errs []error
 	failed := map[string]bool{}
+	offFailed := map[string]bool{} // roles whose output-off failed: they may still be on
 	call := func(a safety.PowerAction) {
 		if failed[a.Role] && a.Op == safety.PowerSetVolts {
 			return
@@ -298,11 +298,16 @@ func (r *runner) safeState(runCtx context.Context) error {
 		ccancel()
 		if err != nil && r.redialOnce(ctx, a.Role, err) {
 			cctx, ccancel = context.WithTimeout(ctx, r.timing.SafeCallTimeout)
-			err = r.do(cctx, a)
+			if err = r.do(cctx, a); err != nil {
+				err = fmt.Errorf("on a new connection, %w", err)
+			}
 			ccancel()
 		}
 		if err != nil {
 			failed[a.Role] = true
+			if a.Op == safety.PowerOutputOff {
+				offFailed[a.Role] = true
+			}
 			errs = append(errs, err)
 			return
 		}
@@ -346,11 +351,30 @@ func (r *runner) safeState(runCtx context.Context) error {
 			r.powered = false
 		}
 	}
+	// What may still be on: generator outputs, sources, supplies.
+	var remains []string
+	for _, ch := range sortedKeys(r.genOn) {
+		remains = append(remains, "generator output "+ch)
+	}
+	for _, role := range safety.SourceRoles(r.p) {
+		if !r.srcSafe[role] {
+			remains = append(remains, fmt.Sprintf("%s (last set to %s)", role, plan.FormatVolts(safety.SourceVolts(r.state, role))))
+		}
+	}
+	for _, role := range []string{plan.RoleSupplyPos, plan.RoleSupplyNeg} {
+		if r.supply(role) == nil {
+			continue
+		}
+		if len(live) > 0 || offFailed[role] {
+			remains = append(remains, fmt.Sprintf("%s (last set to %s)", role, plan.FormatVolts(roleVolts(r.state, role))))
+		}
+	}
 	if r.chamber && r.rig.Chamber != nil {
 		amb := r.p.Temperature.AmbientCelsius
 		cctx, ccancel := context.WithTimeout(ctx, r.timing.SafeCallTimeout)
 		if err := r.rig.Chamber.SetPointCelsius(cctx, amb); err != nil {
 			errs = append(errs, fmt.Errorf("chamber: set point %g °C (ambient): %w", amb, err))
+			remains = append(remains, fmt.Sprintf("chamber (set point not returned to ambient %g °C: it may be hot or cold)", amb))
 		} else {
 			r.event(journal.Event{Type: journal.EventTemperatureSet, TemperatureC: amb, Detail: "safe state: chamber set back to ambient"})
 		}
@@ -360,12 +384,17 @@ func (r *runner) safeState(runCtx context.Context) error {
 		cctx, ccancel := context.WithTimeout(ctx, r.timing.SafeCallTimeout)
 		rs, err := openSwitch(cctx, r.rig.Switch)
 		if err != nil {
-			errs = append(errs, fmt.Errorf("switch: %w", err))
+			errs = append(errs, fmt.Errorf("switch: open the relays: %w", err))
 		}
 		r.relays = rs
 		ccancel()
+	} else if r.rig.Switch != nil && !operator.HandSwap(r.p) {
+		r.relays = relayState{words: "not opened: the part may still be powered"}
 	}
-	return errors.Join(errs...)
+	if len(errs) == 0 {
+		return nil
+	}
+	return &SafeStateError{Hazard: len(remains) > 0, Remains: remains, Problems: errs, p: r.p, redialed: r.redialed}
 }
 
 func isSourceRole(role string) bool {
