@@ -65,7 +65,7 @@ func Off(ctx context.Context, p *plan.Plan, rig *Rig, opt OffOptions) (*OffRepor
 		defer cancel()
 		return f(cctx)
 	}
-	down := func(role string, o output, supply bool) {
+	down := func(role string, o output) {
 		v, ok, how := r.rampStart(ctx, role, o, 0, false)
 		var err error
 		if !ok {
@@ -93,11 +93,6 @@ func Off(ctx context.Context, p *plan.Plan, rig *Rig, opt OffOptions) (*OffRepor
 			return
 		}
 		note("%s: output off", role)
-		if supply {
-			if err := call(func(c context.Context) error { return o.SetVolts(c, 0) }); err != nil {
-				errs = append(errs, fmt.Errorf("%s: set 0 V: %w", role, err))
-			}
-		}
 	}
 	// Generator outputs first: no sine rides on a rail being ramped down.
 	for _, ch := range sortedKeys(rig.Generators) {
@@ -110,12 +105,35 @@ func Off(ctx context.Context, p *plan.Plan, rig *Rig, opt OffOptions) (*OffRepor
 	}
 	for _, role := range safety.SourceRoles(p) {
 		if src := r.source(role); src != nil {
-			down(role, src, false)
+			down(role, src)
 		}
 	}
-	for _, role := range []string{plan.RoleSupplyPos, plan.RoleSupplyNeg} {
-		if sup := r.supply(role); sup != nil {
-			down(role, sup, true)
+	// The rails together, taking turns (railsdown.go), then both off.
+	st := r.railStarts(ctx, note)
+	if err := r.rampRailsDown(ctx, st, call); err != nil {
+		errs = append(errs, err)
+	} else {
+		for _, rail := range []struct {
+			role string
+			v    float64
+		}{{plan.RoleSupplyPos, st.PosVolts}, {plan.RoleSupplyNeg, st.NegVolts}} {
+			if r.supply(rail.role) != nil {
+				note("%s: ramped from %s to 0 V", rail.role, plan.FormatVolts(rail.v))
+			}
+		}
+	}
+	for _, role := range []string{plan.RoleSupplyNeg, plan.RoleSupplyPos} {
+		sup := r.supply(role)
+		if sup == nil {
+			continue
+		}
+		if err := call(func(c context.Context) error { return sup.SetOutput(c, false) }); err != nil {
+			errs = append(errs, fmt.Errorf("%s: switch off: %w", role, err))
+			continue
+		}
+		note("%s: output off", role)
+		if err := call(func(c context.Context) error { return sup.SetVolts(c, 0) }); err != nil {
+			errs = append(errs, fmt.Errorf("%s: set 0 V: %w", role, err))
 		}
 	}
 	if rig.Switch != nil {

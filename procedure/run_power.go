@@ -67,8 +67,9 @@ func (r *runner) checkSupplyCurrent(ctx context.Context) error {
 // asks for a part. The bench's state at the start is not known: a run
 // killed outright (kill -9, a crash, a power cut of the computer) leaves
 // the outputs as they were. Each source is read back, ramped to 0 V in
-// steps of at most safety.ramp_step_volts and switched off; then each
-// supply the same way. The part sees at worst its supplies ramped down
+// steps of at most safety.ramp_step_volts and switched off; then both
+// supplies are read back and ramped down together, taking turns
+// (safety.RailsDownFrom), and switched off. The part sees at worst its supplies ramped down
 // with its inputs at ground, never an input beyond the rails of an
 // unpowered part. An output that cannot be brought down stops the run
 // before anything else happens.
@@ -79,7 +80,7 @@ func (r *runner) benchOff(ctx context.Context) error {
 		SetOutput(context.Context, bool) error
 		ReadVolts(context.Context) (float64, error)
 	}
-	down := func(role string, o output, supply bool) error {
+	down := func(role string, o output) error {
 		v, ok, how := r.rampStart(ctx, role, o, 0, false)
 		if !ok {
 			r.note("%s: %s", role, how)
@@ -97,12 +98,6 @@ func (r *runner) benchOff(ctx context.Context) error {
 		if err := o.SetOutput(ctx, false); err != nil {
 			return fmt.Errorf("%s: switch off before the first unit: %w", role, err)
 		}
-		if supply {
-			// Programmed to 0 V too, so the next power-up starts there.
-			if err := o.SetVolts(ctx, 0); err != nil {
-				return fmt.Errorf("%s: set 0 V before the first unit: %w", role, err)
-			}
-		}
 		return nil
 	}
 	if errs := r.generatorsOff(ctx, 0); len(errs) > 0 {
@@ -110,17 +105,30 @@ func (r *runner) benchOff(ctx context.Context) error {
 	}
 	for _, role := range safety.SourceRoles(r.p) {
 		if src := r.source(role); src != nil {
-			if err := down(role, src, false); err != nil {
+			if err := down(role, src); err != nil {
 				return err
 			}
 			r.srcSafe[role] = true
 		}
 	}
-	for _, role := range []string{plan.RoleSupplyPos, plan.RoleSupplyNeg} {
-		if sup := r.supply(role); sup != nil {
-			if err := down(role, sup, true); err != nil {
-				return err
-			}
+	// The rails together, taking turns (railsdown.go): from shifted rails
+	// the far one comes in first, so the inputs at ground keep their
+	// common-mode margin while the part is still powered.
+	st := r.railStarts(ctx, r.note)
+	if err := r.rampRailsDown(ctx, st, func(f func(context.Context) error) error { return f(ctx) }); err != nil {
+		return fmt.Errorf("before the first unit: %w", err)
+	}
+	for _, role := range []string{plan.RoleSupplyNeg, plan.RoleSupplyPos} {
+		sup := r.supply(role)
+		if sup == nil {
+			continue
+		}
+		if err := sup.SetOutput(ctx, false); err != nil {
+			return fmt.Errorf("%s: switch off before the first unit: %w", role, err)
+		}
+		// Programmed to 0 V too, so the next power-up starts there.
+		if err := sup.SetVolts(ctx, 0); err != nil {
+			return fmt.Errorf("%s: set 0 V before the first unit: %w", role, err)
 		}
 	}
 	r.state = plan.BenchState{}

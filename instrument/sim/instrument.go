@@ -72,6 +72,10 @@ type instrument struct {
 	term      string
 	busyFor   time.Duration
 	busyUntil time.Time // wall clock; guarded by mu
+
+	// record, when set (Start), notes each message executed in the
+	// bench's history (history.go).
+	record func(name, line string)
 }
 
 func newInstrument(name, role, profile, idn string, dev device) *instrument {

@@ -177,6 +177,9 @@ func (in *instrument) serveStream(ctx context.Context, rw io.ReadWriter, dropClo
 			}
 		}
 		resp, has := in.execute(ctx, line)
+		if in.record != nil {
+			in.record(in.name, line)
+		}
 		for _, f := range in.faults.take(line, FaultQueueError) {
 			in.mu.Lock()
 			msg := f.Message
