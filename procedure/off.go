@@ -38,7 +38,8 @@ type OffReport struct {
 // the chamber's set point
 // returns to temperature.ambient_c. It carries on past a failing
 // instrument so that the others still reach their safe state, and returns
-// every failure. A role the rig lacks is skipped (the plan may bind
+// every failure as a *SafeStateError (Hazard when an output may still be
+// on). A role the rig lacks is skipped (the plan may bind
 // instruments that are not connected now).
 func Off(ctx context.Context, p *plan.Plan, rig *Rig, opt OffOptions) (*OffReport, error) {
 	if p == nil || rig == nil {
@@ -50,6 +51,7 @@ func Off(ctx context.Context, p *plan.Plan, rig *Rig, opt OffOptions) (*OffRepor
 	r := newRunner(p, rig, RunOptions{Clock: opt.Clock, Log: opt.Log, Timing: opt.Timing})
 	rep := &OffReport{}
 	var errs []error
+	var remains []string // outputs that may still be on (SafeStateError.Remains)
 	note := func(format string, args ...any) {
 		s := fmt.Sprintf(format, args...)
 		rep.Actions = append(rep.Actions, s)
@@ -90,6 +92,7 @@ func Off(ctx context.Context, p *plan.Plan, rig *Rig, opt OffOptions) (*OffRepor
 		}
 		if err := call(func(c context.Context) error { return o.SetOutput(c, false) }); err != nil {
 			errs = append(errs, fmt.Errorf("%s: switch off: %w", role, err))
+			remains = append(remains, role)
 			return
 		}
 		note("%s: output off", role)
@@ -99,6 +102,7 @@ func Off(ctx context.Context, p *plan.Plan, rig *Rig, opt OffOptions) (*OffRepor
 		g := rig.Generators[ch]
 		if err := call(func(c context.Context) error { return g.SetOutput(c, false) }); err != nil {
 			errs = append(errs, fmt.Errorf("generator output %s: switch off: %w", ch, err))
+			remains = append(remains, "generator output "+ch)
 		} else {
 			note("generator output %s: off", ch)
 		}
@@ -129,6 +133,7 @@ func Off(ctx context.Context, p *plan.Plan, rig *Rig, opt OffOptions) (*OffRepor
 		}
 		if err := call(func(c context.Context) error { return sup.SetOutput(c, false) }); err != nil {
 			errs = append(errs, fmt.Errorf("%s: switch off: %w", role, err))
+			remains = append(remains, role)
 			continue
 		}
 		note("%s: output off", role)
@@ -149,9 +154,15 @@ func Off(ctx context.Context, p *plan.Plan, rig *Rig, opt OffOptions) (*OffRepor
 		amb := p.Temperature.AmbientCelsius
 		if err := call(func(c context.Context) error { return rig.Chamber.SetPointCelsius(c, amb) }); err != nil {
 			errs = append(errs, fmt.Errorf("chamber: set point %g °C: %w", amb, err))
+			remains = append(remains, fmt.Sprintf("chamber (set point not returned to ambient %g °C)", amb))
 		} else {
 			note("chamber: set point %g °C", amb)
 		}
 	}
-	return rep, errors.Join(errs...)
+	if len(errs) == 0 {
+		return rep, nil
+	}
+	// Hazard only when an output may still be on: relays left closed on
+	// an unpowered part are said as such (SafeStateError).
+	return rep, &SafeStateError{Hazard: len(remains) > 0, Remains: remains, Problems: errs, p: p, redialed: r.redialed}
 }

@@ -2,6 +2,7 @@ package main
 
 import (
 	"context"
+	"errors"
 	"fmt"
 
 	"github.com/spf13/cobra"
@@ -61,6 +62,15 @@ func runOff(ctx context.Context, std streams, o offOptions) error {
 		}
 	}
 	if err != nil {
+		// The error says whether an output may still be on ("SAFE STATE
+		// NOT REACHED") or only relays or the like could not be set.
+		var se *procedure.SafeStateError
+		if errors.As(err, &se) {
+			if !se.Hazard && rep != nil && rep.Relays != "" {
+				err = fmt.Errorf("%w\n    - switch: %s", err, rep.Relays)
+			}
+			return withCode(exitInstrument, err)
+		}
 		return withCode(exitInstrument, fmt.Errorf("the bench may NOT be in its safe state; check these outputs by hand:\n%w", err))
 	}
 	switch {
