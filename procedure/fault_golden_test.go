@@ -41,6 +41,10 @@ func TestFaultMessagesGolden(t *testing.T) {
 	}{
 		{"set_refused", []fault{{sim.NameSupply, sim.Fault{Kind: sim.FaultQueueError, Match: "VOLT 1", Code: -222, Message: "Data out of range"}}}, false, true},
 		{"query_timeout", []fault{{sim.NameSupply, sim.Fault{Kind: sim.FaultNoReply, Match: "MEAS:VOLT?"}}}, false, true},
+		{"query_timeout_queue", []fault{
+			{sim.NameSupply, sim.Fault{Kind: sim.FaultQueueError, Match: "MEAS:VOLT?", Code: -230, Message: "Data corrupt or stale"}},
+			{sim.NameSupply, sim.Fault{Kind: sim.FaultNoReply, Match: "MEAS:VOLT?"}},
+		}, false, true},
 		{"connection_dropped_redialed", []fault{{sim.NameSupply, sim.Fault{Kind: sim.FaultDrop, Match: "MEAS:VOLT?"}}}, false, true},
 		{"connection_dropped_for_good", []fault{{sim.NameSupply, sim.Fault{Kind: sim.FaultDrop, Match: "VOLT", Persistent: true}}}, true, false},
 		{"relays_not_opened", []fault{
