@@ -2,6 +2,7 @@ package safety
 
 import (
 	"math"
+	"strings"
 	"testing"
 
 	"nullbench/procedure/plan"
@@ -53,8 +54,12 @@ func marginKept(p *plan.Plan, from plan.BenchState, acts []PowerAction) (worst f
 // (rampRails) does not, from a supply-shifted common-mode level: that is
 // what the alternating descent is for.
 func TestPowerDownKeepsTheCommonModeMargin(t *testing.T) {
-	for _, name := range []string{"lot", "board", "noise_gain"} {
-		p := loadExamplePlan(t, name)
+	for _, name := range []string{"lot", "lot input_drive", "board", "noise_gain"} {
+		file, mode, _ := strings.Cut(name, " ")
+		p := loadExamplePlan(t, file)
+		if mode != "" {
+			p.Fixture.CommonMode = mode
+		}
 		for i := range p.Tests {
 			test := &p.Tests[i]
 			for _, part := range sweepParts(test) {
@@ -69,21 +74,20 @@ func TestPowerDownKeepsTheCommonModeMargin(t *testing.T) {
 					if err := checkRamp(p, from, down); err != nil {
 						t.Errorf("%s test[%d] %s level %g: %v", name, i+1, test.Kind, lvl, err)
 					}
-					var rails []PowerAction
-					s := from
-					for _, a := range down {
-						if a.Role == plan.RoleSupplyPos || a.Role == plan.RoleSupplyNeg {
-							rails = append(rails, a)
-						} else {
-							s = ApplyAction(s, a)
-						}
-					}
-					if w := marginKept(p, s, rails); w > 1e-9 {
+					// Every action, the sources' ramps included.
+					if w := marginKept(p, from, down); w > 1e-9 {
 						t.Errorf("%s test[%d] %s level %g: the common-mode margin falls %.3g V short on the way down", name, i+1, test.Kind, lvl, w)
 					}
 				}
 			}
 		}
+	}
+	// In input-drive mode the common-mode source holds the level and
+	// comes down first (the check above covered its steps too).
+	pi := loadExamplePlan(t, "lot")
+	pi.Fixture.CommonMode = plan.CMByInputDrive
+	if s := plan.StateAt(pi, &pi.Tests[0], "", 10); s.CMVolts != 10 || s.PosVolts != 15 {
+		t.Errorf("lot test[1] by input drive at +10 V: %+v, want the source at 10 V and V+ at 15 V", s)
 	}
 	// The case that needs it: CMRR by supply shift at +10 V (V+ +5 V,
 	// V− −25 V: the inputs at ground sit 10 V above the rails' middle;
