@@ -89,14 +89,15 @@ func doingBefore(err, inner error) string {
 
 // SafeStateError is a safe state with problems. Hazard says whether
 // something that can hurt the part or a person may remain: a supply,
-// source or generator output that may still be on or driven, or a chamber
-// not set back to ambient. Relays that could not be opened with every
+// source or generator output that may still be on or driven, a rail
+// switched off but still programmed away from 0 V (its ramp failed), or a
+// chamber not set back to ambient. Relays that could not be opened with every
 // output off are not a hazard (the part is unpowered); the message then
 // says so instead of "SAFE STATE NOT REACHED".
 type SafeStateError struct {
 	Hazard bool
-	// Remains lists, in words, what may still be on ("supply_pos (last
-	// set to +24 V)").
+	// Remains lists, in words, what may remain ("supply_pos may still be
+	// on (last set to +24 V)").
 	Remains []string
 	// Problems are every failure met, in order.
 	Problems []error
@@ -110,7 +111,7 @@ func (e *SafeStateError) Error() string {
 	if e.Hazard {
 		b.WriteString("SAFE STATE NOT REACHED, check the bench by hand")
 		if len(e.Remains) > 0 {
-			b.WriteString(": may still be on: " + strings.Join(e.Remains, ", "))
+			b.WriteString(": " + strings.Join(e.Remains, "; "))
 		}
 	} else {
 		b.WriteString("every supply, source and generator output is off (the part is unpowered), but")

@@ -92,7 +92,7 @@ func Off(ctx context.Context, p *plan.Plan, rig *Rig, opt OffOptions) (*OffRepor
 		}
 		if err := call(func(c context.Context) error { return o.SetOutput(c, false) }); err != nil {
 			errs = append(errs, fmt.Errorf("%s: switch off: %w", role, err))
-			remains = append(remains, role)
+			remains = append(remains, role+" may still be on")
 			return
 		}
 		note("%s: output off", role)
@@ -102,7 +102,7 @@ func Off(ctx context.Context, p *plan.Plan, rig *Rig, opt OffOptions) (*OffRepor
 		g := rig.Generators[ch]
 		if err := call(func(c context.Context) error { return g.SetOutput(c, false) }); err != nil {
 			errs = append(errs, fmt.Errorf("generator output %s: switch off: %w", ch, err))
-			remains = append(remains, "generator output "+ch)
+			remains = append(remains, "generator output "+ch+" may still be on")
 		} else {
 			note("generator output %s: off", ch)
 		}
@@ -133,7 +133,7 @@ func Off(ctx context.Context, p *plan.Plan, rig *Rig, opt OffOptions) (*OffRepor
 		}
 		if err := call(func(c context.Context) error { return sup.SetOutput(c, false) }); err != nil {
 			errs = append(errs, fmt.Errorf("%s: switch off: %w", role, err))
-			remains = append(remains, role)
+			remains = append(remains, role+" may still be on")
 			continue
 		}
 		note("%s: output off", role)
@@ -154,7 +154,7 @@ func Off(ctx context.Context, p *plan.Plan, rig *Rig, opt OffOptions) (*OffRepor
 		amb := p.Temperature.AmbientCelsius
 		if err := call(func(c context.Context) error { return rig.Chamber.SetPointCelsius(c, amb) }); err != nil {
 			errs = append(errs, fmt.Errorf("chamber: set point %g °C: %w", amb, err))
-			remains = append(remains, fmt.Sprintf("chamber (set point not returned to ambient %g °C)", amb))
+			remains = append(remains, fmt.Sprintf("the chamber's set point was not returned to ambient %g °C (it may be hot or cold)", amb))
 		} else {
 			note("chamber: set point %g °C", amb)
 		}

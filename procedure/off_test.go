@@ -112,7 +112,7 @@ func TestOffSaysNotReachedOnlyForAHazard(t *testing.T) {
 			if se.Hazard != tc.hazard || strings.Contains(msg, "SAFE STATE NOT REACHED") != tc.hazard {
 				t.Errorf("hazard %v, want %v:\n%s", se.Hazard, tc.hazard, msg)
 			}
-			if tc.hazard && !strings.Contains(msg, "may still be on: supply_pos") {
+			if tc.hazard && !strings.Contains(msg, "supply_pos may still be on") {
 				t.Errorf("does not name the supply left on:\n%s", msg)
 			}
 			if !tc.hazard && !strings.Contains(msg, "the part is unpowered") {

@@ -362,19 +362,25 @@ func (r *runner) safeState(runCtx context.Context) error {
 	// What may still be on: generator outputs, sources, supplies.
 	var remains []string
 	for _, ch := range sortedKeys(r.genOn) {
-		remains = append(remains, "generator output "+ch)
+		remains = append(remains, "generator output "+ch+" may still be on")
 	}
 	for _, role := range safety.SourceRoles(r.p) {
 		if !r.srcSafe[role] {
-			remains = append(remains, fmt.Sprintf("%s (last set to %s)", role, plan.FormatVolts(safety.SourceVolts(r.state, role))))
+			remains = append(remains, fmt.Sprintf("%s may still be on (last set to %s)", role, plan.FormatVolts(safety.SourceVolts(r.state, role))))
 		}
 	}
 	for _, role := range []string{plan.RoleSupplyPos, plan.RoleSupplyNeg} {
 		if r.supply(role) == nil {
 			continue
 		}
-		if len(live) > 0 || offFailed[role] {
-			remains = append(remains, fmt.Sprintf("%s (last set to %s)", role, plan.FormatVolts(roleVolts(r.state, role))))
+		v := roleVolts(r.state, role)
+		switch {
+		case len(live) > 0 || offFailed[role]:
+			remains = append(remains, fmt.Sprintf("%s may still be on (last set to %s)", role, plan.FormatVolts(v)))
+		case failed[role] && v != 0:
+			// Off, but not ramped to 0 V: the rail comes back at this
+			// voltage when its output is switched on.
+			remains = append(remains, fmt.Sprintf("%s is off but still programmed to %s (its ramp to 0 V failed)", role, plan.FormatVolts(v)))
 		}
 	}
 	if r.chamber && r.rig.Chamber != nil {
@@ -382,7 +388,7 @@ func (r *runner) safeState(runCtx context.Context) error {
 		cctx, ccancel := context.WithTimeout(ctx, r.timing.SafeCallTimeout)
 		if err := r.rig.Chamber.SetPointCelsius(cctx, amb); err != nil {
 			errs = append(errs, fmt.Errorf("chamber: set point %g °C (ambient): %w", amb, err))
-			remains = append(remains, fmt.Sprintf("chamber (set point not returned to ambient %g °C: it may be hot or cold)", amb))
+			remains = append(remains, fmt.Sprintf("the chamber's set point was not returned to ambient %g °C (it may be hot or cold)", amb))
 		} else {
 			r.event(journal.Event{Type: journal.EventTemperatureSet, TemperatureC: amb, Detail: "safe state: chamber set back to ambient"})
 		}
