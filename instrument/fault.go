@@ -169,3 +169,26 @@ func rootCause(err error) error {
 		err = next
 	}
 }
+
+// OpenError is a failure to open an instrument after it was dialed:
+// identification, the identity check or the first error-queue read. Its
+// message states the fault once, with the address in the instrument's
+// label ("src (tcp://...) did not answer "*IDN?" in time; ...").
+type OpenError struct {
+	Name, Address string
+	Err           error
+}
+
+func (e *OpenError) Error() string {
+	if f, ok := FaultOf(e.Err); ok && f.Instrument == e.Name && doingSuffix(e.Err, f.Err) {
+		f.Context = e.Address
+		return "open failed: " + f.Sentence()
+	}
+	return fmt.Sprintf("instrument %s at %s: %v", e.Name, e.Address, e.Err)
+}
+
+func (e *OpenError) Unwrap() error { return e.Err }
+
+// doingSuffix reports whether inner's text is all of err's (nothing was
+// wrapped around it that the sentence would lose).
+func doingSuffix(err, inner error) bool { return err.Error() == inner.Error() }

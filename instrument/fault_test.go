@@ -3,6 +3,7 @@ package instrument_test
 import (
 	"context"
 	"errors"
+	"net"
 	"strings"
 	"testing"
 	"time"
@@ -112,5 +113,41 @@ readback_offset_volts = 0
 	msg := err.Error()
 	if !strings.HasPrefix(msg, `loop (supply channel 2): after "BADVOLT 5": instrument error -113`) || strings.Count(msg, "loop") != 1 {
 		t.Errorf("error %q names the instrument more than once or not first", msg)
+	}
+}
+
+// An instrument that accepts the connection but never answers is named
+// once, with its address, in the error of Open.
+func TestOpenErrorNamesTheInstrumentOnce(t *testing.T) {
+	ln, err := net.Listen("tcp", "127.0.0.1:0")
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer ln.Close()
+	go func() {
+		for {
+			c, err := ln.Accept()
+			if err != nil {
+				return
+			}
+			defer c.Close() // silent: reads nothing, answers nothing
+		}
+	}()
+	addr, err := instrument.ParseAddress("tcp://" + ln.Addr().String())
+	if err != nil {
+		t.Fatal(err)
+	}
+	p, err := instrument.BuiltinProfile("source3")
+	if err != nil {
+		t.Fatal(err)
+	}
+	p.Timeout = 100 * time.Millisecond
+	_, err = instrument.OpenWith(context.Background(), "src", addr, p, instrument.OpenOptions{})
+	if !errors.Is(err, instrument.ErrTimeout) {
+		t.Fatalf("open a silent instrument: %v, want a time-out", err)
+	}
+	want := `open failed: src (` + addr.String() + `) did not answer "*IDN?" in time`
+	if msg := err.Error(); !strings.HasPrefix(msg, want) || strings.Count(msg, "src") != 1 {
+		t.Errorf("%q\nwant it to start %q and name src only there", msg, want)
 	}
 }
