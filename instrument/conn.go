@@ -51,9 +51,13 @@ var (
 
 // DialOptions configure a transport.
 type DialOptions struct {
-	// Terminator ends each response message: "\n" (the default), "\r\n"
-	// or "\r". Raw sockets carry no END signal, so LF ends a message
-	// (IEEE 488.2 response terminator NL^END).
+	// Terminator ends each response message: "\n" (the default; IEEE
+	// 488.2 response terminator NL^END, raw sockets carrying no END
+	// signal), "\r\n", "\r", or any other string CheckTerminator
+	// accepts (an instrument that ends its messages with ETX, or with
+	// CR LF EOT). Under "\n" and "\r\n" a message ends at LF and a CR
+	// before it is dropped; under any other terminator a message ends
+	// exactly where the whole terminator string appears.
 	Terminator string
 	// ConnectTimeout bounds Dial when ctx has no deadline (default 5 s).
 	ConnectTimeout time.Duration
@@ -81,13 +85,38 @@ func (o DialOptions) withDefaults() DialOptions {
 	return o
 }
 
-func checkTerminator(t string) error {
-	switch t {
-	case "\n", "\r\n", "\r":
-		return nil
+// MaxTerminatorBytes is the longest message terminator CheckTerminator
+// accepts.
+const MaxTerminatorBytes = 8
+
+// CheckTerminator says whether t can end SCPI messages: 1 to
+// MaxTerminatorBytes bytes whose FIRST byte is an ASCII control character
+// (0x00-0x1F or DEL). Response data other than blocks is printable ASCII
+// (IEEE 488.2 §8.7: <NR1>…<NR3> numbers, strings and character data), so a
+// terminator that starts with a control character can only match where
+// the instrument put it; one that starts with a printable byte (";", "OK")
+// would cut replies that contain it. The bytes after the first may be
+// anything (a prompt such as "\r\n> " is allowed). Binary block data is
+// read by its announced length, never searched for the terminator.
+func CheckTerminator(t string) error {
+	switch {
+	case t == "":
+		return errors.New(`terminator is empty: give "\n" (the default), "\r\n", "\r" or another string starting with a control character`)
+	case len(t) > MaxTerminatorBytes:
+		return fmt.Errorf("terminator %q is %d bytes; at most %d", t, len(t), MaxTerminatorBytes)
+	case !isControl(t[0]):
+		return fmt.Errorf("terminator %q starts with %q, a printable character that replies may contain: start it with a control character such as \"\\n\", \"\\r\" or \"\\u0003\" (ETX)", t, t[:1])
 	}
-	return fmt.Errorf("terminator %q: use \"\\n\", \"\\r\\n\" or \"\\r\"", t)
+	return nil
 }
+
+func checkTerminator(t string) error { return CheckTerminator(t) }
+
+func isControl(b byte) bool { return b < 0x20 || b == 0x7f }
+
+// lfTerminated reports the two terminators read leniently: a message ends
+// at LF, with an optional CR before it dropped.
+func lfTerminated(t string) bool { return t == "\n" || t == "\r\n" }
 
 // Dial opens a transport to addr. Only cmd (the application) dials and
 // closes; procedures receive roles.
@@ -114,35 +143,36 @@ type fillFunc func(ctx context.Context, p []byte) (int, error)
 type lineBuffer struct {
 	pending []byte
 	scratch []byte
-	last    byte // last byte of the terminator: the split point
-	lf      bool // terminator ends in LF: strip an optional CR too
+	term    []byte // the split point: LF for "\n" and "\r\n", else the whole terminator
+	lf      bool   // "\n" or "\r\n": strip an optional CR too
 	max     int
 }
 
 func newLineBuffer(opts DialOptions) *lineBuffer {
 	t := opts.Terminator
-	return &lineBuffer{
-		scratch: make([]byte, 64<<10),
-		last:    t[len(t)-1],
-		lf:      t[len(t)-1] == '\n',
-		max:     opts.MaxMessageBytes,
+	b := &lineBuffer{scratch: make([]byte, 64<<10), term: []byte(t), max: opts.MaxMessageBytes}
+	if lfTerminated(t) {
+		b.term, b.lf = []byte{'\n'}, true
 	}
+	return b
 }
 
 func (b *lineBuffer) readLine(ctx context.Context, fill fillFunc) ([]byte, error) {
 	searched := 0
 	for {
-		if i := bytes.IndexByte(b.pending[searched:], b.last); i >= 0 {
+		if i := bytes.Index(b.pending[searched:], b.term); i >= 0 {
 			i += searched
 			line := b.pending[:i]
 			if b.lf && len(line) > 0 && line[len(line)-1] == '\r' {
 				line = line[:len(line)-1]
 			}
 			out := append([]byte(nil), line...)
-			b.consume(i + 1)
+			b.consume(i + len(b.term))
 			return out, nil
 		}
-		searched = len(b.pending)
+		// A terminator may straddle the next read: search again from
+		// the last len(term)-1 bytes.
+		searched = max(0, len(b.pending)-len(b.term)+1)
 		if len(b.pending) > b.max {
 			n := len(b.pending)
 			b.pending = b.pending[:0]

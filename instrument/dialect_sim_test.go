@@ -2,6 +2,7 @@ package instrument_test
 
 import (
 	"context"
+	"errors"
 	"math"
 	"slices"
 	"strings"
@@ -340,5 +341,76 @@ func TestSessionOptionsOnTheWire(t *testing.T) {
 		}
 	case <-time.After(5 * time.Second):
 		t.Fatal("nothing arrived")
+	}
+}
+
+// A source that ends its messages with CR LF EOT (sim dialect src_eot):
+// driven through its built-in profile, set and read-back work on every
+// channel; the LF profile of the same source gets no whole reply (the
+// instrument never sends a bare LF at the end of a message, and waits for
+// CR LF EOT before it acts).
+func TestSourceWithEOTTerminator(t *testing.T) {
+	ctx := context.Background()
+	b, in := openDialectBench(t, []string{"src_eot"}, "src", nil)
+	if in.Profile.Terminator != sim.TerminatorEOT {
+		t.Fatalf("profile %s terminator %q, want %q", in.Profile.Name, in.Profile.Terminator, sim.TerminatorEOT)
+	}
+	id, err := in.Session.Identify(ctx)
+	if err != nil || id.Raw != sim.IDNSourceEOT {
+		t.Fatalf("*IDN? = %q, %v", id.Raw, err)
+	}
+	for i, ch := range []string{"1", "2", "3"} {
+		src, err := instrument.NewSource(in.Session, in.Profile, ch, noSettle)
+		if err != nil {
+			t.Fatal(err)
+		}
+		want := 1.5 * float64(i+1)
+		if err := src.SetVolts(ctx, want); err != nil {
+			t.Fatal(err)
+		}
+		if err := src.SetOutput(ctx, true); err != nil {
+			t.Fatal(err)
+		}
+		b.Clock().(*sim.ManualClock).Advance(time.Second) // the output slews
+		got, err := src.ReadVolts(ctx)
+		if err != nil {
+			t.Fatal(err)
+		}
+		// The source's accuracy, 300 ppm + 5 mV on program and read-back
+		// each (profile figures, common practice, no published source).
+		if tol := 2 * (300e-6*want + 0.005); math.Abs(got-want) > tol {
+			t.Errorf("channel %s reads %g V, want %g V ± %g", ch, got, want, tol)
+		}
+		if err := src.SetOutput(ctx, false); err != nil {
+			t.Fatal(err)
+		}
+	}
+	// The same instrument through an LF profile: no reply ends in a bare
+	// LF, so the query times out instead of reading a wrong value.
+	lf, err := instrument.BuiltinProfile("source3")
+	if err != nil {
+		t.Fatal(err)
+	}
+	lf.IDNPattern, lf.Timeout = "", 200*time.Millisecond
+	b2, err := sim.New(sim.Config{Clock: sim.NewManualClock(), Dialects: []string{"src_eot"}})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := b2.Start(ctx, sim.ServeOptions{}); err != nil {
+		t.Fatal(err)
+	}
+	defer b2.Close()
+	addr, err := instrument.ParseAddress(endpoint(t, b2, "src").Address)
+	if err != nil {
+		t.Fatal(err)
+	}
+	in2, err := instrument.OpenWith(ctx, "src", addr, lf, instrument.OpenOptions{})
+	if err == nil {
+		defer in2.Close()
+		if _, err := in2.Session.Query(ctx, "*IDN?"); err == nil {
+			t.Errorf("an LF session read a reply from a CR LF EOT instrument")
+		}
+	} else if !errors.Is(err, instrument.ErrTimeout) {
+		t.Errorf("open through an LF profile: %v, want a time-out", err)
 	}
 }

@@ -92,11 +92,29 @@ func (b *driverBase) errorf(format string, args ...any) error {
 	return fmt.Errorf("%s: "+format, append([]any{b.label}, args...)...)
 }
 
-// wrap prefixes an error from the session with the role label; session
-// errors already name the instrument and the command.
+// wrap ties an error to the driver: a session error of this instrument
+// (which already names the instrument and the command) gets the role part
+// of the label in its Where, so the instrument is named once ("psu
+// (supply channel 1): ..."), not twice; any other error is prefixed with
+// the label.
 func (b *driverBase) wrap(err error) error {
 	if err == nil {
 		return nil
+	}
+	where := strings.TrimPrefix(b.label, b.s.Name()+" ")
+	var op *OpError
+	if errors.As(err, &op) && op.Instrument == b.s.Name() {
+		if op.Where == "" {
+			op.Where = where
+		}
+		return err
+	}
+	var ie *InstrumentError
+	if errors.As(err, &ie) && ie.Instrument == b.s.Name() {
+		if ie.Where == "" {
+			ie.Where = where
+		}
+		return err
 	}
 	return fmt.Errorf("%s: %w", b.label, err)
 }
@@ -488,44 +506,13 @@ func (d *SwitchDriver) Open(ctx context.Context, channel string) error {
 	return d.move(ctx, d.cmds.Open, channel, false)
 }
 
-// OpenAll opens every relay: with the profile's open_all, in one command;
-// without it, each relay the driver closed or adopted, in channel order,
-// every one tried even when an earlier one fails (the errors are joined).
+// OpenAll opens every relay it can (see Opening): with the profile's
+// open_all, in one command; without it, each relay the driver closed or
+// adopted, in channel order, every one tried even when an earlier one
+// fails (the errors are joined).
 func (d *SwitchDriver) OpenAll(ctx context.Context) error {
-	if d.cmds.OpenAll == "" {
-		return d.openTracked(ctx)
-	}
-	cmd, err := expandTemplate(d.cmds.OpenAll, nil)
-	if err != nil {
-		return d.wrap(err)
-	}
-	if err := d.s.Write(ctx, cmd); err != nil {
-		return d.wrap(err)
-	}
-	d.mu.Lock()
-	clear(d.closed)
-	d.mu.Unlock()
-	return d.wrap(d.opts.settle(ctx, d.cmds.Settle))
-}
-
-func (d *SwitchDriver) openTracked(ctx context.Context) error {
-	var errs []error
-	moved := false
-	for _, ch := range d.Tracked() {
-		err := d.send(ctx, d.cmds.Open, ch, false)
-		if err != nil {
-			errs = append(errs, err)
-			continue
-		}
-		moved = true
-	}
-	if len(errs) > 0 {
-		return d.wrap(fmt.Errorf("no open_all in profile %s; opening the relays closed one by one: %w", d.p.Name, errors.Join(errs...)))
-	}
-	if !moved {
-		return nil
-	}
-	return d.wrap(d.opts.settle(ctx, d.cmds.Settle))
+	_, err := d.OpenAllReport(ctx)
+	return err
 }
 
 func (d *SwitchDriver) move(ctx context.Context, tpl, channel string, closed bool) error {

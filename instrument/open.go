@@ -76,7 +76,7 @@ func OpenWith(ctx context.Context, name string, addr Address, p *Profile, opts O
 	in := &Instrument{Name: name, Address: addr, Profile: p, Session: s}
 	fail := func(err error) (*Instrument, error) {
 		_ = c.Close()
-		return nil, fmt.Errorf("instrument %s at %s: %w", name, addr, err)
+		return nil, &OpenError{Name: name, Address: addr.String(), Err: err}
 	}
 	if err := c.Drain(ctx); err != nil {
 		return fail(err)

@@ -38,7 +38,7 @@ var benchIdentities = map[string]string{
 
 func TestBuiltinProfiles(t *testing.T) {
 	names := instrument.BuiltinProfileNames()
-	if strings.Join(names, ",") != "acvm,chamber,digitizer,dmm,dmm_buffer,dmm_initfetch,dmm_opc,dmm_single,dmm_trigfetch,generator,mux_noopenall,psu_chanlist,psu_negout,psu_single,psu_slow,source3,supply2,switch" { // the built-in profile files
+	if strings.Join(names, ",") != "acvm,chamber,digitizer,dmm,dmm_buffer,dmm_initfetch,dmm_opc,dmm_single,dmm_trigfetch,generator,mux_noopenall,psu_chanlist,psu_negout,psu_single,psu_slow,source3,src_eot,supply2,switch" { // the built-in profile files
 		t.Fatalf("built-in profiles = %v", names)
 	}
 	all, err := instrument.BuiltinProfiles()
@@ -170,6 +170,12 @@ offset_ppm_of_range = 4
 			[]string{"t.toml:1: key idn_pattern: not a Go regular expression"}},
 		{"bad terminator", "terminator = \";\"\n" + good,
 			[]string{"t.toml:1: key terminator:"}},
+		{"printable terminator", "terminator = \"OK\\n\"\n" + good,
+			[]string{"t.toml:1: key terminator:", "printable"}},
+		{"empty terminator", "terminator = \"\"\n" + good,
+			[]string{"t.toml:1: key terminator:", "empty"}},
+		{"long terminator", "terminator = \"\\r\\n123456789\"\n" + good,
+			[]string{"t.toml:1: key terminator:", "at most 8"}},
 		{"no name", strings.Replace(good, `name = "t"`, "", 1),
 			[]string{"t.toml: key name: missing"}},
 		{"no role", `name = "t"`,

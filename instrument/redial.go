@@ -33,6 +33,6 @@ func (s *Session) Redial(ctx context.Context) error {
 		return fmt.Errorf("%s: dial again: %w", s.name, err)
 	}
 	_ = s.conn.Close()
-	s.conn, s.resync = c, false
+	s.conn, s.resync, s.lost = c, false, nil
 	return nil
 }

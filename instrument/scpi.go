@@ -220,6 +220,7 @@ func (q QueueEntry) String() string { return fmt.Sprintf("%d,%q", q.Code, q.Mess
 // for the first entry and keeps the rest of the drained queue in More.
 type InstrumentError struct {
 	Instrument string // the session's name, e.g. "dmm"
+	Where      string // the driver's part, e.g. "supply channel 1" (OpError.Where)
 	Command    string // the program message sent, "" when not known
 	Code       int
 	Message    string       // the instrument's text
@@ -231,7 +232,7 @@ func (e *InstrumentError) Class() ErrorClass { return ClassOf(e.Code) }
 
 func (e *InstrumentError) Error() string {
 	var sb strings.Builder
-	sb.WriteString(e.Instrument)
+	sb.WriteString(instrumentLabel(e.Instrument, e.Where))
 	if e.Command != "" {
 		fmt.Fprintf(&sb, ": after %q", e.Command)
 	} else {

@@ -14,7 +14,8 @@ import (
 // supplies its own through Profile.SessionOptions.
 type SessionOptions struct {
 	// Terminator is appended to every program message ("\n" by default;
-	// IEEE 488.2 program message terminator NL).
+	// IEEE 488.2 program message terminator NL; any string
+	// CheckTerminator accepts).
 	Terminator string
 	// Timeout bounds each exchange (one message out and, for a query, its
 	// reply in) unless ctx has an earlier deadline; default 5 s. A
@@ -64,8 +65,14 @@ var ErrOutOfSync = errors.New("session out of step with the instrument")
 // wrong, and what the recovery found.
 type OpError struct {
 	Instrument string
-	Command    string
-	Err        error
+	// Where is the driver's part of the instrument ("supply channel 1"),
+	// set by the driver that made the call; "" on a bare session.
+	Where   string
+	Command string
+	// After is the command sent just before in the same call, whose
+	// outcome Command was checking ("VOLT 24" before "SYST:ERR?").
+	After string
+	Err   error
 	// Recovery is set when the re-sync after a time-out failed too.
 	Recovery error
 	// Queue holds the error-queue entries read after a time-out (with
@@ -75,10 +82,13 @@ type OpError struct {
 
 func (e *OpError) Error() string {
 	var sb strings.Builder
-	if e.Command != "" {
-		fmt.Fprintf(&sb, "%s: %q: %v", e.Instrument, e.Command, e.Err)
+	sb.WriteString(instrumentLabel(e.Instrument, e.Where))
+	if e.Command != "" && e.After != "" {
+		fmt.Fprintf(&sb, ": %q (after %q): %v", e.Command, e.After, e.Err)
+	} else if e.Command != "" {
+		fmt.Fprintf(&sb, ": %q: %v", e.Command, e.Err)
 	} else {
-		fmt.Fprintf(&sb, "%s: %v", e.Instrument, e.Err)
+		fmt.Fprintf(&sb, ": %v", e.Err)
 	}
 	if len(e.Queue) > 0 {
 		sb.WriteString("; the instrument's error queue then held:")
@@ -156,6 +166,7 @@ type Session struct {
 	sem  chan struct{} // holds one token while a caller owns the connection
 
 	resync bool                                // guarded by sem: a stale reply may be pending
+	lost   *OpError                            // guarded by sem: the exchange that found the connection closed (until Redial)
 	redial func(context.Context) (Conn, error) // redial.go; nil: cannot
 
 	idMu sync.Mutex
@@ -295,7 +306,10 @@ func (t *Tx) begin(ctx context.Context, cmd string) error {
 	if cmd == "" || strings.ContainsAny(cmd, "\r\n") {
 		return &OpError{Instrument: t.s.name, Command: cmd, Err: errors.New("a command must be one non-empty line")}
 	}
-	return t.s.sync(ctx)
+	if strings.Contains(cmd, t.s.term) {
+		return &OpError{Instrument: t.s.name, Command: cmd, Err: fmt.Errorf("the command holds the terminator %q", t.s.term)}
+	}
+	return t.s.sync(ctx, cmd)
 }
 
 // Write sends a program message; with CheckErrors it then drains the error
@@ -322,6 +336,10 @@ func (t *Tx) Write(ctx context.Context, cmd string) error {
 	}
 	q, err := t.s.readQueue(ctx)
 	if err != nil {
+		var op *OpError
+		if errors.As(err, &op) && op.After == "" {
+			op.After = cmd
+		}
 		return err
 	}
 	if len(q) > 0 {
@@ -577,6 +595,9 @@ func (s *Session) exchange(ctx context.Context, cmd string, reply bool) ([]byte,
 func (s *Session) fail(ctx context.Context, cmd string, err error) error {
 	s.resync = true
 	op := &OpError{Instrument: s.name, Command: cmd, Err: err}
+	if s.markLost(op) {
+		return op
+	}
 	if !errors.Is(err, ErrTimeout) || errors.Is(ctx.Err(), context.Canceled) {
 		return op
 	}
@@ -592,8 +613,14 @@ func (s *Session) fail(ctx context.Context, cmd string, err error) error {
 	return op
 }
 
-// sync re-synchronises if an earlier exchange was interrupted.
-func (s *Session) sync(ctx context.Context) error {
+// sync re-synchronises if an earlier exchange was interrupted. After a
+// lost connection it sends nothing: cmd fails at once with an error that
+// says the connection was lost earlier (LostEarlierError), not with the
+// chain of a re-sync that cannot work.
+func (s *Session) sync(ctx context.Context, cmd string) error {
+	if s.lost != nil {
+		return &OpError{Instrument: s.name, Command: cmd, Err: &LostEarlierError{At: s.lost.Command, After: s.lost.After, Cause: s.lost.Err}}
+	}
 	if !s.resync {
 		return nil
 	}
@@ -601,12 +628,43 @@ func (s *Session) sync(ctx context.Context) error {
 	defer cancel()
 	if err := s.recover(rctx); err != nil {
 		if errors.Is(ctx.Err(), context.Canceled) {
-			return &OpError{Instrument: s.name, Command: "*OPC?", Err: ctx.Err()}
+			return &OpError{Instrument: s.name, Command: cmd, Err: ctx.Err()}
 		}
-		return &OpError{Instrument: s.name, Command: "*OPC?", Err: fmt.Errorf("%w: re-sync after an interrupted exchange failed: %v", ErrOutOfSync, err)}
+		if errors.Is(err, ErrClosed) {
+			s.lost = &OpError{Instrument: s.name, Command: "*OPC?", Err: err}
+			return &OpError{Instrument: s.name, Command: cmd, Err: &LostEarlierError{At: "*OPC?", Cause: err}}
+		}
+		return &OpError{Instrument: s.name, Command: cmd, Err: fmt.Errorf("%w: not sent: the re-sync (*OPC?) after an interrupted exchange failed: %v", ErrOutOfSync, err)}
 	}
 	return nil
 }
+
+// markLost records op as the exchange that found the connection closed
+// (the first one only) and reports whether it did.
+func (s *Session) markLost(op *OpError) bool {
+	if !errors.Is(op.Err, ErrClosed) {
+		return false
+	}
+	if s.lost == nil {
+		s.lost = op
+	}
+	return true
+}
+
+// LostEarlierError is the error of a command not sent because the
+// connection had been lost at an earlier exchange (At, after After);
+// Cause is that exchange's error (wrapping ErrClosed, so errors.Is(err,
+// ErrClosed) holds for it too).
+type LostEarlierError struct {
+	At, After string
+	Cause     error
+}
+
+func (e *LostEarlierError) Error() string {
+	return fmt.Sprintf("not sent: the connection was lost earlier, at %q", e.At)
+}
+
+func (e *LostEarlierError) Unwrap() error { return e.Cause }
 
 // maxStaleReplies bounds how many stale reply lines a re-sync reads past.
 const maxStaleReplies = 64
@@ -646,7 +704,9 @@ func (s *Session) readQueue(ctx context.Context) ([]QueueEntry, error) {
 		line, err := s.exchange(ctx, cmd, true)
 		if err != nil {
 			s.resync = true
-			return q, &OpError{Instrument: s.name, Command: cmd, Err: err}
+			op := &OpError{Instrument: s.name, Command: cmd, Err: err}
+			s.markLost(op)
+			return q, op
 		}
 		code, msg, err := ParseErrorResponse(string(line))
 		if err != nil {
@@ -659,4 +719,13 @@ func (s *Session) readQueue(ctx context.Context) ([]QueueEntry, error) {
 	}
 	return q, &OpError{Instrument: s.name, Command: cmd,
 		Err: fmt.Errorf("the error queue did not answer 0 within %d reads (last %v)", s.opts.MaxQueue, q[len(q)-1])}
+}
+
+// instrumentLabel names an instrument in an error: "psu" or
+// "psu (supply channel 1)".
+func instrumentLabel(name, where string) string {
+	if where == "" {
+		return name
+	}
+	return name + " (" + where + ")"
 }

@@ -3,6 +3,7 @@ package procedure
 import (
 	"context"
 	"errors"
+	"fmt"
 	"strings"
 	"testing"
 
@@ -75,5 +76,52 @@ func TestOffCarriesOnPastAFailingInstrument(t *testing.T) {
 	}
 	if fb.out[plan.RoleSupplyNeg].on {
 		t.Error("the negative supply was left on because the positive one failed")
+	}
+}
+
+// Off says SAFE STATE NOT REACHED only when an output may still be on: a
+// supply that cannot be switched off is a hazard; a switch that cannot be
+// opened, with every output off, is said as it is.
+func TestOffSaysNotReachedOnlyForAHazard(t *testing.T) {
+	for _, tc := range []struct {
+		name   string
+		fail   func(c fakeCall) bool
+		hazard bool
+	}{
+		{"supply cannot be switched off", func(c fakeCall) bool { return c.Role == plan.RoleSupplyPos && c.Op == "output" }, true},
+		{"switch cannot open", func(c fakeCall) bool { return c.Role == plan.RoleSwitch }, false},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			p := testPlan()
+			fb := newFakeBench(p)
+			fb.out[plan.RoleSupplyPos] = &fakeOutput{volts: p.Part.NominalPosVolts, on: true}
+			fb.out[plan.RoleSupplyNeg] = &fakeOutput{volts: p.Part.NominalNegVolts, on: true}
+			fb.closed["101"] = true
+			fb.fault = func(c fakeCall) error {
+				if tc.fail(c) {
+					return fmt.Errorf("%s: %w", c, errLost)
+				}
+				return nil
+			}
+			_, err := Off(context.Background(), p, fb.rig(), OffOptions{Clock: fb.clk})
+			var se *SafeStateError
+			if !errors.As(err, &se) {
+				t.Fatalf("err %T %v, want a *SafeStateError", err, err)
+			}
+			msg := err.Error()
+			if se.Hazard != tc.hazard || strings.Contains(msg, "SAFE STATE NOT REACHED") != tc.hazard {
+				t.Errorf("hazard %v, want %v:\n%s", se.Hazard, tc.hazard, msg)
+			}
+			if tc.hazard && !strings.Contains(msg, "supply_pos may still be on") {
+				t.Errorf("does not name the supply left on:\n%s", msg)
+			}
+			if !tc.hazard && !strings.Contains(msg, "the part is unpowered") {
+				t.Errorf("does not say the part is unpowered:\n%s", msg)
+			}
+			// The fake agrees: with the hazard the supply is still on.
+			if on := fb.out[plan.RoleSupplyPos].on; on != tc.hazard {
+				t.Errorf("supply_pos on = %v on the fake bench", on)
+			}
+		})
 	}
 }

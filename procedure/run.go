@@ -198,29 +198,63 @@ type RunError struct {
 	// SafeState is nil when the bench reached its safe state, else every
 	// problem met on the way (the bench needs a look by hand).
 	SafeState error
+	// Relays says what is known about the switch's relays after the safe
+	// state opened them ("" when it did not try): "every channel open"
+	// only after an accepted open-all command (instrument.Opening).
+	Relays string
+	// Cause is Err stated cause first and once, with the plan's role and
+	// address of a failing instrument (describeError); "" falls back to
+	// Err's own text.
+	Cause string
+	// PlanFile and TestLine point at the [[test]] (or [[ac_test]]) table
+	// the run was in (line 0: not known).
+	PlanFile string
+	TestLine int
 }
 
+// Error states the cause first, once, then where the run was, then the
+// safe state: "SAFE STATE NOT REACHED" only when something that can hurt
+// the part or a person may remain (SafeStateError.Hazard), then how to
+// continue. Lines after the first are indented.
 func (e *RunError) Error() string {
 	var b strings.Builder
 	if e.Interrupted {
-		b.WriteString("run interrupted")
+		b.WriteString("run interrupted: ")
 	} else {
-		b.WriteString("run stopped")
+		b.WriteString("run stopped: ")
 	}
-	if loc := e.where(); loc != "" {
-		b.WriteString(" at ")
+	if e.Cause != "" && !e.Interrupted {
+		b.WriteString(e.Cause)
+	} else {
+		fmt.Fprintf(&b, "%v", e.Err)
+	}
+	loc := e.where()
+	if loc != "" || e.Stage != "" {
+		b.WriteString("\n  at ")
 		b.WriteString(loc)
+		if e.Stage != "" {
+			if loc != "" {
+				b.WriteString(", ")
+			}
+			fmt.Fprintf(&b, "while %s", e.Stage)
+		}
 	}
-	if e.Stage != "" {
-		fmt.Fprintf(&b, " while %s", e.Stage)
+	var se *SafeStateError
+	switch {
+	case e.SafeState == nil:
+		b.WriteString("\n  the bench is in its safe state (sources at 0 V and off, supplies ramped down and off)")
+		if e.Relays != "" {
+			b.WriteString("; switch: " + e.Relays)
+		}
+	case errors.As(e.SafeState, &se):
+		b.WriteString("\n  " + se.Error())
+		if !se.Hazard && e.Relays != "" {
+			b.WriteString("\n    - switch: " + e.Relays)
+		}
+	default:
+		fmt.Fprintf(&b, "\n  SAFE STATE NOT REACHED, check the bench by hand: %v", e.SafeState)
 	}
-	fmt.Fprintf(&b, ": %v", e.Err)
-	if e.SafeState == nil {
-		b.WriteString("; the bench is in its safe state (sources at 0 V and off, supplies ramped down and off)")
-	} else {
-		fmt.Fprintf(&b, "; SAFE STATE NOT REACHED, check the bench by hand: %v", e.SafeState)
-	}
-	b.WriteString("; readings taken so far are kept (resume the journal to continue)")
+	b.WriteString("\n  readings taken so far are kept (resume the journal to continue)")
 	return b.String()
 }
 
@@ -237,6 +271,7 @@ func (e *RunError) where() string {
 		if e.Part != "" {
 			s += "/" + e.Part
 		}
+		s += e.planLine()
 		parts = append(parts, s)
 	}
 	if e.AtStep {
@@ -247,9 +282,18 @@ func (e *RunError) where() string {
 		if e.FrequencyHz > 0 {
 			s += fmt.Sprintf(" at %g Hz", e.FrequencyHz)
 		}
+		s += e.planLine()
 		parts = append(parts, s)
 	}
 	return strings.Join(parts, ", ")
+}
+
+// planLine is " (plan.toml:95)" for the test's table, or "".
+func (e *RunError) planLine() string {
+	if e.PlanFile == "" || e.TestLine <= 0 {
+		return ""
+	}
+	return fmt.Sprintf(" (%s:%d)", e.PlanFile, e.TestLine)
 }
 
 // Unwrap gives errors.Is/As both the cause and the safe-state problems.
@@ -329,6 +373,7 @@ type runner struct {
 	// whose limits were checked and set (run_ac.go).
 	genOn, genLimited map[string]bool
 	redialed          map[string]bool // sessions the safe state dialed again (recover.go)
+	relays            relayState      // what the last opening of the switch found (relays.go)
 	powered           bool            // a supply output may be on
 	chamber           bool            // the chamber's set point was changed
 	at                position
@@ -560,9 +605,12 @@ func (r *runner) finish(ctx context.Context) error {
 	}
 	if r.rig.Switch != nil && !operator.HandSwap(r.p) {
 		r.at.stage = stageOpenSwitch
-		if err := r.rig.Switch.OpenAll(ctx); err != nil {
-			return fmt.Errorf("switch: open all: %w", err)
+		rs, err := openSwitch(ctx, r.rig.Switch)
+		if err != nil {
+			return fmt.Errorf("switch: %w", err)
 		}
+		r.relays = rs
+		r.note("switch: %s", rs.words)
 	}
 	return nil
 }
@@ -577,6 +625,14 @@ func (r *runner) abort(ctx context.Context, err error) error {
 	if at.test < 0 && at.acTest < 0 {
 		e.Test, e.Part = "", ""
 	}
+	e.PlanFile = r.p.Source
+	switch {
+	case at.test >= 0:
+		e.TestLine = r.p.TestLine(at.test)
+	case at.acTest >= 0:
+		e.TestLine = r.p.ACTestLine(at.acTest)
+	}
+	e.Cause = describeError(r.p, err)
 	if r.p.Temperature.Mode == plan.TempNone {
 		e.TempIndex = -1 // one ambient pass: not worth naming
 	}
@@ -584,12 +640,15 @@ func (r *runner) abort(ctx context.Context, err error) error {
 	if e.Interrupted && !errors.Is(err, ctx.Err()) {
 		e.Err = fmt.Errorf("%w (%v)", ctx.Err(), err)
 	}
-	reason := e.Error()
-	r.logf("STOP: %s", reason)
+	// Before the safe state: only the cause and where (Error would speak
+	// of a safe state not yet tried).
+	head, _, _ := strings.Cut(e.Error(), "\n  the bench is in its safe state")
+	r.logf("STOP: %s", head)
 	r.prog.Note("stopping: bringing the bench to its safe state")
 	r.event(journal.Event{Type: journal.EventAbort, Reason: fmt.Sprintf("%s: %v", at.stage, e.Err), Unit: at.unit,
 		TempIndex: max(at.tempIndex, 0), TemperatureC: at.tempPoint})
 	e.SafeState = r.safeStateGuarded(ctx)
+	e.Relays = r.relays.words
 	detail := "reached: sources at 0 V and off, then supplies ramped down and off"
 	if e.SafeState != nil {
 		detail = "NOT reached: " + e.SafeState.Error()
@@ -600,7 +659,13 @@ func (r *runner) abort(ctx context.Context, err error) error {
 		status = journal.EndInterrupted
 	}
 	r.journalEnd(journal.End{Status: status, Reason: e.Error()})
-	r.prog.Note(e.Error())
+	// The caller prints the error itself (cmd does); the progress display
+	// only says that the run stopped, so the cause is stated once.
+	if hazardIn(e.SafeState) {
+		r.prog.Note("stopped: SAFE STATE NOT REACHED (see below)")
+	} else {
+		r.prog.Note("stopped: the bench is unpowered (see below)")
+	}
 	return e
 }
 

@@ -2,7 +2,6 @@ package procedure
 
 import (
 	"context"
-	"errors"
 	"fmt"
 	"math"
 	"strings"
@@ -68,8 +67,9 @@ func (r *runner) checkSupplyCurrent(ctx context.Context) error {
 // asks for a part. The bench's state at the start is not known: a run
 // killed outright (kill -9, a crash, a power cut of the computer) leaves
 // the outputs as they were. Each source is read back, ramped to 0 V in
-// steps of at most safety.ramp_step_volts and switched off; then each
-// supply the same way. The part sees at worst its supplies ramped down
+// steps of at most safety.ramp_step_volts and switched off; then both
+// supplies are read back and ramped down together, taking turns
+// (safety.RailsDownFrom), and switched off. The part sees at worst its supplies ramped down
 // with its inputs at ground, never an input beyond the rails of an
 // unpowered part. An output that cannot be brought down stops the run
 // before anything else happens.
@@ -80,7 +80,7 @@ func (r *runner) benchOff(ctx context.Context) error {
 		SetOutput(context.Context, bool) error
 		ReadVolts(context.Context) (float64, error)
 	}
-	down := func(role string, o output, supply bool) error {
+	down := func(role string, o output) error {
 		v, ok, how := r.rampStart(ctx, role, o, 0, false)
 		if !ok {
 			r.note("%s: %s", role, how)
@@ -98,12 +98,6 @@ func (r *runner) benchOff(ctx context.Context) error {
 		if err := o.SetOutput(ctx, false); err != nil {
 			return fmt.Errorf("%s: switch off before the first unit: %w", role, err)
 		}
-		if supply {
-			// Programmed to 0 V too, so the next power-up starts there.
-			if err := o.SetVolts(ctx, 0); err != nil {
-				return fmt.Errorf("%s: set 0 V before the first unit: %w", role, err)
-			}
-		}
 		return nil
 	}
 	if errs := r.generatorsOff(ctx, 0); len(errs) > 0 {
@@ -111,17 +105,30 @@ func (r *runner) benchOff(ctx context.Context) error {
 	}
 	for _, role := range safety.SourceRoles(r.p) {
 		if src := r.source(role); src != nil {
-			if err := down(role, src, false); err != nil {
+			if err := down(role, src); err != nil {
 				return err
 			}
 			r.srcSafe[role] = true
 		}
 	}
-	for _, role := range []string{plan.RoleSupplyPos, plan.RoleSupplyNeg} {
-		if sup := r.supply(role); sup != nil {
-			if err := down(role, sup, true); err != nil {
-				return err
-			}
+	// The rails together, taking turns (railsdown.go): from shifted rails
+	// the far one comes in first, so the inputs at ground keep their
+	// common-mode margin while the part is still powered.
+	st := r.railStarts(ctx, r.note)
+	if err := r.rampRailsDown(ctx, st, func(f func(context.Context) error) error { return f(ctx) }); err != nil {
+		return fmt.Errorf("before the first unit: %w", err)
+	}
+	for _, role := range []string{plan.RoleSupplyNeg, plan.RoleSupplyPos} {
+		sup := r.supply(role)
+		if sup == nil {
+			continue
+		}
+		if err := sup.SetOutput(ctx, false); err != nil {
+			return fmt.Errorf("%s: switch off before the first unit: %w", role, err)
+		}
+		// Programmed to 0 V too, so the next power-up starts there.
+		if err := sup.SetVolts(ctx, 0); err != nil {
+			return fmt.Errorf("%s: set 0 V before the first unit: %w", role, err)
 		}
 	}
 	r.state = plan.BenchState{}
@@ -289,6 +296,7 @@ func (r *runner) safeState(runCtx context.Context) error {
 	defer cancel()
 	var errs []error
 	failed := map[string]bool{}
+	offFailed := map[string]bool{} // roles whose output-off failed: they may still be on
 	call := func(a safety.PowerAction) {
 		if failed[a.Role] && a.Op == safety.PowerSetVolts {
 			return
@@ -298,11 +306,16 @@ func (r *runner) safeState(runCtx context.Context) error {
 		ccancel()
 		if err != nil && r.redialOnce(ctx, a.Role, err) {
 			cctx, ccancel = context.WithTimeout(ctx, r.timing.SafeCallTimeout)
-			err = r.do(cctx, a)
+			if err = r.do(cctx, a); err != nil {
+				err = fmt.Errorf("on a new connection, %w", err)
+			}
 			ccancel()
 		}
 		if err != nil {
 			failed[a.Role] = true
+			if a.Op == safety.PowerOutputOff {
+				offFailed[a.Role] = true
+			}
 			errs = append(errs, err)
 			return
 		}
@@ -346,11 +359,36 @@ func (r *runner) safeState(runCtx context.Context) error {
 			r.powered = false
 		}
 	}
+	// What may still be on: generator outputs, sources, supplies.
+	var remains []string
+	for _, ch := range sortedKeys(r.genOn) {
+		remains = append(remains, "generator output "+ch+" may still be on")
+	}
+	for _, role := range safety.SourceRoles(r.p) {
+		if !r.srcSafe[role] {
+			remains = append(remains, fmt.Sprintf("%s may still be on (last set to %s)", role, plan.FormatVolts(safety.SourceVolts(r.state, role))))
+		}
+	}
+	for _, role := range []string{plan.RoleSupplyPos, plan.RoleSupplyNeg} {
+		if r.supply(role) == nil {
+			continue
+		}
+		v := roleVolts(r.state, role)
+		switch {
+		case len(live) > 0 || offFailed[role]:
+			remains = append(remains, fmt.Sprintf("%s may still be on (last set to %s)", role, plan.FormatVolts(v)))
+		case failed[role] && v != 0:
+			// Off, but not ramped to 0 V: the rail comes back at this
+			// voltage when its output is switched on.
+			remains = append(remains, fmt.Sprintf("%s is off but still programmed to %s (its ramp to 0 V failed)", role, plan.FormatVolts(v)))
+		}
+	}
 	if r.chamber && r.rig.Chamber != nil {
 		amb := r.p.Temperature.AmbientCelsius
 		cctx, ccancel := context.WithTimeout(ctx, r.timing.SafeCallTimeout)
 		if err := r.rig.Chamber.SetPointCelsius(cctx, amb); err != nil {
 			errs = append(errs, fmt.Errorf("chamber: set point %g °C (ambient): %w", amb, err))
+			remains = append(remains, fmt.Sprintf("the chamber's set point was not returned to ambient %g °C (it may be hot or cold)", amb))
 		} else {
 			r.event(journal.Event{Type: journal.EventTemperatureSet, TemperatureC: amb, Detail: "safe state: chamber set back to ambient"})
 		}
@@ -358,12 +396,19 @@ func (r *runner) safeState(runCtx context.Context) error {
 	}
 	if suppliesDown && r.rig.Switch != nil && !operator.HandSwap(r.p) {
 		cctx, ccancel := context.WithTimeout(ctx, r.timing.SafeCallTimeout)
-		if err := r.rig.Switch.OpenAll(cctx); err != nil {
-			errs = append(errs, fmt.Errorf("switch: open all: %w", err))
+		rs, err := openSwitch(cctx, r.rig.Switch)
+		if err != nil {
+			errs = append(errs, fmt.Errorf("switch: open the relays: %w", err))
 		}
+		r.relays = rs
 		ccancel()
+	} else if r.rig.Switch != nil && !operator.HandSwap(r.p) {
+		r.relays = relayState{words: "not opened: the part may still be powered"}
 	}
-	return errors.Join(errs...)
+	if len(errs) == 0 {
+		return nil
+	}
+	return &SafeStateError{Hazard: len(remains) > 0, Remains: remains, Problems: errs, p: r.p, redialed: r.redialed}
 }
 
 func isSourceRole(role string) bool {

@@ -68,7 +68,7 @@ func TestDialectSwitchSupplyEndToEnd(t *testing.T) {
 	if len(baseBy) == 0 {
 		t.Fatalf("the default bench gave no results; problems: %v", base.results.Problems)
 	}
-	for _, d := range []string{"mux_noopenall", "psu_chanlist", "psu_single", "psu_negout", "psu_slow"} {
+	for _, d := range []string{"mux_noopenall", "psu_chanlist", "psu_single", "psu_negout", "psu_slow", "src_eot"} {
 		t.Run(d, func(t *testing.T) {
 			var before func(*e2eRun)
 			if d == "mux_noopenall" {
@@ -107,8 +107,11 @@ func TestDialectSwitchSupplyEndToEnd(t *testing.T) {
 				t.Errorf("%d of %d results cover the truth; want at least 10 of 12", inside, len(checks))
 			}
 			inst := "psu"
-			if d == "mux_noopenall" {
+			switch d {
+			case "mux_noopenall":
 				inst = "mux"
+			case "src_eot":
+				inst = "src"
 			}
 			if got := fmt.Sprint(run.plan.Bench.Instruments[inst].Profile); got != d {
 				t.Errorf("the bench section names profile %q for %s, want %q", got, inst, d)

@@ -2,6 +2,7 @@ package main
 
 import (
 	"context"
+	"errors"
 	"fmt"
 
 	"github.com/spf13/cobra"
@@ -24,7 +25,10 @@ func newOffCmd(std streams, run func(context.Context, streams, offOptions) error
 them to the safe state, as a run does after a fault: every source read back,
 ramped to 0 V in steps of at most safety.ramp_step_volts and switched off,
 then the supplies the same way, then the switch opened and the chamber set
-back to ambient_c. Use it after a crash or when a bench was left on by
+back to ambient_c. A switch whose profile has open_all gets it, and off
+says "every switch channel open"; without open_all it opens the plan's
+unit channels one by one (read back where the profile has query_closed)
+and says which, and that a relay closed by other means may remain closed. Use it after a crash or when a bench was left on by
 hand. It measures nothing and writes no journal.
 
 Exit status: 0 the bench is in its safe state, 2 bad plan, 3 some
@@ -58,8 +62,24 @@ func runOff(ctx context.Context, std streams, o offOptions) error {
 		}
 	}
 	if err != nil {
+		// The error says whether an output may still be on ("SAFE STATE
+		// NOT REACHED") or only relays or the like could not be set.
+		var se *procedure.SafeStateError
+		if errors.As(err, &se) {
+			if !se.Hazard && rep != nil && rep.Relays != "" {
+				err = fmt.Errorf("%w\n    - switch: %s", err, rep.Relays)
+			}
+			return withCode(exitInstrument, err)
+		}
 		return withCode(exitInstrument, fmt.Errorf("the bench may NOT be in its safe state; check these outputs by hand:\n%w", err))
 	}
-	fmt.Fprintln(std.Out, "the bench is in its safe state: every source and supply at 0 V and off")
+	switch {
+	case rep.Relays == "":
+		fmt.Fprintln(std.Out, "the bench is in its safe state: every source and supply at 0 V and off")
+	case rep.EveryChannelOpen:
+		fmt.Fprintln(std.Out, "the bench is in its safe state: every source and supply at 0 V and off, every switch channel open")
+	default:
+		fmt.Fprintf(std.Out, "every source and supply is at 0 V and off; switch: %s\n", rep.Relays)
+	}
 	return nil
 }

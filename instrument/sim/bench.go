@@ -129,6 +129,8 @@ type Bench struct {
 	// Role lines of the supplies for BenchSection, when a dialect
 	// changes them ("" keeps the defaults).
 	supplyPosRole, supplyNegRole string
+
+	hist history // every message executed (history.go)
 }
 
 // New builds a bench from cfg. It does not serve anything until Start.
@@ -285,6 +287,7 @@ func (b *Bench) Start(ctx context.Context, opt ServeOptions) error {
 		return err
 	}
 	for i, in := range b.insts {
+		in.record = b.record
 		ep := Endpoint{Name: in.name, Role: in.role, Profile: in.profile, IDN: in.idn}
 		if in.name == opt.SerialInstrument {
 			p, err := openPTY()

@@ -30,6 +30,7 @@ func Dialects() []Dialect {
 	ds = append(ds, meterDialects()...)
 	ds = append(ds, switchDialects()...)
 	ds = append(ds, supplyDialects()...)
+	ds = append(ds, terminatorDialects()...)
 	sort.Slice(ds, func(i, j int) bool { return ds[i].Name < ds[j].Name })
 	return ds
 }

@@ -52,7 +52,7 @@ func supplyDialects() []Dialect {
 			Doc: "supply with a CR terminator that loses messages sent within 3 ms of a set command; needs *OPC? (or a wait) after each set",
 			apply: func(b *Bench) error {
 				in := b.byName[NameSupply]
-				in.term, in.busyFor = '\r', slowSupplyBusy
+				in.term, in.busyFor = "\r", slowSupplyBusy
 				return b.redefine(NameSupply, IDNSupplySlow, "psu_slow")
 			}},
 	}

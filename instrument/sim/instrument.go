@@ -64,17 +64,22 @@ type instrument struct {
 
 	faults faultSet
 
-	// term ends messages in and out ('\n' unless a dialect says
-	// otherwise; with '\n' a CR before it is dropped). busyFor is how
+	// term ends messages in and out ("\n" unless a dialect says
+	// otherwise; with "\n" a CR before it is dropped; any other string
+	// ends a message exactly where it appears). busyFor is how
 	// long the instrument is deaf after a message without a reply
 	// (psu_slow): a message then is lost, except *OPC?, which waits.
-	term      byte
+	term      string
 	busyFor   time.Duration
 	busyUntil time.Time // wall clock; guarded by mu
+
+	// record, when set (Start), notes each message executed in the
+	// bench's history (history.go).
+	record func(name, line string)
 }
 
 func newInstrument(name, role, profile, idn string, dev device) *instrument {
-	in := &instrument{name: name, role: role, profile: profile, idn: idn, dev: dev, esr: 128 /* PON */, term: '\n'}
+	in := &instrument{name: name, role: role, profile: profile, idn: idn, dev: dev, esr: 128 /* PON */, term: "\n"}
 	in.errq.limit = 10
 	for _, c := range dev.commands() {
 		c.nodes = compilePattern(c.pattern)

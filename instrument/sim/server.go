@@ -112,28 +112,33 @@ func (fs *faultSet) take(line string, kinds ...FaultKind) []Fault {
 // maxLineBytes bounds one program message.
 const maxLineBytes = 64 << 10
 
-// readLine reads one LF-terminated line, strips an optional CR, and bounds
-// its length (the excess is discarded up to the terminator).
-func readLine(r *bufio.Reader, term byte) (string, bool, error) {
+// readLine reads one line ending in term, strips it (and, when term is
+// "\n", an optional CR before it), and bounds its length (the excess is
+// discarded up to the terminator).
+func readLine(r *bufio.Reader, term string) (string, bool, error) {
+	last := term[len(term)-1]
 	var buf []byte
 	tooLong := false
 	for {
-		chunk, err := r.ReadSlice(term)
+		chunk, err := r.ReadSlice(last)
 		if len(buf)+len(chunk) > maxLineBytes {
 			tooLong = true
-		} else {
-			buf = append(buf, chunk...)
+			// Keep the tail, where the rest of a long terminator is.
+			buf = append(buf[:0], buf[max(0, len(buf)-len(term)):]...)
 		}
+		buf = append(buf, chunk...)
 		if err == bufio.ErrBufferFull {
 			continue
 		}
 		if err != nil {
 			return "", tooLong, err
 		}
-		break
+		if strings.HasSuffix(string(buf), term) {
+			break
+		}
 	}
-	s := strings.TrimSuffix(string(buf), string(term))
-	if term == '\n' {
+	s := strings.TrimSuffix(string(buf), term)
+	if term == "\n" {
 		s = strings.TrimSuffix(s, "\r")
 	}
 	return s, tooLong, nil
@@ -172,6 +177,9 @@ func (in *instrument) serveStream(ctx context.Context, rw io.ReadWriter, dropClo
 			}
 		}
 		resp, has := in.execute(ctx, line)
+		if in.record != nil {
+			in.record(in.name, line)
+		}
 		for _, f := range in.faults.take(line, FaultQueueError) {
 			in.mu.Lock()
 			msg := f.Message
@@ -199,7 +207,7 @@ func (in *instrument) serveStream(ctx context.Context, rw io.ReadWriter, dropClo
 			}
 			garbleMu.Unlock()
 		}
-		out = append(out, in.term)
+		out = append(out, in.term...)
 		if _, err := rw.Write(out); err != nil {
 			return
 		}

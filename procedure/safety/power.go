@@ -91,8 +91,10 @@ func PowerDownOrder(p *plan.Plan) []PowerAction { return PowerDownFrom(p, plan.N
 // PowerDownFrom is the reverse of power-up from any state (an abort
 // mid-test): each source ramped to 0 V in steps ≤ ramp_step_volts and
 // switched off (inputs first: common practice, no published source; JEDEC
-// JESD78 latch-up); then both rails ramped to 0 V,
-// the span shrinking at every step; then the supply outputs off.
+// JESD78 latch-up); then both rails ramped to 0 V, the span shrinking at
+// every step and the rails taking turns so that the inputs keep their
+// common-mode margin as long as the span allows (railsDown: from shifted
+// rails the far rail comes in first); then the supply outputs off.
 //
 // A state beyond what the plan could program (a bad read-back) is first
 // clamped to it (boundedDown): the list never panics and never commands
@@ -107,7 +109,9 @@ func PowerDownFrom(p *plan.Plan, from plan.BenchState) []PowerAction {
 		a = append(a, rampOne(r, SourceVolts(from, r), 0, step)...)
 		a = append(a, PowerAction{Op: PowerOutputOff, Role: r})
 	}
-	a = append(a, rampRails(from.PosVolts, from.NegVolts, 0, 0, step)...)
+	rails := from
+	rails.CMVolts, rails.DiffVolts, rails.RefVolts = 0, 0, 0
+	a = append(a, railsDown(p, rails, step)...)
 	a = append(a, PowerAction{Op: PowerOutputOff, Role: plan.RoleSupplyNeg}, PowerAction{Op: PowerOutputOff, Role: plan.RoleSupplyPos})
 	return a
 }
