@@ -399,3 +399,57 @@ func TestAuditStartupAbsurdReadBack(t *testing.T) {
 		})
 	}
 }
+
+// A source left on (2 V on source_cm, with the rails at ±15 V, as a kill
+// -9 leaves it) that answers 1E300 to both read-backs of the start-up
+// switch-off is switched off without a ramp, never programmed from the
+// answer, and the log says so; the run then completes.
+func TestAuditStartupSourceAbsurdReadBack(t *testing.T) {
+	su, px := startHostileSim(t, plan.CMBySupplyShift, "src")
+	leaveBenchOn(t, su)
+	ctx := context.Background()
+	if err := su.rig.SourceCM.SetVolts(ctx, 2); err != nil {
+		t.Fatal(err)
+	}
+	if err := su.rig.SourceCM.SetOutput(ctx, true); err != nil {
+		t.Fatal(err)
+	}
+	src := px["src"]
+	n := 0
+	src.answer = func(ch, q, reply string) string {
+		if ch != "1" || !strings.HasPrefix(strings.ToUpper(q), "MEAS:VOLT?") || n >= 2 {
+			return reply
+		}
+		n++
+		return "+1.00000000E+300"
+	}
+	src.mu.Lock()
+	before := len(src.seen)
+	src.mu.Unlock()
+	src.arm(true)
+	err, _, log := auditRun(t, su, RunOptions{}, journal.EndComplete)
+	if err != nil {
+		t.Fatalf("run: %v", err)
+	}
+	checkSimBench(t, su.bench, true)
+	if !strings.Contains(log, "source_cm: switched off without a ramp") || !strings.Contains(log, `src channel 1, "INST:NSEL 1; MEAS:VOLT?"`) {
+		t.Errorf("the log does not say the source was switched off without a ramp, naming it:\n%s", log)
+	}
+	// Between the run's start and channel 1's OUTP OFF, no voltage
+	// command reached channel 1.
+	src.mu.Lock()
+	defer src.mu.Unlock()
+	for _, l := range src.seen[before:] {
+		ch, cmd, _ := strings.Cut(l, "|")
+		if ch != "1" {
+			continue
+		}
+		u := strings.ToUpper(cmd)
+		if strings.HasPrefix(u, "OUTP OFF") {
+			break
+		}
+		if strings.HasPrefix(u, "VOLT ") {
+			t.Errorf("%q sent to source channel 1 before it was switched off", cmd)
+		}
+	}
+}

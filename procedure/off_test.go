@@ -125,3 +125,16 @@ func TestOffSaysNotReachedOnlyForAHazard(t *testing.T) {
 		})
 	}
 }
+
+// off sets a chamber plan's chamber back to temperature.ambient_c
+// (SAFETY.md: "sets the chamber back to ambient_c").
+func TestOffSetsTheChamberToAmbient(t *testing.T) {
+	p := withChamber(testPlan(), 25, 60)
+	fb := newFakeBench(p)
+	fb.sp, fb.air = 60, 60 // left hot by the run a kill stopped
+	fb.out[plan.RoleSupplyPos] = &fakeOutput{volts: p.Part.NominalPosVolts, on: true}
+	_, _ = Off(context.Background(), p, fb.rig(), OffOptions{Clock: fb.clk})
+	if len(fb.setPoints) == 0 || fb.setPoints[len(fb.setPoints)-1].c != p.Temperature.AmbientCelsius {
+		t.Errorf("chamber set points %+v, want the last at ambient %g °C", fb.setPoints, p.Temperature.AmbientCelsius)
+	}
+}

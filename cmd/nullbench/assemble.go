@@ -522,6 +522,11 @@ func addProblems(c *report.Campaign, p *plan.Plan, res *analysis.Results) {
 		}
 		c.Problems = append(c.Problems, report.Problem{Unit: pr.Unit, Test: pr.Test, Part: pr.Part, TemperatureC: t, Problem: pr.Problem})
 	}
+	// A result that exists (e.g. one not judged for too few valid
+	// points) keeps its row; its problem is listed, not a second row.
+	for _, r := range res.Ratios {
+		seen[fmt.Sprintf("%s/%s/%d", r.Unit, r.Name, r.TempIndex)] = true
+	}
 	for _, pr := range res.Problems {
 		if pr.Unit == "" || pr.Test == "" || pr.TempIndex < 0 {
 			continue

@@ -28,7 +28,10 @@ func newResumeCmd(std streams, run func(context.Context, streams, resumeOptions)
 to the plan (the plan named in the journal, or --plan), and continues the
 campaign: points already in the journal are not measured again. A torn last
 line (the run was killed while writing it) is reported and that point is
-measured again. The workbook is written beside the journal.`,
+measured again. The workbook is written beside the journal. A journal that
+already ended complete (the run was killed while it wrote the workbook) is
+not measured again: resume writes the workbook and exports from it, as
+report does.`,
 		Args: cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			o.Journal = args[0]
@@ -71,6 +74,7 @@ func runResume(ctx context.Context, std streams, o resumeOptions) error {
 	}
 	var (
 		p        *plan.Plan
+		jc       *journal.Contents
 		err      error
 		profiles profileResolver
 	)
@@ -78,16 +82,24 @@ func runResume(ctx context.Context, std streams, o resumeOptions) error {
 		// The folder's copies of the profiles, checked against their
 		// hashes: a relative entry would otherwise be looked up beside
 		// the folder's copy of the plan.
-		p, _, err = planFromFolder(rf, o.Journal)
+		p, jc, err = planFromFolder(rf, o.Journal)
 		profiles = rf.resolver()
 	} else {
-		p, _, err = planForJournal(o.Journal, o.Plan)
+		p, jc, err = planForJournal(o.Journal, o.Plan)
 	}
 	if err != nil {
 		return err
 	}
 	if o.Out == "" {
 		o.Out = filepath.Dir(o.Journal)
+	}
+	if jc != nil && jc.End != nil && jc.End.Status == journal.EndComplete {
+		// Every point is measured; what may be missing is the workbook
+		// and the exports (a kill while they were written). Write them
+		// from the journal, exactly as report does.
+		fmt.Fprintf(std.Err, "journal %s: the run already ended complete; nothing to measure. Writing the workbook and exports from the journal into %s (as nullbench report %s does)\n",
+			o.Journal, o.Out, o.Journal)
+		return runReport(std, reportOptions{Journals: []string{o.Journal}, Plan: o.Plan, outputOptions: o.outputOptions})
 	}
 	rec, _, runErr := measure(ctx, std, measureOptions{Plan: p, JournalPath: o.Journal, Resume: true, AllowHazardous: o.AllowHazardous, Profiles: profiles})
 	return finish(std, o.outputOptions, runErr, rec)

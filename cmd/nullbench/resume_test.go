@@ -12,6 +12,10 @@ import (
 	"strings"
 	"testing"
 	"time"
+
+	"github.com/xuri/excelize/v2"
+
+	"nullbench/procedure/journal"
 )
 
 // cliBinary builds the nullbench binary into a temporary folder (for a
@@ -138,9 +142,11 @@ poll:
 		}
 	}
 
-	// A finished journal has nothing left to resume.
+	// A finished journal has nothing left to measure: resume says so and
+	// writes the workbook and exports from the journal (a run killed while
+	// writing them ends this way), as report would.
 	r = cliExec(t, "resume", journal)
-	cliWantCode(t, r, exitUsage, "resume", journal)
+	cliWantCode(t, r, exitOK, "resume", journal)
 	if !strings.Contains(r.err, "already ended complete") || !strings.Contains(r.err, "nullbench report") {
 		t.Errorf("resume of a finished journal: %s", r.err)
 	}
@@ -258,4 +264,101 @@ func cliMust[T any](v T, err error) T {
 		panic(err)
 	}
 	return v
+}
+
+// A run killed (SIGKILL) after its journal ended complete, while the
+// workbook was being written: resume measures nothing again and writes
+// the workbook and exports from the journal. The kill comes as soon as the
+// journal's end record is seen; whatever output the child managed to
+// write before it is removed, and a half-written temporary workbook is
+// left as a kill leaves it, so the folder is the one a kill during the
+// workbook write leaves whatever the timing.
+func TestResumeAfterKillDuringWorkbookWrite(t *testing.T) {
+	bin := cliBinary(t)
+	b := cliStartSim(t, "")
+	dir := t.TempDir()
+	planText := b.BenchSection() + strings.ReplaceAll(cliPlanBody, "%CMRR_LIMIT%", "90.0")
+	cliWriteFile(t, dir, "plan.toml", planText)
+	child := exec.Command(bin, "run", "plan.toml", "--out", "killed")
+	child.Dir = dir
+	var childErr bytes.Buffer
+	child.Stderr = &childErr
+	if err := child.Start(); err != nil {
+		t.Fatal(err)
+	}
+	waited := make(chan error, 1)
+	go func() { waited <- child.Wait() }()
+	out := filepath.Join(dir, "killed")
+	jp := filepath.Join(out, "journal.jsonl")
+	deadline := time.After(60 * time.Second)
+poll:
+	for {
+		select {
+		case err := <-waited:
+			t.Logf("the run ended (%v) before the kill; its outputs are removed below", err)
+			break poll
+		case <-deadline:
+			_ = child.Process.Kill()
+			t.Fatalf("no end record after 60 s:\n%s", childErr.String())
+		case <-time.After(time.Millisecond):
+			if cliCount(t, jp, "end") > 0 {
+				_ = child.Process.Kill()
+				<-waited
+				break poll
+			}
+		}
+	}
+	c, err := journal.ReadFile(jp)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if c.End == nil || c.End.Status != journal.EndComplete {
+		t.Fatalf("journal end %+v, want complete", c.End)
+	}
+	for _, f := range runOutputs {
+		os.Remove(filepath.Join(out, f))
+	}
+	stale := filepath.Join(out, ".nullbench-4711.xlsx")
+	if err := os.WriteFile(stale, []byte("PK\x03\x04 half a zip"), 0o600); err != nil {
+		t.Fatal(err)
+	}
+	// Left by a kill some time ago (report.RemoveStaleTemps leaves a
+	// temporary file younger than a minute to a writer still at work).
+	old := time.Now().Add(-2 * time.Minute)
+	if err := os.Chtimes(stale, old, old); err != nil {
+		t.Fatal(err)
+	}
+	readings := len(c.Readings)
+
+	r := cliExec(t, "resume", out)
+	cliWantCode(t, r, exitOK, "resume", out)
+	for _, want := range []string{"the run already ended complete; nothing to measure", "Writing the workbook and exports from the journal"} {
+		if !strings.Contains(r.err, want) {
+			t.Errorf("resume does not say %q:\n%s", want, r.err)
+		}
+	}
+	for _, f := range runOutputs {
+		if st, err := os.Stat(filepath.Join(out, f)); err != nil || (st.Size() == 0 && f != "problems.jsonl") {
+			t.Errorf("%s missing or empty after resume: %v", f, err)
+		}
+	}
+	fx, err := excelize.OpenFile(filepath.Join(out, "campaign.xlsx"))
+	if err != nil {
+		t.Fatalf("the workbook resume wrote does not open: %v", err)
+	}
+	defer fx.Close()
+	rows, err := fx.GetRows("Readings")
+	if err != nil || len(rows) < readings+1 {
+		t.Errorf("Readings sheet: %d rows (%v), want at least %d", len(rows), err, readings+1)
+	}
+	if _, err := os.Stat(stale); !os.IsNotExist(err) {
+		t.Errorf("the half-written temporary workbook is still there: %v", err)
+	}
+	// Nothing measured again: the journal is as the run left it.
+	if got := cliCount(t, jp, "reading"); got != readings {
+		t.Errorf("%d readings after resume, want %d", got, readings)
+	}
+	// And the folder is a sealed run again: report from it alone works.
+	r = cliExec(t, "report", out)
+	cliWantCode(t, r, exitOK, "report", out)
 }

@@ -1074,10 +1074,20 @@ func (a *analyzer) sortResults() {
 }
 
 // decide judges every result that has a limit (fit.DecideRejection: a
-// resolved result by its interval, an unresolved one by its lower bound).
+// resolved result by its interval, an unresolved one by its lower bound),
+// except one fitted from fewer valid points than the plan's
+// min_valid_points (fewValidPoints): that one is noted and listed as a
+// problem, never judged.
 func (a *analyzer) decide() {
 	for i := range a.res.Ratios {
 		r := &a.res.Ratios[i]
+		// Too few valid points for the plan: never judged, whatever the
+		// limit, and a problem of the campaign (min_valid_points).
+		if why := a.fewValidPoints(r); why != "" {
+			r.Notes = append(r.Notes, "not judged: "+why)
+			a.problem(r.Unit, r.Name, "", a.res.Conditions[r.Condition], "not judged: "+why)
+			continue
+		}
 		lim, scope, ok := a.p.LimitAt(limitName(r.Name), a.res.Conditions[r.Condition].SetPointC)
 		if !ok {
 			continue

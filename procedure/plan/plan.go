@@ -275,6 +275,10 @@ type Test struct {
 	// Fit options.
 	DriftTerm     bool `toml:"drift_term"`
 	QuadraticTerm bool `toml:"quadratic_term"`
+	// MinValidPoints is the fewest valid points (not overloaded, not
+	// refused) a sweep of this test needs for its result to be judged;
+	// 0: the fit's own minimum of 3 (validate_minpoints.go).
+	MinValidPoints int `toml:"min_valid_points"`
 }
 
 // Unit is one part (or board) of the lot: its id and, on a switch matrix,

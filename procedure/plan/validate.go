@@ -136,6 +136,7 @@ func Validate(p *Plan) error {
 	c.limits()
 	c.calibrationDates()
 	c.bounds()
+	c.minValidPoints()
 	if r := p.Safety.RampStepVolts; r < 0.01 || r > 10 {
 		c.add("safety.ramp_step_volts", "give a step between 0.01 and 10 V, e.g. 1 (steps ≤ 1 V with settling are common practice)",
 			"ramp step %g V is out of range", r)

@@ -73,6 +73,13 @@ func TestValidateRefusals(t *testing.T) {
 		{"channels without switch", func(s string) string {
 			return strings.Replace(s, "id = \"U01\"\n", "id = \"U01\"\nchannel = \"101\"\n", 1)
 		}, "", "bench.roles.switch", []string{"switch channels"}},
+		// min_valid_points: from 3 (a line with an uncertainty) to what
+		// the test plans (3 levels, each visited twice by the zigzag
+		// order, × 1 repeat here: 6 points).
+		{"min_valid_points below the fit's minimum", rep("levels = [-10.0, 0.0, 10.0]", "levels = [-10.0, 0.0, 10.0]\nmin_valid_points = 2"),
+			"min_valid_points = 2", "test[1].min_valid_points", []string{"below the fit's minimum", "at least 3"}},
+		{"min_valid_points beyond the plan", rep("levels = [-10.0, 0.0, 10.0]", "levels = [-10.0, 0.0, 10.0]\nmin_valid_points = 7"),
+			"min_valid_points = 7", "test[1].min_valid_points", []string{"more than the 6 points the test plans per sweep", "at most 6"}},
 		// Bounds (issue: a dwell beyond a week is a typo, not a plan).
 		{"dwell beyond a week", rep("levels = [-10.0, 0.0, 10.0]", "levels = [-10.0, 0.0, 10.0]\ndwell_s = 1e12"),
 			"dwell_s = 1e12", "test[1].dwell_s", []string{"longer than a week"}},
