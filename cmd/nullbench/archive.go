@@ -125,13 +125,14 @@ too, so any result can be refitted.
 
 Adding the same journal twice changes nothing; a resumed run's longer
 journal replaces the shorter one. "run", "resume" and "demo" add what they
-measured with --archive DB.
+measured with --archive DB. "trend" writes lot-to-lot control charts,
+yields, tolerance bounds and bench repeatability into a workbook.
 
 Default store: --db, else $NULLBENCH_ARCHIVE, else
 $XDG_DATA_HOME/nullbench/archive.db (~/.local/share/nullbench/archive.db).`,
 	}
 	cmd.PersistentFlags().StringVar(&o.DB, "db", "", "the archive: an SQLite file path or a postgres:// URL (default: $NULLBENCH_ARCHIVE, else the file in your data folder)")
-	cmd.AddCommand(newArchiveAddCmd(std, &o), newArchiveListCmd(std, &o), newArchiveQueryCmd(std, &o))
+	cmd.AddCommand(newArchiveAddCmd(std, &o), newArchiveListCmd(std, &o), newArchiveQueryCmd(std, &o), newArchiveTrendCmd(std, &o))
 	return cmd
 }
 

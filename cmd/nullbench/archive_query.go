@@ -270,7 +270,7 @@ func writeResultRows(w io.Writer, rows []archive.Row, format string) error {
 			}
 			fmt.Fprintf(tw, "%d\t%s\t%s\t%s\t%s\t%s\t%s\t%g\t%s\t%s\t%s\t%s\t%s\t%s\t%s\t\n", r.Campaign, r.Started.UTC().Format("2006-01-02"),
 				r.Part, r.Lot, r.Bench, r.Unit, r.Test, r.TemperatureC, hz, fmtG(r.CoefficientUVPerV, 4), fmtG(r.CoefficientExpandedUUVPerV, 2),
-				db, fmtFixed(r.ExpandedUDB, 1), fmtG(r.CoverageK, 3), r.Verdict)
+				db, fmtFixed(r.ExpandedUDB, 2), fmtG(r.CoverageK, 3), r.Verdict)
 		}
 		if err := tw.Flush(); err != nil {
 			return err
