@@ -76,7 +76,7 @@ func TestRunAndReportFrequencyPlan(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if !strings.HasPrefix(string(csvText), "unit,part,lot,test,quantity,temperature_c,frequency_hz,") || !strings.Contains(string(csvText), "N01,,,cmrr,CMRR,25,50,digitizer,") {
+	if !strings.HasPrefix(string(csvText), "unit,part,lot,test,quantity,temperature_c,frequency_hz,") || !strings.Contains(string(csvText), "N01,HX-4107,,cmrr,CMRR,25,50,digitizer,") {
 		t.Errorf("freq_results.csv:\n%s", csvText)
 	}
 	if _, err := os.Stat(filepath.Join(out, "freq_results.jsonl")); err != nil {

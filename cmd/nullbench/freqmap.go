@@ -25,7 +25,11 @@ func addFreq(c *report.Campaign, p *plan.Plan, frs []freq.FreqResponse, probs []
 	for _, fr := range frs {
 		t := setPoint(p, fr.TempIndex)
 		for _, pt := range fr.Points {
-			c.FreqResults = append(c.FreqResults, freqResult(fr, pt, t, cov))
+			r := freqResult(fr, pt, t, cov)
+			// A campaign of several plans names several parts: each row
+			// names its own.
+			r.Part, r.Lot = p.Part.Number, p.Campaign.Lot
+			c.FreqResults = append(c.FreqResults, r)
 			for _, b := range pt.Rejection.Budget.Rows {
 				c.FreqBudgets = append(c.FreqBudgets, report.FreqBudgetRow{
 					BudgetRow:   budgetRow(fr.Unit, fr.Test, t, b),
@@ -33,7 +37,9 @@ func addFreq(c *report.Campaign, p *plan.Plan, frs []freq.FreqResponse, probs []
 				})
 			}
 		}
-		c.FreqFits = append(c.FreqFits, freqFitRow(fr, t, cov))
+		row := freqFitRow(fr, t, cov)
+		row.Part, row.Lot = p.Part.Number, p.Campaign.Lot
+		c.FreqFits = append(c.FreqFits, row)
 	}
 	// A unit × test × frequency that could not be analysed is a problem
 	// (the Problems sheet, problems.jsonl, the exit status) and is listed

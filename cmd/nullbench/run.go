@@ -40,7 +40,8 @@ up in a safe order, steps the stimulus through drift-cancelling sequences,
 journals every reading, powers down, fits the results and writes the
 workbook, CSV and JSON-lines exports into --out.
 
-Exit status: 0 all judged results pass, 5 some result failed its limit,
+Exit status: 0 all judged results pass (DC and, for [[ac_test]] tables,
+each frequency), 5 some result failed its limit,
 2 bad plan or flags, 3 instrument fault, 4 plan refused as unsafe.`,
 		Args: cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
