@@ -264,6 +264,8 @@ func FuzzParseProfile(f *testing.F) {
 	f.Add([]byte("name = \"x\"\nmeter = { configure = \"{range}\" }\n"))
 	f.Add([]byte("[supply]\nselect = \"{channel\"\n"))
 	f.Add([]byte("a.b.c = 1\n[[x]]\n"))
+	f.Add([]byte("name = \"t\"\nterminator = \"\\r\\n\\u0004\"\n[chamber]\nset_point = \"TEMP {value}\"\nread_celsius = \"TEMP?\"\n"))
+	f.Add([]byte("name = \"t\"\nterminator = \"OK\\n\"\n[chamber]\nset_point = \"TEMP {value}\"\nread_celsius = \"TEMP?\"\n"))
 	meter := "name = \"m\"\n[meter]\nconfigure = \"CONF {range}\"\nnplc = \"NPLC {nplc}\"\ngain_ppm = 1\noffset_ppm_of_range = 1\n"
 	f.Add([]byte(meter + "one_per_trigger = true\nread = \"READ?\"\n"))
 	f.Add([]byte(meter + "count = \"SAMP:COUN {count}\"\ninit = \"INIT\"\ntrigger = \"*TRG\"\nsync = \"*OPC?\"\nfetch = \"FETC?\"\n"))
