@@ -21,10 +21,10 @@ import (
 // reaches it through its ordinary transport, session and profile-driven
 // driver, exactly as it would reach a misbehaving instrument on a LAN.
 //
-// Program messages are line-based (IEEE 488.2 §7.5: one program message
-// per terminator) and the session waits for each reply, so the proxy
-// forwards one line at a time and reads exactly one reply line for a line
-// that holds a query ('?').
+// Program messages are line-based (IEEE 488.2 §7.5, the program message
+// terminator; clause from memory) and the session waits for each reply,
+// so the proxy forwards one line at a time and reads exactly one reply
+// line for a line that holds a query ('?').
 type scpiProxy struct {
 	upstream string // host:port of the simulated instrument
 	ln       net.Listener

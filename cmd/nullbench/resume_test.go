@@ -10,6 +10,7 @@ import (
 	"regexp"
 	"strconv"
 	"strings"
+	"sync"
 	"testing"
 	"time"
 
@@ -18,20 +19,46 @@ import (
 	"nullbench/procedure/journal"
 )
 
-// cliBinary builds the nullbench binary into a temporary folder (for a
-// child process the test can kill).
+// cliBinary returns the nullbench binary (for a child process the test
+// can kill), built once per test run into a temporary folder that
+// TestMain removes.
 func cliBinary(t *testing.T) string {
 	t.Helper()
 	goTool, err := exec.LookPath("go")
 	if err != nil {
 		t.Skipf("no go tool to build the binary with: %v", err)
 	}
-	bin := filepath.Join(t.TempDir(), "nullbench")
-	out, err := exec.Command(goTool, "build", "-o", bin, ".").CombinedOutput()
-	if err != nil {
-		t.Fatalf("go build: %v\n%s", err, out)
+	cliBin.once.Do(func() {
+		cliBin.dir, cliBin.err = os.MkdirTemp("", "nullbench-bin-")
+		if cliBin.err != nil {
+			return
+		}
+		cliBin.path = filepath.Join(cliBin.dir, "nullbench")
+		out, err := exec.Command(goTool, "build", "-o", cliBin.path, ".").CombinedOutput()
+		if err != nil {
+			cliBin.err = fmt.Errorf("go build: %v\n%s", err, out)
+		}
+	})
+	if cliBin.err != nil {
+		t.Fatal(cliBin.err)
 	}
-	return bin
+	return cliBin.path
+}
+
+// cliBin is the binary cliBinary built.
+var cliBin struct {
+	once sync.Once
+	dir  string
+	path string
+	err  error
+}
+
+func TestMain(m *testing.M) {
+	code := m.Run()
+	if cliBin.dir != "" {
+		os.RemoveAll(cliBin.dir)
+	}
+	os.Exit(code)
 }
 
 // cliCount counts the journal's records of a kind ("reading", "end").
