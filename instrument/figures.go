@@ -13,9 +13,12 @@ import (
 // instrument (common practice, no published source) unless a comment says
 // otherwise. Keys:
 //
-//	exchange_s          one command or query round trip, in wall-clock
-//	                    seconds (default 0.005: a few ms for LAN/GPIB
-//	                    instruments, common practice)
+//	exchange_s          what one command or query costs a run, in
+//	                    wall-clock seconds: the round trip and the
+//	                    work around it (default 0.005: a few ms for
+//	                    LAN/GPIB instruments, common practice; the
+//	                    built-in profiles carry the simulated bench's
+//	                    figure, measured by BenchmarkSimExchange)
 //	reading_overhead    a meter reading lasts NPLC/line_hz × this
 //	                    (default 1.5: auto-zero and conversion, common
 //	                    practice; 1 for a converter that only integrates)

@@ -94,21 +94,24 @@ func planFigures(p *plan.Plan) (estimate.Figures, []string) {
 		f.Roles[role] = rf
 	}
 	if scale != 1 {
-		f.WaitOverrunSeconds, f.WaitFloorSeconds = hostTimerLateSeconds*scale, hostTimerFloorSeconds*scale
+		f.WaitGranularitySeconds, f.WaitOverrunSeconds = hostTimerGranularitySeconds*scale, hostTimerLateSeconds*scale
 	}
 	return f, problems
 }
 
-// hostTimerLateSeconds and hostTimerFloorSeconds are a host's timer in
-// wall seconds: how late a wait wakes, and the shortest wait there is. At
-// time_scale N every wait of a simulated run costs them × N of bench time;
-// on a real bench (N = 1) they are lost in the instruments' own times.
-// Measured on the development machine (Linux, Go 1.26, two cores, loaded):
-// waits of 5 ms woke 0.2–0.4 ms late and one of 20 µs lasted 1.1 ms
-// (medians of 9; the duration test measures them again where it runs).
+// hostTimerGranularitySeconds and hostTimerLateSeconds are a host's timer
+// in wall seconds: it rounds a wait up to a whole number of granules and
+// wakes late by the second. At time_scale N every wait of a simulated run
+// costs them × N of bench time; on a real bench (N = 1) they are lost in
+// the instruments' own times. Measured on the development machine (Linux
+// VM, Go 1.26, two cores, loaded; medians of 41 waits each): waits of
+// 0.02, 0.1 and 0.5 ms lasted 1.08–1.1 ms, of 1.2 ms 2.19 ms, of 3 ms
+// 3.2 ms and of 5 ms 5.2 ms: rounded up to whole milliseconds and
+// 0.1–0.2 ms late (BenchmarkDurationAtTimeScales measures them again
+// where it runs).
 const (
-	hostTimerLateSeconds  = 0.0003
-	hostTimerFloorSeconds = 0.0011
+	hostTimerGranularitySeconds = 0.001
+	hostTimerLateSeconds        = 0.00015
 )
 
 // nonEmpty counts the templates given.

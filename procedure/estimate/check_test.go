@@ -128,48 +128,54 @@ func TestWriteCheckReportsWriteErrors(t *testing.T) {
 }
 
 // TestTimelineCountsTimerLateness works the board plan's first point out
-// by hand on a simulated bench whose every wait wakes WaitOverrunSeconds =
-// 0.3 s late and lasts at least WaitFloorSeconds = 1.1 s of bench time (a
-// host timer 0.3 ms late with a 1.1 ms floor, at time_scale 1000): the
-// dwell 1 s → 1.3 s; each trigger's integration of 0.1 s → 1.1 s; the
-// settling interval is used up by the first trigger (no wait); so 1.3 +
-// 1.1 + 1.1 + 1.1 = 4.6 s, plus the expected further comparisons
-// (0.00890, see TestTimelineBoardByHand) of 1.1 s each: 4.6098 s.
+// by hand on a simulated bench whose timer rounds every wait up to whole
+// granules of WaitGranularitySeconds = 1 s of bench time and wakes
+// WaitOverrunSeconds = 0.1 s late (a host timer that rounds waits up to
+// whole milliseconds and wakes 0.1 ms late, at time_scale 1000): the
+// dwell 1 s → 1.1 s; each trigger's integration of 0.1 s → 1.1 s; the
+// settling interval is used up by the first trigger (no wait); so 1.1 +
+// 1.1 + 1.1 + 1.1 = 4.4 s, plus the expected further comparisons
+// (0.00890, see TestTimelineBoardByHand) of 1.1 s each: 4.4098 s.
 func TestTimelineCountsTimerLateness(t *testing.T) {
 	p := loadExamplePlan(t, "board")
 	f := DefaultFigures()
-	f.WaitOverrunSeconds, f.WaitFloorSeconds = 0.3, 1.1
+	f.WaitGranularitySeconds, f.WaitOverrunSeconds = 1, 0.1
 	tl := f.Timeline(p)
-	if got := tl.Points[0].Seconds; math.Abs(got-4.6098) > 1e-4 {
-		t.Errorf("first point %.5f s, want 4.6098 s", got)
+	if got := tl.Points[0].Seconds; math.Abs(got-4.4098) > 1e-4 {
+		t.Errorf("first point %.5f s, want 4.4098 s", got)
 	}
-	for _, c := range []struct{ d, want float64 }{{0, 0}, {-1, 0}, {0.5, 1.1}, {0.8, 1.1}, {1, 1.3}, {10, 10.3}} {
+	for _, c := range []struct{ d, want float64 }{{0, 0}, {-1, 0}, {0.5, 1.1}, {0.8, 1.1}, {1, 1.1}, {1.2, 2.1}, {10, 10.1}} {
 		if got := f.wait(c.d); math.Abs(got-c.want) > 1e-12 {
 			t.Errorf("wait(%g) = %g, want %g", c.d, got, c.want)
 		}
 	}
+	// Without a granularity a wait only wakes late.
+	f.WaitGranularitySeconds = 0
+	if got := f.wait(0.5); math.Abs(got-0.6) > 1e-12 {
+		t.Errorf("wait(0.5) without granularity = %g, want 0.6", got)
+	}
 }
 
 // TestTimelineMeterWithoutCount works the board plan's first point out by
-// hand, as in TestTimelineCountsTimerLateness (waits 0.3 s late, at least
-// 1.1 s), for a meter that takes one reading per trigger: each of the
-// point's three takes of 5 readings is 5 triggers, each integrating 20 ms
-// → 1.1 s, so 5.5 s a take: dwell 1.3 + 3 × 5.5 = 17.8 s, plus the
-// expected further comparisons (0.00890, TestTimelineBoardByHand) of
-// 5.5 s each: 17.8490 s. With an init and a sync query per trigger and
+// hand, as in TestTimelineCountsTimerLateness (waits rounded up to whole
+// seconds and 0.1 s late), for a meter that takes one reading per
+// trigger: each of the point's three takes of 5 readings is 5 triggers,
+// each integrating 20 ms → 1.1 s, so 5.5 s a take: dwell 1.1 + 3 × 5.5 =
+// 17.6 s, plus the expected further comparisons (0.00890,
+// TestTimelineBoardByHand) of 5.5 s each: 17.6490 s. With an init and a sync query per trigger and
 // exchanges of 10 ms (set: 20 ms with the error check), each trigger costs
 // 2 × 10 + 20 = 40 ms more: 15 triggers and 0.00890 × 5 more, 0.6018 s.
 func TestTimelineMeterWithoutCount(t *testing.T) {
 	p := loadExamplePlan(t, "board")
 	f := DefaultFigures()
-	f.WaitOverrunSeconds, f.WaitFloorSeconds = 0.3, 1.1
+	f.WaitGranularitySeconds, f.WaitOverrunSeconds = 1, 0.1
 	f.MeterOnePerTrigger = true
-	if got := f.Timeline(p).Points[0].Seconds; math.Abs(got-17.8490) > 1e-3 {
-		t.Errorf("first point %.5f s, want 17.8490 s", got)
+	if got := f.Timeline(p).Points[0].Seconds; math.Abs(got-17.6490) > 1e-3 {
+		t.Errorf("first point %.5f s, want 17.6490 s", got)
 	}
 	f.MeterTriggerSets, f.MeterTriggerQueries = 1, 1
 	f.Roles[plan.RoleMeter] = RoleFigures{SetSeconds: 0.02, QuerySeconds: 0.01}
-	if got := f.Timeline(p).Points[0].Seconds; math.Abs(got-(17.8490+0.6018)) > 1e-3 {
-		t.Errorf("first point with init and sync %.5f s, want %.4f s", got, 17.8490+0.6018)
+	if got := f.Timeline(p).Points[0].Seconds; math.Abs(got-(17.6490+0.6018)) > 1e-3 {
+		t.Errorf("first point with init and sync %.5f s, want %.4f s", got, 17.6490+0.6018)
 	}
 }

@@ -78,22 +78,29 @@ type Figures struct {
 	// this first-order time constant (0: at once).
 	ChamberAirTauSeconds float64
 	Waits                SequencerWaits
-	// WaitOverrunSeconds is how much longer than asked every timed wait
-	// lasts, WaitFloorSeconds the shortest wait there is, both in bench
-	// seconds: a timer wakes late by the host's scheduling latency and no
-	// sooner than its granularity. On a real bench (microseconds against
-	// waits of tens of ms) they are negligible and 0; on a simulated bench
+	// WaitGranularitySeconds and WaitOverrunSeconds describe the host's
+	// timer, in bench seconds: a timed wait of d lasts d rounded up to a
+	// whole number of granules, plus the overrun (the scheduling latency
+	// of the wake-up). A host whose timer rounds waits up to whole
+	// milliseconds turns a wait of 0.2 ms into about 1.1 ms and one of
+	// 1.2 ms into about 2.2 ms. On a real bench (microseconds against
+	// waits of tens of ms) both are negligible and 0; on a simulated bench
 	// at time_scale N each is the host's wall-clock figure × N, which is
 	// where the time of a fast simulated run goes (cmd measures them).
-	WaitOverrunSeconds, WaitFloorSeconds float64
+	WaitGranularitySeconds, WaitOverrunSeconds float64
 }
 
-// wait is the bench time a timed wait of d seconds takes.
+// wait is the bench time a timed wait of d seconds takes:
+// ⌈d/g⌉·g + overrun with g = WaitGranularitySeconds (d + overrun when g
+// is 0).
 func (f *Figures) wait(d float64) float64 {
 	if !(d > 0) {
 		return 0
 	}
-	return math.Max(d+f.WaitOverrunSeconds, f.WaitFloorSeconds)
+	if g := f.WaitGranularitySeconds; g > 0 {
+		d = math.Ceil(d/g-1e-9) * g
+	}
+	return d + f.WaitOverrunSeconds
 }
 
 // DefaultFigures are the built-in profiles' figures with exchanges taking
