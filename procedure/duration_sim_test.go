@@ -9,6 +9,7 @@ import (
 	"time"
 
 	"nullbench/instrument/sim"
+	"nullbench/internal/simtest"
 	"nullbench/procedure/clock"
 	"nullbench/procedure/estimate"
 	"nullbench/procedure/plan"
@@ -53,22 +54,12 @@ func (p *timedProgress) Point(pi PointInfo) {
 // test of every unit and temperature (from its start to its last point).
 func runTimed(t *testing.T, dut *sim.DUTFile, planText string) (*plan.Plan, float64, map[string]float64, [][2]float64) {
 	t.Helper()
-	mc := sim.NewManualClock()
-	b, err := sim.New(sim.Config{Clock: mc, DUT: dut})
+	b := simtest.Start(t, sim.Config{DUT: dut})
+	p, err := plan.Parse([]byte(b.WithBench(t, planText)), "timed.toml")
 	if err != nil {
 		t.Fatal(err)
 	}
-	if err := b.Start(context.Background(), sim.ServeOptions{}); err != nil {
-		t.Fatal(err)
-	}
-	t.Cleanup(func() { b.Close() })
-	benchRe := regexp.MustCompile(`(?s)\[bench\].*?\n\[fixture\]`)
-	text := benchRe.ReplaceAllString(planText, b.BenchSection()+"\n[fixture]")
-	p, err := plan.Parse([]byte(text), "timed.toml")
-	if err != nil {
-		t.Fatal(err)
-	}
-	clk := simClock{c: mc, start: mc.Now()}
+	clk := b.RunClock()
 	ctx, cancel := context.WithTimeout(context.Background(), 2*time.Minute)
 	defer cancel()
 	rig, closeRig, err := OpenRig(ctx, p, RigOptions{Sleep: clk.Sleep})

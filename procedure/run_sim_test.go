@@ -11,6 +11,7 @@ import (
 
 	"nullbench/instrument"
 	"nullbench/instrument/sim"
+	"nullbench/internal/simtest"
 	"nullbench/procedure/journal"
 	"nullbench/procedure/plan"
 )
@@ -22,15 +23,6 @@ import (
 // bench time take a second and the runs are repeatable. Afterwards the
 // sim's Inspect (never reachable over SCPI) says whether any unit was
 // damaged and where the outputs were left.
-
-// simClock adapts the sim's clock to the procedure's Clock.
-type simClock struct {
-	c     sim.Clock
-	start time.Time
-}
-
-func (s simClock) Now() time.Duration                               { return s.c.Now().Sub(s.start) }
-func (s simClock) Sleep(ctx context.Context, d time.Duration) error { return s.c.Sleep(ctx, d) }
 
 // simPlanRest is everything of an HX-4107 plan (demo lot of the sim) but
 // its [bench] section, which the sim writes.
@@ -46,14 +38,7 @@ noise_gain_tolerance = 0.001
 common_mode = "%CM%"
 max_stimulus_volts = 12.0
 
-[part]
-number = "HX-4107"
-nominal_pos_volts = 15.0
-nominal_neg_volts = -15.0
-max_supply_span_volts = 36.0
-cm_headroom_pos_volts = 2.0
-cm_headroom_neg_volts = 2.0
-cm_margin_volts = 0.5
+` + simtest.PartHX4107 + `cm_margin_volts = 0.5
 current_limit_amps = 0.05
 
 [[test]]
@@ -118,7 +103,7 @@ type simSetup struct {
 	bench *sim.Bench
 	plan  *plan.Plan
 	rig   *Rig
-	clock simClock
+	clock simtest.Clock
 }
 
 func startSim(t *testing.T, commonMode string, full bool, rigTimeout time.Duration) *simSetup {
@@ -126,26 +111,15 @@ func startSim(t *testing.T, commonMode string, full bool, rigTimeout time.Durati
 	if testing.Short() {
 		t.Skip("loopback run against the simulated bench")
 	}
-	mc := sim.NewManualClock()
-	b, err := sim.New(sim.Config{Clock: mc})
-	if err != nil {
-		t.Fatal(err)
-	}
-	if err := b.Start(context.Background(), sim.ServeOptions{}); err != nil {
-		t.Fatal(err)
-	}
-	t.Cleanup(func() { b.Close() })
+	b := simtest.Start(t, sim.Config{})
 	rest := strings.ReplaceAll(simPlanRest, "%CM%", commonMode)
 	more, temp := "", ""
 	if full {
 		more, temp = simMoreTests, simChamber
 	}
 	rest = strings.ReplaceAll(strings.ReplaceAll(rest, "%MORE%", more), "%TEMP%", temp)
-	p, err := plan.Parse([]byte(b.BenchSection()+rest), "loopback.toml")
-	if err != nil {
-		t.Fatal(err)
-	}
-	clk := simClock{c: mc, start: mc.Now()}
+	p := b.Plan(t, rest, "loopback.toml")
+	clk := b.RunClock()
 	ctx, cancel := context.WithTimeout(context.Background(), 10*time.Second)
 	defer cancel()
 	rig, closeRig, err := OpenRig(ctx, p, RigOptions{Sleep: clk.Sleep, Timeout: rigTimeout})
@@ -156,7 +130,7 @@ func startSim(t *testing.T, commonMode string, full bool, rigTimeout time.Durati
 	if len(rig.Identities) != 5 {
 		t.Errorf("identities %+v", rig.Identities)
 	}
-	return &simSetup{bench: b, plan: p, rig: rig, clock: clk}
+	return &simSetup{bench: b.Bench, plan: p, rig: rig, clock: clk}
 }
 
 // checkSimBench fails on a damaged unit; with off it also wants every
@@ -391,20 +365,9 @@ func TestRunBoardOnSimulatedBench(t *testing.T) {
 	if testing.Short() {
 		t.Skip("loopback run against the simulated bench")
 	}
-	mc := sim.NewManualClock()
-	b, err := sim.New(sim.Config{Clock: mc})
-	if err != nil {
-		t.Fatal(err)
-	}
-	if err := b.Start(context.Background(), sim.ServeOptions{}); err != nil {
-		t.Fatal(err)
-	}
-	defer b.Close()
-	p, err := plan.Parse([]byte(b.BenchSection()+simBoardPlan), "board-loopback.toml")
-	if err != nil {
-		t.Fatal(err)
-	}
-	clk := simClock{c: mc, start: mc.Now()}
+	b := simtest.Start(t, sim.Config{})
+	p := b.Plan(t, simBoardPlan, "board-loopback.toml")
+	clk := b.RunClock()
 	ctx, cancel := context.WithTimeout(context.Background(), 20*time.Second)
 	defer cancel()
 	rig, closeRig, err := OpenRig(ctx, p, RigOptions{Sleep: clk.Sleep})
@@ -416,7 +379,7 @@ func TestRunBoardOnSimulatedBench(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	checkSimBench(t, b, true)
+	checkSimBench(t, b.Bench, true)
 	var diff, cm []journal.Reading
 	for _, r := range out.Readings {
 		switch {

@@ -11,6 +11,7 @@ import (
 	"time"
 
 	"nullbench/instrument/sim"
+	"nullbench/internal/simtest"
 	"nullbench/procedure/plan"
 )
 
@@ -199,7 +200,7 @@ func startHostileSim(t *testing.T, commonMode string, names ...string) (*simSetu
 	if err != nil {
 		t.Fatal(err)
 	}
-	clk := simClock{c: mc, start: mc.Now()}
+	clk := simtest.Clock{C: mc, T0: mc.Now()}
 	ctx, cancel := context.WithTimeout(context.Background(), 10*time.Second)
 	defer cancel()
 	rig, closeRig, err := OpenRig(ctx, p, RigOptions{Sleep: clk.Sleep, Timeout: 500 * time.Millisecond})

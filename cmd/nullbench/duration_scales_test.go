@@ -15,6 +15,7 @@ import (
 
 	"nullbench/instrument"
 	"nullbench/instrument/sim"
+	"nullbench/internal/simtest"
 	"nullbench/procedure"
 	"nullbench/procedure/clock"
 	"nullbench/procedure/estimate"
@@ -164,14 +165,7 @@ resistor_tolerance = 0.001
 // scaleNoiseGainDUT: two HX-4107 in the noise-gain stage of
 // testdata/plans/noise_gain.toml (K = 101), swapped by hand.
 const scaleNoiseGainDUT = `seed = 3
-[part]
-number = "HX-4107"
-nominal_pos_volts = 15.0
-nominal_neg_volts = -15.0
-max_supply_span_volts = 36.0
-cm_headroom_pos_volts = 2.0
-cm_headroom_neg_volts = 2.0
-output_headroom_volts = 1.5
+` + simtest.PartHX4107 + `output_headroom_volts = 1.5
 input_beyond_rail_volts = 0.3
 quiescent_amps = 0.002
 [lot]
@@ -258,7 +252,7 @@ func runAtScale(t testing.TB, sp shippedPlan, scale float64, maxUnits int) scale
 	var clk clock.Clock
 	newClock := func() clock.Clock {
 		if mc != nil {
-			return e2eClock{c: mc, t0: mc.Now()}
+			return simtest.Clock{C: mc, T0: mc.Now()}
 		}
 		return clock.NewScaled(p.Bench.TimeScale)
 	}

@@ -15,6 +15,7 @@ import (
 
 	"nullbench/instrument"
 	"nullbench/instrument/sim"
+	"nullbench/internal/simtest"
 	"nullbench/procedure/analysis"
 	"nullbench/procedure/journal"
 	"nullbench/procedure/plan"
@@ -26,46 +27,19 @@ import (
 // procedure.Run with instruments opened by the instrument package, the
 // analysis of "run"), and the results are compared with the truth.
 
-// e2eClock lets the procedure share the simulated bench's virtual clock:
-// bench time moves only when the tool waits or the meter integrates, so a
-// campaign of hours runs in seconds and every wait counts exactly as the
-// plan says (no free settling from exchange overheads, unlike a scaled
-// clock).
-type e2eClock struct {
-	c  *sim.ManualClock
-	t0 time.Time
-}
-
-func (c e2eClock) Now() time.Duration { return c.c.Now().Sub(c.t0) }
-func (c e2eClock) Sleep(ctx context.Context, d time.Duration) error {
-	return c.c.Sleep(ctx, d)
-}
-
-// startVirtualBench serves the simulated bench of dut on loopback with a
-// virtual clock the test can share with the procedure (e2eClock); the
-// bench closes and the returned context ends when the test does, or after
-// timeout.
-func startVirtualBench(t *testing.T, dut *sim.DUTFile, timeout time.Duration) (context.Context, *sim.Bench, *sim.ManualClock) {
-	return startVirtualBenchWith(t, sim.Config{DUT: dut}, timeout)
-}
-
-// startVirtualBenchWith is startVirtualBench with more of the bench's
-// configuration (cfg.Clock is replaced by the virtual clock).
-func startVirtualBenchWith(t *testing.T, cfg sim.Config, timeout time.Duration) (context.Context, *sim.Bench, *sim.ManualClock) {
+// startVirtualBench serves the simulated bench of cfg on loopback with a
+// virtual clock (simtest.Start): bench time moves only when the tool
+// waits or the meter integrates, so a campaign of hours runs in seconds
+// and every wait counts exactly as the plan says (no free settling from
+// exchange overheads, unlike a scaled clock); the runner shares it through
+// RunClock. The bench closes and the returned context ends when the test
+// does, or after timeout.
+func startVirtualBench(t *testing.T, cfg sim.Config, timeout time.Duration) (context.Context, *simtest.Bench) {
 	t.Helper()
-	clk := sim.NewManualClock()
-	cfg.Clock = clk
-	bench, err := sim.New(cfg)
-	if err != nil {
-		t.Fatal(err)
-	}
-	t.Cleanup(func() { bench.Close() })
+	b := simtest.Start(t, cfg)
 	ctx, cancel := context.WithTimeout(context.Background(), timeout)
 	t.Cleanup(cancel)
-	if err := bench.Start(ctx, sim.ServeOptions{}); err != nil {
-		t.Fatal(err)
-	}
-	return ctx, bench, clk
+	return ctx, b
 }
 
 // e2eUnit is one simulated op-amp: its true ratios (dB at 25 °C) and
@@ -109,14 +83,7 @@ func e2eDUT(seed int64, units []e2eUnit) string {
 	var b strings.Builder
 	fmt.Fprintf(&b, `seed = %d
 
-[part]
-number = "HX-4107"
-nominal_pos_volts = 15.0
-nominal_neg_volts = -15.0
-max_supply_span_volts = 36.0
-cm_headroom_pos_volts = 2.0
-cm_headroom_neg_volts = 2.0
-output_headroom_volts = 1.5
+`+simtest.PartHX4107+`output_headroom_volts = 1.5
 input_beyond_rail_volts = 0.3
 quiescent_amps = 0.002
 theta_c_per_w = 100.0
@@ -170,7 +137,8 @@ func runE2EWith(t *testing.T, cfg sim.Config, dutTOML string, editPlan func(b *s
 		t.Fatalf("DUT file: %v", err)
 	}
 	cfg.DUT = dut
-	ctx, bench, clk := startVirtualBenchWith(t, cfg, 5*time.Minute)
+	ctx, sb := startVirtualBench(t, cfg, 5*time.Minute)
+	bench, clk := sb.Bench, sb.Manual
 	paths, err := writeDemoPlans(dir, bench, dut, 1)
 	if err != nil {
 		t.Fatal(err)
@@ -203,7 +171,7 @@ func runE2EWith(t *testing.T, cfg sim.Config, dutTOML string, editPlan func(b *s
 	var errBuf bytes.Buffer
 	std := streams{In: strings.NewReader(""), Out: io.Discard, Err: &errBuf}
 	rec, _, err := measure(ctx, std, measureOptions{Plan: p, JournalPath: filepath.Join(dir, "journal.jsonl"),
-		Clock: e2eClock{c: clk, t0: clk.Now()}})
+		Clock: sb.RunClock()})
 	if err != nil {
 		t.Fatalf("run: %v\n%s", err, errBuf.String())
 	}
@@ -389,14 +357,7 @@ dwell_s = 2.0
 settle_volts = 0.0002
 drift_term = %t
 
-[part]
-number = "HX-4107"
-nominal_pos_volts = 15.0
-nominal_neg_volts = -15.0
-max_supply_span_volts = 36.0
-cm_headroom_pos_volts = 2.0
-cm_headroom_neg_volts = 2.0
-cm_margin_volts = 0.5
+`+simtest.PartHX4107+`cm_margin_volts = 0.5
 current_limit_amps = 0.02
 input_beyond_rail_volts = 0.3
 

@@ -14,6 +14,7 @@ import (
 	"time"
 
 	"nullbench/instrument/sim"
+	"nullbench/internal/simtest"
 	"nullbench/procedure"
 	"nullbench/procedure/operator"
 	"nullbench/procedure/plan"
@@ -75,14 +76,7 @@ readings = 5
 dwell_s = 16.0
 settle_volts = 0.0002
 
-[part]
-number = "HX-4107"
-nominal_pos_volts = 15.0
-nominal_neg_volts = -15.0
-max_supply_span_volts = 36.0
-cm_headroom_pos_volts = 2.0
-cm_headroom_neg_volts = 2.0
-cm_margin_volts = 0.5
+`+simtest.PartHX4107+`cm_margin_volts = 0.5
 current_limit_amps = 0.02
 input_beyond_rail_volts = 0.3
 supply_amps_min = 0.001
@@ -162,7 +156,8 @@ func runHandSwap(t *testing.T, units []e2eUnit, hands *benchHands) *handSwapRun 
 	if err != nil {
 		t.Fatal(err)
 	}
-	ctx, bench, clk := startVirtualBench(t, dut, 2*time.Minute)
+	ctx, sb := startVirtualBench(t, sim.Config{DUT: dut}, 2*time.Minute)
+	bench := sb.Bench
 	hands.bench = bench
 	ids := make([]string, len(units))
 	for i, u := range units {
@@ -183,7 +178,7 @@ func runHandSwap(t *testing.T, units []e2eUnit, hands *benchHands) *handSwapRun 
 	// No terminal: the scripted operator stands in for the person.
 	std := streams{In: strings.NewReader(""), Out: io.Discard, Err: io.Discard}
 	r.rec, _, r.err = measure(ctx, std, measureOptions{Plan: p, JournalPath: r.journal,
-		Clock: e2eClock{c: clk, t0: clk.Now()}, Operator: hands})
+		Clock: sb.RunClock(), Operator: hands})
 	return r
 }
 

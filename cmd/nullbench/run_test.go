@@ -17,6 +17,7 @@ import (
 	"github.com/xuri/excelize/v2"
 
 	"nullbench/instrument/sim"
+	"nullbench/internal/simtest"
 	"nullbench/report"
 )
 
@@ -34,14 +35,7 @@ noise_gain_tolerance = 0.002
 common_mode = "input_drive"
 max_stimulus_volts = 12.0
 
-[part]
-number = "HX-4107"
-nominal_pos_volts = 15.0
-nominal_neg_volts = -15.0
-max_supply_span_volts = 36.0
-cm_headroom_pos_volts = 2.0
-cm_headroom_neg_volts = 2.0
-cm_margin_volts = 0.5
+` + simtest.PartHX4107 + `cm_margin_volts = 0.5
 current_limit_amps = 0.05
 
 [limits]

@@ -11,6 +11,7 @@ import (
 	"time"
 
 	"nullbench/instrument/sim"
+	"nullbench/internal/simtest"
 	"nullbench/procedure/plan"
 	"nullbench/procedure/safety"
 )
@@ -147,14 +148,7 @@ noise_gain_tolerance = 0.001
 common_mode = "supply_shift"
 max_stimulus_volts = 12.0
 
-[part]
-number = "HX-4107"
-nominal_pos_volts = 15.0
-nominal_neg_volts = -15.0
-max_supply_span_volts = 36.0
-cm_headroom_pos_volts = 2.0
-cm_headroom_neg_volts = 2.0
-cm_margin_volts = 0.5
+` + simtest.PartHX4107 + `cm_margin_volts = 0.5
 current_limit_amps = 0.05
 
 [limits]

@@ -3,46 +3,11 @@ package estimate
 import (
 	"bytes"
 	"math"
-	"os"
-	"path/filepath"
 	"strings"
 	"testing"
 
 	"nullbench/procedure/plan"
 )
-
-// TestWriteCheckPlanOnlyGolden compares the `check` step table of each
-// example plan, without a forecast (no timing or noise figures), with
-// testdata/plan_only/check_<plan>.golden; run with -update to rewrite them after
-// an intended change, and read the diff.
-func TestWriteCheckPlanOnlyGolden(t *testing.T) {
-	for _, name := range []string{"lot", "noise_gain", "board", "unsafe_overspan", "unsafe_hazardous"} {
-		t.Run(name, func(t *testing.T) {
-			p := loadExamplePlan(t, name)
-			var buf bytes.Buffer
-			if err := writeCheck(&buf, p, nil); err != nil {
-				t.Fatal(err)
-			}
-			golden := filepath.Join("testdata", "plan_only", "check_"+name+".golden")
-			if *updateGolden {
-				if err := os.MkdirAll(filepath.Join("testdata", "plan_only"), 0o755); err != nil {
-					t.Fatal(err)
-				}
-				if err := os.WriteFile(golden, buf.Bytes(), 0o644); err != nil {
-					t.Fatal(err)
-				}
-				return
-			}
-			want, err := os.ReadFile(golden)
-			if err != nil {
-				t.Fatalf("%v (run with -update to create it)", err)
-			}
-			if !bytes.Equal(buf.Bytes(), want) {
-				t.Errorf("check output differs from %s (run with -update and review the diff):\n%s", golden, buf.String())
-			}
-		})
-	}
-}
 
 func TestWriteCheckPlanOnlyReportsWriteErrors(t *testing.T) {
 	p := loadExamplePlan(t, "lot")

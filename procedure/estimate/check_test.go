@@ -4,6 +4,7 @@ import (
 	"bytes"
 	"errors"
 	"flag"
+	"io"
 	"math"
 	"os"
 	"path/filepath"
@@ -25,36 +26,47 @@ func loadExamplePlan(t testing.TB, name string) *plan.Plan {
 	return p
 }
 
-// TestWriteCheckGolden compares the `check` step table of each example plan, with the
-// forecast of the built-in figures,
-// with testdata/check_<plan>.golden; run with -update to rewrite them after
-// an intended change, and read the diff.
+// TestWriteCheckGolden compares the `check` output of each example plan
+// with its golden file: with the forecast of the built-in figures
+// (testdata/check_<plan>.golden) and, for the plan alone without timing
+// or noise figures, the step table writeCheck prints with no forecast
+// (testdata/plan_only/check_<plan>.golden). Run with -update to rewrite
+// them after an intended change, and read the diff.
 func TestWriteCheckGolden(t *testing.T) {
-	for _, name := range []string{"lot", "noise_gain", "board", "unsafe_overspan", "unsafe_hazardous"} {
-		t.Run(name, func(t *testing.T) {
-			p := loadExamplePlan(t, name)
-			var buf bytes.Buffer
-			if err := WriteCheck(&buf, p, DefaultFigures()); err != nil {
-				t.Fatal(err)
-			}
-			golden := filepath.Join("testdata", "check_"+name+".golden")
-			if *updateGolden {
-				if err := os.MkdirAll("testdata", 0o755); err != nil {
+	writers := []struct {
+		dir   string
+		write func(w io.Writer, p *plan.Plan) error
+	}{
+		{"testdata", func(w io.Writer, p *plan.Plan) error { return WriteCheck(w, p, DefaultFigures()) }},
+		{filepath.Join("testdata", "plan_only"), func(w io.Writer, p *plan.Plan) error { return writeCheck(w, p, nil) }},
+	}
+	for _, wr := range writers {
+		for _, name := range []string{"lot", "noise_gain", "board", "unsafe_overspan", "unsafe_hazardous"} {
+			t.Run(filepath.Join(wr.dir, name), func(t *testing.T) {
+				p := loadExamplePlan(t, name)
+				var buf bytes.Buffer
+				if err := wr.write(&buf, p); err != nil {
 					t.Fatal(err)
 				}
-				if err := os.WriteFile(golden, buf.Bytes(), 0o644); err != nil {
-					t.Fatal(err)
+				golden := filepath.Join(wr.dir, "check_"+name+".golden")
+				if *updateGolden {
+					if err := os.MkdirAll(wr.dir, 0o755); err != nil {
+						t.Fatal(err)
+					}
+					if err := os.WriteFile(golden, buf.Bytes(), 0o644); err != nil {
+						t.Fatal(err)
+					}
+					return
 				}
-				return
-			}
-			want, err := os.ReadFile(golden)
-			if err != nil {
-				t.Fatalf("%v (run with -update to create it)", err)
-			}
-			if !bytes.Equal(buf.Bytes(), want) {
-				t.Errorf("check output differs from %s (run with -update and review the diff):\n%s", golden, buf.String())
-			}
-		})
+				want, err := os.ReadFile(golden)
+				if err != nil {
+					t.Fatalf("%v (run with -update to create it)", err)
+				}
+				if !bytes.Equal(buf.Bytes(), want) {
+					t.Errorf("check output differs from %s (run with -update and review the diff):\n%s", golden, buf.String())
+				}
+			})
+		}
 	}
 }
 

@@ -11,6 +11,7 @@ import (
 
 	"nullbench/instrument"
 	"nullbench/instrument/sim"
+	"nullbench/internal/simtest"
 	"nullbench/procedure"
 	"nullbench/procedure/analysis/freq"
 	"nullbench/procedure/plan"
@@ -38,14 +39,7 @@ noise_gain_tolerance = 0.001
 common_mode = "input_drive"
 max_stimulus_volts = 12.0
 
-[part]
-number = "HX-4107"
-nominal_pos_volts = 15.0
-nominal_neg_volts = -15.0
-max_supply_span_volts = 36.0
-cm_headroom_pos_volts = 2.0
-cm_headroom_neg_volts = 2.0
-cm_margin_volts = 0.5
+` + simtest.PartHX4107 + `cm_margin_volts = 0.5
 current_limit_amps = 0.05
 gbw_hz = 1e6
 gbw_tolerance = 0.05
@@ -86,15 +80,6 @@ stimulus_range_volts = 2.0
 response_range_volts = 2.0
 through_channel = "190"
 `
-
-// simClock adapts the sim's manual clock to the runner's Clock.
-type simClock struct {
-	c     sim.Clock
-	start time.Time
-}
-
-func (s simClock) Now() time.Duration                               { return s.c.Now().Sub(s.start) }
-func (s simClock) Sleep(ctx context.Context, d time.Duration) error { return s.c.Sleep(ctx, d) }
 
 // digitizerFigures reads the built-in digitizer profile's figures as the
 // analysis takes them (cmd does the same).
@@ -186,28 +171,9 @@ func runFreqPlan(t *testing.T, rest string, units []string, mis sim.DigitizerMis
 	if testing.Short() {
 		t.Skip("loopback frequency campaign on the simulated bench")
 	}
-	mc := sim.NewManualClock()
-	b, err := sim.New(sim.Config{Clock: mc, DigitizerMismatch: mis, Seed: seed})
-	if err != nil {
-		t.Fatal(err)
-	}
-	if err := b.Start(context.Background(), sim.ServeOptions{}); err != nil {
-		t.Fatal(err)
-	}
-	t.Cleanup(func() { b.Close() })
-	var unitsTOML strings.Builder
-	for _, id := range units {
-		for _, u := range b.Truth() {
-			if u.ID == id {
-				unitsTOML.WriteString("\n[[unit]]\nid = \"" + id + "\"\nchannel = \"" + u.Channel + "\"\n")
-			}
-		}
-	}
-	p, err := plan.Parse([]byte(b.BenchSection()+rest+unitsTOML.String()), "freq-loopback.toml")
-	if err != nil {
-		t.Fatal(err)
-	}
-	clk := simClock{c: mc, start: mc.Now()}
+	b := simtest.Start(t, sim.Config{DigitizerMismatch: mis, Seed: seed})
+	p := b.Plan(t, rest+b.Units(t, units...), "freq-loopback.toml")
+	clk := b.RunClock()
 	ctx, cancel := context.WithTimeout(context.Background(), 2*time.Minute)
 	defer cancel()
 	rig := openFreqRig(ctx, t, p, clk.Sleep)
@@ -222,7 +188,7 @@ func runFreqPlan(t *testing.T, rest string, units []string, mis sim.DigitizerMis
 	if len(probs) > 0 {
 		t.Fatalf("problems: %+v", probs)
 	}
-	return &freqRun{bench: b, plan: p, out: out, res: res}
+	return &freqRun{bench: b.Bench, plan: p, out: out, res: res}
 }
 
 // truthDB is the sim's −20·log10|k(f)| of a unit's coefficient for kind.
