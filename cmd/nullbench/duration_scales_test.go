@@ -434,21 +434,23 @@ func compareDuration(t testing.TB, p *plan.Plan, f estimate.Figures, total float
 		fails = append(fails, fmt.Sprintf("whole run: model %.0f s, measured %.0f s (ratio %.3f), outside ±15 %%", tl.TotalSeconds, total, r))
 	}
 	for k, got := range spans {
-		if strings.Contains(k, "/ac") {
-			// The duration model does not count [[ac_test]] yet.
-			t.Logf("%s (frequency response, not in the model): measured %.1f s", k, got)
-			continue
-		}
 		var ti int
-		fmt.Sscan(strings.Split(k, "/")[1], &ti)
-		want := tl.TestSeconds[ti-1]
+		var want float64
+		kind := ""
+		if ac, ok := strings.CutPrefix(strings.Split(k, "/")[1], "ac"); ok {
+			fmt.Sscan(ac, &ti)
+			want, kind = tl.ACTestSeconds[ti-1], "ac_test "+p.ACTests[ti-1].Kind
+		} else {
+			fmt.Sscan(strings.Split(k, "/")[1], &ti)
+			want, kind = tl.TestSeconds[ti-1], p.Tests[ti-1].Kind
+		}
 		r := want / got
 		if math.Abs(r-1) > worst {
-			worstAt = fmt.Sprintf("%s (%s): model %.1f s, measured %.1f s", k, p.Tests[ti-1].Kind, want, got)
+			worstAt = fmt.Sprintf("%s (%s): model %.1f s, measured %.1f s", k, kind, want, got)
 		}
 		worst = math.Max(worst, math.Abs(r-1))
 		if math.Abs(r-1) > 0.15 {
-			fails = append(fails, fmt.Sprintf("%s (%s): model %.1f s, measured %.1f s (ratio %.3f)", k, p.Tests[ti-1].Kind, want, got, r))
+			fails = append(fails, fmt.Sprintf("%s (%s): model %.1f s, measured %.1f s (ratio %.3f)", k, kind, want, got, r))
 		}
 	}
 	t.Logf("%d test spans, worst |model/measured − 1| = %.3f: %s", len(spans), worst, worstAt)
