@@ -36,7 +36,7 @@ func addArchiveFilterFlags(cmd *cobra.Command, f *archiveFilterFlags, results bo
 		fl.StringVar(&f.Unit, "unit", "", "only this unit")
 		fl.StringVar(&f.Test, "test", "", "only this test (cmrr, psrr_pos, ...)")
 		fl.StringVar(&f.Temperature, "temperature", "", "only this nominal temperature, °C")
-		fl.StringVar(&f.Frequency, "frequency", "", "only this stimulus frequency, Hz (0: DC results)")
+		fl.StringVar(&f.Frequency, "frequency", "", "only this stimulus frequency, Hz, within 0.1 % (0: DC results)")
 		fl.StringVar(&f.Verdict, "verdict", "", `only this verdict: pass, "conditional pass", "conditional fail", fail, "not judged", "no result"`)
 	}
 }
@@ -215,8 +215,8 @@ first, as a table, CSV (RFC 4180) or JSON lines. Each row carries its
 campaign, part, lot, bench and plan hash; CSV and JSON lines add every
 figure of the result (coefficient with u and U, ratio with U in dB, k,
 ν_eff, lower bound, limit, decision rule, flags and notes), so a result's
-statement can be rebuilt from them. Text matches exactly; temperature and
-frequency within 0.005.`,
+statement can be rebuilt from them. Text matches exactly; temperature
+within 0.005 °C; frequency within 0.1 % (--frequency 37.28 finds 37.2759 Hz).`,
 		Args: cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, args []string) error {
 			return failed(runArchiveQuery(cmd.Context(), std, ao.DB, o))
@@ -266,7 +266,7 @@ func writeResultRows(w io.Writer, rows []archive.Row, format string) error {
 			}
 			hz := "DC"
 			if r.FrequencyHz != 0 {
-				hz = strconv.FormatFloat(r.FrequencyHz, 'g', -1, 64)
+				hz = strconv.FormatFloat(r.FrequencyHz, 'g', 5, 64)
 			}
 			fmt.Fprintf(tw, "%d\t%s\t%s\t%s\t%s\t%s\t%s\t%g\t%s\t%s\t%s\t%s\t%s\t%s\t%s\t\n", r.Campaign, r.Started.UTC().Format("2006-01-02"),
 				r.Part, r.Lot, r.Bench, r.Unit, r.Test, r.TemperatureC, hz, fmtG(r.CoefficientUVPerV, 4), fmtG(r.CoefficientExpandedUUVPerV, 2),

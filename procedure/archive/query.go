@@ -11,8 +11,9 @@ import (
 )
 
 // Filter selects campaigns and results; zero fields select everything.
-// Text fields match exactly. Temperature and frequency match within
-// 0.005 (°C, Hz), the resolution the report joins temperatures at.
+// Text fields match exactly. Temperature matches within 0.005 °C, the
+// resolution the report joins temperatures at; frequency within 0.1 %
+// (and 0.005 Hz), since swept frequencies are rarely round numbers.
 type Filter struct {
 	Part, Lot, Unit, Test, Bench string
 	// Verdict matches the stored verdict ("pass", "conditional pass",
@@ -127,7 +128,10 @@ func resultWhere(w *where, f Filter) {
 		w.add("r.temperature_c BETWEEN ? AND ?", *f.TemperatureC-0.005, *f.TemperatureC+0.005)
 	}
 	if f.FrequencyHz != nil {
-		w.add("r.frequency_hz BETWEEN ? AND ?", *f.FrequencyHz-0.005, *f.FrequencyHz+0.005)
+		// Swept frequencies are rarely round (37.2759… Hz): within 0.1 %
+		// (and 0.005 Hz) of the one asked for.
+		fz := *f.FrequencyHz
+		w.add("r.frequency_hz BETWEEN ? AND ?", fz-math.Abs(fz)*1e-3-0.005, fz+math.Abs(fz)*1e-3+0.005)
 	}
 }
 

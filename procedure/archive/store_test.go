@@ -124,13 +124,23 @@ func TestQueryFilters(t *testing.T) {
 			}
 		}
 		t85, t25, dc := 85.0, 25.0, 0.0
+		f37, f37off := 37.28, 37.2759372*1.002
+		// One frequency-response result at a swept (not round) frequency.
+		fr := sampleCampaign(9, "LF", "bench-F", 1, 0)
+		fr.Results = fr.Results[:1]
+		fr.Results[0].FrequencyHz = 37.2759372
+		fr.Part, fr.Started = "HX-FREQ", time.Date(2026, 2, 1, 0, 0, 0, 0, time.UTC)
+		fr.Results[0].Test, fr.Results[0].TemperatureC = "cmrr_ac", 30
+		if _, _, err := s.Add(ctx, fr); err != nil {
+			t.Fatal(err)
+		}
 		day := func(d int) time.Time { return time.Date(2026, 3, d, 0, 0, 0, 0, time.UTC) }
 		for _, tc := range []struct {
 			name string
 			f    Filter
 			want int
 		}{
-			{"all", Filter{}, 3 * 4 * 3 * 2},
+			{"all", Filter{}, 3*4*3*2 + 1},
 			{"lot", Filter{Lot: "L2"}, 24},
 			{"part", Filter{Part: "HX-4107"}, 72},
 			{"other part", Filter{Part: "HX-9999"}, 0},
@@ -139,6 +149,8 @@ func TestQueryFilters(t *testing.T) {
 			{"temperature", Filter{TemperatureC: &t85}, 36},
 			{"temperature and test", Filter{TemperatureC: &t25, Test: "cmrr"}, 12},
 			{"DC", Filter{FrequencyHz: &dc}, 72},
+			{"swept frequency, rounded", Filter{FrequencyHz: &f37}, 1},
+			{"swept frequency, 0.2 % off", Filter{FrequencyHz: &f37off}, 0},
 			{"bench", Filter{Bench: "bench-B"}, 24},
 			{"verdict", Filter{Verdict: "conditional pass"}, 18},
 			{"date range", Filter{From: day(2), To: day(3)}, 24}, // seed 1 started 2026-03-02 08:00
