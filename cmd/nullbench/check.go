@@ -131,7 +131,34 @@ func checkBenchWith(p *plan.Plan, resolve profileResolver) error {
 	if err := plan.CheckBench(p, lookup); err != nil {
 		return withCode(exitUsage, err)
 	}
-	return nil
+	return safetyExit(safety.CheckRatings(p, outputRatings(p, resolve)))
+}
+
+// outputRatings gives each bound supply and source role the voltage
+// rating (max_volts) of its instrument's profile, for safety.CheckRatings.
+// A profile that cannot be resolved is left out: CheckBench has said so.
+func outputRatings(p *plan.Plan, resolve profileResolver) map[string]safety.Rating {
+	out := map[string]safety.Rating{}
+	for _, role := range []string{plan.RoleSupplyPos, plan.RoleSupplyNeg, plan.RoleSourceCM, plan.RoleSourceDiff, plan.RoleSourceRef} {
+		b := p.Bench.Roles.Get(role)
+		if !b.Bound() {
+			continue
+		}
+		spec := p.Bench.Instruments[b.Instrument]
+		prof, err := resolve(b.Instrument, spec.Profile)
+		if err != nil {
+			continue
+		}
+		r := safety.Rating{From: fmt.Sprintf("instrument %s, profile %q", b.Instrument, spec.Profile)}
+		switch {
+		case (role == plan.RoleSupplyPos || role == plan.RoleSupplyNeg) && prof.Supply != nil:
+			r.MaxVolts = prof.Supply.MaxVolts
+		case prof.Source != nil:
+			r.MaxVolts = prof.Source.MaxVolts
+		}
+		out[role] = r
+	}
+	return out
 }
 
 // checkJSON is `check --json`: field names are fixed so that scripts can

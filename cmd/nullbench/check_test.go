@@ -289,3 +289,27 @@ func TestCheckAndSizeCountACTests(t *testing.T) {
 		t.Errorf("size does not say it leaves the ac tests alone:\n%s", rs.out)
 	}
 }
+
+// check refuses a plan that programs a supply beyond its profile's
+// max_volts, naming the role's line, the rating and the profile: the
+// hazardous example bound to the 40 V built-in "supply2" instead of its
+// 150 V test profile (80 V on V+).
+func TestCheckRefusesLevelsBeyondTheOutputRating(t *testing.T) {
+	data, err := os.ReadFile(cliRepoFile("testdata", "plans", "unsafe_hazardous.toml"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	text := strings.Replace(string(data), `profile = "supply_hv.toml"`, `profile = "supply2"`, 1)
+	if text == string(data) {
+		t.Fatal("the hazardous example no longer binds supply_hv.toml")
+	}
+	plan := cliWriteFile(t, t.TempDir(), "over_rating.toml", text)
+	r := cliExec(t, "check", "--allow-hazardous", plan)
+	cliWantCode(t, r, exitSafety, "check --allow-hazardous", plan)
+	prefix := plan + ":" + strconv.Itoa(cliLineOf(t, plan, "supply_pos")) + ":"
+	for _, want := range []string{prefix, "80 V on supply_pos", "40 V rating", `profile "supply2"`, "max_volts"} {
+		if !strings.Contains(r.err, want) {
+			t.Errorf("refusal does not say %q:\n%s", want, r.err)
+		}
+	}
+}

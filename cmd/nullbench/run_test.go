@@ -346,6 +346,8 @@ func TestRunRefusesUnsafePlanBeforeAnyConnection(t *testing.T) {
 		{"hazardous, allowed and confirmed", "unsafe_hazardous.toml", []string{"--allow-hazardous"}, cliOpts{isTerm: true, in: "yes\n"}, exitInstrument, "", 1},
 	}
 	dir := t.TempDir()
+	// The hazardous plan binds its supply to a profile beside it.
+	cliWriteFile(t, dir, "supply_hv.toml", string(cliMust(os.ReadFile(cliRepoFile("testdata", "plans", "supply_hv.toml")))))
 	for i, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
 			data, err := os.ReadFile(cliRepoFile("testdata", "plans", tt.plan))
