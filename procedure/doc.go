@@ -8,7 +8,8 @@
 // the reading and the journal in package journal; the fits in package
 // analysis; the remaining-time model in package estimate; the person at
 // the bench (Operator, the terminal's LineOperator, unit skips) in package
-// operator; the bench time base in package clock. This package never
+// operator; the bench time base in package clock; the wording of a stopped
+// run and of the safe state (RunError, SafeStateError) in package fault. This package never
 // imports instrument/sim or analysis; it receives role values
 // (instrument.Supply, Meter, …) from cmd.
 //
@@ -25,7 +26,7 @@
 // instrument error, a lost connection or a time-out the bench goes to its
 // safe state on a fresh context (sources to 0 V and off before the
 // supplies ramp down, chamber to ambient, switch open) and Run returns a
-// RunError naming the unit, test, temperature, step and level. A resumed
+// fault.RunError naming the unit, test, temperature, step and level. A resumed
 // run skips exactly the points its journal holds. All waits use a
 // clock.Clock, so a time-scaled simulated bench and the tool share one
 // time base.

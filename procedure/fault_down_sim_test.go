@@ -9,6 +9,7 @@ import (
 	"time"
 
 	"nullbench/instrument/sim"
+	"nullbench/procedure/fault"
 	"nullbench/procedure/plan"
 )
 
@@ -117,7 +118,7 @@ func TestFaultSwitchOffKeepsCommonModeMarginOnSim(t *testing.T) {
 	}}
 	_, err := Run(context.Background(), su.plan, su.rig, RunOptions{Clock: su.clock, Progress: hook,
 		Timing: Timing{SafeCallTimeout: time.Second, SafeStateTimeout: 20 * time.Second}})
-	var re *RunError
+	var re *fault.RunError
 	if !errors.As(err, &re) || re.SafeState != nil {
 		t.Fatalf("want a run stopped with the safe state reached: %v", err)
 	}

@@ -12,6 +12,7 @@ import (
 	"time"
 
 	"nullbench/instrument/sim"
+	"nullbench/procedure/fault"
 	"nullbench/procedure/plan"
 )
 
@@ -29,25 +30,25 @@ var faultPort = regexp.MustCompile(`tcp://127\.0\.0\.1:[0-9]+`)
 // they are known. Each fault is armed after the cmrr point at +5 V of U01
 // and fires on the next matching command.
 func TestFaultMessagesGolden(t *testing.T) {
-	type fault struct {
+	type injected struct {
 		instrument string
 		f          sim.Fault
 	}
 	cases := []struct {
 		name    string
-		faults  []fault
+		faults  []injected
 		hazard  bool // SAFE STATE NOT REACHED expected
 		reached bool // the safe state reached without any problem
 	}{
-		{"set_refused", []fault{{sim.NameSupply, sim.Fault{Kind: sim.FaultQueueError, Match: "VOLT 1", Code: -222, Message: "Data out of range"}}}, false, true},
-		{"query_timeout", []fault{{sim.NameSupply, sim.Fault{Kind: sim.FaultNoReply, Match: "MEAS:VOLT?"}}}, false, true},
-		{"query_timeout_queue", []fault{
+		{"set_refused", []injected{{sim.NameSupply, sim.Fault{Kind: sim.FaultQueueError, Match: "VOLT 1", Code: -222, Message: "Data out of range"}}}, false, true},
+		{"query_timeout", []injected{{sim.NameSupply, sim.Fault{Kind: sim.FaultNoReply, Match: "MEAS:VOLT?"}}}, false, true},
+		{"query_timeout_queue", []injected{
 			{sim.NameSupply, sim.Fault{Kind: sim.FaultQueueError, Match: "MEAS:VOLT?", Code: -230, Message: "Data corrupt or stale"}},
 			{sim.NameSupply, sim.Fault{Kind: sim.FaultNoReply, Match: "MEAS:VOLT?"}},
 		}, false, true},
-		{"connection_dropped_redialed", []fault{{sim.NameSupply, sim.Fault{Kind: sim.FaultDrop, Match: "MEAS:VOLT?"}}}, false, true},
-		{"connection_dropped_for_good", []fault{{sim.NameSupply, sim.Fault{Kind: sim.FaultDrop, Match: "VOLT", Persistent: true}}}, true, false},
-		{"relays_not_opened", []fault{
+		{"connection_dropped_redialed", []injected{{sim.NameSupply, sim.Fault{Kind: sim.FaultDrop, Match: "MEAS:VOLT?"}}}, false, true},
+		{"connection_dropped_for_good", []injected{{sim.NameSupply, sim.Fault{Kind: sim.FaultDrop, Match: "VOLT", Persistent: true}}}, true, false},
+		{"relays_not_opened", []injected{
 			{sim.NameDMM, sim.Fault{Kind: sim.FaultNoReply, Match: "READ?"}},
 			{sim.NameSwitch, sim.Fault{Kind: sim.FaultQueueError, Match: "ROUT:OPEN", Code: -240, Message: "Hardware error;relay driver", Persistent: true}},
 		}, false, false},
@@ -69,7 +70,7 @@ func TestFaultMessagesGolden(t *testing.T) {
 			}}
 			_, err := Run(context.Background(), su.plan, su.rig, RunOptions{Clock: su.clock, Progress: hook,
 				Timing: Timing{SafeCallTimeout: time.Second, SafeStateTimeout: 20 * time.Second}})
-			var re *RunError
+			var re *fault.RunError
 			if !errors.As(err, &re) || !armed {
 				t.Fatalf("armed %v, err %v", armed, err)
 			}

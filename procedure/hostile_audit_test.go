@@ -11,6 +11,7 @@ import (
 	"testing"
 
 	"nullbench/procedure/analysis"
+	"nullbench/procedure/fault"
 	"nullbench/procedure/journal"
 	"nullbench/procedure/plan"
 	"nullbench/procedure/safety"
@@ -80,7 +81,7 @@ func auditRun(t *testing.T, su *simSetup, opt RunOptions, wantEnd string) (error
 // holds every want, with the safe state reached and the bench off.
 func wantStopped(t *testing.T, su *simSetup, err error, want ...string) {
 	t.Helper()
-	var re *RunError
+	var re *fault.RunError
 	if !errors.As(err, &re) {
 		t.Fatalf("want a RunError, got %v", err)
 	}
@@ -180,7 +181,7 @@ func TestAuditFailedSet(t *testing.T) {
 			if psu.firedCount() == 0 {
 				t.Fatal("the proxy never failed a set command")
 			}
-			var re *RunError
+			var re *fault.RunError
 			if !errors.As(err, &re) {
 				t.Fatalf("want a RunError, got %v", err)
 			}

@@ -7,6 +7,7 @@ import (
 	"io"
 
 	"nullbench/procedure/clock"
+	"nullbench/procedure/fault"
 	"nullbench/procedure/plan"
 	"nullbench/procedure/safety"
 )
@@ -38,7 +39,7 @@ type OffReport struct {
 // the chamber's set point
 // returns to temperature.ambient_c. It carries on past a failing
 // instrument so that the others still reach their safe state, and returns
-// every failure as a *SafeStateError (Hazard when an output may still be
+// every failure as a *fault.SafeStateError (Hazard when an output may still be
 // on). A role the rig lacks is skipped (the plan may bind
 // instruments that are not connected now).
 func Off(ctx context.Context, p *plan.Plan, rig *Rig, opt OffOptions) (*OffReport, error) {
@@ -51,7 +52,7 @@ func Off(ctx context.Context, p *plan.Plan, rig *Rig, opt OffOptions) (*OffRepor
 	r := newRunner(p, rig, RunOptions{Clock: opt.Clock, Log: opt.Log, Timing: opt.Timing})
 	rep := &OffReport{}
 	var errs []error
-	var remains []string // outputs that may still be on (SafeStateError.Remains)
+	var remains []string // outputs that may still be on (fault.SafeStateError.Remains)
 	note := func(format string, args ...any) {
 		s := fmt.Sprintf(format, args...)
 		rep.Actions = append(rep.Actions, s)
@@ -163,6 +164,6 @@ func Off(ctx context.Context, p *plan.Plan, rig *Rig, opt OffOptions) (*OffRepor
 		return rep, nil
 	}
 	// Hazard only when an output may still be on: relays left closed on
-	// an unpowered part are said as such (SafeStateError).
-	return rep, &SafeStateError{Hazard: len(remains) > 0, Remains: remains, Problems: errs, p: p, redialed: r.redialed}
+	// an unpowered part are said as such (fault.SafeStateError).
+	return rep, fault.NewSafeStateError(p, remains, errs, r.redialed)
 }

@@ -7,6 +7,7 @@ import (
 	"strings"
 	"testing"
 
+	"nullbench/procedure/fault"
 	"nullbench/procedure/plan"
 )
 
@@ -104,9 +105,9 @@ func TestOffSaysNotReachedOnlyForAHazard(t *testing.T) {
 				return nil
 			}
 			_, err := Off(context.Background(), p, fb.rig(), OffOptions{Clock: fb.clk})
-			var se *SafeStateError
+			var se *fault.SafeStateError
 			if !errors.As(err, &se) {
-				t.Fatalf("err %T %v, want a *SafeStateError", err, err)
+				t.Fatalf("err %T %v, want a *fault.SafeStateError", err, err)
 			}
 			msg := err.Error()
 			if se.Hazard != tc.hazard || strings.Contains(msg, "SAFE STATE NOT REACHED") != tc.hazard {

@@ -15,6 +15,7 @@ import (
 	"nullbench/instrument"
 	"nullbench/instrument/sim"
 	"nullbench/procedure/analysis"
+	"nullbench/procedure/fault"
 	"nullbench/procedure/journal"
 	"nullbench/procedure/plan"
 	"nullbench/procedure/safety"
@@ -148,7 +149,7 @@ func TestSafeStateAbsurdReadBackAfterFailedSet(t *testing.T) {
 				}
 			}}
 			_, err, c, log := runJournalled(t, su, context.Background(), RunOptions{Progress: hook})
-			var re *RunError
+			var re *fault.RunError
 			if !errors.As(err, &re) || !hs.fired {
 				t.Fatalf("fired %v, err %v", hs.fired, err)
 			}
@@ -257,7 +258,7 @@ func TestRunRecoversPanic(t *testing.T) {
 	su := startSim(t, plan.CMBySupplyShift, false, 500*time.Millisecond)
 	su.rig.Meter = &panicMeter{Meter: su.rig.Meter, n: 3}
 	_, err, c, _ := runJournalled(t, su, context.Background(), RunOptions{})
-	var re *RunError
+	var re *fault.RunError
 	if !errors.As(err, &re) || !errors.Is(err, ErrPanic) {
 		t.Fatalf("want a RunError wrapping ErrPanic: %v", err)
 	}
@@ -362,7 +363,7 @@ func TestSafeStateRedialsALostSupply(t *testing.T) {
 		}
 	}}
 	_, err, c, log := runJournalled(t, su, context.Background(), RunOptions{Progress: hook})
-	var re *RunError
+	var re *fault.RunError
 	if !errors.As(err, &re) || !errors.Is(err, instrument.ErrClosed) {
 		t.Fatalf("want a lost connection: %v", err)
 	}

@@ -11,6 +11,7 @@ import (
 
 	"nullbench/procedure/clock"
 	"nullbench/procedure/estimate"
+	"nullbench/procedure/fault"
 	"nullbench/procedure/journal"
 	"nullbench/procedure/operator"
 	"nullbench/procedure/plan"
@@ -138,7 +139,7 @@ type Outcome struct {
 // to 0 V and switched off BEFORE the supplies ramp down and switch off,
 // the chamber set back to ambient, the switch opened; it carries on past
 // individual instrument errors and reports them. The failure and the safe
-// state are journalled, and the error is a *RunError naming the
+// state are journalled, and the error is a *fault.RunError naming the
 // temperature, unit, test, repeat, step and level, and the instrument
 // command that failed. The Outcome returned with it holds every reading
 // taken so far.
@@ -174,138 +175,7 @@ func Run(ctx context.Context, p *plan.Plan, rig *Rig, opt RunOptions) (*Outcome,
 	return r.run(ctx)
 }
 
-// RunError is a run stopped by a fault or an interruption: where it was,
-// what failed, and whether the bench reached its safe state.
-type RunError struct {
-	Stage        string  // what the runner was doing, e.g. "settle", "power up", "soak"
-	TempIndex    int     // index into Plan.TemperaturePoints; -1 before the first, or when the plan has no temperature points
-	TemperatureC float64 // the temperature point (set point or planned)
-	Unit         string  // "" before the first unit
-	TestIndex    int     // index into Plan.Tests, -1 outside a test
-	Test, Part   string
-	Repeat, Step int
-	LevelVolts   float64
-	AtStep       bool // Repeat, Step and LevelVolts are meaningful
-	// ACTest is the [[ac_test]] index the run was in (-1: none) and
-	// FrequencyHz its frequency.
-	ACTest      int
-	FrequencyHz float64
-	// Err is the cause: the instrument's error (naming instrument and
-	// command), a soak time-out, or ctx's error on an interruption.
-	Err error
-	// Interrupted says the run's context was cancelled (Ctrl-C).
-	Interrupted bool
-	// SafeState is nil when the bench reached its safe state, else every
-	// problem met on the way (the bench needs a look by hand).
-	SafeState error
-	// Relays says what is known about the switch's relays after the safe
-	// state opened them ("" when it did not try): "every channel open"
-	// only after an accepted open-all command (instrument.Opening).
-	Relays string
-	// Cause is Err stated cause first and once, with the plan's role and
-	// address of a failing instrument (describeError); "" falls back to
-	// Err's own text.
-	Cause string
-	// PlanFile and TestLine point at the [[test]] (or [[ac_test]]) table
-	// the run was in (line 0: not known).
-	PlanFile string
-	TestLine int
-}
-
-// Error states the cause first, once, then where the run was, then the
-// safe state: "SAFE STATE NOT REACHED" only when something that can hurt
-// the part or a person may remain (SafeStateError.Hazard), then how to
-// continue. Lines after the first are indented.
-func (e *RunError) Error() string {
-	var b strings.Builder
-	if e.Interrupted {
-		b.WriteString("run interrupted: ")
-	} else {
-		b.WriteString("run stopped: ")
-	}
-	if e.Cause != "" && !e.Interrupted {
-		b.WriteString(e.Cause)
-	} else {
-		fmt.Fprintf(&b, "%v", e.Err)
-	}
-	loc := e.where()
-	if loc != "" || e.Stage != "" {
-		b.WriteString("\n  at ")
-		b.WriteString(loc)
-		if e.Stage != "" {
-			if loc != "" {
-				b.WriteString(", ")
-			}
-			fmt.Fprintf(&b, "while %s", e.Stage)
-		}
-	}
-	var se *SafeStateError
-	switch {
-	case e.SafeState == nil:
-		b.WriteString("\n  the bench is in its safe state (sources at 0 V and off, supplies ramped down and off)")
-		if e.Relays != "" {
-			b.WriteString("; switch: " + e.Relays)
-		}
-	case errors.As(e.SafeState, &se):
-		b.WriteString("\n  " + se.Error())
-		if !se.Hazard && e.Relays != "" {
-			b.WriteString("\n    - switch: " + e.Relays)
-		}
-	default:
-		fmt.Fprintf(&b, "\n  SAFE STATE NOT REACHED, check the bench by hand: %v", e.SafeState)
-	}
-	b.WriteString("\n  readings taken so far are kept (resume the journal to continue)")
-	return b.String()
-}
-
-func (e *RunError) where() string {
-	var parts []string
-	if e.TempIndex >= 0 {
-		parts = append(parts, fmt.Sprintf("temperature %d (%g °C)", e.TempIndex+1, e.TemperatureC))
-	}
-	if e.Unit != "" {
-		parts = append(parts, "unit "+e.Unit)
-	}
-	if e.TestIndex >= 0 {
-		s := fmt.Sprintf("test[%d] %s", e.TestIndex+1, e.Test)
-		if e.Part != "" {
-			s += "/" + e.Part
-		}
-		s += e.planLine()
-		parts = append(parts, s)
-	}
-	if e.AtStep {
-		parts = append(parts, fmt.Sprintf("repeat %d, step %d (level %s)", e.Repeat+1, e.Step+1, plan.FormatVolts(e.LevelVolts)))
-	}
-	if e.ACTest >= 0 && e.TestIndex < 0 {
-		s := fmt.Sprintf("ac_test[%d] %s", e.ACTest+1, e.Test)
-		if e.FrequencyHz > 0 {
-			s += fmt.Sprintf(" at %g Hz", e.FrequencyHz)
-		}
-		s += e.planLine()
-		parts = append(parts, s)
-	}
-	return strings.Join(parts, ", ")
-}
-
-// planLine is " (plan.toml:95)" for the test's table, or "".
-func (e *RunError) planLine() string {
-	if e.PlanFile == "" || e.TestLine <= 0 {
-		return ""
-	}
-	return fmt.Sprintf(" (%s:%d)", e.PlanFile, e.TestLine)
-}
-
-// Unwrap gives errors.Is/As both the cause and the safe-state problems.
-func (e *RunError) Unwrap() []error {
-	out := []error{e.Err}
-	if e.SafeState != nil {
-		out = append(out, e.SafeState)
-	}
-	return out
-}
-
-// Stages of a run, as RunError.Stage names them.
+// Stages of a run, as fault.RunError.Stage names them.
 const (
 	stagePowerUp     = "powering up"
 	stagePowerDown   = "powering down"
@@ -616,10 +486,10 @@ func (r *runner) finish(ctx context.Context) error {
 }
 
 // abort brings the bench to the safe state after err and returns the
-// RunError that tells the user what happened.
+// fault.RunError that tells the user what happened.
 func (r *runner) abort(ctx context.Context, err error) error {
 	at := r.at
-	e := &RunError{Stage: at.stage, TempIndex: at.tempIndex, TemperatureC: at.tempPoint, Unit: at.unit,
+	e := &fault.RunError{Stage: at.stage, TempIndex: at.tempIndex, TemperatureC: at.tempPoint, Unit: at.unit,
 		TestIndex: at.test, Test: at.kind, Part: at.part, Repeat: at.repeat, Step: at.step,
 		LevelVolts: at.level, AtStep: at.atStep, Err: err, ACTest: at.acTest, FrequencyHz: at.acHz}
 	if at.test < 0 && at.acTest < 0 {
@@ -632,7 +502,7 @@ func (r *runner) abort(ctx context.Context, err error) error {
 	case at.acTest >= 0:
 		e.TestLine = r.p.ACTestLine(at.acTest)
 	}
-	e.Cause = describeError(r.p, err)
+	e.Cause = fault.Describe(r.p, err)
 	if r.p.Temperature.Mode == plan.TempNone {
 		e.TempIndex = -1 // one ambient pass: not worth naming
 	}
@@ -661,7 +531,7 @@ func (r *runner) abort(ctx context.Context, err error) error {
 	r.journalEnd(journal.End{Status: status, Reason: e.Error()})
 	// The caller prints the error itself (cmd does); the progress display
 	// only says that the run stopped, so the cause is stated once.
-	if hazardIn(e.SafeState) {
+	if fault.Hazard(e.SafeState) {
 		r.prog.Note("stopped: SAFE STATE NOT REACHED (see below)")
 	} else {
 		r.prog.Note("stopped: the bench is unpowered (see below)")

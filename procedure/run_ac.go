@@ -41,7 +41,7 @@ type GeneratorLimiter interface {
 	SetLimits(ctx context.Context, maxPeakVolts, maxOffsetVolts float64) error
 }
 
-// Stages of an AC test, as RunError.Stage names them.
+// Stages of an AC test, as fault.RunError.Stage names them.
 const (
 	stageACSetup   = "setting up the generator and digitizer"
 	stageACCapture = "capturing a record"

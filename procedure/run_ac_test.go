@@ -13,6 +13,7 @@ import (
 	"time"
 
 	"nullbench/instrument"
+	"nullbench/procedure/fault"
 	"nullbench/procedure/journal"
 	"nullbench/procedure/operator"
 	"nullbench/procedure/plan"
@@ -286,7 +287,7 @@ func TestRunACSafeStateGeneratorFirst(t *testing.T) {
 	a := newFakeAC(fb)
 	fb.fault = failNth("digitizer", "capture", 7, errors.New("digitizer timed out"), false)
 	_, err := runFakeAC(context.Background(), t, p, a, RunOptions{})
-	var re *RunError
+	var re *fault.RunError
 	if !errors.As(err, &re) || re.SafeState != nil || re.Stage != stageACCapture {
 		t.Fatalf("want a RunError at the capture with the safe state reached, got %v", err)
 	}
@@ -349,7 +350,7 @@ func TestRunACResume(t *testing.T) {
 	}
 	out1, err := runFakeAC(ctx, t, p, a, RunOptions{Journal: w})
 	w.Close()
-	var re *RunError
+	var re *fault.RunError
 	if !errors.As(err, &re) || !re.Interrupted {
 		t.Fatalf("want an interrupted run, got %v", err)
 	}

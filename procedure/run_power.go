@@ -7,6 +7,7 @@ import (
 	"strings"
 
 	"nullbench/instrument"
+	"nullbench/procedure/fault"
 	"nullbench/procedure/journal"
 	"nullbench/procedure/operator"
 	"nullbench/procedure/plan"
@@ -408,7 +409,7 @@ func (r *runner) safeState(runCtx context.Context) error {
 	if len(errs) == 0 {
 		return nil
 	}
-	return &SafeStateError{Hazard: len(remains) > 0, Remains: remains, Problems: errs, p: r.p, redialed: r.redialed}
+	return fault.NewSafeStateError(r.p, remains, errs, r.redialed)
 }
 
 func isSourceRole(role string) bool {

@@ -10,6 +10,7 @@ import (
 	"testing"
 	"time"
 
+	"nullbench/procedure/fault"
 	"nullbench/procedure/journal"
 	"nullbench/procedure/plan"
 )
@@ -170,7 +171,7 @@ func TestRunResumeAfterAbortGivesTheSamePoints(t *testing.T) {
 			}
 			out, err := runFake(ctx, t, p, fb, RunOptions{Journal: w})
 			w.Close()
-			var re *RunError
+			var re *fault.RunError
 			if !errors.As(err, &re) {
 				t.Fatalf("first run: %v", err)
 			}
@@ -306,7 +307,7 @@ func TestRunStopsWhenTheJournalFails(t *testing.T) {
 		}
 	}
 	out, err := runFake(context.Background(), t, p, fb, RunOptions{Journal: w})
-	var re *RunError
+	var re *fault.RunError
 	if !errors.As(err, &re) || re.Stage != stageJournal || out.Measured != 4 {
 		t.Fatalf("err %v, measured %d", err, out.Measured)
 	}

@@ -12,6 +12,7 @@ import (
 	"nullbench/instrument"
 	"nullbench/instrument/sim"
 	"nullbench/internal/simtest"
+	"nullbench/procedure/fault"
 	"nullbench/procedure/journal"
 	"nullbench/procedure/plan"
 )
@@ -266,7 +267,7 @@ func TestRunOnSimulatedBenchFaults(t *testing.T) {
 			out, err := Run(ctx, su.plan, su.rig, RunOptions{Clock: su.clock, Progress: hook, Journal: w,
 				Timing: Timing{SafeCallTimeout: time.Second, SafeStateTimeout: 20 * time.Second}})
 			w.Close()
-			var re *RunError
+			var re *fault.RunError
 			if !errors.As(err, &re) {
 				t.Fatalf("err %v", err)
 			}

@@ -12,6 +12,7 @@ import (
 	"time"
 
 	"nullbench/instrument"
+	"nullbench/procedure/fault"
 	"nullbench/procedure/journal"
 	"nullbench/procedure/plan"
 	"nullbench/procedure/safety"
@@ -718,9 +719,9 @@ func TestRunFaultBringsBenchToSafeState(t *testing.T) {
 			}
 			var log bytes.Buffer
 			out, err := runFake(ctx, t, p, fb, RunOptions{Log: &log})
-			var re *RunError
+			var re *fault.RunError
 			if !errors.As(err, &re) {
-				t.Fatalf("error %T %v, want *RunError", err, err)
+				t.Fatalf("error %T %v, want *fault.RunError", err, err)
 			}
 			if out == nil || out.Complete {
 				t.Fatalf("outcome %+v", out)
@@ -792,7 +793,7 @@ func TestRunHandSwap(t *testing.T) {
 		fb := newFakeBench(p)
 		op := &fakeOperator{fb: fb, ids: map[string]string{"U08": "U09"}}
 		out, err := runFake(context.Background(), t, p, fb, RunOptions{Operator: op})
-		var re *RunError
+		var re *fault.RunError
 		if !errors.As(err, &re) || re.Unit != "U08" || re.Stage != stageSwap || !strings.Contains(err.Error(), `"U09"`) {
 			t.Fatalf("err %v", err)
 		}
@@ -861,19 +862,6 @@ func TestRunTemperatureModes(t *testing.T) {
 			}
 		}
 	})
-}
-
-func TestRunErrorMessage(t *testing.T) {
-	e := &RunError{Stage: stageSettle, TempIndex: 1, TemperatureC: 85, Unit: "U03", TestIndex: 1, Test: plan.TestPSRRPos,
-		Repeat: 0, Step: 2, LevelVolts: 5, AtStep: true,
-		Err: fmt.Errorf("meter: read: %w", &instrument.InstrumentError{Instrument: "dmm", Command: "READ?", Code: -222, Message: "Data out of range"})}
-	got := e.Error()
-	for _, want := range []string{"temperature 2 (85 °C)", "unit U03", "test[2] psrr_pos", "repeat 1, step 3 (level +5 V)",
-		"while waiting for the output to settle", "READ?", "safe state"} {
-		if !strings.Contains(got, want) {
-			t.Errorf("message lacks %q:\n%s", want, got)
-		}
-	}
 }
 
 // TestRunRampDwellIsAMinimum: Timing.RampDwell is the least bench time

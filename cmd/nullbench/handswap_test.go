@@ -15,7 +15,7 @@ import (
 
 	"nullbench/instrument/sim"
 	"nullbench/internal/simtest"
-	"nullbench/procedure"
+	"nullbench/procedure/fault"
 	"nullbench/procedure/operator"
 	"nullbench/procedure/plan"
 )
@@ -335,7 +335,7 @@ func TestHandSwapForgottenPart(t *testing.T) {
 			t.Errorf("the error does not say %q:\n%s", want, msg)
 		}
 	}
-	var re *procedure.RunError
+	var re *fault.RunError
 	if !errors.As(r.err, &re) || re.SafeState != nil {
 		t.Errorf("want a RunError with the safe state reached, got %#v", r.err)
 	}

@@ -9,6 +9,7 @@ import (
 
 	"nullbench/procedure"
 	"nullbench/procedure/clock"
+	"nullbench/procedure/fault"
 	"nullbench/procedure/plan"
 )
 
@@ -64,7 +65,7 @@ func runOff(ctx context.Context, std streams, o offOptions) error {
 	if err != nil {
 		// The error says whether an output may still be on ("SAFE STATE
 		// NOT REACHED") or only relays or the like could not be set.
-		var se *procedure.SafeStateError
+		var se *fault.SafeStateError
 		if errors.As(err, &se) {
 			if !se.Hazard && rep != nil && rep.Relays != "" {
 				err = fmt.Errorf("%w\n    - switch: %s", err, rep.Relays)

@@ -307,7 +307,7 @@ func measure(ctx context.Context, std streams, o measureOptions) (campaignRecord
 		case errors.As(runErr, &se):
 			runErr = withCode(exitSafety, runErr)
 		// The runner's error says whether the bench reached its safe state
-		// (procedure.RunError); never claim it here.
+		// (fault.RunError); never claim it here.
 		case ctx.Err() != nil:
 			runErr = withCode(exitFailure, fmt.Errorf("%w\nthe journal %s keeps every reading (continue with: nullbench resume %s)", runErr, o.JournalPath, o.JournalPath))
 		default:

@@ -1,4 +1,4 @@
-package procedure
+package fault
 
 import (
 	"errors"
@@ -10,12 +10,12 @@ import (
 	"nullbench/procedure/plan"
 )
 
-// benchContext names what the plan binds to instrument name, for an
+// BenchContext names what the plan binds to instrument name, for an
 // instrument fault's label: the role served by the failing part (where,
 // the driver's "supply channel 2", picks the role bound to that channel),
 // or every role bound to the instrument, then its address:
 // "supply_neg, channel 2, tcp://127.0.0.1:5025".
-func benchContext(p *plan.Plan, name, where string) string {
+func BenchContext(p *plan.Plan, name, where string) string {
 	if p == nil {
 		return ""
 	}
@@ -54,13 +54,13 @@ func benchContext(p *plan.Plan, name, where string) string {
 	return s
 }
 
-// describeError states err cause first and once: for an instrument fault
+// Describe states err cause first and once: for an instrument fault
 // the instrument (its part, the plan's roles and address), the command,
 // what happened and the error-queue entries (instrument.Fault.Sentence),
 // then the runner's step that failed ("step: supply_pos set-volts
 // +24 V", the text the runner wrapped around the instrument's
 // error). Any other error is its own text.
-func describeError(p *plan.Plan, err error) string {
+func Describe(p *plan.Plan, err error) string {
 	if err == nil {
 		return ""
 	}
@@ -68,7 +68,7 @@ func describeError(p *plan.Plan, err error) string {
 	if !ok {
 		return err.Error()
 	}
-	f.Context = benchContext(p, f.Instrument, f.Where)
+	f.Context = BenchContext(p, f.Instrument, f.Where)
 	s := f.Sentence()
 	if doing := doingBefore(err, f.Err); doing != "" {
 		s += " (step: " + doing + ")"
@@ -104,6 +104,14 @@ type SafeStateError struct {
 
 	p        *plan.Plan
 	redialed map[string]bool // instruments dialed again in the safe state
+}
+
+// NewSafeStateError is the safe state's verdict on problems: a hazard
+// when remains names anything that may remain. p names the roles and
+// addresses of failing instruments in the message; redialed holds the
+// instruments the safe state dialed again (either may be nil).
+func NewSafeStateError(p *plan.Plan, remains []string, problems []error, redialed map[string]bool) *SafeStateError {
+	return &SafeStateError{Hazard: len(remains) > 0, Remains: remains, Problems: problems, p: p, redialed: redialed}
 }
 
 func (e *SafeStateError) Error() string {
@@ -149,12 +157,12 @@ func problemLines(p *plan.Plan, errs []error, redialed map[string]bool) []string
 			notDone[key] = append(notDone[key], what)
 			continue
 		}
-		lines = append(lines, describeError(p, err))
+		lines = append(lines, Describe(p, err))
 	}
 	sort.Strings(order)
 	for _, key := range order {
 		label := key
-		if c := benchContext(p, key, ""); c != "" {
+		if c := BenchContext(p, key, ""); c != "" {
 			label += " (" + c + ")"
 		}
 		again := ""
@@ -167,10 +175,10 @@ func problemLines(p *plan.Plan, errs []error, redialed map[string]bool) []string
 	return lines
 }
 
-// isSafeStateError reports whether err is (or wraps) a SafeStateError
-// with a hazard, or is any other error (treated as a hazard: nothing says
+// Hazard reports whether err is (or wraps) a SafeStateError with a
+// hazard, or is any other non-nil error (treated as a hazard: nothing says
 // the outputs are off).
-func hazardIn(err error) bool {
+func Hazard(err error) bool {
 	if err == nil {
 		return false
 	}
