@@ -6,7 +6,8 @@ import (
 )
 
 // ControlChartMethod names the chart XbarS draws, for workbooks to print.
-const ControlChartMethod = "Shewhart X̄–S control chart, limits from the pooled within-lot SD (Montgomery, Introduction to Statistical Quality Control, §6.3 x̄ and s charts, variable sample size)"
+// The σ estimate is stated apart (SigmaEstimator.Source).
+const ControlChartMethod = "Shewhart X̄–S control chart with limits for each lot's own size (x̄ and s charts, Montgomery, Introduction to Statistical Quality Control, §6.3, from memory)"
 
 // C4 returns the bias factor c4(n) = E[s]/σ of the sample standard
 // deviation s (n − 1 divisor) of n independent normal observations:
@@ -67,9 +68,13 @@ type SigmaEstimator int
 
 const (
 	// SigmaPooled: σ̂ = s_p / c4(ν+1), s_p² = Σ(n_i−1)s_i² / ν, ν = Σ(n_i−1).
-	// s_p is the pooled s̄ Montgomery gives for subgroups of unequal size
-	// (§6.3.2, from memory); ν·s_p²/σ² is χ²_ν, so E[s_p] = c4(ν+1)·σ and
-	// the division makes σ̂ unbiased (derived). The default.
+	// s_p is the s̄ Montgomery pools for subgroups of unequal size
+	// (§6.3.2, from memory), but his chart then uses x̿ ± A3(n_i)·s_p, i.e.
+	// σ̂ = s_p/c4(n_i) for each subgroup. The single σ̂ here is our own
+	// derivation, not his: ν·s_p²/σ² is χ²_ν for normal subgroups with a
+	// common σ, and E[√χ²_ν] = √2·Γ((ν+1)/2)/Γ(ν/2), so E[s_p] = c4(ν+1)·σ
+	// and s_p/c4(ν+1) is unbiased. Checked by simulation against the
+	// published c4 table (fit/control_test.go). The default.
 	SigmaPooled SigmaEstimator = iota
 	// SigmaMeanS: σ̂ = (1/m) Σ s_i/c4(n_i); for equal n this is s̄/c4(n),
 	// the estimate behind Montgomery's x̄ and s charts with limits x̿ ± A3·s̄
@@ -85,6 +90,17 @@ func (e SigmaEstimator) String() string {
 		return "mean of s_i/c4(n_i)"
 	}
 	return fmt.Sprintf("SigmaEstimator(%d)", int(e))
+}
+
+// Source says where the estimator comes from, for workbooks to print.
+func (e SigmaEstimator) Source() string {
+	switch e {
+	case SigmaPooled:
+		return "our own derivation, not a published chart: ν·s_p²/σ² is χ²_ν, so E[s_p] = c4(ν+1)·σ; the pooled s_p itself is Montgomery's for unequal lot sizes (§6.3.2, from memory), whose limits x̿ ± A3(n_i)·s_p differ from these by c4(ν+1)/c4(n_i)"
+	case SigmaMeanS:
+		return "for lots of equal size s̄/c4(n), Montgomery §6.3.1 (Example 6.3); for unequal sizes each s_i/c4(n_i) is unbiased (our own extension)"
+	}
+	return ""
 }
 
 // ControlOptions tune XbarS. The zero value gives 3σ limits from the pooled
@@ -148,8 +164,9 @@ type ControlChart struct {
 //	X̄ chart:  x̿ ± L·σ̂/√n_i                   (= x̿ ± A3(n_i)·c4(n_i)·σ̂)
 //	s chart:  centre c4(n_i)·σ̂, limits B5(n_i)·σ̂, B6(n_i)·σ̂
 //
-// (Montgomery, Introduction to Statistical Quality Control, §6.3.1–6.3.2,
-// from memory; the per-subgroup limits for variable n follow his §6.3.2).
+// (chart form and c4, B5, B6: Montgomery, Introduction to Statistical
+// Quality Control, §6.3.1, from memory; a limit for each subgroup's own n as
+// in his §6.3.2; the pooled σ̂ is our derivation, see SigmaPooled).
 // A subgroup of one value has an X̄ point but no s point. A point beyond a
 // limit is flagged (MeanOut, SDOut) and, unless NoRunRules, the X̄ points
 // completing a Western Electric run rule carry it in Signals.

@@ -3,6 +3,7 @@ package fit
 import (
 	"errors"
 	"math"
+	"math/rand/v2"
 	"slices"
 	"testing"
 )
@@ -49,9 +50,10 @@ func TestChartFactorsTable(t *testing.T) {
 	}
 }
 
-// TestC4Values: c4(5) = 0.939985603 as printed (9 digits) in a statistics
-// package's documentation of its c4 function (named in the constants file's
-// header); c4 → 1 − 1/(4n) for large n (Montgomery, from memory: the
+// TestC4Values: c4(5) = 0.939985603 as printed (9 digits) in SAS/QC
+// User's Guide, chapter "Functions", "C4 Function" (SAS Institute; its
+// example "constant=c4(5)" results in 0.939985603; also named in the
+// constants file's header); c4 → 1 − 1/(4n) for large n (Montgomery, from memory: the
 // asymptote (4n−4)/(4n−3)), and NaN below n = 2.
 func TestC4Values(t *testing.T) {
 	if got := C4(5); math.Abs(got-0.939985603) > 5e-10 {
@@ -169,11 +171,110 @@ func TestXbarSSubgroupStatsUnequal(t *testing.T) {
 		if math.Abs(p.Mean-xb[i]) > 0.0005+1e-9 || math.Abs(p.SD-sd[i]) > 0.00005+1e-9 {
 			t.Errorf("subgroup %d (n=%d): x̄ %.5f s %.6f, table %v %v", i+1, p.N, p.Mean, p.SD, xb[i], sd[i])
 		}
-		// limits from the subgroup's own n: half width L·σ̂/√n
-		half := 3 * cc.SigmaHat / math.Sqrt(float64(p.N))
-		if math.Abs((p.MeanUCL-p.MeanLCL)/2-half) > 1e-12 {
-			t.Errorf("subgroup %d: X̄ half width %g, want %g", i+1, (p.MeanUCL-p.MeanLCL)/2, half)
+		// limits from the subgroup's own n, against the published factors
+		// (testdata/reference/control_chart_constants.txt, 3 decimals):
+		// X̄ half width = A3(n)·c4(n)·σ̂, s chart UCL = B6(n)·σ̂
+		f := tabRow(t, p.N)
+		if got := (p.MeanUCL - p.MeanLCL) / 2 / cc.SigmaHat; math.Abs(got-f.a3*f.c4) > 0.0005*f.c4+0.00005*f.a3+1e-9 {
+			t.Errorf("subgroup %d (n=%d): X̄ half width / σ̂ = %.5f, table A3·c4 = %.5f", i+1, p.N, got, f.a3*f.c4)
 		}
+		if got := p.SDUCL / cc.SigmaHat; math.Abs(got-f.b6) > 0.0005+1e-9 {
+			t.Errorf("subgroup %d (n=%d): s UCL / σ̂ = %.5f, table B6 = %.3f", i+1, p.N, got, f.b6)
+		}
+	}
+}
+
+type tabFactors struct{ c4, a3, b6 float64 }
+
+// tabRow returns the published factors for subgroup size n from
+// testdata/reference/control_chart_constants.txt.
+func tabRow(t *testing.T, n int) tabFactors {
+	t.Helper()
+	tab := loadRef(t, "control_chart_constants.txt")
+	ns, _ := tab.Column("n")
+	c4, _ := tab.Column("c4")
+	a3, _ := tab.Column("A3")
+	b6, _ := tab.Column("B6")
+	for i, nf := range ns {
+		if int(nf) == n {
+			return tabFactors{c4[i], a3[i], b6[i]}
+		}
+	}
+	t.Fatalf("no table row for n = %d", n)
+	return tabFactors{}
+}
+
+// TestPooledSigmaUnbiasedSim checks the derivation behind SigmaPooled by
+// simulation, independent of C4: for lots of 2, 3 and 5 normal values
+// (σ = 1, ν = 1 + 2 + 4 = 7) the mean of s_p over 40 000 data sets must be
+// c4(ν+1) = c4(8) = 0.9650 from the published table
+// (testdata/reference/control_chart_constants.txt), and the mean of σ̂ = 1.
+// SD of s_p ≈ √(1 − c4²) ≈ 0.26, so the standard error of either mean is
+// ≈ 0.0014; the check allows 4 of them (0.0055), and s_p's bias (0.035) or
+// the per-lot c4(n_i) mean (0.875) would fail it.
+func TestPooledSigmaUnbiasedSim(t *testing.T) {
+	rng := rand.New(rand.NewPCG(2026, 12))
+	const reps = 40000
+	sizes := []int{2, 3, 5}
+	sumSP, sumSigma := 0.0, 0.0
+	for range reps {
+		g := make([][]float64, len(sizes))
+		for i, n := range sizes {
+			for range n {
+				g[i] = append(g[i], 10+rng.NormFloat64())
+			}
+		}
+		cc, err := XbarS(g, ControlOptions{})
+		if err != nil {
+			t.Fatal(err)
+		}
+		if cc.PooledDOF != 7 {
+			t.Fatalf("ν = %d, want 7", cc.PooledDOF)
+		}
+		sumSP += cc.PooledSD
+		sumSigma += cc.SigmaHat
+	}
+	c4 := tabRow(t, 8).c4 // published c4(8) = 0.9650
+	if m := sumSP / reps; math.Abs(m-c4) > 0.0055 {
+		t.Errorf("mean s_p = %.4f over %d data sets; c4(8) = %.4f (published table)", m, reps, c4)
+	}
+	if m := sumSigma / reps; math.Abs(m-1) > 0.0055 {
+		t.Errorf("mean σ̂ = %.4f over %d data sets, σ = 1", m, reps)
+	}
+}
+
+// TestXbarSCoverageSim: 3σ limits must hold about 99.73 % of in-control lot
+// means (2Φ(3) − 1 = 0.9973, the normal distribution). 300 seeds of 200 lots
+// of sizes 2, 3, 4, 5 and 8 (60 000 lot means); with σ̂ from ν ≈ 680 the
+// expected share beyond the limits is 0.27 % (±0.02 % standard error;
+// the lot's own weight in x̿ lowers it by < 0.01 %). The check allows
+// 0.20 … 0.34 %.
+func TestXbarSCoverageSim(t *testing.T) {
+	sizes := []int{2, 3, 4, 5, 8}
+	out, total := 0, 0
+	for seed := range uint64(300) {
+		rng := rand.New(rand.NewPCG(seed, 7))
+		g := make([][]float64, 200)
+		for i := range g {
+			for range sizes[i%len(sizes)] {
+				g[i] = append(g[i], 5+0.2*rng.NormFloat64())
+			}
+		}
+		cc, err := XbarS(g, ControlOptions{NoRunRules: true})
+		if err != nil {
+			t.Fatal(err)
+		}
+		for _, p := range cc.Points {
+			total++
+			if p.Mean < p.MeanLCL || p.Mean > p.MeanUCL {
+				out++
+			}
+		}
+	}
+	frac := float64(out) / float64(total)
+	t.Logf("%d of %d lot means beyond 3σ limits (%.3f %%)", out, total, 100*frac)
+	if frac < 0.0020 || frac > 0.0034 {
+		t.Errorf("%.3f %% of in-control lot means beyond the 3σ limits; normal: 0.27 %%", 100*frac)
 	}
 }
 
@@ -231,14 +332,22 @@ func TestXbarSFlags(t *testing.T) {
 		}
 		g = append(g, lot(m))
 	}
-	g[5] = lot(3) // about 3.7 standard errors above (σ̂ ≈ 1.5 with lot 13)
+	// Hand: lot 13's SD² = 82/3; s_p² = (19·3·1 + 82)/60 = 139/60, s_p =
+	// 1.52206; c4(61) ≈ 240/241 (asymptote (4n−4)/(4n−3), Montgomery, from
+	// memory) → σ̂ = 1.52840, SE = σ̂/2 = 0.76420; x̿ = (9·0.1 + 3)/20 =
+	// 0.195, so lot 6 sits (3 − 0.195)/0.76420 = 3.67 SE above the centre.
+	g[5] = lot(3)
 	g[12] = []float64{-5, 5, -4, 4}
 	cc, err := XbarS(g, ControlOptions{})
 	if err != nil {
 		t.Fatal(err)
 	}
-	if !cc.Points[5].MeanOut || !slices.Contains(cc.Points[5].Signals, RuleBeyondLimits) {
-		t.Errorf("lot 6 shifted by ~6 SE not flagged: %+v", cc.Points[5])
+	p6 := cc.Points[5]
+	if z := (p6.Mean - cc.GrandMean) / ((p6.MeanUCL - cc.GrandMean) / 3); math.Abs(z-3.67) > 0.01 {
+		t.Errorf("lot 6 at %.4f SE, hand 3.67", z)
+	}
+	if !p6.MeanOut || !slices.Contains(p6.Signals, RuleBeyondLimits) {
+		t.Errorf("lot 6 shifted by 3.67 SE not flagged: %+v", p6)
 	}
 	if !cc.Points[12].SDOut {
 		t.Errorf("lot 13 with SD ≈ 5.2 not flagged on the s chart: %+v", cc.Points[12])

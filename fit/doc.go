@@ -45,11 +45,12 @@
 //   - Outliers by Rosner's generalized ESD test (Technometrics 25, 1983),
 //     as given in the NIST/SEMATECH e-Handbook §1.3.5.17.3.
 //   - Lot-to-lot control: Shewhart X̄–S charts for subgroups of unequal
-//     size with limits from the pooled within-lot SD, c4/A3/B3–B6 from
-//     their formulas (Montgomery, Introduction to Statistical Quality
-//     Control, §6.3), Western Electric run rules; checked against a
-//     published table of the factors and Montgomery's piston-ring
-//     example (Tables 6.3/6.4, Example 6.3). One-sided tolerance bounds
+//     size, c4/A3/B3–B6 from their formulas (Montgomery, Introduction to
+//     Statistical Quality Control, §6.3), Western Electric run rules;
+//     checked against a published table of the factors and Montgomery's
+//     piston-ring example (Tables 6.3/6.4, Example 6.3). The default σ̂ =
+//     s_p/c4(ν+1) from the pooled within-lot SD is our own derivation
+//     (E[s_p] = c4(ν+1)·σ), checked by simulation against the table. One-sided tolerance bounds
 //     and pooled repeatability (GUM 4.2.8) per lot and bench.
 //
 // # Why CMRR, PSRR+, PSRR− and the open-loop gain are tied
