@@ -6,6 +6,7 @@ import (
 	"io"
 	"math"
 	"path/filepath"
+	"strconv"
 	"strings"
 	"time"
 	"unicode/utf8"
@@ -76,8 +77,8 @@ type TrendLot struct {
 	First, Last time.Time // first and last measurement of the lot
 	Benches     []string
 	N           int     // units (one value per unit: the mean of its repeats)
-	BoundsOnly  int     // units whose value is only a lower bound (ratio not resolved)
-	Mean, SD    float64 // SD NaN for N < 2
+	BoundsOnly  int     // units with no resolved result, only bounds: not in N or any statistic
+	Mean, SD    float64 // Mean NaN for N = 0, SD NaN for N < 2
 	// X̄ chart limits and s chart centre and limits (NaN when none).
 	MeanLCL, MeanUCL       float64
 	SDCenter, SDLCL, SDUCL float64
@@ -112,7 +113,7 @@ type Repeatability struct {
 func (c TrendChart) Sheet(n int) string {
 	name := fmt.Sprintf("%d %s %s %g°C", n, c.Part, c.Test, c.TemperatureC)
 	if c.FrequencyHz != 0 {
-		name += fmt.Sprintf(" %gHz", c.FrequencyHz)
+		name += " " + hzText(c.FrequencyHz) + "Hz"
 	}
 	name = strings.Map(func(r rune) rune {
 		if strings.ContainsRune(`[]:*?/\'`, r) || r < 0x20 {
@@ -383,7 +384,7 @@ func writeTrendChart(f *excelize.File, st *styles, t *Trend, c TrendChart, sheet
 		{"Last measured (UTC)", 24, st.time, func(i int) any { return lots[i].Last }},
 		{"Benches", 16, st.text, func(i int) any { return strings.Join(lots[i].Benches, ", ") }},
 		{"Units (n)", 7, st.integer, func(i int) any { return lots[i].N }},
-		{"Lower bounds only (n)", 9, st.integer, func(i int) any { return lots[i].BoundsOnly }},
+		{"Units with bounds only (n)", 9, st.integer, func(i int) any { return lots[i].BoundsOnly }},
 		{fmt.Sprintf("Lot mean x̄ (%s)", u), 11, vs, func(i int) any { return lots[i].Mean }},
 		{fmt.Sprintf("Lot SD s (%s)", u), 10, vs, func(i int) any { return lots[i].SD }},
 		{fmt.Sprintf("X̄ centre x̿ (%s)", u), 11, vs, func(int) any { return c.GrandMean }},
@@ -411,7 +412,7 @@ func writeTrendChart(f *excelize.File, st *styles, t *Trend, c TrendChart, sheet
 	r++
 	key := []KeyValue{
 		{Label: "Quantity", Value: fmt.Sprintf("%s of %s, %s at %g °C%s, in %s: %s.", c.Quantity, c.Part, c.Test, c.TemperatureC, freqText(c.FrequencyHz), u, c.Convention)},
-		{Label: "Lot values", Value: "One value per unit: the mean of its results in the lot (repeats on one or several benches). A ratio not resolved enters as its lower bound and is counted under 'Lower bounds only'."},
+		{Label: "Lot values", Value: "One value per unit: the mean of its resolved results in the lot (repeats on one or several benches). A result not resolved (a ratio known only by its lower bound, a coefficient not told apart from zero) is not a value: it is left out of the lot mean, SD, control limits and tolerance bound. A unit with no resolved result is counted under 'Units with bounds only' and not in n; a lot with none has no chart point."},
 		{Label: "Chart", Value: t.Method},
 		{Label: "σ̂", Value: fmt.Sprintf("%s: s_p = %s %s with ν = %d, σ̂ = %s %s.", t.SigmaEstimator, fmtVal(c.PooledSD), u, c.PooledDOF, fmtVal(c.SigmaHat), u)},
 		{Label: "X̄ limits", Value: fmt.Sprintf("x̿ ± %g·σ̂/√n for each lot's own n (x̿ = %s %s, the mean of all units).", t.Sigmas, fmtVal(c.GrandMean), u)},
@@ -510,7 +511,26 @@ func freqText(hz float64) string {
 	if hz == 0 {
 		return ", DC"
 	}
-	return fmt.Sprintf(", %g Hz", hz)
+	return ", " + hzText(hz) + " Hz"
+}
+
+// hzText prints a frequency to 4 significant figures without an exponent
+// (37.275937203149404 → "37.28", 26830.4 → "26830", 0.1 → "0.1"): enough to
+// tell the points of a sweep of up to a few hundred points a decade apart.
+func hzText(hz float64) string {
+	if hz == 0 || math.IsNaN(hz) || math.IsInf(hz, 0) {
+		return strconv.FormatFloat(hz, 'g', -1, 64)
+	}
+	e := int(math.Floor(math.Log10(math.Abs(hz))))
+	var r float64
+	if e <= 3 {
+		p := math.Pow10(3 - e)
+		r = math.Round(hz*p) / p
+	} else {
+		p := math.Pow10(e - 3)
+		r = math.Round(hz/p) * p
+	}
+	return strconv.FormatFloat(r, 'f', -1, 64)
 }
 
 func fmtVal(v float64) string {

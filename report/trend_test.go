@@ -334,3 +334,49 @@ func TestTrendWorkbookLibreOffice(t *testing.T) {
 		t.Errorf("the PDF shows ### (a clipped number):\n%s", txt)
 	}
 }
+
+// TestTrendHzText: frequencies print to 4 significant figures without an
+// exponent (rounding half away from zero, as printed by hand).
+func TestTrendHzText(t *testing.T) {
+	for _, c := range []struct {
+		hz   float64
+		want string
+	}{
+		{37.275937203149404, "37.28"}, {26830.4, "26830"}, {26835, "26840"}, {0.1, "0.1"},
+		{1000, "1000"}, {123456789, "123500000"}, {0.0012345, "0.001235"}, {10, "10"}, {99.996, "100"},
+	} {
+		if got := hzText(c.hz); got != c.want {
+			t.Errorf("hzText(%v) = %q, want %q", c.hz, got, c.want)
+		}
+	}
+}
+
+// TestTrendKeyFrequencyAndBounds: a chart at a sweep frequency names it
+// rounded in its sheet name, key and chart title, and the key says that
+// results known only as bounds are left out of the statistics.
+func TestTrendKeyFrequencyAndBounds(t *testing.T) {
+	tr := trendFixture()
+	tr.Charts = tr.Charts[:1]
+	tr.Charts[0].FrequencyHz = 37.275937203149404
+	tr.Charts[0].Lots[0].BoundsOnly = 2
+	path, f := writeTrend(t, tr)
+	s1 := tr.Charts[0].Sheet(1)
+	if s1 != "1 HX4107 cmrr 25°C 37.28Hz" {
+		t.Fatalf("sheet name %q", s1)
+	}
+	kr := rowWith(t, f, s1, "A", "Quantity")
+	if got := cellStr(t, f, s1, "B"+itoa(kr)); !strings.Contains(got, "at 25 °C, 37.28 Hz, in dB") {
+		t.Errorf("quantity key %q", got)
+	}
+	lr := rowWith(t, f, s1, "A", "Lot values")
+	if got := cellStr(t, f, s1, "B"+itoa(lr)); !strings.Contains(got, "left out of the lot mean, SD, control limits and tolerance bound") {
+		t.Errorf("lot values key %q", got)
+	}
+	r := rowOf(t, f, s1, map[string]string{"Lot": "L2601"})
+	if got := cellNum(t, f, s1, headerCol(t, f, s1, "Units with bounds only (n)")+itoa(r)); got != 2 {
+		t.Errorf("bounds-only units = %v", got)
+	}
+	if _, ok := readLineCharts(t, path)["X̄ chart: HX4107 cmrr CMRR at 25 °C, 37.28 Hz"]; !ok {
+		t.Errorf("no X̄ chart titled with 37.28 Hz; charts: %v", keys(readLineCharts(t, path)))
+	}
+}

@@ -33,15 +33,17 @@ func newArchiveTrendCmd(std streams, ao *archiveOptions) *cobra.Command {
 		Short: "Write a trend workbook of the archived results: lot-to-lot control charts, yields, tolerance bounds, bench repeatability",
 		Long: `trend selects archived results with the same flags as query and writes a
 workbook with, per part × test × temperature (× frequency), the lots in time
-order on a Shewhart X̄–S chart (lot means and within-lot SDs; limits from the
-pooled SD, Montgomery, Introduction to Statistical Quality Control, §6.3),
+order on a Shewhart X̄–S chart (lot means and within-lot SDs; chart form:
+Montgomery, Introduction to Statistical Quality Control, §6.3; σ̂ from the
+pooled SD as s_p/c4(ν+1), our own derivation),
 each lot's yield (passed / judged) and one-sided normal tolerance bound, and
 per bench the repeatability (pooled SD) of units measured more than once.
 
 A unit is matched across campaigns and benches by its serial number (the
 plan's [[unit]] serial), else by its id within the lot. Values are the
-reported ratios in dB (a lower bound where not resolved) or, with
---value uv, the magnitudes of the input-referred coefficients in µV/V.`,
+reported ratios in dB or, with --value uv, the magnitudes of the
+input-referred coefficients in µV/V; results not resolved are only bounds,
+left out of the statistics and counted per lot.`,
 		Args: cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, args []string) error {
 			return failed(runArchiveTrend(cmd.Context(), std, ao.DB, o))
@@ -157,9 +159,9 @@ func trendRows(rows []archive.Row, uv bool) []trend.Row {
 		}
 		t := trend.Row{Part: r.Part, Lot: r.Lot, Unit: unit, Test: r.Test, TemperatureC: r.TemperatureC,
 			FrequencyHz: r.FrequencyHz, Bench: r.Bench, Decision: r.Verdict, Date: r.Started,
-			Value: r.ReportedDB(), ValueUnit: trend.UnitDB, LowerBoundOnly: !r.Resolved, Limit: r.LimitDB}
+			Value: r.ReportedDB(), ValueUnit: trend.UnitDB, BoundOnly: !r.Resolved, Limit: r.LimitDB}
 		if uv {
-			t.Value, t.ValueUnit, t.LowerBoundOnly = r.CoefficientUVPerV, trend.UnitUVPerV, false
+			t.Value, t.ValueUnit = r.CoefficientUVPerV, trend.UnitUVPerV // unresolved stays BoundOnly
 			t.Limit = 1e6 * math.Pow(10, -r.LimitDB/20)
 		}
 		out = append(out, t)

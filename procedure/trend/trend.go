@@ -39,13 +39,17 @@ type Row struct {
 	TemperatureC float64
 	FrequencyHz  float64 // 0: DC
 	Bench        string
-	// Value is in ValueUnit: UnitDB (ratio; with LowerBoundOnly when it was
-	// not resolved and Value is its lower bound) or UnitUVPerV (the
+	// Value is in ValueUnit: UnitDB (the ratio) or UnitUVPerV (the
 	// input-referred coefficient; its magnitude is used, the quantity a
 	// limit applies to).
-	Value          float64
-	ValueUnit      string
-	LowerBoundOnly bool
+	Value     float64
+	ValueUnit string
+	// BoundOnly marks a result that was not resolved (its expanded
+	// uncertainty reaches zero coefficient): in dB Value is only a lower
+	// bound of the ratio, in µV/V the coefficient is not distinguished from
+	// zero. Such a result is not a value: Build leaves it out of every mean,
+	// SD, limit and tolerance bound and counts it.
+	BoundOnly bool
 	// Decision is the stored verdict ("pass", "conditional pass",
 	// "conditional fail", "fail", "not judged", "no result").
 	Decision string
@@ -77,8 +81,8 @@ type chartKey struct {
 type unitKey struct{ lot, unit string }
 
 type unitAcc struct {
-	values         []float64
-	boundOnly      bool
+	values         []float64 // resolved values only
+	bounds         int       // results that are bounds only
 	judged, failed bool
 	benches        []string
 	first, last    time.Time
@@ -101,7 +105,7 @@ func Build(rows []Row, opt Options) (*report.Trend, error) {
 	}
 	tr := &report.Trend{
 		Title: opt.Title, Generated: opt.Generated, Generator: opt.Generator, Selection: opt.Selection,
-		Method: fit.ControlChartMethod, SigmaEstimator: opt.Estimator.String(), Sigmas: L,
+		Method: fit.ControlChartMethod, SigmaEstimator: opt.Estimator.String() + " (" + opt.Estimator.Source() + ")", Sigmas: L,
 		Coverage: cov, Confidence: conf,
 	}
 	if !opt.NoRunRules {
@@ -111,7 +115,7 @@ func Build(rows []Row, opt Options) (*report.Trend, error) {
 	}
 	charts := map[chartKey]map[unitKey]*unitAcc{}
 	limits := map[chartKey][]float64{}
-	skipped := 0
+	skipped, bounds := 0, 0
 	for i, r := range rows {
 		if r.ValueUnit != UnitDB && r.ValueUnit != UnitUVPerV {
 			return nil, fmt.Errorf("trend: row %d (%s lot %s unit %s %s): value unit %q is neither %s nor %s",
@@ -135,8 +139,12 @@ func Build(rows []Row, opt Options) (*report.Trend, error) {
 		if r.ValueUnit == UnitUVPerV {
 			v = math.Abs(v)
 		}
-		u.values = append(u.values, v)
-		u.boundOnly = u.boundOnly || r.LowerBoundOnly
+		if r.BoundOnly {
+			u.bounds++
+			bounds++
+		} else {
+			u.values = append(u.values, v)
+		}
 		switch report.VerdictClass(r.Decision) {
 		case report.KindPass, report.KindConditionalPass:
 			u.judged = true
@@ -158,6 +166,9 @@ func Build(rows []Row, opt Options) (*report.Trend, error) {
 	}
 	if skipped > 0 {
 		tr.Notes = append(tr.Notes, fmt.Sprintf("%d results without a value (no result, or not a finite number) left out", skipped))
+	}
+	if bounds > 0 {
+		tr.Notes = append(tr.Notes, fmt.Sprintf("%d results not resolved (a ratio known only by its lower bound) left out of means, SDs, control limits and tolerance bounds; units with no resolved result are counted per lot under 'Bounds only'", bounds))
 	}
 	keys := make([]chartKey, 0, len(charts))
 	for k := range charts {
@@ -182,11 +193,43 @@ func Build(rows []Row, opt Options) (*report.Trend, error) {
 	return tr, nil
 }
 
+// quantity names a chart's values and states their convention per test
+// (JEDEC JESD99B symbols from memory: k_CMR = ΔV_IC/ΔV_IO, k_SVR =
+// ΔV_S/ΔV_IO and its reciprocal k_SVS, the supply-voltage sensitivity).
 func quantity(k chartKey) (name, convention string) {
-	if k.unit == UnitDB {
-		return strings.ToUpper(k.test) + " ratio", "input-referred rejection ratio 20·log10|Δstimulus/ΔV_IO| (JEDEC JESD99B k_CMR, k_SVR); where not resolved, its lower bound"
+	db := k.unit == UnitDB
+	t := strings.ToLower(k.test)
+	switch {
+	case t == "aol":
+		if db {
+			return "A_OL", "open-loop gain 20·log10|ΔV_O/ΔV_IO| (a gain, not a rejection ratio)"
+		}
+		return "A_OL coefficient", "magnitude of the input-referred coefficient |ΔV_IO/ΔV_O| in µV/V, the reciprocal of the open-loop gain"
+	case t == "board_cmrr":
+		if db {
+			return "board CMRR", "board common-mode rejection 20·log10(A_d/|A_cm|), the common-mode gain referred to the input by the differential gain"
+		}
+		return "board CMRR coefficient", "magnitude of |A_cm|/A_d in µV/V, the common-mode gain referred to the input"
+	case strings.HasPrefix(t, "board_psrr"):
+		if db {
+			return "board " + strings.ToUpper(strings.TrimPrefix(t, "board_")) + " ratio", "board supply rejection in dB, the supply-to-output gain referred to the input by the differential gain"
+		}
+		return "board " + strings.ToUpper(strings.TrimPrefix(t, "board_")) + " coefficient", "magnitude of the supply-to-output gain referred to the input, in µV/V"
+	case t == "cmrr":
+		if db {
+			return "CMRR", "input-referred common-mode rejection ratio 20·log10|ΔV_IC/ΔV_IO| (JEDEC JESD99B k_CMR)"
+		}
+		return "CMRR coefficient", "magnitude of the input-referred common-mode coefficient |ΔV_IO/ΔV_IC| in µV/V (the reciprocal of JESD99B's k_CMR)"
+	case strings.HasPrefix(t, "psrr"):
+		if db {
+			return strings.ToUpper(t) + " ratio", "input-referred supply voltage rejection ratio 20·log10|ΔV_S/ΔV_IO| (JEDEC JESD99B k_SVR)"
+		}
+		return strings.ToUpper(t) + " coefficient", "magnitude of the supply voltage sensitivity |ΔV_IO/ΔV_S| in µV/V (JEDEC JESD99B k_SVS)"
 	}
-	return strings.ToUpper(k.test) + " coefficient", "magnitude of the input-referred coefficient |ΔV_IO/Δstimulus| in µV/V (JEDEC JESD99B k_SVS form)"
+	if db {
+		return strings.ToUpper(t) + " ratio", "ratio in dB as reported"
+	}
+	return strings.ToUpper(t) + " coefficient", "magnitude of the input-referred coefficient in µV/V"
 }
 
 type lotAcc struct {
@@ -244,13 +287,10 @@ func buildChart(k chartKey, units map[unitKey]*unitAcc, lims []float64, L, cov, 
 			Yield: math.NaN(), ToleranceK: math.NaN(), ToleranceBound: math.NaN(),
 		}
 		for _, u := range l.units {
-			m := 0.0
-			for _, v := range u.values {
-				m += v
-			}
-			groups[i] = append(groups[i], m/float64(len(u.values)))
-			if u.boundOnly {
-				tl.BoundsOnly++
+			if len(u.values) == 0 {
+				tl.BoundsOnly++ // no resolved result: not a value
+			} else {
+				groups[i] = append(groups[i], mean(u.values))
 			}
 			if u.judged {
 				tl.Judged++
@@ -269,7 +309,10 @@ func buildChart(k chartKey, units map[unitKey]*unitAcc, lims []float64, L, cov, 
 		}
 		slices.Sort(tl.Benches)
 		tl.N = len(groups[i])
-		tl.Mean = mean(groups[i])
+		tl.Mean = math.NaN()
+		if tl.N > 0 {
+			tl.Mean = mean(groups[i])
+		}
 		if tl.N >= 2 {
 			tl.SD = sd(groups[i], tl.Mean)
 			tb, err := fit.OneSidedTolerance(tl.Mean, tl.SD, tl.N, side, cov, conf)
@@ -283,7 +326,16 @@ func buildChart(k chartKey, units map[unitKey]*unitAcc, lims []float64, L, cov, 
 		}
 		c.Lots = append(c.Lots, tl)
 	}
-	cc, err := fit.XbarS(groups, fit.ControlOptions{Sigmas: L, Estimator: opt.Estimator, NoRunRules: opt.NoRunRules})
+	// lots with no resolved value stay listed but are not chart points
+	var charted [][]float64
+	var at []int
+	for i, g := range groups {
+		if len(g) > 0 {
+			charted = append(charted, g)
+			at = append(at, i)
+		}
+	}
+	cc, err := fit.XbarS(charted, fit.ControlOptions{Sigmas: L, Estimator: opt.Estimator, NoRunRules: opt.NoRunRules})
 	switch {
 	case errors.Is(err, fit.ErrTooFewPoints):
 		c.ChartError = "no control limits: " + err.Error()
@@ -293,7 +345,7 @@ func buildChart(k chartKey, units map[unitKey]*unitAcc, lims []float64, L, cov, 
 	}
 	c.GrandMean, c.PooledSD, c.PooledDOF, c.SigmaHat = cc.GrandMean, cc.PooledSD, cc.PooledDOF, cc.SigmaHat
 	for i, p := range cc.Points {
-		tl := &c.Lots[i]
+		tl := &c.Lots[at[i]]
 		tl.MeanLCL, tl.MeanUCL, tl.MeanOut = p.MeanLCL, p.MeanUCL, p.MeanOut
 		if p.HasSD {
 			tl.SDCenter, tl.SDLCL, tl.SDUCL, tl.SDOut = p.SDCenter, p.SDLCL, p.SDUCL, p.SDOut
@@ -313,8 +365,8 @@ type repKey struct {
 func repeatability(rows []Row) ([]report.Repeatability, error) {
 	groups := map[repKey]map[unitKey][]float64{}
 	for _, r := range rows {
-		if math.IsNaN(r.Value) || math.IsInf(r.Value, 0) || isNoResult(r.Decision) || r.LowerBoundOnly {
-			continue // a lower bound is not a repeat of a value
+		if math.IsNaN(r.Value) || math.IsInf(r.Value, 0) || isNoResult(r.Decision) || r.BoundOnly {
+			continue // a bound is not a repeat of a value
 		}
 		k := repKey{r.Bench, chartKey{r.Part, r.Test, int64(math.Round(r.TemperatureC * 100)), r.FrequencyHz, r.ValueUnit}}
 		if groups[k] == nil {

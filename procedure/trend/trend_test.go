@@ -181,19 +181,28 @@ func TestTrendWorkbookPistonLimits(t *testing.T) {
 //
 // Lot L2 (2026-03-02, so it comes first): unit x 90.0 and 90.2 on bench A
 // and 90.5 on bench B; unit y 91.0, 91.4, 91.2 on bench A; unit z 95 on
-// bench B and an unresolved 120 (lower bound) on bench B. Not judged.
+// bench B and an unresolved 120 (lower bound) on bench B; unit w only an
+// unresolved 130 (lower bound). Not judged.
+//
+// Lot L3 (2026-03-12): units p, q only unresolved (lower bounds 125, 128).
 // Bench A repeatability: x s² = 0.02 (ν 1), y s² = 0.04 (ν 2), s_r² =
 // (0.02 + 0.08)/3 = 0.033333, s_r = 0.182574 dB, ν = 3, from 2 units and 5
 // results. Bench B: no unit measured twice with values (z's second result
-// is a bound), so no row. L2 unit values: x (90.0+90.2+90.5)/3 = 90.2333,
-// y 91.2, z (95+120)/2 = 107.5 with one lower bound.
+// is a bound), so no row. Bounds are not values, so L2 unit values are
+// x (90.0+90.2+90.5)/3 = 90.2333, y 91.2, z 95 (its bound left out); w
+// has no value and is counted as bounds only. L3 has no value at all: it
+// is listed with its 2 bounds-only units but is no chart point, so the
+// chart has L2 and L1 with ν = 2 + 4 = 6. 4 bound results in all.
 func handRows() []Row {
 	r := func(lot, unit, bench string, v float64, dec string, d int) Row {
 		return Row{Part: "HX4107", Lot: lot, Unit: unit, Test: "cmrr", TemperatureC: 25, Bench: bench,
 			Value: v, ValueUnit: UnitDB, Decision: dec, Limit: 99, Date: day(d)}
 	}
-	bound := r("L2", "z", "bench-B", 120, "not judged", 2)
-	bound.LowerBoundOnly = true
+	bound := func(lot, unit string, v float64, d int) Row {
+		b := r(lot, unit, "bench-B", v, "not judged", d)
+		b.BoundOnly = true
+		return b
+	}
 	return []Row{
 		r("L2", "x", "bench-A", 90.0, "not judged", 1),
 		r("L2", "x", "bench-A", 90.2, "not judged", 1),
@@ -202,7 +211,10 @@ func handRows() []Row {
 		r("L2", "y", "bench-A", 91.4, "not judged", 1),
 		r("L2", "y", "bench-A", 91.2, "not judged", 1),
 		r("L2", "z", "bench-B", 95, "not judged", 2),
-		bound,
+		bound("L2", "z", 120, 2),
+		bound("L2", "w", 130, 2),
+		bound("L3", "p", 125, 11),
+		bound("L3", "q", 128, 11),
 		r("L1", "a", "bench-A", 100, "pass", 8),
 		r("L1", "b", "bench-A", 102, "pass", 8),
 		r("L1", "c", "bench-A", 98, "fail", 8),
@@ -224,10 +236,10 @@ func TestBuildHand(t *testing.T) {
 		}
 	}
 	c := tr.Charts[0]
-	if len(c.Lots) != 2 || c.Lots[0].Lot != "L2" || c.Lots[1].Lot != "L1" {
+	if len(c.Lots) != 3 || c.Lots[0].Lot != "L2" || c.Lots[1].Lot != "L1" || c.Lots[2].Lot != "L3" {
 		t.Fatalf("lots %+v", c.Lots)
 	}
-	l2, l1 := c.Lots[0], c.Lots[1]
+	l2, l1, l3 := c.Lots[0], c.Lots[1], c.Lots[2]
 	if l1.N != 5 || l1.Judged != 5 || l1.Passed != 4 {
 		t.Errorf("L1 n %d judged %d passed %d; hand 5, 5, 4", l1.N, l1.Judged, l1.Passed)
 	}
@@ -242,7 +254,13 @@ func TestBuildHand(t *testing.T) {
 	if l2.N != 3 || l2.BoundsOnly != 1 || l2.Judged != 0 || !math.IsNaN(l2.Yield) {
 		t.Errorf("L2: %+v", l2)
 	}
-	near("L2 mean", l2.Mean, (90.2333333333333+91.2+107.5)/3, 1e-9)
+	near("L2 mean", l2.Mean, (90.2333333333333+91.2+95)/3, 1e-9)
+	// hand: deviations −1.91111, −0.94444, 2.85556 from 92.14444, Σ² = 12.69852, /2 → s = 2.51977
+	near("L2 SD", l2.SD, 2.51977, 1e-5)
+	// L3: only bounds, listed without values or limits
+	if l3.N != 0 || l3.BoundsOnly != 2 || !math.IsNaN(l3.Mean) || !math.IsNaN(l3.MeanUCL) || !math.IsNaN(l3.ToleranceBound) {
+		t.Errorf("L3 (bounds only): %+v", l3)
+	}
 	if strings.Join(l2.Benches, ",") != "bench-A,bench-B" {
 		t.Errorf("L2 benches %q", l2.Benches)
 	}
@@ -264,7 +282,7 @@ func TestBuildHand(t *testing.T) {
 		t.Errorf("repeatability %+v; hand bench-A ν 3, 2 units, 5 results", rp)
 	}
 	near("s_r", rp.SD, math.Sqrt(0.1/3), 1e-9)
-	if len(tr.Notes) != 1 || !strings.Contains(tr.Notes[0], "1 results without a value") {
+	if len(tr.Notes) != 2 || !strings.Contains(tr.Notes[0], "1 results without a value") || !strings.Contains(tr.Notes[1], "4 results not resolved") {
 		t.Errorf("notes %q", tr.Notes)
 	}
 }
@@ -291,5 +309,55 @@ func TestBuildCoefficients(t *testing.T) {
 	}
 	if _, err := Build([]Row{{Part: "P", ValueUnit: "V", Value: 1}}, Options{}); err == nil || !strings.Contains(err.Error(), `"V"`) {
 		t.Errorf("a value in volts: %v", err)
+	}
+}
+
+// TestQuantityConventions: each test's convention names its own quantity
+// (JEDEC JESD99B: k_CMR for common-mode rejection, k_SVR and its reciprocal
+// k_SVS for supply rejection; the open-loop gain is a gain, not a
+// rejection ratio — symbols from memory).
+func TestQuantityConventions(t *testing.T) {
+	cases := []struct {
+		test, unit    string
+		want, mustNot []string
+	}{
+		{"cmrr", UnitDB, []string{"k_CMR", "ΔV_IC/ΔV_IO"}, []string{"k_SV"}},
+		{"cmrr", UnitUVPerV, []string{"ΔV_IO/ΔV_IC", "reciprocal of JESD99B's k_CMR"}, []string{"k_SVS", "k_SVR"}},
+		{"psrr_pos", UnitDB, []string{"k_SVR", "ΔV_S/ΔV_IO"}, []string{"k_CMR", "k_SVS"}},
+		{"psrr_neg", UnitUVPerV, []string{"k_SVS", "ΔV_IO/ΔV_S"}, []string{"k_CMR"}},
+		{"aol", UnitDB, []string{"open-loop gain", "ΔV_O/ΔV_IO", "not a rejection ratio"}, []string{"k_CMR", "k_SVR"}},
+		{"aol", UnitUVPerV, []string{"ΔV_IO/ΔV_O"}, []string{"k_CMR", "k_SV"}},
+		{"board_cmrr", UnitDB, []string{"A_d/|A_cm|"}, []string{"k_SV"}},
+	}
+	for _, c := range cases {
+		_, conv := quantity(chartKey{test: c.test, unit: c.unit})
+		for _, w := range c.want {
+			if !strings.Contains(conv, w) {
+				t.Errorf("%s %s: convention %q lacks %q", c.test, c.unit, conv, w)
+			}
+		}
+		for _, w := range c.mustNot {
+			if strings.Contains(conv, w) {
+				t.Errorf("%s %s: convention %q names %q", c.test, c.unit, conv, w)
+			}
+		}
+	}
+}
+
+// TestBuildCoefficientBoundsOnly: an unresolved coefficient (µV/V) is not a
+// value either: with units 2, 3 µV/V and an unresolved 0.4 µV/V the lot
+// mean is 2.5 (hand), not 1.8, and the unit is counted as bounds only.
+func TestBuildCoefficientBoundsOnly(t *testing.T) {
+	row := func(u string, v float64, bound bool) Row {
+		return Row{Part: "HX4107", Lot: "L1", Unit: u, Test: "psrr_pos", TemperatureC: 25, Value: v, ValueUnit: UnitUVPerV,
+			BoundOnly: bound, Decision: "pass", Limit: math.NaN(), Date: day(1)}
+	}
+	tr, err := Build([]Row{row("a", 2, false), row("b", -3, false), row("c", 0.4, true)}, Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	l := tr.Charts[0].Lots[0]
+	if l.N != 2 || l.BoundsOnly != 1 || l.Mean != 2.5 || l.Judged != 3 {
+		t.Errorf("lot %+v; hand n 2, bounds only 1, mean 2.5, judged 3", l)
 	}
 }
