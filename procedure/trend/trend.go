@@ -212,9 +212,14 @@ func quantity(k chartKey) (name, convention string) {
 		return "board CMRR coefficient", "magnitude of |A_cm|/A_d in µV/V, the common-mode gain referred to the input"
 	case strings.HasPrefix(t, "board_psrr"):
 		if db {
-			return "board " + strings.ToUpper(strings.TrimPrefix(t, "board_")) + " ratio", "board supply rejection in dB, the supply-to-output gain referred to the input by the differential gain"
+			return "board " + psrrName(strings.TrimPrefix(t, "board_")), "board supply rejection in dB, the supply-to-output gain referred to the input by the differential gain"
 		}
-		return "board " + strings.ToUpper(strings.TrimPrefix(t, "board_")) + " coefficient", "magnitude of the supply-to-output gain referred to the input, in µV/V"
+		return "board " + psrrName(strings.TrimPrefix(t, "board_")) + " coefficient", "magnitude of the supply-to-output gain referred to the input, in µV/V"
+	case t == "cmrr_uncorrected":
+		if db {
+			return "CMRR uncorrected", "20·log10(1/|k_c + k_o|): the common-mode coefficient as measured with the output moving, not corrected for the open-loop gain term k_o = ΔV_IO/ΔV_O"
+		}
+		return "CMRR uncorrected coefficient", "magnitude of k_c + k_o in µV/V: the common-mode coefficient as measured, not corrected for the open-loop gain term"
 	case t == "cmrr":
 		if db {
 			return "CMRR", "input-referred common-mode rejection ratio 20·log10|ΔV_IC/ΔV_IO| (JEDEC JESD99B k_CMR)"
@@ -222,14 +227,28 @@ func quantity(k chartKey) (name, convention string) {
 		return "CMRR coefficient", "magnitude of the input-referred common-mode coefficient |ΔV_IO/ΔV_IC| in µV/V (the reciprocal of JESD99B's k_CMR)"
 	case strings.HasPrefix(t, "psrr"):
 		if db {
-			return strings.ToUpper(t) + " ratio", "input-referred supply voltage rejection ratio 20·log10|ΔV_S/ΔV_IO| (JEDEC JESD99B k_SVR)"
+			return psrrName(t), "input-referred supply voltage rejection ratio 20·log10|ΔV_S/ΔV_IO| (JEDEC JESD99B k_SVR)"
 		}
-		return strings.ToUpper(t) + " coefficient", "magnitude of the supply voltage sensitivity |ΔV_IO/ΔV_S| in µV/V (JEDEC JESD99B k_SVS)"
+		return psrrName(t) + " coefficient", "magnitude of the supply voltage sensitivity |ΔV_IO/ΔV_S| in µV/V (JEDEC JESD99B k_SVS)"
 	}
 	if db {
 		return strings.ToUpper(t) + " ratio", "ratio in dB as reported"
 	}
 	return strings.ToUpper(t) + " coefficient", "magnitude of the input-referred coefficient in µV/V"
+}
+
+// psrrName names a supply test: psrr_pos "PSRR+", psrr_neg "PSRR−",
+// psrr_sym "PSRR (both rails)".
+func psrrName(test string) string {
+	switch test {
+	case "psrr_pos":
+		return "PSRR+"
+	case "psrr_neg":
+		return "PSRR−"
+	case "psrr_sym":
+		return "PSRR (both rails)"
+	}
+	return strings.ToUpper(test)
 }
 
 type lotAcc struct {

@@ -328,6 +328,7 @@ func TestQuantityConventions(t *testing.T) {
 		{"aol", UnitDB, []string{"open-loop gain", "ΔV_O/ΔV_IO", "not a rejection ratio"}, []string{"k_CMR", "k_SVR"}},
 		{"aol", UnitUVPerV, []string{"ΔV_IO/ΔV_O"}, []string{"k_CMR", "k_SV"}},
 		{"board_cmrr", UnitDB, []string{"A_d/|A_cm|"}, []string{"k_SV"}},
+		{"cmrr_uncorrected", UnitDB, []string{"k_c + k_o", "not corrected"}, []string{"k_SV", "k_CMR"}},
 	}
 	for _, c := range cases {
 		_, conv := quantity(chartKey{test: c.test, unit: c.unit})
