@@ -89,8 +89,11 @@ type unitAcc struct {
 }
 
 // Build computes the trend of rows. Rows whose value is not a finite number
-// or whose decision is "no result" are left out (counted in a note); a row
-// with a value unit other than dB or µV/V is an error naming it.
+// or whose decision is "no result" are left out (counted in a note); rows
+// marked BoundOnly count towards yields and the lot's "bounds only" units
+// but never enter a mean, SD, control limit or tolerance bound (counted in
+// a note); a row with a value unit other than dB or µV/V is an error
+// naming it.
 func Build(rows []Row, opt Options) (*report.Trend, error) {
 	L := opt.Sigmas
 	if L == 0 {
