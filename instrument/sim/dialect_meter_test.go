@@ -1,10 +1,12 @@
 package sim
 
 import (
+	"context"
 	"encoding/binary"
 	"math"
 	"strings"
 	"testing"
+	"time"
 )
 
 // TestMeterDialects: each dialect hands over the same kind of readings by
@@ -60,13 +62,49 @@ func TestMeterDialects(t *testing.T) {
 // TestMeterDialectFetchNeedsOPC: in dmm_opc a FETC? sent while the readings
 // are still being taken fails with -230 Data corrupt or stale (SCPI-99
 // vol. 2 §21.8.10) instead of waiting.
+//
+// The bench runs on a clock whose long waits (an integration of 100 NPLC)
+// last until the bench closes, so the readings are certainly still being
+// taken when FETC? arrives; on the manual clock the measurement could end
+// before FETC? is parsed on a loaded machine.
 func TestMeterDialectFetchNeedsOPC(t *testing.T) {
-	tb := startBench(t, Config{Dialects: []string{"dmm_opc"}})
-	tb.dmm.set("CONF:VOLT:DC 100;:VOLT:DC:NPLC 100;:SAMP:COUN 5")
-	tb.dmm.send("INIT;:FETC?")
-	if e := tb.dmm.query("SYST:ERR?"); !strings.HasPrefix(e, "-230,") {
+	b, err := New(Config{Dialects: []string{"dmm_opc"}, Clock: &stalledClock{ManualClock: NewManualClock(), longest: time.Second}})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := b.Start(context.Background(), ServeOptions{}); err != nil {
+		t.Fatal(err)
+	}
+	t.Cleanup(func() { _ = b.Close() })
+	var dmm *client
+	for _, ep := range b.Endpoints() {
+		if ep.Name == NameDMM {
+			dmm = dial(t, ep.Address)
+		}
+	}
+	if dmm == nil {
+		t.Fatal("no simulated DMM")
+	}
+	dmm.set("CONF:VOLT:DC 100;:VOLT:DC:NPLC 100;:SAMP:COUN 5")
+	dmm.send("INIT;:FETC?")
+	if e := dmm.query("SYST:ERR?"); !strings.HasPrefix(e, "-230,") {
 		t.Errorf("FETC? during the measurement: error queue %q, want -230", e)
 	}
+}
+
+// stalledClock is a ManualClock whose waits of longest or more block until
+// their context ends (the bench closing).
+type stalledClock struct {
+	*ManualClock
+	longest time.Duration
+}
+
+func (c *stalledClock) Sleep(ctx context.Context, d time.Duration) error {
+	if d < c.longest {
+		return c.ManualClock.Sleep(ctx, d)
+	}
+	<-ctx.Done()
+	return ctx.Err()
 }
 
 // TestMeterDialectBinaryBlock: TRAC:DATA? in REAL,64 and REAL,32, normal
