@@ -679,7 +679,11 @@ func fitSweep(rs []journal.Reading, t *plan.Test) (sweep, error) {
 // one returning a stale reading). A real 6½-digit reading always carries
 // noise in its last digits, so identical values are not a very good part
 // but a fault; fitting them would give a zero slope and an unbounded
-// "ratio ≥ …" (common practice, no published source).
+// "ratio ≥ …" (common practice, no published source). A meter that went
+// stale part-way through a sweep shows the same signature on most of it:
+// when more than half the points (at least 3, at more than one stimulus
+// level) share one meter value to the last digit, the sweep is refused
+// too, since the few moving points would otherwise carry a flat line.
 func Plausible(x, y []float64) error {
 	same := func(v []float64) bool {
 		for _, e := range v[1:] {
@@ -694,6 +698,24 @@ func Plausible(x, y []float64) error {
 	}
 	if same(y) {
 		return fmt.Errorf("implausible: the meter returned %g V at every one of %d points: a stuck meter or a stale reading (check its trigger and the connection); no ratio is formed", y[0], len(y))
+	}
+	count := map[float64]int{}
+	for _, v := range y {
+		count[v]++
+	}
+	for v, k := range count {
+		if k < 3 || 2*k <= len(y) {
+			continue
+		}
+		levels := map[float64]bool{}
+		for i := range y {
+			if y[i] == v {
+				levels[x[i]] = true
+			}
+		}
+		if len(levels) > 1 {
+			return fmt.Errorf("implausible: the meter returned %g V at %d of %d points, over %d stimulus levels: a stuck meter or a stale reading from part-way through the sweep (check its trigger and the connection); no ratio is formed", v, k, len(y), len(levels))
+		}
 	}
 	return nil
 }
