@@ -694,10 +694,10 @@ func Plausible(x, y []float64) error {
 		return true
 	}
 	if same(x) {
-		return fmt.Errorf("implausible: the stimulus shows no variation (every point at %g V): the source or supply did not move; check that its output is on and wired", x[0])
+		return fmt.Errorf("implausible: the stimulus shows no variation (every point at %s): the source or supply did not move; check that its output is on and wired", plan.FormatVolts(x[0]))
 	}
 	if same(y) {
-		return fmt.Errorf("implausible: the meter returned %g V at every one of %d points: a stuck meter or a stale reading (check its trigger and the connection); no ratio is formed", y[0], len(y))
+		return fmt.Errorf("implausible: the meter returned %.7g V at every one of %d points: a stuck meter or a stale reading (check its trigger and the connection); no ratio is formed", y[0], len(y))
 	}
 	count := map[float64]int{}
 	for _, v := range y {
@@ -714,7 +714,7 @@ func Plausible(x, y []float64) error {
 			}
 		}
 		if len(levels) > 1 {
-			return fmt.Errorf("implausible: the meter returned %g V at %d of %d points, over %d stimulus levels: a stuck meter or a stale reading from part-way through the sweep (check its trigger and the connection); no ratio is formed", v, k, len(y), len(levels))
+			return fmt.Errorf("implausible: the meter returned %.7g V at %d of %d points, over %d stimulus levels: a stuck meter or a stale reading from part-way through the sweep (check its trigger and the connection); no ratio is formed", v, k, len(y), len(levels))
 		}
 	}
 	return nil
@@ -935,13 +935,22 @@ func (a *analyzer) nonlinearity(r *RatioResult, s sweep, divisor float64) {
 		return
 	}
 	r.Nonlinearity, r.NonlinearityChecked = nl, true
+	r.Notes = append(r.Notes, nonlinearityNotes(nl)...)
+}
+
+// nonlinearityNotes words what fit.Nonlinear found. The stimulus is a
+// read-back (0.0019999999999997797 V for a 2 mV level), so it is given
+// to the µV with plan.FormatVolts, the deviation to 3 significant figures.
+func nonlinearityNotes(nl fit.Nonlinearity) []string {
+	var notes []string
 	if nl.QuadSignificant {
-		r.Notes = append(r.Notes, fmt.Sprintf("non-linearity: largest deviation from a straight line %.3g µV at the input, at %g V",
-			nl.MaxDeviationUV, nl.AtStimulusVolts))
+		notes = append(notes, fmt.Sprintf("non-linearity: largest deviation from a straight line %.3g µV at the input, at %s",
+			nl.MaxDeviationUV, plan.FormatVolts(nl.AtStimulusVolts)))
 	}
 	if nl.SpanDependent {
-		r.Notes = append(r.Notes, fmt.Sprintf("slope differs between the lower and upper half of the span (z = %.1f)", nl.SlopeZ))
+		notes = append(notes, fmt.Sprintf("slope differs between the lower and upper half of the span (z = %.1f)", nl.SlopeZ))
 	}
+	return notes
 }
 
 // newRatio fills the common fields of a result from its sweep.

@@ -4,6 +4,7 @@ import (
 	"strings"
 	"testing"
 
+	"nullbench/fit"
 	"nullbench/procedure/journal"
 	"nullbench/procedure/plan"
 )
@@ -92,5 +93,34 @@ func TestAnalyzeBoardPositionWithoutBoard(t *testing.T) {
 	}
 	if !found {
 		t.Errorf("no 'no part / no gain' problem: %+v", res.Problems)
+	}
+}
+
+// Notes and problems carry read-backs and meter means as a person would
+// write them, not as binary64 prints them (GUM 7.2.6: numerical values
+// not given with an excessive number of digits): a 2 mV read-back is
+// "+0.002 V" (to the µV, plan.FormatVolts), a meter mean has the 7
+// significant figures of a 6½-digit reading (common practice, no
+// published source), a deviation 3.
+func TestNotesRoundTheirFigures(t *testing.T) {
+	const readBack = 0.0019999999999997797 // 0.002 V as read back and averaged
+	notes := nonlinearityNotes(fit.Nonlinearity{QuadSignificant: true, MaxDeviationUV: 1.23456789, AtStimulusVolts: readBack})
+	if len(notes) != 1 || !strings.Contains(notes[0], "1.23 µV at the input, at +0.002 V") {
+		t.Errorf("non-linearity notes %q: want the deviation as 1.23 µV at +0.002 V", notes)
+	}
+	flatX := []float64{readBack, readBack, readBack}
+	err := Plausible(flatX, []float64{1e-3, 2e-3, 3e-3})
+	if err == nil || !strings.Contains(err.Error(), "every point at +0.002 V") {
+		t.Errorf("Plausible(flat stimulus) = %v; want it at +0.002 V", err)
+	}
+	stale := 0.8023390000000001
+	err = Plausible([]float64{-5, 0, 5}, []float64{stale, stale, stale})
+	if err == nil || !strings.Contains(err.Error(), "returned 0.802339 V at every one of 3 points") {
+		t.Errorf("Plausible(stuck meter) = %v; want the meter value as 0.802339 V", err)
+	}
+	for _, e := range []error{err, Plausible(flatX, []float64{1e-3, 2e-3, 3e-3})} {
+		if e != nil && (strings.Contains(e.Error(), "0.00199999") || strings.Contains(e.Error(), "0.80233900000")) {
+			t.Errorf("unrounded figure in %q", e)
+		}
 	}
 }
