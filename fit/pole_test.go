@@ -159,8 +159,8 @@ func TestFitPoleNoiseFree(t *testing.T) {
 	}
 }
 
-// TestFitPoleCoverage: on synthetic parts with known poles (the issue's
-// single-pole model), the fitted R_dc and f_p lie within U = k·u (k from
+// TestFitPoleCoverage: on synthetic parts with known poles (a single
+// pole of the ratio, a zero of the coefficient), the fitted R_dc and f_p lie within U = k·u (k from
 // t_0.975 with ν = n − 2, GUM G.6.4) in ≥ 93 % of seeded trials.
 func TestFitPoleCoverage(t *testing.T) {
 	const trials = 500

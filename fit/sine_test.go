@@ -110,7 +110,8 @@ func TestSineFitVector2Jacquelin(t *testing.T) {
 
 // TestSineFitCoverage: on noisy synthetic records the true amplitude and
 // phase lie within the expanded uncertainty U = k·u (k = t_0.975(ν), GUM
-// G.6.4) in ≥ 93 % of seeded trials (nominal 95 %; the criterion).
+// G.6.4) in ≥ 93 % of seeded trials (nominal 95 %; 93 % leaves a margin
+// for the finite number of trials).
 func TestSineFitCoverage(t *testing.T) {
 	const trials = 1000
 	for _, four := range []bool{false, true} {

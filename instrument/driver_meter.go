@@ -163,7 +163,7 @@ func (m *MeterDriver) ReadN(ctx context.Context, n int) ([]float64, error) {
 			}
 		}
 		for range triggers {
-			vs, err := m.triggerOnce(ctx, tx, tr)
+			vs, err := m.triggerOnce(ctx, tx, tr, per)
 			if err != nil {
 				return err
 			}
@@ -242,9 +242,22 @@ func (m *MeterDriver) expandTrigger(vals map[string]string) (meterTrigger, error
 	return t, nil
 }
 
-// triggerOnce takes one trigger's readings: init, trigger and sync where
-// given, then the read or fetch query.
-func (m *MeterDriver) triggerOnce(ctx context.Context, tx *Tx, t meterTrigger) ([]float64, error) {
+// meterBlockSlackBytes is the room a meter's binary block may take beyond
+// its readings before the header is refused unread; the reading count
+// check then names a block that is merely a little long.
+const meterBlockSlackBytes = 64
+
+// meterBlockMaxBytes caps the block a trigger of per readings may
+// announce: per × 8 bytes (a REAL,64 reading, IEEE 754 binary64; REAL,32
+// takes 4) plus meterBlockSlackBytes. The header is the instrument's
+// word, so it must not size an allocation beyond what was asked for.
+func meterBlockMaxBytes(per int) int {
+	return per*8 + meterBlockSlackBytes
+}
+
+// triggerOnce takes one trigger's per readings: init, trigger and sync
+// where given, then the read or fetch query.
+func (m *MeterDriver) triggerOnce(ctx context.Context, tx *Tx, t meterTrigger, per int) ([]float64, error) {
 	for _, c := range []string{t.init, t.trigger} {
 		if c == "" {
 			continue
@@ -265,7 +278,7 @@ func (m *MeterDriver) triggerOnce(ctx context.Context, tx *Tx, t meterTrigger) (
 	if m.cmds.kind() == WaveASCII {
 		return tx.QueryFloats(ctx, t.query)
 	}
-	data, err := tx.QueryBlock(ctx, t.query)
+	data, err := tx.QueryBlockMax(ctx, t.query, meterBlockMaxBytes(per))
 	if err != nil {
 		return nil, err
 	}

@@ -215,6 +215,46 @@ func TestMeterReadingFaults(t *testing.T) {
 	}
 }
 
+// A binary block header is the instrument's word: a header announcing
+// more than the readings asked for (n × 8 bytes plus 64 bytes of slack)
+// is refused before anything is allocated for it, with an error naming
+// the meter and the command. The length digits follow the definite-length
+// block header of IEEE 488.2 §8.7.9; only the header is sent, so reading
+// the announced data would fail differently.
+func TestMeterRefusesOversizedBlockHeader(t *testing.T) {
+	for _, tc := range []struct {
+		name, data string
+		n          int
+		announced  string
+		allowed    string
+	}{
+		// 60 000 000 is below the session's 64 MiB default, so only the
+		// meter's own cap refuses it.
+		{"one real64 reading, 60 MB announced", "real64", 1, "60000000", "72"},
+		{"three real32 readings, one byte past the slack", "real32", 3, "89", "88"},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			ctx := context.Background()
+			p := meterProfile(t, "count = \"SAMP:COUN {count}\"\ninit = \"INIT\"\nfetch = \"TRAC:DATA?\"\ndata = \""+tc.data+"\"")
+			header := "#" + strconv.Itoa(len(tc.announced)) + tc.announced
+			script := []pb.Exchange{{Send: "SAMP:COUN " + strconv.Itoa(tc.n)}, noErr, {Send: "INIT"}, noErr, {Send: "TRAC:DATA?", Reply: header}}
+			m, err := instrument.NewMeter(instrument.NewSession("dmm", pb.NewPlayback(t, script), p.SessionOptions()), p, noSettle)
+			if err != nil {
+				t.Fatal(err)
+			}
+			v, err := m.ReadN(ctx, tc.n)
+			if !errors.Is(err, instrument.ErrBadResponse) {
+				t.Fatalf("ReadN = %v, %v; want ErrBadResponse", v, err)
+			}
+			for _, s := range []string{"dmm", "meter", `"TRAC:DATA?"`, "announces " + tc.announced + " bytes", "the " + tc.allowed + " allowed"} {
+				if !strings.Contains(err.Error(), s) {
+					t.Errorf("error %q does not say %q", err, s)
+				}
+			}
+		})
+	}
+}
+
 // The meter keys are checked with the file and key named: each mode's
 // needs, contradictions between keys, and the data format.
 func TestMeterProfileKeys(t *testing.T) {

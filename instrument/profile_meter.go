@@ -73,10 +73,24 @@ func (m *MeterCommands) ReadingsKey() string {
 	return "meter.read"
 }
 
-// meterData are the transfer formats of a meter's readings.
-var meterData = map[string]WaveformKind{"ascii": WaveASCII, "real32": WaveReal32, "real64": WaveReal64}
+// meterDataKind maps a meter.data value to the transfer format of the
+// readings; ok is false for a value the profile may not use.
+func meterDataKind(data string) (kind WaveformKind, ok bool) {
+	switch data {
+	case "ascii":
+		return WaveASCII, true
+	case "real32":
+		return WaveReal32, true
+	case "real64":
+		return WaveReal64, true
+	}
+	return WaveASCII, false
+}
 
-func (m *MeterCommands) kind() WaveformKind { return meterData[m.Data] }
+func (m *MeterCommands) kind() WaveformKind {
+	k, _ := meterDataKind(m.Data)
+	return k
+}
 
 func (m *MeterCommands) order() binary.ByteOrder {
 	if m.ByteOrder == "little" {
@@ -169,7 +183,7 @@ func (m *MeterCommands) validate(pr *problems) {
 	if m.OnePerTrigger && m.Count != "" {
 		pr.add("meter.one_per_trigger", "true, and a count template is given too: leave count out for a meter that takes one reading per trigger")
 	}
-	if _, ok := meterData[m.Data]; !ok {
+	if _, ok := meterDataKind(m.Data); !ok {
 		pr.add("meter.data", "%q: want \"ascii\", \"real32\" or \"real64\"", m.Data)
 	}
 	if m.ByteOrder != "big" && m.ByteOrder != "little" {

@@ -388,8 +388,20 @@ func (t *Tx) QueryFloats(ctx context.Context, cmd string) ([]float64, error) {
 
 // QueryBlock sends a query and reads an arbitrary block reply (IEEE 488.2
 // §8.7.9-10). Over a Conn without RawReader the block is rebuilt from
-// lines, which loses a CR that precedes an LF inside binary data.
+// lines, which loses a CR that precedes an LF inside binary data. The
+// block may announce up to SessionOptions.MaxBlockBytes.
 func (t *Tx) QueryBlock(ctx context.Context, cmd string) ([]byte, error) {
+	return t.QueryBlockMax(ctx, cmd, t.s.opts.MaxBlockBytes)
+}
+
+// QueryBlockMax is QueryBlock for a caller that knows how much data to
+// expect: a header announcing more than maxBytes (or more than
+// SessionOptions.MaxBlockBytes) is refused before anything is allocated
+// for it, and the session re-synchronises before its next exchange.
+func (t *Tx) QueryBlockMax(ctx context.Context, cmd string, maxBytes int) ([]byte, error) {
+	if maxBytes <= 0 || maxBytes > t.s.opts.MaxBlockBytes {
+		maxBytes = t.s.opts.MaxBlockBytes
+	}
 	if err := t.begin(ctx, cmd); err != nil {
 		return nil, err
 	}
@@ -402,9 +414,9 @@ func (t *Tx) QueryBlock(ctx context.Context, cmd string) ([]byte, error) {
 	var data []byte
 	var err error
 	if rr, ok := s.conn.(RawReader); ok {
-		data, err = s.readBlockRaw(ectx, rr)
+		data, err = s.readBlockRaw(ectx, rr, maxBytes)
 	} else {
-		data, err = s.readBlockLines(ectx)
+		data, err = s.readBlockLines(ectx, maxBytes)
 	}
 	if err != nil {
 		if errors.Is(err, ErrBadResponse) {
@@ -416,7 +428,7 @@ func (t *Tx) QueryBlock(ctx context.Context, cmd string) ([]byte, error) {
 	return data, nil
 }
 
-func (s *Session) readBlockRaw(ctx context.Context, rr RawReader) ([]byte, error) {
+func (s *Session) readBlockRaw(ctx context.Context, rr RawReader, maxBytes int) ([]byte, error) {
 	hdr := make([]byte, 2)
 	if err := rr.ReadFull(ctx, hdr); err != nil {
 		return nil, err
@@ -436,8 +448,8 @@ func (s *Session) readBlockRaw(ctx context.Context, rr RawReader) ([]byte, error
 	if err != nil || digits[0] == '+' || digits[0] == '-' {
 		return nil, fmt.Errorf("%w: block length %q is not all digits", ErrBadResponse, digits)
 	}
-	if length > s.opts.MaxBlockBytes {
-		return nil, fmt.Errorf("%w: block announces %d bytes, more than the %d allowed", ErrBadResponse, length, s.opts.MaxBlockBytes)
+	if length > maxBytes {
+		return nil, fmt.Errorf("%w: block announces %d bytes, more than the %d allowed", ErrBadResponse, length, maxBytes)
 	}
 	data := make([]byte, length)
 	if err := rr.ReadFull(ctx, data); err != nil {
@@ -453,7 +465,7 @@ func (s *Session) readBlockRaw(ctx context.Context, rr RawReader) ([]byte, error
 	return data, nil
 }
 
-func (s *Session) readBlockLines(ctx context.Context) ([]byte, error) {
+func (s *Session) readBlockLines(ctx context.Context, maxBytes int) ([]byte, error) {
 	buf, err := s.conn.ReadLine(ctx)
 	if err != nil {
 		return nil, err
@@ -476,8 +488,8 @@ func (s *Session) readBlockLines(ctx context.Context) ([]byte, error) {
 	if err != nil || length < 0 || buf[2] == '+' {
 		return nil, fmt.Errorf("%w: block length %q is not all digits", ErrBadResponse, buf[2:2+n])
 	}
-	if length > s.opts.MaxBlockBytes {
-		return nil, fmt.Errorf("%w: block announces %d bytes, more than the %d allowed", ErrBadResponse, length, s.opts.MaxBlockBytes)
+	if length > maxBytes {
+		return nil, fmt.Errorf("%w: block announces %d bytes, more than the %d allowed", ErrBadResponse, length, maxBytes)
 	}
 	for len(buf) < 2+n+length {
 		more, err := s.conn.ReadLine(ctx)

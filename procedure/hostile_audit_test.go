@@ -282,10 +282,22 @@ func TestAuditMeterAbsurd(t *testing.T) {
 			if err != nil {
 				t.Fatal(err)
 			}
+			if bad[0].Unit != "U01" || bad[0].Test != plan.TestCMRR {
+				t.Errorf("the flagged point is %s %s, want U01 cmrr", bad[0].Unit, bad[0].Test)
+			}
+			// No aol test in this plan, so U01's CMRR is reported as
+			// measured, under analysis.ResultCMRRUncorrected.
+			found := false
 			for _, r := range res.Ratios {
-				if r.Unit == "U01" && r.Name == plan.TestCMRR && r.ExcludedPoints != 1 {
-					t.Errorf("U01 cmrr excluded %d points, want 1", r.ExcludedPoints)
+				if r.Unit == "U01" && r.Name == analysis.ResultCMRRUncorrected {
+					found = true
+					if r.ExcludedPoints != 1 {
+						t.Errorf("U01 %s excluded %d points, want 1", r.Name, r.ExcludedPoints)
+					}
 				}
+			}
+			if !found {
+				t.Errorf("no U01 %s among %d ratios: the fit must still run on the other points", analysis.ResultCMRRUncorrected, len(res.Ratios))
 			}
 		})
 	}
@@ -307,7 +319,8 @@ func TestAuditMeterStale(t *testing.T) {
 		}
 		return first
 	}
-	// Stale from U01's first cmrr point to the end of the run.
+	// Stale once U01's first cmrr point is taken (Progress reports a
+	// point after it): one real point, then the same answer to the end.
 	var once sync.Once
 	hook := progressHook{fn: func(i PointInfo) {
 		if i.Unit == "U01" && i.Test == plan.TestCMRR {
@@ -323,9 +336,11 @@ func TestAuditMeterStale(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
+	// With no aol test U01's CMRR would be reported as measured, under
+	// analysis.ResultCMRRUncorrected; either name is a failure here.
 	for _, r := range res.Ratios {
-		if r.Unit == "U01" && r.Name == plan.TestCMRR {
-			t.Errorf("a ratio was formed from a stale meter: %+v", r.Rejection)
+		if r.Unit == "U01" && (r.Name == plan.TestCMRR || r.Name == analysis.ResultCMRRUncorrected) {
+			t.Errorf("a ratio was formed from a stale meter: %s %+v", r.Name, r.Rejection)
 		}
 	}
 	found := false

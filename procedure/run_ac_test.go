@@ -280,7 +280,8 @@ func TestRunACCampaign(t *testing.T) {
 
 // TestRunACSafeStateGeneratorFirst: a capture fails mid-campaign; the
 // safe state switches every generator output off before it touches any
-// source or supply (issue 11: "generator output off first").
+// source or supply: a sine on an input or a rail must not outlive the
+// rails it rides on (common practice, no published source).
 func TestRunACSafeStateGeneratorFirst(t *testing.T) {
 	p := acPlan(t)
 	fb := newFakeBench(p)

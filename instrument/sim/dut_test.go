@@ -212,10 +212,12 @@ psrr_neg_db_sd = 5
 	}
 }
 
-// TestDefaultDUT checks the demo lot has what the brief asks: ten HX-4107
-// op-amps of lot L2611-A with CMRR spread over ~95..130 dB and PSRRs over
-// ~95..125 dB, marginal units near a 100 dB limit, and one HB-220 board
-// with G = 10, 0.1 % resistors and an op-amp CMRR of 110 dB.
+// TestDefaultDUT checks the demo lot is one that exercises every
+// verdict: ten HX-4107 op-amps of the invented lot L2611-A with CMRR
+// spread over ~95..130 dB and PSRRs over ~95..125 dB (so some pass and
+// some fail), marginal units near a 100 dB limit (so conditional verdicts
+// appear), and one HB-220 board with G = 10, 0.1 % resistors and an
+// op-amp CMRR of 110 dB.
 func TestDefaultDUT(t *testing.T) {
 	d := DefaultDUT()
 	if len(d.Units) != 10 || len(d.Boards) != 1 || d.Part.Number != "HX-4107" || d.LotID != "L2611-A" {

@@ -10,7 +10,7 @@ import (
 
 // The frequency-dependent physics measured through SCPI only (generator,
 // digitizer, switch) against closed forms derived here from the DUT file's
-// keys, as anyone could from the definition:
+// keys, as anyone could from the single-pole model:
 //
 //	|k(f)| = |k_dc|·√(1 + (f/f_p)²),  arg k(f) = arg k_dc + atan(f/f_p)
 //	ratio_dB(f) = ratio_dB(DC) − 10·log10(1 + (f/f_p)²)

@@ -679,7 +679,11 @@ func fitSweep(rs []journal.Reading, t *plan.Test) (sweep, error) {
 // one returning a stale reading). A real 6½-digit reading always carries
 // noise in its last digits, so identical values are not a very good part
 // but a fault; fitting them would give a zero slope and an unbounded
-// "ratio ≥ …" (common practice, no published source).
+// "ratio ≥ …" (common practice, no published source). A meter that went
+// stale part-way through a sweep shows the same signature on most of it:
+// when more than half the points (at least 3, at more than one stimulus
+// level) share one meter value to the last digit, the sweep is refused
+// too, since the few moving points would otherwise carry a flat line.
 func Plausible(x, y []float64) error {
 	same := func(v []float64) bool {
 		for _, e := range v[1:] {
@@ -690,10 +694,28 @@ func Plausible(x, y []float64) error {
 		return true
 	}
 	if same(x) {
-		return fmt.Errorf("implausible: the stimulus shows no variation (every point at %g V): the source or supply did not move; check that its output is on and wired", x[0])
+		return fmt.Errorf("implausible: the stimulus shows no variation (every point at %s): the source or supply did not move; check that its output is on and wired", plan.FormatVolts(x[0]))
 	}
 	if same(y) {
-		return fmt.Errorf("implausible: the meter returned %g V at every one of %d points: a stuck meter or a stale reading (check its trigger and the connection); no ratio is formed", y[0], len(y))
+		return fmt.Errorf("implausible: the meter returned %.7g V at every one of %d points: a stuck meter or a stale reading (check its trigger and the connection); no ratio is formed", y[0], len(y))
+	}
+	count := map[float64]int{}
+	for _, v := range y {
+		count[v]++
+	}
+	for v, k := range count {
+		if k < 3 || 2*k <= len(y) {
+			continue
+		}
+		levels := map[float64]bool{}
+		for i := range y {
+			if y[i] == v {
+				levels[x[i]] = true
+			}
+		}
+		if len(levels) > 1 {
+			return fmt.Errorf("implausible: the meter returned %.7g V at %d of %d points, over %d stimulus levels: a stuck meter or a stale reading from part-way through the sweep (check its trigger and the connection); no ratio is formed", v, k, len(y), len(levels))
+		}
 	}
 	return nil
 }
@@ -913,13 +935,22 @@ func (a *analyzer) nonlinearity(r *RatioResult, s sweep, divisor float64) {
 		return
 	}
 	r.Nonlinearity, r.NonlinearityChecked = nl, true
+	r.Notes = append(r.Notes, nonlinearityNotes(nl)...)
+}
+
+// nonlinearityNotes words what fit.Nonlinear found. The stimulus is a
+// read-back (0.0019999999999997797 V for a 2 mV level), so it is given
+// to the µV with plan.FormatVolts, the deviation to 3 significant figures.
+func nonlinearityNotes(nl fit.Nonlinearity) []string {
+	var notes []string
 	if nl.QuadSignificant {
-		r.Notes = append(r.Notes, fmt.Sprintf("non-linearity: largest deviation from a straight line %.3g µV at the input, at %g V",
-			nl.MaxDeviationUV, nl.AtStimulusVolts))
+		notes = append(notes, fmt.Sprintf("non-linearity: largest deviation from a straight line %.3g µV at the input, at %s",
+			nl.MaxDeviationUV, plan.FormatVolts(nl.AtStimulusVolts)))
 	}
 	if nl.SpanDependent {
-		r.Notes = append(r.Notes, fmt.Sprintf("slope differs between the lower and upper half of the span (z = %.1f)", nl.SlopeZ))
+		notes = append(notes, fmt.Sprintf("slope differs between the lower and upper half of the span (z = %.1f)", nl.SlopeZ))
 	}
+	return notes
 }
 
 // newRatio fills the common fields of a result from its sweep.

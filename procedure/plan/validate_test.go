@@ -80,7 +80,7 @@ func TestValidateRefusals(t *testing.T) {
 			"min_valid_points = 2", "test[1].min_valid_points", []string{"below the fit's minimum", "at least 3"}},
 		{"min_valid_points beyond the plan", rep("levels = [-10.0, 0.0, 10.0]", "levels = [-10.0, 0.0, 10.0]\nmin_valid_points = 7"),
 			"min_valid_points = 7", "test[1].min_valid_points", []string{"more than the 6 points the test plans per sweep", "at most 6"}},
-		// Bounds (issue: a dwell beyond a week is a typo, not a plan).
+		// Bounds: a dwell beyond a week is a typo, not a plan.
 		{"dwell beyond a week", rep("levels = [-10.0, 0.0, 10.0]", "levels = [-10.0, 0.0, 10.0]\ndwell_s = 1e12"),
 			"dwell_s = 1e12", "test[1].dwell_s", []string{"longer than a week"}},
 		{"settle time-out beyond a week", rep("levels = [-10.0, 0.0, 10.0]", "levels = [-10.0, 0.0, 10.0]\nsettle_timeout_s = 604801.0"),

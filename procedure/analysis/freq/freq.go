@@ -6,6 +6,7 @@ import (
 	"math"
 	"math/cmplx"
 	"sort"
+	"strconv"
 
 	"nullbench/fit"
 	"nullbench/procedure/analysis"
@@ -218,7 +219,7 @@ func AnalyzeFreq(p *plan.Plan, recs []journal.ACReading, in FreqInputs) ([]FreqR
 			pt, err := freqPoint(p, t, fi, byFreq[fi], gain, gainTol, in, cov)
 			if err != nil {
 				probs = append(probs, analysis.Problem{Unit: k.unit, Test: k.test, TempIndex: k.ti, TemperatureC: fr.TemperatureC,
-					Problem: fmt.Sprintf("%g Hz: %v", byFreq[fi][0].FrequencyHz, err)})
+					Problem: fmt.Sprintf("%s: %v", hzText(byFreq[fi][0].FrequencyHz), err)})
 				continue
 			}
 			if lim, ok := t.LimitAtDB(fi); ok {
@@ -509,7 +510,7 @@ func freqPoint(p *plan.Plan, t *plan.ACTest, fi int, recs []journal.ACReading, g
 			pt.Notes = append(pt.Notes, "the AC voltmeter profile gives no amplitude_accuracy_pct: not in the budget")
 		}
 		if fl := a.at(a.flatnessTable(), f); !math.IsNaN(fl) {
-			rows = append(rows, dbRow(fmt.Sprintf("AC voltmeter flatness ±%.3g dB at %g Hz, each of two inputs (profile)", fl, f), "B",
+			rows = append(rows, dbRow(fmt.Sprintf("AC voltmeter flatness ±%.3g dB at %s, each of two inputs (profile)", fl, hzText(f)), "B",
 				math.Sqrt2*fit.RectangularStdUnc(fl), fit.InfDOF))
 		}
 		pt.Notes = append(pt.Notes, "magnitude only (AC voltmeter): no phase")
@@ -532,7 +533,7 @@ func freqPoint(p *plan.Plan, t *plan.ACTest, fi int, recs []journal.ACReading, g
 		x := f * gain / gbw
 		s := x * x / (1 + x*x)
 		tol := p.Part.GBWTolerance
-		rows = append(rows, dbRow(fmt.Sprintf("fixture roll-off at %g Hz: part gain-bandwidth %g Hz ±%.0f %% (closed-loop %.3g dB)", f, gbw, 100*tol, pt.FixtureGainDB-20*math.Log10(gain)),
+		rows = append(rows, dbRow(fmt.Sprintf("fixture roll-off at %s: part gain-bandwidth %s ±%.0f %% (closed-loop %.3g dB)", hzText(f), hzText(gbw), 100*tol, pt.FixtureGainDB-20*math.Log10(gain)),
 			"B", fit.RectangularStdUnc(dBPerNeper*s*tol), fit.InfDOF))
 		phaseU := fit.RectangularStdUnc(x / (1 + x*x) * tol) // ∂atan(x)/∂ln GBW = −x/(1 + x²)
 		phaseVar += phaseU * phaseU
@@ -551,10 +552,10 @@ func freqPoint(p *plan.Plan, t *plan.ACTest, fi int, recs []journal.ACReading, g
 	// response; its share of the response, as a rectangular row.
 	if haveFloor && pt.ResponseV > 0 {
 		pt.FloorV = floorV
-		rows = append(rows, dbRow(fmt.Sprintf("noise floor: %.3g V at %g Hz with the generator off, against %.3g V of response", floorV, f, pt.ResponseV),
+		rows = append(rows, dbRow(fmt.Sprintf("noise floor: %.3g V at %s with the generator off, against %.3g V of response", floorV, hzText(f), pt.ResponseV),
 			"B", fit.RectangularStdUnc(dBPerNeper*math.Min(floorV/pt.ResponseV, 1)), fit.InfDOF))
 	}
-	b, err := fit.Combine(fmt.Sprintf("%s ratio at %g Hz", quantityOfAC(t.Kind), f), "dB", ratioDB, rows, cov)
+	b, err := fit.Combine(fmt.Sprintf("%s ratio at %s", quantityOfAC(t.Kind), hzText(f)), "dB", ratioDB, rows, cov)
 	if err != nil {
 		return pt, err
 	}
@@ -574,7 +575,7 @@ func freqPoint(p *plan.Plan, t *plan.ACTest, fi int, recs []journal.ACReading, g
 		if pt.ResponseV < b.CoverageK*uR {
 			rej.Resolved = false
 			rej.LowerBoundDB = -20 * math.Log10((pt.ResponseV+b.CoverageK*uR)/scale)
-			pt.Notes = append(pt.Notes, fmt.Sprintf("response %.3g V is within %g standard uncertainties of the noise floor: reported as a lower bound", pt.ResponseV, b.CoverageK))
+			pt.Notes = append(pt.Notes, fmt.Sprintf("response %.3g V is within %.3g standard uncertainties of the noise floor: reported as a lower bound", pt.ResponseV, b.CoverageK))
 		}
 	}
 	pt.Rejection = rej
@@ -769,4 +770,25 @@ func FreqMethodText() []string {
 		"Noise floor: a record with the generator off at each frequency. When the response lies within k standard uncertainties of √(u_fit² + floor²) the result is the lower bound −20·log10((R + k·u)/(S·|M|·|K(f)|)), judged as at DC.",
 		"Single pole: ratio_dB(f) = R_dc − 10·log10(1 + (f/f_p)²) fitted to the resolved frequencies (weighted least squares, Levenberg–Marquardt) gives the low-frequency ratio and the corner with their uncertainties; R_dc is compared with the unit's DC result (|difference| ≤ √(U_DC² + U_pole²)). On a noise-gain stage the sine cmrr is k_c + k_o, compared with cmrr_uncorrected.",
 	}
+}
+
+// hzText gives a frequency to 4 significant figures in plain decimal
+// ("37.28 Hz", "26830 Hz", not "37.275937203149404 Hz" or "2.683e+04 Hz"):
+// a log-spaced list of points carries every binary digit of
+// lo·(hi/lo)^(i/(n−1)), and a note or budget row needs only enough to
+// tell the points apart (GUM 7.2.6: no excessive number of digits).
+func hzText(f float64) string {
+	if f == 0 || math.IsNaN(f) || math.IsInf(f, 0) {
+		return fmt.Sprintf("%g Hz", f)
+	}
+	d := 3 - int(math.Floor(math.Log10(math.Abs(f)))) // decimals kept
+	var r float64
+	if d >= 0 {
+		p := math.Pow10(d)
+		r = math.Round(f*p) / p
+	} else {
+		p := math.Pow10(-d)
+		r = math.Round(f/p) * p
+	}
+	return strconv.FormatFloat(r, 'f', -1, 64) + " Hz"
 }

@@ -204,10 +204,10 @@ func truthDB(t *testing.T, b *sim.Bench, unit, kind string, f float64) float64 {
 
 // TestFreqResponseAgainstSimTruth: on parts with known poles, the measured
 // ratio at each frequency agrees with the truth 20·log10 within its
-// expanded uncertainty U for at least 93 % of the results (issue 11; a
-// 95 % coverage interval, less a margin for the finite number of
-// results), and each fitted corner lies within its expanded uncertainty
-// of the DUT file's pole.
+// expanded uncertainty U for at least 93 % of the results (U is stated
+// as a 95 % coverage interval, GUM 6.2-6.3; 93 % leaves a margin for the
+// finite number of results), and each fitted corner lies within its
+// expanded uncertainty of the DUT file's pole.
 func TestFreqResponseAgainstSimTruth(t *testing.T) {
 	units := []string{"U01", "U03", "U07"}
 	seeds := []int64{0, 11, 23} // three benches: the instruments' errors and noise drawn anew
@@ -261,8 +261,9 @@ func TestFreqResponseAgainstSimTruth(t *testing.T) {
 
 // TestThroughCalibrationRemovesMismatch: a digitizer whose channel 2 reads
 // 1 dB high and 5° late gives, after the through calibration, the same
-// ratios and phases as a perfect one (issue 11), within the two results'
-// combined expanded uncertainty.
+// ratios and phases as a perfect one (the through calibration must
+// remove a channel gain and phase mismatch of the digitizer), within the
+// two results' combined expanded uncertainty.
 func TestThroughCalibrationRemovesMismatch(t *testing.T) {
 	perfect := runFreq(t, []string{"U01"}, sim.DigitizerMismatch{}, 7)
 	skewed := runFreq(t, []string{"U01"}, sim.DigitizerMismatch{GainDB: 1, PhaseDeg: 5}, 7)

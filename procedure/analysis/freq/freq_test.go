@@ -205,3 +205,31 @@ func TestFreqMethodTextNamesWhatTheCodeDoes(t *testing.T) {
 		t.Errorf("the text says a tenth, the code uses %g", CalibrationResidualFraction)
 	}
 }
+
+// Frequencies in notes, problems and budget rows are given to 4
+// significant figures in plain decimal (GUM 7.2.6: no excessive number
+// of digits); the log-spaced points are plan.LogSpaced's, whose binary
+// digits would otherwise all be printed.
+func TestHzTextRoundsToFourFigures(t *testing.T) {
+	for _, tc := range []struct {
+		f    float64
+		want string
+	}{
+		{37.275937203149404, "37.28 Hz"},
+		{26834.9, "26830 Hz"},
+		{1000, "1000 Hz"},
+		{0.5, "0.5 Hz"},
+		{99999, "100000 Hz"},
+		{123456789, "123500000 Hz"},
+		{0.0123456, "0.01235 Hz"},
+	} {
+		if got := hzText(tc.f); got != tc.want {
+			t.Errorf("hzText(%v) = %q, want %q", tc.f, got, tc.want)
+		}
+	}
+	for _, f := range plan.LogSpaced(10, 1e5, 13) {
+		if s := hzText(f); len(s) > len("100000 Hz") {
+			t.Errorf("hzText(%v) = %q: more digits than 4 significant figures need", f, s)
+		}
+	}
+}
