@@ -1,5 +1,11 @@
 package report
 
+import (
+	"math"
+	"strconv"
+	"strings"
+)
+
 // Frequency-response input types. The caller (cmd/nullbench) maps the
 // analysis's per-frequency results, single-pole fits and budgets into
 // these; report imports nothing of ours. The conventions of model.go hold:
@@ -110,4 +116,91 @@ type FreqFitRow struct {
 	DCDiffExpandedUDB float64
 	DCConsistent      bool
 	DCNote            string
+}
+
+// RoundToU rounds an expanded uncertainty u to two significant digits and
+// the estimate v to the same decimal place, so that neither carries more
+// digits than u supports (JCGM 100:2008 (GUM) 7.2.6). decimals is the
+// number of decimal places of both (negative: rounded to tens, hundreds,
+// …). A u that is NaN, infinite or not positive leaves v and u as they
+// are, with ok false.
+func RoundToU(v, u float64) (rv, ru float64, decimals int, ok bool) {
+	if math.IsNaN(u) || math.IsInf(u, 0) || u <= 0 {
+		return v, u, 0, false
+	}
+	// Two significant digits of u: its leading digit sits at 10^e.
+	e := int(math.Floor(math.Log10(u)))
+	decimals = 1 - e
+	ru = roundDecimals(u, decimals)
+	// Rounding may carry u into a new decade (9.96 → 10): keep two digits.
+	if e2 := int(math.Floor(math.Log10(ru))); e2 > e {
+		decimals = 1 - e2
+		ru = roundDecimals(u, decimals)
+	}
+	return roundDecimals(v, decimals), ru, decimals, true
+}
+
+// roundDecimals rounds v to d decimal places (d < 0: to 10^-d), through
+// its decimal text so that 315.4 stays 315.4 and not 315.40000000000003.
+func roundDecimals(v float64, d int) float64 {
+	if math.IsNaN(v) || math.IsInf(v, 0) {
+		return v
+	}
+	if d < 0 {
+		q := math.Pow(10, float64(-d))
+		return math.Round(v/q) * q
+	}
+	r, err := strconv.ParseFloat(strconv.FormatFloat(v, 'f', d, 64), 64)
+	if err != nil {
+		return v
+	}
+	return r
+}
+
+// FormatWithU is v and u as text rounded by RoundToU (GUM 7.2.6), e.g.
+// "315.4" and "9.1"; without a usable u, v to six significant digits.
+func FormatWithU(v, u float64) (vs, us string) {
+	rv, ru, d, ok := RoundToU(v, u)
+	if !ok {
+		return FormatSig(v, 6), FormatSig(u, 2)
+	}
+	d = max(d, 0)
+	return strconv.FormatFloat(rv, 'f', d, 64), strconv.FormatFloat(ru, 'f', d, 64)
+}
+
+// FormatHz is a stimulus frequency in plain decimal notation to five
+// significant digits (26826.96 → "26827", 37.27594 → "37.276", 100000 →
+// "100000"): enough to tell log-spaced points apart, never in exponent
+// form.
+func FormatHz(f float64) string { return FormatSig(f, 5) }
+
+// FormatSig is v rounded to n significant digits in plain decimal
+// notation, trailing zeros after the point dropped; NaN and infinities as
+// Go prints them.
+func FormatSig(v float64, n int) string {
+	if math.IsNaN(v) || math.IsInf(v, 0) {
+		return strconv.FormatFloat(v, 'g', -1, 64)
+	}
+	if v == 0 {
+		return "0"
+	}
+	e := int(math.Floor(math.Log10(math.Abs(v))))
+	d := n - 1 - e
+	t := strconv.FormatFloat(roundDecimals(v, d), 'f', max(d, 0), 64)
+	if strings.Contains(t, ".") {
+		t = strings.TrimRight(strings.TrimRight(t, "0"), ".")
+	}
+	return t
+}
+
+// floorSig rounds v down to n significant digits (NaN and infinities as
+// they are).
+func floorSig(v float64, n int) float64 {
+	if math.IsNaN(v) || math.IsInf(v, 0) || v == 0 {
+		return v
+	}
+	d := n - 1 - int(math.Floor(math.Log10(math.Abs(v))))
+	q := math.Pow(10, float64(d))
+	r := math.Floor(v*q) / q
+	return roundDecimals(r, max(d, 0))
 }

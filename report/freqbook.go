@@ -20,7 +20,7 @@ const (
 // figure says what it is, its unit and its convention.
 var freqHeaders = []string{
 	"Unit", "Test", "Quantity", "Temperature (°C)", "Frequency (Hz)", "Instrument",
-	"|k(f)| input-referred (µV/V)", "Ratio −20·log10|k(f)| (dB)", "Expanded uncertainty U (dB)", "Coverage factor k",
+	"|k(f)| input-referred (µV/V)", "Ratio 20·log10(10⁶ / |k(f)| in µV/V) (dB)", "Expanded uncertainty U (dB)", "Coverage factor k",
 	"Coverage probability", "Effective degrees of freedom", "Resolved", "Lower bound (dB)", "Reported (dB)", "Statement",
 	"Noise floor: largest resolvable ratio (dB)", "Phase arg k(f) (°)", "Expanded U of phase (°)",
 	"Limit at f (dB)", "Margin to limit (dB)", "Verdict", "Decision rule", "Flags", "Notes",
@@ -30,7 +30,7 @@ var freqHeaders = []string{
 func freqKey() []KeyValue {
 	return append(verdictKey(),
 		KeyValue{"|k(f)|", "magnitude of the input-referred coefficient at f: fixture output over stimulus at the part, divided by the through calibration and by the fixture's gain at f"},
-		KeyValue{"Ratio (dB)", "−20·log10|k(f)| = 20·log10(10⁶ / |k| in µV/V) (JEDEC JESD99B); U = k·u (JCGM 100:2008, k from Student's t at ν_eff)"},
+		KeyValue{"Ratio (dB)", "20·log10(10⁶ / |k(f)| in µV/V) = −20·log10|k(f)| with k in V/V (JEDEC JESD99B); U = k·u (JCGM 100:2008, k from Student's t at ν_eff)"},
 		KeyValue{"Phase (°)", "arg k(f): positive when the input-referred response leads the stimulus; empty for an AC voltmeter (magnitude only)"},
 		KeyValue{"no: lower bound", "the response is within k standard uncertainties of the noise floor: only the lower bound is a statement about the part"},
 		KeyValue{"Noise floor", "from a record with the generator off at f: the largest ratio this setup resolves"},
@@ -148,11 +148,16 @@ func writeFreqFits(f *excelize.File, st *styles, c *Campaign) error {
 			q = r.Test
 		}
 		d[0], d[1], d[2], d[3], d[4] = r.Unit, r.Test, q, num(r.TemperatureC), r.Points
-		d[5], d[6], d[7], d[8], d[9] = num(r.LowFreqRatioDB), num(r.LowFreqExpandedUDB), num(r.CornerHz), num(r.CornerExpandedUHz), num(r.CoverageK)
+		// The corner and its U as GUM 7.2.6 has them: U to two
+		// significant digits, f_c to the same decimal place.
+		corner, uCorner, _, _ := RoundToU(r.CornerHz, r.CornerExpandedUHz)
+		d[5], d[6], d[7], d[8], d[9] = num(r.LowFreqRatioDB), num(r.LowFreqExpandedUDB), num(corner), num(uCorner), num(r.CoverageK)
 		if !math.IsNaN(r.LowFreqRatioDB) {
 			d[10] = yesNo(r.CornerResolved, 0)
 		}
-		d[11] = num(r.CornerLowerBoundHz)
+		// A lower bound is rounded down (three significant digits) so
+		// that the shorter figure still bounds f_c from below.
+		d[11] = num(floorSig(r.CornerLowerBoundHz, 3))
 		check := "not checked"
 		if r.DCChecked {
 			d[12], d[13], d[14], d[15] = num(r.DCRatioDB), num(r.DCExpandedUDB), num(r.DCDiffDB), num(r.DCDiffExpandedUDB)
@@ -212,7 +217,7 @@ func freqSummary(w *summaryWriter, c *Campaign) {
 		len(c.FreqResults), counts[KindPass], counts[KindConditionalPass], counts[KindConditionalFail], counts[KindFail], counts[KindNotJudged]), 0)
 	for _, q := range order {
 		r := lowest[q].r
-		s := fmt.Sprintf("%s at %g Hz, unit %s", statement(&r.Result), r.FrequencyHz, r.Unit)
+		s := fmt.Sprintf("%s at %s Hz, unit %s", statement(&r.Result), FormatHz(r.FrequencyHz), r.Unit)
 		if !math.IsNaN(r.LimitDB) {
 			s += fmt.Sprintf(" (limit %.2f dB: %s)", r.LimitDB, r.Verdict)
 		}

@@ -61,6 +61,10 @@ func freqCampaign() *Campaign {
 // frequency axis.
 func TestWorkbookFrequencySheetsAndBodeCharts(t *testing.T) {
 	c := freqCampaign()
+	// The second unit's corner as a fit gives it, unrounded: the sheet
+	// quotes it with U to two significant digits and f_c to match
+	// (JCGM 100:2008 7.2.6).
+	c.FreqFits[1].CornerHz, c.FreqFits[1].CornerExpandedUHz = 815.371370628783, 9.1063104792092
 	var buf bytes.Buffer
 	if err := WriteWorkbookTo(&buf, c, WorkbookOptions{}); err != nil {
 		t.Fatal(err)
@@ -77,7 +81,7 @@ func TestWorkbookFrequencySheetsAndBodeCharts(t *testing.T) {
 		}
 	}
 	rows, _ := f.GetRows(SheetFreq)
-	if rows[0][4] != "Frequency (Hz)" || rows[0][7] != "Ratio −20·log10|k(f)| (dB)" || rows[0][17] != "Phase arg k(f) (°)" {
+	if rows[0][4] != "Frequency (Hz)" || rows[0][7] != "Ratio 20·log10(10⁶ / |k(f)| in µV/V) (dB)" || rows[0][17] != "Phase arg k(f) (°)" {
 		t.Errorf("Frequency header %q", rows[0])
 	}
 	data := 0
@@ -97,6 +101,9 @@ func TestWorkbookFrequencySheetsAndBodeCharts(t *testing.T) {
 	fits, _ := f.GetRows(SheetFreqFits)
 	if len(fits) < 3 || fits[1][0] != "F01" || fits[1][7] != "300" || fits[1][16] != "agrees" {
 		t.Errorf("pole fits %q", fits)
+	}
+	if len(fits) >= 3 && (fits[2][7] != "815.4" || fits[2][8] != "9.1") {
+		t.Errorf("second unit's corner %q ± %q Hz, want 815.4 ± 9.1 (GUM 7.2.6)", fits[2][7], fits[2][8])
 	}
 	budget, _ := f.GetRows(SheetFreqBudget)
 	if len(budget) < 17 || budget[1][3] != "10" || budget[1][4] != "magnitude" {
@@ -243,5 +250,27 @@ func TestWritePlotsBode(t *testing.T) {
 	}
 	if len(bc[0].Limit) != 8 || len(bc[0].Floor) != 8 || bc[0].Floor[0].Y != 150 {
 		t.Errorf("limit %v, noise floor %v (the lowest of the units at each frequency)", bc[0].Limit, bc[0].Floor)
+	}
+}
+
+// TestFreqSummaryNamesFrequencyPlainly: the Summary sheet names the
+// frequency of the lowest ratio to five significant digits in plain
+// decimals, not with every digit of a log-spaced set point (or %g's
+// exponent form).
+func TestFreqSummaryNamesFrequencyPlainly(t *testing.T) {
+	c := freqCampaign()
+	c.FreqResults[7].FrequencyHz = 26826.957952797256 // F01's lower bound, the lowest reported ratio
+	var buf bytes.Buffer
+	if err := WriteWorkbookTo(&buf, c, WorkbookOptions{}); err != nil {
+		t.Fatal(err)
+	}
+	f, err := excelize.OpenReader(bytes.NewReader(buf.Bytes()))
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer f.Close()
+	summary, _ := f.GetRows(SheetSummary)
+	if s := joinRows(summary); !strings.Contains(s, "at 26827 Hz, unit F01") {
+		t.Errorf("the Summary sheet's lowest CMRR does not name 26827 Hz:\n%s", s)
 	}
 }

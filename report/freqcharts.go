@@ -59,7 +59,7 @@ func (b bodeChart) phaseTitle() string {
 // horizontal axis is made logarithmic (logFrequencyAxes).
 const (
 	bodeXAxis     = "Frequency (Hz, logarithmic)"
-	bodeMagAxis   = "Ratio −20·log10|k(f)| (dB)"
+	bodeMagAxis   = "Ratio 20·log10(10⁶ / |k(f)| in µV/V) (dB)"
 	bodePhaseAxis = "Phase arg k(f) (°)"
 )
 

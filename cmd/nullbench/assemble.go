@@ -114,7 +114,7 @@ func toReport(recs ...campaignRecord) *report.Campaign {
 			addResults(c, r.Results, predictedU(p))
 			addProblems(c, p, r.Results)
 		}
-		addFreq(c, p, r.Freq, r.FreqProblems, 0)
+		addFreq(c, p, r.Freq, r.FreqProblems, freqCoverage(&r))
 	}
 	c.Incomplete = c.MissingPoints > 0
 	for i := range c.Results {

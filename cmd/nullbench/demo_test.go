@@ -3,11 +3,14 @@ package main
 import (
 	"os"
 	"path/filepath"
+	"slices"
 	"strings"
 	"testing"
 
 	"github.com/xuri/excelize/v2"
 
+	"nullbench/procedure/journal"
+	"nullbench/procedure/plan"
 	"nullbench/report"
 )
 
@@ -155,5 +158,56 @@ func TestDemoWithSmallDUT(t *testing.T) {
 	cliWantCode(t, rr, exitOutOfLimits, rargs...)
 	if rr.out != r.out {
 		t.Errorf("report from the journals differs from the demo's results:\n%s\nwant:\n%s", rr.out, r.out)
+	}
+
+	// The demo folder's manifest: one entry per journal, each with its own
+	// plan, seal and completeness (the demo measured every point), and
+	// never a single empty plan or journal name.
+	m, err := readManifest(out)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if m.Plan.File != "" || m.Journal.File != "" || m.Journal.Records != 0 {
+		t.Errorf("demo manifest names a single plan %q / journal %q: it is not a run folder", m.Plan.File, m.Journal.File)
+	}
+	var names []string
+	for _, j := range m.Journals {
+		names = append(names, j.File)
+		jc, err := journal.ReadFile(filepath.Join(out, j.File))
+		if err != nil {
+			t.Fatal(err)
+		}
+		p, perr := plan.Load(filepath.Join(out, j.Plan.File))
+		if perr != nil || p.Hash != j.Plan.SHA256 || jc.Header.PlanHash != j.Plan.SHA256 {
+			t.Errorf("manifest entry %s: plan %s sha256 %s, the file's %v, the journal's %s", j.File, j.Plan.File, j.Plan.SHA256, p, jc.Header.PlanHash)
+		}
+		if j.Seal != jc.Seal() || !j.Complete || j.MissingPoints != 0 {
+			t.Errorf("manifest entry %s: seal %+v complete %v missing %d; the journal's seal %+v, complete", j.File, j.Seal, j.Complete, j.MissingPoints, jc.Seal())
+		}
+	}
+	if want := []string{"lot-journal.jsonl", "board-B01-journal.jsonl", "freq-journal.jsonl"}; !slices.Equal(names, want) {
+		t.Errorf("manifest journals %q, want %q", names, want)
+	}
+
+	// report DIR on the demo folder reports every journal in it, into the
+	// folder itself (its journals and plans are not someone else's
+	// files): the demo's results again (the journals in name order, so
+	// the lines are compared as a set).
+	dargs := []string{"report", out, "--json", "--no-charts"}
+	dr := cliExec(t, dargs...)
+	cliWantCode(t, dr, exitOutOfLimits, dargs...)
+	sortedLines := func(s string) []string { l := strings.Split(strings.TrimSpace(s), "\n"); slices.Sort(l); return l }
+	if !slices.Equal(sortedLines(dr.out), sortedLines(r.out)) || len(dr.out) == 0 {
+		t.Errorf("report DIR differs from the demo's results:\n%s\nwant:\n%s\nstderr:\n%s", dr.out, r.out, dr.err)
+	}
+	// report JOURNAL on one journal of the demo folder, with the default
+	// --out (the journal's folder): the frequency campaign alone.
+	jargs := []string{"report", filepath.Join(out, "freq-journal.jsonl"), "--no-charts"}
+	jr := cliExec(t, jargs...)
+	if jr.code == exitUsage || !strings.Contains(jr.out, "Frequency response") {
+		t.Errorf("report %s: exit %d, want the frequency campaign reported:\n%s\n%s", jargs[1], jr.code, jr.out, jr.err)
+	}
+	if m, err := readManifest(out); err != nil || len(m.Journals) != 1 || m.Journals[0].File != "freq-journal.jsonl" {
+		t.Errorf("after report of one journal the manifest lists %+v (%v), want that journal alone", m, err)
 	}
 }

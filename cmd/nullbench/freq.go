@@ -8,6 +8,7 @@ import (
 	"nullbench/instrument"
 	"nullbench/procedure/analysis/freq"
 	"nullbench/procedure/plan"
+	"nullbench/report"
 )
 
 // freqInputs takes the digitizer's and AC voltmeter's frequency-response
@@ -59,12 +60,22 @@ func analyseFreq(rec *campaignRecord, resolve profileResolver) error {
 		return withCode(exitUsage, err)
 	}
 	in.DC = rec.Results
+	in.Coverage = freqCoverage(rec)
 	fr, probs, err := freq.AnalyzeFreq(rec.Plan, rec.ACReadings, in)
 	if err != nil {
 		return withCode(exitFailure, fmt.Errorf("analyse %s (frequency response): %w", rec.Plan.Source, err))
 	}
 	rec.Freq, rec.FreqProblems = fr, probs
 	return nil
+}
+
+// freqCoverage is the coverage probability of a record's frequency
+// results: the one its DC analysis used, or fit.DefaultCoverage.
+func freqCoverage(rec *campaignRecord) float64 {
+	if rec.Results != nil && rec.Results.CoverageProbability > 0 {
+		return rec.Results.CoverageProbability
+	}
+	return fit.DefaultCoverage
 }
 
 // printFreqSummary writes the frequency-response results in words: per
@@ -74,8 +85,10 @@ func printFreqSummary(w io.Writer, rec campaignRecord) {
 	if len(rec.Freq) == 0 && len(rec.FreqProblems) == 0 {
 		return
 	}
+	cov := freqCoverage(&rec)
+	pct := report.FormatSig(100*cov, 4)
 	fmt.Fprintf(w, "\nFrequency response (%s):\n", rec.Plan.Source)
-	fmt.Fprintf(w, "  ratio in dB referred to the input, ± expanded uncertainty at 95 %% coverage; phase of the input-referred coefficient k(f) in degrees\n")
+	fmt.Fprintf(w, "  ratio in dB referred to the input, ± expanded uncertainty at %s %% coverage; phase of the input-referred coefficient k(f) in degrees\n", pct)
 	for _, r := range rec.Freq {
 		fmt.Fprintf(w, "  %s %s (%s, %.1f °C)\n", r.Unit, r.Quantity, r.Test, r.TemperatureC)
 		for _, pt := range r.Points {
@@ -92,19 +105,21 @@ func printFreqSummary(w io.Writer, rec campaignRecord) {
 			if pt.Judged {
 				verdict = fmt.Sprintf("  %s (limit %g dB)", pt.Decision.State, pt.Decision.LimitDB)
 			}
-			fmt.Fprintf(w, "    %10.4g Hz  %s  %s%s\n", pt.FrequencyHz, val, ph, verdict)
+			fmt.Fprintf(w, "    %10s Hz  %s  %s%s\n", report.FormatHz(pt.FrequencyHz), val, ph, verdict)
 		}
 		switch {
 		case r.Pole == nil:
 			fmt.Fprintf(w, "    single pole: %s\n", r.PoleNote)
 		case r.Pole.Resolved:
-			k := poleCoverageK(r.Pole, fit.DefaultCoverage)
-			fmt.Fprintf(w, "    single pole: low-frequency %.2f ± %.2f dB, corner %.4g ± %.2g Hz (k = %.2f, 95 %%)\n",
-				r.Pole.RatioDCDB, k*r.Pole.URatioDCDB, r.Pole.PoleHz, k*r.Pole.UPoleHz, k)
+			k := poleCoverageK(r.Pole, cov)
+			// GUM 7.2.6: U to two significant digits, f_c to match.
+			fc, uFc := report.FormatWithU(r.Pole.PoleHz, k*r.Pole.UPoleHz)
+			fmt.Fprintf(w, "    single pole: low-frequency %.2f ± %.2f dB, corner %s ± %s Hz (k = %.2f, %s %%)\n",
+				r.Pole.RatioDCDB, k*r.Pole.URatioDCDB, fc, uFc, k, pct)
 		default:
-			k := poleCoverageK(r.Pole, fit.DefaultCoverage)
-			fmt.Fprintf(w, "    single pole: low-frequency %.2f ± %.2f dB (k = %.2f, 95 %%), corner above %.4g Hz (not resolved)\n",
-				r.Pole.RatioDCDB, k*r.Pole.URatioDCDB, k, r.Pole.PoleLowerBoundHz)
+			k := poleCoverageK(r.Pole, cov)
+			fmt.Fprintf(w, "    single pole: low-frequency %.2f ± %.2f dB (k = %.2f, %s %%), corner above %s Hz (not resolved)\n",
+				r.Pole.RatioDCDB, k*r.Pole.URatioDCDB, k, pct, report.FormatSig(r.Pole.PoleLowerBoundHz, 4))
 		}
 		if !r.DCChecked && r.DCNote != "" && r.Pole != nil {
 			fmt.Fprintf(w, "    DC check: %s\n", r.DCNote)

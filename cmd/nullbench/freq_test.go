@@ -6,7 +6,11 @@ import (
 	"strings"
 	"testing"
 
+	"nullbench/fit"
 	"nullbench/internal/simtest"
+	"nullbench/procedure/analysis"
+	"nullbench/procedure/analysis/freq"
+	"nullbench/procedure/plan"
 )
 
 // cliFreqPlan is a frequency-only plan for the noise-gain unit N01 of
@@ -96,5 +100,33 @@ func TestRunAndReportFrequencyPlan(t *testing.T) {
 	strip := func(s string) string { return s[strings.Index(s, "\n"):] }
 	if strip(rr.out[i:]) != strip(section1) {
 		t.Errorf("report's frequency response differs from run's:\n%s\nwant:\n%s", rr.out[i:], section1)
+	}
+}
+
+// TestPrintFreqSummaryCoverageAndDigits: the console's frequency summary
+// states the coverage probability the analysis used (not a fixed 95 %),
+// expands the pole fit with Student's t at that probability, quotes the
+// corner as GUM 7.2.6 has it (U to two significant digits, f_c to match)
+// and names frequencies in plain decimals, never "2.683e+04".
+func TestPrintFreqSummaryCoverageAndDigits(t *testing.T) {
+	p := &plan.Plan{Source: "freq.toml"}
+	pole := &fit.PoleFit{RatioDCDB: 100.2, URatioDCDB: 0.1, PoleHz: 315.371370628783, UPoleHz: 3.7, Resolved: true, DOF: 6}
+	pt := freq.FreqPoint{FrequencyHz: 26826.957952797256, Instrument: "digitizer",
+		Rejection: fit.Rejection{CoefficientUVPerV: 10, RatioDB: 100, ExpandedUDB: 0.1, CoverageK: 2, Resolved: true}}
+	rec := campaignRecord{Plan: p, Results: &analysis.Results{CoverageProbability: 0.99},
+		Freq: []freq.FreqResponse{{Unit: "F01", Test: "cmrr", Quantity: "CMRR", Points: []freq.FreqPoint{pt}, Pole: pole}}}
+	var b strings.Builder
+	printFreqSummary(&b, rec)
+	out := b.String()
+	// Student's t for ν = 6 at 99 % two-sided is 3.707 (NIST/SEMATECH
+	// e-Handbook of Statistical Methods, table 1.3.6.7.2, from memory);
+	// U(f_c) = 3.707 × 3.7 = 13.7 Hz → 14 Hz, f_c → 315 Hz.
+	for _, want := range []string{"at 99 % coverage", "corner 315 ± 14 Hz (k = 3.71, 99 %)", "     26827 Hz"} {
+		if !strings.Contains(out, want) {
+			t.Errorf("summary lacks %q:\n%s", want, out)
+		}
+	}
+	if strings.Contains(out, "e+0") || strings.Contains(out, "95 %") {
+		t.Errorf("summary has an exponent-form number or a fixed 95 %%:\n%s", out)
 	}
 }

@@ -69,8 +69,8 @@ func freqResult(fr freq.FreqResponse, pt freq.FreqPoint, t, cov float64) report.
 	}
 	notes := append([]string(nil), pt.Notes...)
 	if !rj.Resolved {
-		notes = append(notes, fmt.Sprintf("lower bound: the response at %g Hz is not resolved above the noise floor (largest resolvable ratio %.2f dB); the part rejects at least %.2f dB",
-			pt.FrequencyHz, pt.NoiseFloorDB, rj.LowerBoundDB))
+		notes = append(notes, fmt.Sprintf("lower bound: the response at %s Hz is not resolved above the noise floor (largest resolvable ratio %.2f dB); the part rejects at least %.2f dB",
+			report.FormatHz(pt.FrequencyHz), pt.NoiseFloorDB, rj.LowerBoundDB))
 	}
 	if pt.ThroughCorrected {
 		notes = append(notes, fmt.Sprintf("through calibration removed %.3f dB, %.2f° of channel mismatch; fixture gain at f %.2f dB, %.2f° divided out",
@@ -131,7 +131,7 @@ func freqFitRow(fr freq.FreqResponse, t, cov float64) report.FreqFitRow {
 		} else {
 			row.CornerLowerBoundHz = pf.PoleLowerBoundHz
 			if row.Note == "" {
-				row.Note = fmt.Sprintf("the corner is not resolved by the data: above %.4g Hz (one-sided 95 %%)", pf.PoleLowerBoundHz)
+				row.Note = fmt.Sprintf("the corner is not resolved by the data: above %s Hz (one-sided 95 %%)", report.FormatSig(pf.PoleLowerBoundHz, 4))
 			}
 		}
 	}

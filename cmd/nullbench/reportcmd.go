@@ -3,7 +3,6 @@ package main
 import (
 	"context"
 	"fmt"
-	"os"
 	"path/filepath"
 
 	"nullbench/procedure/journal"
@@ -50,15 +49,28 @@ func runReport(std streams, o reportOptions) error {
 	if o.Plan != "" && len(o.Journals) > 1 {
 		return withCode(exitUsage, fmt.Errorf("--plan applies to one journal; give journals whose recorded plan paths are right"))
 	}
-	for i, j := range o.Journals {
-		if fi, err := os.Stat(j); err == nil && fi.IsDir() {
-			o.Journals[i] = filepath.Join(j, runJournalName)
+	// A folder stands for its journals: a run folder's journal.jsonl, or
+	// every *-journal.jsonl of another (the demo's).
+	var journals []string
+	for _, a := range o.Journals {
+		js, err := journalsIn(a)
+		if err != nil {
+			return err
 		}
+		journals = append(journals, js...)
+	}
+	o.Journals = journals
+	if o.Plan != "" && len(o.Journals) > 1 {
+		return withCode(exitUsage, fmt.Errorf("--plan applies to one journal; %d given", len(o.Journals)))
 	}
 	if o.Out == "" {
 		o.Out = filepath.Dir(o.Journals[0])
 	}
-	var recs []campaignRecord
+	var (
+		recs  []campaignRecord
+		plans []*plan.Plan
+		own   []string // the journals, their plans and run folders' copies are not foreign files
+	)
 	for _, j := range o.Journals {
 		var (
 			p      *plan.Plan
@@ -66,18 +78,18 @@ func runReport(std streams, o reportOptions) error {
 			folder *runFolder
 			err    error
 		)
-		if rf, ferr := openRunFolder(filepath.Dir(j)); ferr == nil && o.Plan == "" {
+		own = append(own, j)
+		if rf, ferr := openRunFolder(filepath.Dir(j)); ferr == nil && o.Plan == "" && rf.Manifest.Journal.File == filepath.Base(j) {
 			folder = rf
 			p, jc, err = planFromFolder(rf, j)
+			own = append(own, filepath.Join(rf.Dir, runManifestName), filepath.Join(rf.Dir, runProfilesDir))
 		} else {
 			p, jc, err = planForJournal(j, o.Plan)
 		}
 		if err != nil {
 			return err
 		}
-		if err := checkOutDir(o.Out, p, o.Force); err != nil {
-			return err
-		}
+		own, plans = append(own, p.Source), append(plans, p)
 		if jc.Truncated {
 			fmt.Fprintf(std.Err, "journal %s: line %d is incomplete (the run was stopped while writing it) and was left out\n", j, jc.TruncatedLine)
 		}
@@ -89,6 +101,17 @@ func runReport(std streams, o reportOptions) error {
 			rec.Finished = jc.ACReadings[n-1].Time
 		}
 		recs = append(recs, rec)
+	}
+	// The output folder is ours when it is empty but for the journals
+	// reported and their plans, or holds a run or report of one of them.
+	var outErr error
+	for _, p := range plans {
+		if outErr = checkOutDir(o.Out, p, o.Force, own...); outErr == nil {
+			break
+		}
+	}
+	if outErr != nil {
+		return outErr
 	}
 	return finish(std, o.outputOptions, nil, recs...)
 }

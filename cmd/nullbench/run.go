@@ -162,12 +162,12 @@ func finish(std streams, o outputOptions, runErr error, recs ...campaignRecord) 
 	for _, rec := range measured {
 		printFreqSummary(summary, rec)
 	}
-	if _, err := readManifest(o.Out); err != nil && len(measured) > 0 {
-		// A report written away from its run folder: the manifest names
-		// the plan, so a later report of the same plan may write here.
-		m := &runManifest{Tool: "nullbench " + version, Plan: manifestFile{SHA256: measured[0].Plan.Hash}, PlanPath: measured[0].Plan.Source}
-		if err := writeManifest(o.Out, m); err != nil {
-			return withCode(exitFailure, err)
+	if m, err := readManifest(o.Out); (err != nil || m.Plan.File == "") && len(measured) > 0 {
+		// Not a run folder (the demo's, or a report written away from
+		// its run folder): the manifest lists each journal with its plan,
+		// so a later report of the same plans may write here.
+		if err := writeOutputManifest(o.Out, measured, outputsOf(c)); err != nil {
+			return withCode(exitFailure, fmt.Errorf("write the output folder's manifest: %w", err))
 		}
 	}
 	for _, rec := range measured {

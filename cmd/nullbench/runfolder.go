@@ -9,6 +9,7 @@ import (
 	"nullbench/report"
 	"os"
 	"path/filepath"
+	"slices"
 	"sort"
 
 	"nullbench/instrument"
@@ -57,6 +58,32 @@ type runManifest struct {
 	Complete      bool           `json:"complete"`
 	MissingPoints int            `json:"missing_points"`
 	Outputs       []manifestFile `json:"outputs,omitempty"`
+	// Journals is set only in an output folder's manifest (outputManifest),
+	// never in a run folder's.
+	Journals []manifestJournal `json:"journals,omitempty"`
+}
+
+// outputManifest is the manifest of a folder that holds outputs but is
+// not one run's folder (the demo's, or a report written elsewhere): one
+// entry per journal reported, each with its own plan, seal and
+// completeness, and the outputs' hashes. It names no single plan or
+// journal, so report never takes the folder for a run folder.
+type outputManifest struct {
+	Tool     string            `json:"tool"`
+	Journals []manifestJournal `json:"journals"`
+	Outputs  []manifestFile    `json:"outputs,omitempty"`
+}
+
+// manifestJournal is one journal of an output folder: its file (relative
+// to the folder when inside it), the plan it was measured with (the path
+// recorded in the journal, and the plan's hash), its seal when the outputs
+// were written, and whether every planned point was measured.
+type manifestJournal struct {
+	File string       `json:"file"`
+	Plan manifestFile `json:"plan"`
+	journal.Seal
+	Complete      bool `json:"complete"`
+	MissingPoints int  `json:"missing_points"`
 }
 
 func sha256Hex(b []byte) string {
@@ -88,6 +115,11 @@ func writeManifest(dir string, m *runManifest) error {
 // (by its manifest, or by its journal's start record).
 func isRunOf(dir, planHash string) bool {
 	if m, err := readManifest(dir); err == nil {
+		for _, j := range m.Journals {
+			if j.Plan.SHA256 == planHash {
+				return true
+			}
+		}
 		return m.Plan.SHA256 == planHash
 	}
 	if c, err := journal.ReadFile(filepath.Join(dir, runJournalName)); err == nil {
@@ -98,14 +130,21 @@ func isRunOf(dir, planHash string) bool {
 
 // checkOutDir refuses an output folder that exists, is not empty and is
 // not a run of the same plan, unless force: a folder of someone else's
-// files is never written into by mistake.
-func checkOutDir(dir string, p *plan.Plan, force bool) error {
-	entries, err := os.ReadDir(dir)
+// files is never written into by mistake. The files named in own (the
+// journal being reported and its plan) are not someone else's.
+func checkOutDir(dir string, p *plan.Plan, force bool, own ...string) error {
+	all, err := os.ReadDir(dir)
 	if errors.Is(err, os.ErrNotExist) {
 		return nil
 	}
 	if err != nil {
 		return withCode(exitUsage, fmt.Errorf("output folder %s: %w", dir, err))
+	}
+	var entries []os.DirEntry
+	for _, e := range all {
+		if !slices.ContainsFunc(own, func(f string) bool { return f != "" && sameFileOK(f, filepath.Join(dir, e.Name())) }) {
+			entries = append(entries, e)
+		}
 	}
 	if len(entries) == 0 || force || isRunOf(dir, p.Hash) {
 		return nil
@@ -176,6 +215,12 @@ func copyRunInputs(dir string, p *plan.Plan) error {
 		m.Profiles = append(m.Profiles, manifestProfile{Instrument: n, Profile: spec.Profile, manifestFile: manifestFile{File: filepath.ToSlash(rel), SHA256: sha256Hex(pdata)}})
 	}
 	return writeManifest(dir, m)
+}
+
+// sameFileOK reports whether a and b name one existing file.
+func sameFileOK(a, b string) bool {
+	s, err := sameFile(a, b)
+	return err == nil && s
 }
 
 func sameFile(a, b string) (bool, error) {
@@ -346,4 +391,39 @@ func journalState(std streams, rec *campaignRecord) {
 	}
 	rec.Identities = jc.Identities
 	rec.Readings = jc.Readings
+}
+
+// writeOutputManifest writes the manifest of an output folder that is not
+// a run folder: one entry per record's journal, sealed as it was read, and
+// the hashes of the outputs written.
+func writeOutputManifest(dir string, recs []campaignRecord, outputs []string) error {
+	m := outputManifest{Tool: "nullbench " + version}
+	for _, r := range recs {
+		e := manifestJournal{File: r.JournalPath, Plan: manifestFile{File: r.Plan.Source, SHA256: r.Plan.Hash}}
+		if rel, err := filepath.Rel(dir, r.JournalPath); err == nil && filepath.IsLocal(rel) {
+			e.File = filepath.ToSlash(rel)
+		}
+		if rel, err := filepath.Rel(dir, r.Plan.Source); err == nil && filepath.IsLocal(rel) {
+			e.Plan.File = filepath.ToSlash(rel)
+		}
+		if r.Journal != nil {
+			e.Seal = r.Journal.Seal()
+		}
+		if r.Completeness != nil {
+			e.Complete, e.MissingPoints = r.Completeness.Complete(), r.Completeness.Missing
+		}
+		m.Journals = append(m.Journals, e)
+	}
+	for _, o := range outputs {
+		data, err := os.ReadFile(filepath.Join(dir, o))
+		if err != nil {
+			return err
+		}
+		m.Outputs = append(m.Outputs, manifestFile{File: o, SHA256: sha256Hex(data)})
+	}
+	b, err := json.MarshalIndent(m, "", "  ")
+	if err != nil {
+		return err
+	}
+	return os.WriteFile(filepath.Join(dir, runManifestName), append(b, '\n'), 0o644)
 }
