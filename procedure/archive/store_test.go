@@ -3,6 +3,7 @@ package archive
 import (
 	"context"
 	"database/sql"
+	"errors"
 	"fmt"
 	"math"
 	"reflect"
@@ -70,6 +71,13 @@ func TestLoadRebuildsTheCampaign(t *testing.T) {
 		c.Readings[0].Flags = []string{"implausible"}
 		c.Readings[1].MeasuredC = 24.93
 		c.Units[1].Skipped = "socket empty"
+		c.JournalBytes = 123456
+		// A frequency point keeps its phase U, noise floor and coverage
+		// probability; a frequency point that could not be analysed has
+		// no frequency (NULL, read back as NaN).
+		c.Results[1].FrequencyHz, c.Results[1].PhaseDeg, c.Results[1].PhaseExpandedUDeg = 1000, -88.5, 0.7
+		c.Results[1].NoiseFloorDB = 142.25
+		c.Results[2].FrequencyHz, c.Results[2].Verdict = math.NaN(), "no result"
 		id, _, err := s.Add(ctx, c)
 		if err != nil {
 			t.Fatal(err)
@@ -193,11 +201,13 @@ func TestLongerJournalOfTheSameRunReplacesTheShorter(t *testing.T) {
 		s := openStore(t, b.location(t))
 		short := sampleCampaign(3, "L5", "bench-A", 2, 2)
 		short.Incomplete, short.MissingPoints = true, 12
+		short.JournalBytes = 9000
 		if _, out, err := s.Add(ctx, short); err != nil || out != Added {
 			t.Fatal(out, err)
 		}
 		long := sampleCampaign(3, "L5", "bench-A", 4, 2)
 		long.JournalHash = hashOf("the resumed journal")
+		long.JournalBytes = 20000
 		_, out, err := s.Add(ctx, long)
 		if err != nil || out != Replaced {
 			t.Fatalf("add the resumed journal: %v, %v", out, err)
@@ -250,22 +260,60 @@ func indexCount(t *testing.T, s *Store) int {
 	return n
 }
 
+func TestShorterJournalOfAStoredRunIsRefused(t *testing.T) {
+	forEachBackend(t, func(t *testing.T, b backend) {
+		ctx := context.Background()
+		s := openStore(t, b.location(t))
+		long := sampleCampaign(3, "L6", "bench-A", 4, 2)
+		long.JournalBytes = 20000
+		id, out, err := s.Add(ctx, long)
+		if err != nil || out != Added {
+			t.Fatal(out, err)
+		}
+		for _, tc := range []struct {
+			name  string
+			bytes int64 // 0: not known, the stored rows decide
+		}{{"shorter by bytes", 9000}, {"as long", 20000}, {"fewer rows, length not known", 0}} {
+			short := sampleCampaign(3, "L6", "bench-A", 2, 2)
+			short.JournalHash = hashOf("the first half of the journal " + tc.name)
+			short.JournalBytes = tc.bytes
+			_, _, err := s.Add(ctx, short)
+			var se *ShorterJournalError
+			if !errors.As(err, &se) || se.Campaign != id || se.Lot != "L6" {
+				t.Fatalf("%s: add the shorter journal: %v; want a ShorterJournalError naming campaign %d", tc.name, err, id)
+			}
+			list, err := s.List(ctx, Filter{})
+			if err != nil {
+				t.Fatal(err)
+			}
+			if len(list) != 1 || list[0].JournalHash != long.JournalHash || list[0].Results != len(long.Results) {
+				t.Errorf("%s: the stored longer journal changed: %+v", tc.name, list)
+			}
+		}
+	})
+}
+
 func TestMigrateFromThePreviousVersion(t *testing.T) {
 	forEachBackend(t, func(t *testing.T, b backend) {
 		ctx := context.Background()
 		loc := b.location(t)
-		// A store at version 1, with a campaign in it, as the previous
-		// release left it.
+		// A store at version 2, with a campaign in it, as the previous
+		// release left it (its result table without the frequency-point
+		// columns, frequency_hz NOT NULL, no journal length).
 		old := openAt(t, loc, SchemaVersion()-1)
 		c := sampleCampaign(4, "L7", "bench-A", 3, 2)
-		if _, _, err := old.Add(ctx, c); err != nil {
+		if err := addAtVersion2(old, c); err != nil {
 			t.Fatal(err)
 		}
 		if v, _ := old.Version(ctx); v != SchemaVersion()-1 {
 			t.Fatalf("old store at version %d", v)
 		}
-		if n := indexCount(t, old); n != 0 {
-			t.Fatalf("old store has %d of the new indexes", n)
+		nan := c.Results[0]
+		nan.FrequencyHz = math.NaN()
+		nanCampaign := sampleCampaign(5, "L8", "bench-A", 1, 1)
+		nanCampaign.Results = []Result{nan}
+		if err := addAtVersion2(old, nanCampaign); err == nil {
+			t.Fatal("the old store took a result without a frequency; the test would not show the upgrade")
 		}
 		old.Close()
 
@@ -284,13 +332,56 @@ func TestMigrateFromThePreviousVersion(t *testing.T) {
 		if err != nil {
 			t.Fatal(err)
 		}
-		if d := equalCampaign(got, c); d != "" {
+		// The previous version did not keep the coverage probability.
+		want := *c
+		want.Results = append([]Result(nil), c.Results...)
+		for i := range want.Results {
+			want.Results[i].Coverage = math.NaN()
+		}
+		if d := equalCampaign(got, &want); d != "" {
 			t.Errorf("the campaign stored at the previous version changed in the upgrade:\n%s", d)
 		}
 		if _, out, err := s.Add(ctx, c); err != nil || out != Unchanged {
 			t.Errorf("re-add after upgrade: %v, %v", out, err)
 		}
+		if _, out, err := s.Add(ctx, nanCampaign); err != nil || out != Added {
+			t.Errorf("add a result without a frequency after upgrade: %v, %v", out, err)
+		}
 	})
+}
+
+// addAtVersion2 stores c in a store at schema version 2 with the columns
+// that version had.
+func addAtVersion2(s *Store, c *Campaign) error {
+	ctx := context.Background()
+	tx, err := s.db.BeginTx(ctx, nil)
+	if err != nil {
+		return err
+	}
+	defer tx.Rollback()
+	var id int64
+	if err := tx.QueryRowContext(ctx, `INSERT INTO campaign (journal_hash, run_key, journal_path, plan_hash, plan_file, name, part, lot,
+		operator, notes, bench, started, finished, added, tool, decision_rule, temperatures_c, incomplete, missing_points, integrity)
+		VALUES ($1, $2, $3, $4, $5, $6, $7, $8, $9, $10, $11, $12, $13, $14, $15, $16, $17, $18, $19, $20) RETURNING id`,
+		c.JournalHash, c.RunKey, c.JournalPath, c.PlanHash, c.PlanFile, c.Name, c.Part, c.Lot,
+		c.Operator, c.Notes, c.Bench, timeText(c.Started), timeText(c.Finished), timeText(time.Now()), c.Tool, c.DecisionRule,
+		floatsText(c.TemperaturesC), c.Incomplete, c.MissingPoints, c.Integrity).Scan(&id); err != nil {
+		return err
+	}
+	for _, tr := range childRows(c, id) {
+		if tr.table == "result" {
+			// Version 3 added the last three columns.
+			n := len(tr.cols) - 3
+			tr.cols = tr.cols[:n]
+			for i := range tr.rows {
+				tr.rows[i] = tr.rows[i][:n]
+			}
+		}
+		if err := (sqlTx{tx, s}).bulk(ctx, tr.table, tr.cols, tr.rows); err != nil {
+			return fmt.Errorf("insert into %s: %w", tr.table, err)
+		}
+	}
+	return tx.Commit()
 }
 
 // openAt opens location and migrates it only up to version.

@@ -13,6 +13,9 @@ type Campaign struct {
 	// run after a resume keeps it, so the longer journal replaces the
 	// shorter one. Empty: JournalHash.
 	RunKey string
+	// JournalBytes is the journal's length in bytes: of two journals of
+	// the same run the longer is kept (0: not known).
+	JournalBytes int64
 	// JournalPath is where the journal was read from (informative).
 	JournalPath string
 	PlanHash    string // SHA-256 of the plan file, hex
@@ -67,7 +70,9 @@ type Result struct {
 	Unit         string
 	Test         string
 	TemperatureC float64
-	FrequencyHz  float64 // 0: DC
+	// FrequencyHz is 0 at DC; NaN for a frequency-response result that
+	// could not be analysed (its problem names no frequency).
+	FrequencyHz float64
 	// CoefficientUVPerV is the input-referred coefficient (µV/V), with its
 	// standard uncertainty u and expanded uncertainty U = k·u.
 	CoefficientUVPerV          float64
@@ -81,10 +86,19 @@ type Result struct {
 	LowerBoundDB               float64
 	LimitDB                    float64 // NaN: not judged
 	PhaseDeg                   float64 // frequency response with phase; NaN otherwise
-	Verdict                    string  // "pass", "conditional pass", ...
-	Rule                       string  // decision rule applied, e.g. "guarded"
-	Flags                      []string
-	Notes                      []string
+	// PhaseExpandedUDeg is the phase's expanded uncertainty U = k·u (same
+	// CoverageK); NaN without phase.
+	PhaseExpandedUDeg float64
+	// NoiseFloorDB is the largest ratio the setup resolved at this
+	// frequency; NaN at DC or without a floor record.
+	NoiseFloorDB float64
+	// Coverage is the coverage probability of the expanded uncertainties
+	// (e.g. 0.95); NaN: not stated.
+	Coverage float64
+	Verdict  string // "pass", "conditional pass", ...
+	Rule     string // decision rule applied, e.g. "guarded"
+	Flags    []string
+	Notes    []string
 }
 
 // ReportedDB is the ratio when resolved, otherwise the lower bound.
