@@ -5,6 +5,7 @@ import (
 	"context"
 	"crypto/sha256"
 	"encoding/hex"
+	"encoding/json"
 	"fmt"
 	"io"
 	"math"
@@ -122,8 +123,8 @@ journal hash, bench, instrument identities, part, lot and dates, and each
 result its value (µV/V and dB), expanded uncertainty U and coverage factor
 k, decision, decision rule, notes and budget rows (a frequency point also
 its phase with U, noise floor and coverage probability); the DC readings
-are kept too, so a DC result can be refitted. The frequency-response
-sine-fit records are not stored: refit those results from the journal.
+and the frequency-response records (sine fits or AC voltmeter readings) are
+kept too, so any result can be refitted.
 
 Adding the same journal twice changes nothing; a resumed run's longer
 journal replaces the shorter one, and a shorter journal of a stored run is
@@ -291,7 +292,8 @@ func archiveRecord(ctx context.Context, w io.Writer, s *archive.Store, rec campa
 		// archive keeps the longer one).
 		return withCode(exitFailure, fmt.Errorf("%s: %w", rec.JournalPath, err))
 	}
-	what := fmt.Sprintf("campaign %d (%s, lot %s, bench %s, %d results, %d readings)", id, c.Part, c.Lot, c.Bench, len(c.Results), len(c.Readings))
+	what := fmt.Sprintf("campaign %d (%s, lot %s, bench %s, %d results, %d readings, %d frequency records)", id, c.Part, c.Lot, c.Bench,
+		len(c.Results), len(c.Readings), len(c.ACReadings))
 	switch out {
 	case archive.Added:
 		fmt.Fprintf(w, "%s: added to %s as %s\n", rec.JournalPath, s.Name(), what)
@@ -392,7 +394,32 @@ func toArchive(rec campaignRecord, c *report.Campaign, bench string) (*archive.C
 			SetVolts: r.SetVolts, ReadVolts: r.ReadVolts, MeterVolts: r.MeterVolts, MeterSDVolts: r.MeterSDVolts,
 			N: r.N, SettleSeconds: r.SettleSeconds, Flags: r.Flags})
 	}
+	for _, r := range rec.ACReadings {
+		ar, err := archiveACReading(r)
+		if err != nil {
+			return nil, err
+		}
+		a.ACReadings = append(a.ACReadings, ar)
+	}
 	return a, nil
+}
+
+// archiveACReading maps one frequency-response record; its channel fits
+// are kept as the journal's JSON, so a refit reads them back unchanged.
+func archiveACReading(r journal.ACReading) (archive.ACReading, error) {
+	fits := ""
+	if len(r.Channels) > 0 {
+		b, err := json.Marshal(r.Channels)
+		if err != nil {
+			return archive.ACReading{}, fmt.Errorf("%w: archive: the channel fits of %s %s at %g Hz", err, r.Unit, r.Test, r.FrequencyHz)
+		}
+		fits = string(b)
+	}
+	return archive.ACReading{Time: r.Time, BenchSeconds: r.BenchSeconds, Unit: r.Unit, Test: r.Test, TempIndex: r.TempIndex,
+		TemperatureC: r.TemperatureC, Session: r.Session, FreqIndex: r.FreqIndex, FrequencyHz: r.FrequencyHz, Record: r.Record,
+		Repeat: r.Repeat, GeneratorChannel: r.GeneratorChannel, GeneratorPeakVolts: r.GeneratorPeakVolts,
+		GeneratorOffsetVolts: r.GeneratorOffsetVolts, GeneratorOn: r.GeneratorOn, RateHz: r.RateHz, Samples: r.Samples,
+		Cycles: r.Cycles, ChannelFits: fits, RMSVolts: r.RMSVolts, Flags: r.Flags, Problem: r.Problem}, nil
 }
 
 // archiveResult maps one result; a DC result passes NaN for the

@@ -4,16 +4,19 @@ import (
 	"bytes"
 	"context"
 	"encoding/csv"
+	"encoding/json"
 	"fmt"
 	"math"
 	"os"
 	"path/filepath"
+	"reflect"
 	"strings"
 	"testing"
 
 	"nullbench/procedure/analysis"
 	"nullbench/procedure/archive"
 	"nullbench/procedure/archive/archivetest"
+	"nullbench/procedure/journal"
 	"nullbench/procedure/plan"
 	"nullbench/report"
 )
@@ -332,6 +335,63 @@ func TestArchiveQueryTableRounding(t *testing.T) {
 	} {
 		if got := fmtHz(tc.hz); got != tc.want {
 			t.Errorf("fmtHz(%g) = %q, want %q", tc.hz, got, tc.want)
+		}
+	}
+}
+
+// The frequency-response records are archived as the journal holds them:
+// every one, with channel fits that read back to the journal's.
+func TestArchiveFrequencyRecords(t *testing.T) {
+	b := cliStartSim(t, "")
+	dir := t.TempDir()
+	section := strings.Replace(b.BenchSection(), "[bench.roles]\n", "[bench.roles]\n"+
+		"generator = { instrument = \"gen\", channel = \"1\" }\ndigitizer = { instrument = \"dig\" }\n", 1)
+	path := cliWriteFile(t, dir, "freq.toml", section+cliFreqPlan)
+	out := filepath.Join(dir, "run")
+	args := []string{"run", path, "--out", out, "--no-charts"}
+	r := cliExec(t, args...)
+	cliWantCode(t, r, exitOK, args...)
+	j := filepath.Join(out, runJournalName)
+	n := cliCount(t, j, "ac-reading")
+	if n == 0 {
+		t.Fatal("the run journalled no frequency records")
+	}
+	db := filepath.Join(dir, "a.db")
+	args = []string{"archive", "--db", db, "add", out}
+	r = cliExec(t, args...)
+	cliWantCode(t, r, exitOK, args...)
+	if !strings.Contains(r.out, fmt.Sprintf(", %d frequency records)", n)) {
+		t.Errorf("archive add: %s; want %d frequency records", r.out, n)
+	}
+	rec, err := loadJournalRecord(j, "")
+	if err != nil {
+		t.Fatal(err)
+	}
+	s, err := archive.Open(context.Background(), db)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer s.Close()
+	c, err := s.Load(context.Background(), 1)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(c.ACReadings) != len(rec.ACReadings) {
+		t.Fatalf("%d frequency records loaded, the journal has %d", len(c.ACReadings), len(rec.ACReadings))
+	}
+	for i, a := range c.ACReadings {
+		var fits []journal.ACChannelFit
+		if a.ChannelFits != "" {
+			if err := json.Unmarshal([]byte(a.ChannelFits), &fits); err != nil {
+				t.Fatal(err)
+			}
+		}
+		want := rec.ACReadings[i]
+		if !reflect.DeepEqual(fits, want.Channels) && !(len(fits) == 0 && len(want.Channels) == 0) {
+			t.Errorf("record %d: channel fits %+v, journal %+v", i, fits, want.Channels)
+		}
+		if a.FrequencyHz != want.FrequencyHz || a.Record != want.Record || a.Unit != want.Unit || a.Samples != want.Samples {
+			t.Errorf("record %d: %+v, journal %+v", i, a, want)
 		}
 	}
 }

@@ -138,7 +138,7 @@ func longer(c *Campaign, f storedRun) bool {
 	if f.bytes > 0 && c.JournalBytes > 0 {
 		return c.JournalBytes > f.bytes
 	}
-	return int64(len(c.Results)+len(c.Readings)) > f.rows
+	return int64(len(c.Results)+len(c.Readings)+len(c.ACReadings)) > f.rows
 }
 
 // add does Add's work inside tx, which the caller commits unless the
@@ -146,7 +146,8 @@ func longer(c *Campaign, f storedRun) bool {
 func (s *Store) add(ctx context.Context, tx addTx, c *Campaign, runKey string) (int64, Outcome, error) {
 	outcome := Added
 	found, err := tx.storedRuns(ctx, `SELECT c.id, c.journal_hash, COALESCE(c.journal_bytes, -1),
-		(SELECT COUNT(*) FROM result r WHERE r.campaign_id = c.id) + (SELECT COUNT(*) FROM reading g WHERE g.campaign_id = c.id),
+		(SELECT COUNT(*) FROM result r WHERE r.campaign_id = c.id) + (SELECT COUNT(*) FROM reading g WHERE g.campaign_id = c.id)
+		+ (SELECT COUNT(*) FROM ac_reading a WHERE a.campaign_id = c.id),
 		c.part, c.lot
 		FROM campaign c WHERE c.journal_hash = $1 OR c.run_key = $2`, c.JournalHash, runKey)
 	if err != nil {
@@ -160,7 +161,7 @@ func (s *Store) add(ctx context.Context, tx addTx, c *Campaign, runKey string) (
 	for _, f := range found {
 		if !longer(c, f) {
 			return 0, 0, &ShorterJournalError{Store: s.name, Campaign: f.id, Part: f.part, Lot: f.lot,
-				StoredBytes: max(f.bytes, 0), Bytes: c.JournalBytes, StoredRows: f.rows, Rows: int64(len(c.Results) + len(c.Readings))}
+				StoredBytes: max(f.bytes, 0), Bytes: c.JournalBytes, StoredRows: f.rows, Rows: int64(len(c.Results) + len(c.Readings) + len(c.ACReadings))}
 		}
 	}
 	for _, f := range found {
@@ -201,7 +202,7 @@ type tableRows struct {
 
 // childRows are c's rows of every table but campaign, for campaign id.
 func childRows(c *Campaign, id int64) []tableRows {
-	var ins, units, results, budgets, readings [][]any
+	var ins, units, results, budgets, readings, acReadings [][]any
 	for _, in := range c.Instruments {
 		ins = append(ins, []any{id, in.Name, strings.Join(in.Roles, ","), in.Address, in.Identity, in.CalibrationDue})
 	}
@@ -225,12 +226,19 @@ func childRows(c *Campaign, id int64) []tableRows {
 			num(r.MeasuredC), r.Repeat, r.Step, num(r.SetVolts), num(r.ReadVolts), num(r.MeterVolts), num(r.MeterSDVolts),
 			r.N, num(r.SettleSeconds), strings.Join(r.Flags, ",")})
 	}
+	for i, r := range c.ACReadings {
+		acReadings = append(acReadings, []any{id, i, timeText(r.Time), num(r.BenchSeconds), r.Unit, r.Test, r.TempIndex,
+			r.TemperatureC, r.Session, r.FreqIndex, num(r.FrequencyHz), r.Record, r.Repeat, r.GeneratorChannel,
+			num(r.GeneratorPeakVolts), num(r.GeneratorOffsetVolts), r.GeneratorOn, num(r.RateHz), r.Samples, r.Cycles,
+			r.ChannelFits, floatsText(r.RMSVolts), strings.Join(r.Flags, ","), r.Problem})
+	}
 	return []tableRows{
 		{"instrument", []string{"campaign_id", "name", "roles", "address", "identity", "calibration_due"}, ins},
 		{"unit", []string{"campaign_id", "unit", "serial", "channel", "notes", "skipped"}, units},
 		{"result", resultColumns, results},
 		{"budget", budgetColumns, budgets},
 		{"reading", readingColumns, readings},
+		{"ac_reading", acReadingColumns, acReadings},
 	}
 }
 
@@ -244,6 +252,9 @@ var (
 	readingColumns = []string{"campaign_id", "seq", "time", "bench_s", "unit", "test", "sweep", "temperature_c",
 		"measured_c", "repeat", "step", "set_volts", "read_volts", "meter_volts", "meter_sd_volts",
 		"n", "settle_s", "flags"}
+	acReadingColumns = []string{"campaign_id", "seq", "time", "bench_s", "unit", "test", "temp_index", "temperature_c",
+		"session", "freq_index", "frequency_hz", "record", "repeat", "generator_channel", "generator_peak_volts",
+		"generator_offset_volts", "generator_on", "rate_hz", "samples", "cycles", "channel_fits", "rms_volts", "flags", "problem"}
 )
 
 // sqlTx is a database/sql transaction (SQLite).

@@ -10,9 +10,8 @@
 // (µV/V and dB), expanded uncertainty U and coverage factor k, the
 // decision, the decision rule and the analysis notes (a frequency point
 // also its phase U, noise floor and coverage probability), with the budget
-// rows and every DC reading (what a later refit of a DC result needs). The
-// frequency-response sine-fit records are not stored; a frequency result
-// is refitted from its journal.
+// rows, every DC reading and every frequency-response record (sine fits
+// or AC voltmeter readings; what a later refit needs).
 //
 // Adding is idempotent: a campaign is keyed by the SHA-256 of its journal
 // (unique in the schema), and one transaction inserts the campaign with

@@ -176,6 +176,38 @@ var migrations = []migration{
 		`CREATE INDEX result_test ON result(test, temperature_c)`,
 		`ALTER TABLE campaign ADD COLUMN journal_bytes BIGINT`,
 	}},
+	// 4: the frequency-response records (sine fits or AC voltmeter
+	// readings) as the journal holds them, so a frequency result can be
+	// refitted from the archive too.
+	{4, "frequency-response records", []string{
+		`CREATE TABLE ac_reading (
+			campaign_id BIGINT NOT NULL REFERENCES campaign(id) ON DELETE CASCADE,
+			seq INTEGER NOT NULL,
+			time TEXT NOT NULL,
+			bench_s {{float}},
+			unit TEXT NOT NULL,
+			test TEXT NOT NULL,
+			temp_index INTEGER NOT NULL,
+			temperature_c {{float}} NOT NULL,
+			session INTEGER NOT NULL,
+			freq_index INTEGER NOT NULL,
+			frequency_hz {{float}},
+			record TEXT NOT NULL,
+			repeat INTEGER NOT NULL,
+			generator_channel TEXT NOT NULL,
+			generator_peak_volts {{float}},
+			generator_offset_volts {{float}},
+			generator_on BOOLEAN NOT NULL,
+			rate_hz {{float}},
+			samples INTEGER NOT NULL,
+			cycles INTEGER NOT NULL,
+			channel_fits TEXT NOT NULL,
+			rms_volts TEXT NOT NULL,
+			flags TEXT NOT NULL,
+			problem TEXT NOT NULL
+		)`,
+		`CREATE INDEX ac_reading_campaign ON ac_reading(campaign_id)`,
+	}},
 }
 
 // SchemaVersion is the version migrate brings a store to.

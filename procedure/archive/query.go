@@ -54,6 +54,7 @@ type CampaignInfo struct {
 	Integrity     string
 	Results       int // stored results
 	Readings      int // stored readings
+	ACReadings    int // stored frequency-response records
 }
 
 // Row is one stored result with the campaign it belongs to.
@@ -145,7 +146,8 @@ func (s *Store) List(ctx context.Context, f Filter) ([]CampaignInfo, error) {
 		c.operator, c.notes, c.bench, c.started, c.finished, c.added, c.tool, c.decision_rule, c.temperatures_c,
 		c.incomplete, c.missing_points, c.integrity, COALESCE(c.journal_bytes, 0),
 		(SELECT COUNT(*) FROM result r WHERE r.campaign_id = c.id),
-		(SELECT COUNT(*) FROM reading g WHERE g.campaign_id = c.id)
+		(SELECT COUNT(*) FROM reading g WHERE g.campaign_id = c.id),
+		(SELECT COUNT(*) FROM ac_reading a WHERE a.campaign_id = c.id)
 		FROM campaign c` + w.String() + ` ORDER BY c.started, c.id`
 	rows, err := s.db.QueryContext(ctx, q, w.args...)
 	if err != nil {
@@ -158,7 +160,7 @@ func (s *Store) List(ctx context.Context, f Filter) ([]CampaignInfo, error) {
 		var started, finished, added, temps string
 		if err := rows.Scan(&c.ID, &c.JournalHash, &c.RunKey, &c.JournalPath, &c.PlanHash, &c.PlanFile, &c.Name, &c.Part, &c.Lot,
 			&c.Operator, &c.Notes, &c.Bench, &started, &finished, &added, &c.Tool, &c.DecisionRule, &temps,
-			&c.Incomplete, &c.MissingPoints, &c.Integrity, &c.JournalBytes, &c.Results, &c.Readings); err != nil {
+			&c.Incomplete, &c.MissingPoints, &c.Integrity, &c.JournalBytes, &c.Results, &c.Readings, &c.ACReadings); err != nil {
 			return nil, s.wrap("list campaigns", err)
 		}
 		c.Started, c.Finished, c.Added = parseTime(started), parseTime(finished), parseTime(added)
@@ -298,6 +300,26 @@ func (s *Store) Load(ctx context.Context, id int64) (*Campaign, error) {
 			r.MeterVolts, r.MeterSDVolts, r.SettleSeconds = val(mv), val(msd), val(settle)
 			r.Flags = splitList(flags, ",")
 			c.Readings = append(c.Readings, r)
+			return nil
+		}); err != nil {
+		return nil, err
+	}
+	if err := s.each(ctx, `SELECT time, bench_s, unit, test, temp_index, temperature_c, session, freq_index, frequency_hz,
+		record, repeat, generator_channel, generator_peak_volts, generator_offset_volts, generator_on, rate_hz, samples, cycles,
+		channel_fits, rms_volts, flags, problem FROM ac_reading WHERE campaign_id = $1 ORDER BY seq`, id,
+		func(sc func(...any) error) error {
+			var r ACReading
+			var t, rms, flags string
+			var bs, fz, peak, off, rate sql.NullFloat64
+			if err := sc(&t, &bs, &r.Unit, &r.Test, &r.TempIndex, &r.TemperatureC, &r.Session, &r.FreqIndex, &fz,
+				&r.Record, &r.Repeat, &r.GeneratorChannel, &peak, &off, &r.GeneratorOn, &rate, &r.Samples, &r.Cycles,
+				&r.ChannelFits, &rms, &flags, &r.Problem); err != nil {
+				return err
+			}
+			r.Time = parseTime(t)
+			r.BenchSeconds, r.FrequencyHz, r.GeneratorPeakVolts, r.GeneratorOffsetVolts, r.RateHz = val(bs), val(fz), val(peak), val(off), val(rate)
+			r.RMSVolts, r.Flags = parseFloats(rms), splitList(flags, ",")
+			c.ACReadings = append(c.ACReadings, r)
 			return nil
 		}); err != nil {
 		return nil, err

@@ -44,6 +44,7 @@ type Campaign struct {
 	Results     []Result
 	Budgets     []BudgetRow
 	Readings    []Reading
+	ACReadings  []ACReading
 }
 
 // Instrument is one instrument of the bench as the run saw it.
@@ -145,4 +146,34 @@ type Reading struct {
 	N             int
 	SettleSeconds float64
 	Flags         []string
+}
+
+// ACReading is one frequency-response record as acquired: the sine fits
+// of a digitizer record or the RMS volts of an AC voltmeter record.
+type ACReading struct {
+	Time                 time.Time
+	BenchSeconds         float64
+	Unit                 string
+	Test                 string
+	TempIndex            int
+	TemperatureC         float64
+	Session              int
+	FreqIndex            int
+	FrequencyHz          float64
+	Record               string // "floor", "through" or "stimulus"
+	Repeat               int
+	GeneratorChannel     string
+	GeneratorPeakVolts   float64
+	GeneratorOffsetVolts float64
+	GeneratorOn          bool
+	RateHz               float64
+	Samples              int
+	Cycles               int
+	// ChannelFits is the record's per-channel sine fits (coefficients,
+	// covariance, residual) as JSON, verbatim from the journal ("" for an
+	// AC voltmeter record).
+	ChannelFits string
+	RMSVolts    []float64
+	Flags       []string
+	Problem     string
 }
