@@ -262,7 +262,7 @@ func writeResultRows(w io.Writer, rows []archive.Row, format string) error {
 		for _, r := range rows {
 			// Each value is rounded to the last digit of its U (GUM 7.2.6).
 			db, uDB := fmtWithU(r.RatioDB, r.ExpandedUDB)
-			if !r.Resolved {
+			if !r.Resolved && !math.IsNaN(r.LowerBoundDB) {
 				db = "≥" + fmtFixed(r.LowerBoundDB, 1)
 			}
 			coef, uCoef := fmtWithU(r.CoefficientUVPerV, r.CoefficientExpandedUUVPerV)
