@@ -5,6 +5,7 @@ import (
 	"context"
 	"crypto/sha256"
 	"encoding/hex"
+	"encoding/json"
 	"fmt"
 	"io"
 	"math"
@@ -120,11 +121,14 @@ folder by default, or a PostgreSQL database shared by several benches
 (--db postgres://USER@HOST/DATABASE). Each campaign keeps its plan hash,
 journal hash, bench, instrument identities, part, lot and dates, and each
 result its value (µV/V and dB), expanded uncertainty U and coverage factor
-k, decision, decision rule, notes and budget rows; the readings are kept
-too, so any result can be refitted.
+k, decision, decision rule, notes and budget rows (a frequency point also
+its phase with U, noise floor and coverage probability); the DC readings
+and the frequency-response records (sine fits or AC voltmeter readings) are
+kept too, so any result can be refitted.
 
 Adding the same journal twice changes nothing; a resumed run's longer
-journal replaces the shorter one. "run", "resume" and "demo" add what they
+journal replaces the shorter one, and a shorter journal of a stored run is
+refused, naming the campaign kept. "run", "resume" and "demo" add what they
 measured with --archive DB. "trend" writes lot-to-lot control charts,
 yields, tolerance bounds and bench repeatability into a workbook.
 
@@ -284,26 +288,30 @@ func archiveRecord(ctx context.Context, w io.Writer, s *archive.Store, rec campa
 	}
 	id, out, err := s.Add(ctx, c)
 	if err != nil {
+		// A shorter journal of a stored run is refused by name (the
+		// archive keeps the longer one).
 		return withCode(exitFailure, fmt.Errorf("%s: %w", rec.JournalPath, err))
 	}
-	what := fmt.Sprintf("campaign %d (%s, lot %s, bench %s, %d results, %d readings)", id, c.Part, c.Lot, c.Bench, len(c.Results), len(c.Readings))
+	what := fmt.Sprintf("campaign %d (%s, lot %s, bench %s, %d results, %d readings, %d frequency records)", id, c.Part, c.Lot, c.Bench,
+		len(c.Results), len(c.Readings), len(c.ACReadings))
 	switch out {
 	case archive.Added:
 		fmt.Fprintf(w, "%s: added to %s as %s\n", rec.JournalPath, s.Name(), what)
 	case archive.Unchanged:
 		fmt.Fprintf(w, "%s: already in %s as %s; nothing changed\n", rec.JournalPath, s.Name(), what)
 	case archive.Replaced:
-		fmt.Fprintf(w, "%s: replaced the shorter journal of the same run in %s, now %s\n", rec.JournalPath, s.Name(), what)
+		fmt.Fprintf(w, "%s: longer than the stored journal of the same run; replaced it in %s, now %s\n", rec.JournalPath, s.Name(), what)
 	}
 	return nil
 }
 
-// journalKeys are the journal's SHA-256 and its run key, the SHA-256 of
-// its first line (the start record, which a resume leaves as it is).
-func journalKeys(path string) (hash, runKey string, err error) {
+// journalKeys are the journal's SHA-256, its run key (the SHA-256 of its
+// first line, the start record, which a resume leaves as it is) and its
+// length in bytes.
+func journalKeys(path string) (hash, runKey string, size int64, err error) {
 	b, err := os.ReadFile(path)
 	if err != nil {
-		return "", "", fmt.Errorf("archive: read journal: %w", err)
+		return "", "", 0, fmt.Errorf("%w: archive: read journal", err)
 	}
 	h := sha256.Sum256(b)
 	first := b
@@ -311,7 +319,7 @@ func journalKeys(path string) (hash, runKey string, err error) {
 		first = b[:i]
 	}
 	k := sha256.Sum256(first)
-	return hex.EncodeToString(h[:]), hex.EncodeToString(k[:]), nil
+	return hex.EncodeToString(h[:]), hex.EncodeToString(k[:]), int64(len(b)), nil
 }
 
 // benchName is bench, else $NULLBENCH_BENCH, else "bench-" and 8 hex
@@ -344,7 +352,7 @@ func toArchive(rec campaignRecord, c *report.Campaign, bench string) (*archive.C
 		return nil, fmt.Errorf("archive: a campaign without a journal cannot be archived")
 	}
 	var err error
-	if a.JournalHash, a.RunKey, err = journalKeys(rec.JournalPath); err != nil {
+	if a.JournalHash, a.RunKey, a.JournalBytes, err = journalKeys(rec.JournalPath); err != nil {
 		return nil, err
 	}
 	if abs, err := filepath.Abs(rec.JournalPath); err == nil {
@@ -357,15 +365,18 @@ func toArchive(rec campaignRecord, c *report.Campaign, bench string) (*archive.C
 	for _, u := range c.Units {
 		a.Units = append(a.Units, archive.Unit{ID: u.ID, Serial: u.Serial, Channel: u.Channel, Notes: u.Notes, Skipped: u.Skipped})
 	}
+	nan := math.NaN()
 	for _, r := range c.Results {
-		a.Results = append(a.Results, archiveResult(r, 0, math.NaN()))
+		a.Results = append(a.Results, archiveResult(r, 0, nan, nan, nan, nan))
 	}
 	for _, r := range c.FreqResults {
-		ph := math.NaN()
+		ph, uPh := nan, nan
 		if r.HasPhase {
-			ph = r.PhaseDeg
+			ph, uPh = r.PhaseDeg, r.PhaseExpandedUDeg
 		}
-		a.Results = append(a.Results, archiveResult(r.Result, r.FrequencyHz, ph))
+		// A point that could not be analysed has no frequency (NaN,
+		// stored as NULL).
+		a.Results = append(a.Results, archiveResult(r.Result, r.FrequencyHz, ph, uPh, r.NoiseFloorDB, r.Coverage))
 	}
 	for _, b := range c.Budgets {
 		a.Budgets = append(a.Budgets, archiveBudget(b, 0, ""))
@@ -383,15 +394,42 @@ func toArchive(rec campaignRecord, c *report.Campaign, bench string) (*archive.C
 			SetVolts: r.SetVolts, ReadVolts: r.ReadVolts, MeterVolts: r.MeterVolts, MeterSDVolts: r.MeterSDVolts,
 			N: r.N, SettleSeconds: r.SettleSeconds, Flags: r.Flags})
 	}
+	for _, r := range rec.ACReadings {
+		ar, err := archiveACReading(r)
+		if err != nil {
+			return nil, err
+		}
+		a.ACReadings = append(a.ACReadings, ar)
+	}
 	return a, nil
 }
 
-func archiveResult(r report.Result, freqHz, phaseDeg float64) archive.Result {
+// archiveACReading maps one frequency-response record; its channel fits
+// are kept as the journal's JSON, so a refit reads them back unchanged.
+func archiveACReading(r journal.ACReading) (archive.ACReading, error) {
+	fits := ""
+	if len(r.Channels) > 0 {
+		b, err := json.Marshal(r.Channels)
+		if err != nil {
+			return archive.ACReading{}, fmt.Errorf("%w: archive: the channel fits of %s %s at %g Hz", err, r.Unit, r.Test, r.FrequencyHz)
+		}
+		fits = string(b)
+	}
+	return archive.ACReading{Time: r.Time, BenchSeconds: r.BenchSeconds, Unit: r.Unit, Test: r.Test, TempIndex: r.TempIndex,
+		TemperatureC: r.TemperatureC, Session: r.Session, FreqIndex: r.FreqIndex, FrequencyHz: r.FrequencyHz, Record: r.Record,
+		Repeat: r.Repeat, GeneratorChannel: r.GeneratorChannel, GeneratorPeakVolts: r.GeneratorPeakVolts,
+		GeneratorOffsetVolts: r.GeneratorOffsetVolts, GeneratorOn: r.GeneratorOn, RateHz: r.RateHz, Samples: r.Samples,
+		Cycles: r.Cycles, ChannelFits: fits, RMSVolts: r.RMSVolts, Flags: r.Flags, Problem: r.Problem}, nil
+}
+
+// archiveResult maps one result; a DC result passes NaN for the
+// frequency-point fields (phase, its U, noise floor, coverage probability).
+func archiveResult(r report.Result, freqHz, phaseDeg, phaseUDeg, floorDB, coverage float64) archive.Result {
 	return archive.Result{Unit: r.Unit, Test: r.Test, TemperatureC: r.TemperatureC, FrequencyHz: freqHz,
 		CoefficientUVPerV: r.CoefficientUVPerV, CoefficientStdUUVPerV: r.CoefficientStdUUVPerV,
 		CoefficientExpandedUUVPerV: r.CoefficientExpandedUUVPerV, RatioDB: r.RatioDB, ExpandedUDB: r.ExpandedUDB,
 		CoverageK: r.CoverageK, DOFEffective: r.DOFEffective, Resolved: r.Resolved, LowerBoundDB: r.LowerBoundDB,
-		LimitDB: r.LimitDB, PhaseDeg: phaseDeg, Verdict: r.Verdict, Rule: r.Rule, Flags: r.Flags, Notes: r.Notes}
+		LimitDB: r.LimitDB, PhaseDeg: phaseDeg, PhaseExpandedUDeg: phaseUDeg, NoiseFloorDB: floorDB, Coverage: coverage, Verdict: r.Verdict, Rule: r.Rule, Flags: r.Flags, Notes: r.Notes}
 }
 
 func archiveBudget(b report.BudgetRow, freqHz float64, quantity string) archive.BudgetRow {

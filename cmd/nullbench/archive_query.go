@@ -260,17 +260,19 @@ func writeResultRows(w io.Writer, rows []archive.Row, format string) error {
 		tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', tabwriter.AlignRight)
 		fmt.Fprintln(tw, "ID\tSTARTED\tPART\tLOT\tBENCH\tUNIT\tTEST\t°C\tHz\tµV/V\tU µV/V\tdB\tU dB\tk\tVERDICT\t")
 		for _, r := range rows {
-			db := fmtFixed(r.RatioDB, 1)
-			if !r.Resolved {
+			// Each value is rounded to the last digit of its U (GUM 7.2.6).
+			db, uDB := fmtWithU(r.RatioDB, r.ExpandedUDB)
+			if !r.Resolved && !math.IsNaN(r.LowerBoundDB) {
 				db = "≥" + fmtFixed(r.LowerBoundDB, 1)
 			}
+			coef, uCoef := fmtWithU(r.CoefficientUVPerV, r.CoefficientExpandedUUVPerV)
 			hz := "DC"
 			if r.FrequencyHz != 0 {
-				hz = strconv.FormatFloat(r.FrequencyHz, 'g', 5, 64)
+				hz = fmtHz(r.FrequencyHz)
 			}
 			fmt.Fprintf(tw, "%d\t%s\t%s\t%s\t%s\t%s\t%s\t%g\t%s\t%s\t%s\t%s\t%s\t%s\t%s\t\n", r.Campaign, r.Started.UTC().Format("2006-01-02"),
-				r.Part, r.Lot, r.Bench, r.Unit, r.Test, r.TemperatureC, hz, fmtG(r.CoefficientUVPerV, 4), fmtG(r.CoefficientExpandedUUVPerV, 2),
-				db, fmtFixed(r.ExpandedUDB, 2), fmtG(r.CoverageK, 3), r.Verdict)
+				r.Part, r.Lot, r.Bench, r.Unit, r.Test, r.TemperatureC, hz, coef, uCoef,
+				db, uDB, fmtG(r.CoverageK, 3), r.Verdict)
 		}
 		if err := tw.Flush(); err != nil {
 			return err
@@ -342,6 +344,34 @@ func fmtFixed(x float64, prec int) string {
 		return "-"
 	}
 	return strconv.FormatFloat(x, 'f', prec, 64)
+}
+
+// fmtWithU prints the expanded uncertainty u with two significant digits
+// and x rounded to u's last digit (GUM 7.2.6: "it is usually sufficient
+// to quote u_c(y) and U to at most two significant digits"; the estimate
+// is rounded consistently with them). Without a finite positive u, x
+// gets four significant digits.
+func fmtWithU(x, u float64) (xs, us string) {
+	if math.IsNaN(u) || math.IsInf(u, 0) || u <= 0 {
+		return fmtG(x, 4), fmtG(u, 2)
+	}
+	d := max(0, 1-int(math.Floor(math.Log10(u))))
+	return fmtFixed(x, d), fmtFixed(u, d)
+}
+
+// fmtHz prints a frequency with at most five significant digits, no
+// exponent and no trailing zeros ("37.276", "26830", "50"); "-" when not
+// known.
+func fmtHz(f float64) string {
+	if math.IsNaN(f) || math.IsInf(f, 0) || f == 0 {
+		return fmtG(f, 5)
+	}
+	d := max(0, 4-int(math.Floor(math.Log10(math.Abs(f)))))
+	t := fmtFixed(f, d)
+	if strings.Contains(t, ".") {
+		t = strings.TrimRight(strings.TrimRight(t, "0"), ".")
+	}
+	return t
 }
 
 func fmtG(x float64, digits int) string {

@@ -2,13 +2,23 @@ package main
 
 import (
 	"bytes"
+	"context"
 	"encoding/csv"
+	"encoding/json"
+	"fmt"
+	"math"
 	"os"
 	"path/filepath"
+	"reflect"
 	"strings"
 	"testing"
 
+	"nullbench/procedure/analysis"
+	"nullbench/procedure/archive"
 	"nullbench/procedure/archive/archivetest"
+	"nullbench/procedure/journal"
+	"nullbench/procedure/plan"
+	"nullbench/report"
 )
 
 // archiveRun measures the two-unit nulling-loop plan on the simulated bench
@@ -239,7 +249,7 @@ func TestArchiveLongerJournalReplacesShorter(t *testing.T) {
 	args = []string{"archive", "--db", db, "add", out}
 	r = cliExec(t, args...)
 	cliWantCode(t, r, exitOK, args...)
-	if !strings.Contains(r.out, "replaced the shorter journal of the same run") {
+	if !strings.Contains(r.out, "longer than the stored journal of the same run; replaced it") {
 		t.Errorf("add the whole run: %s", r.out)
 	}
 	args = []string{"archive", "--db", db, "list", "--format", "jsonl"}
@@ -247,5 +257,141 @@ func TestArchiveLongerJournalReplacesShorter(t *testing.T) {
 	l := cliJSONLines(t, r.out)
 	if len(l) != 1 || l[0]["incomplete"] != false || l[0]["results"] != 4.0 {
 		t.Errorf("after the whole run: %s", r.out)
+	}
+	// The shorter journal again: refused, naming the stored campaign,
+	// which stays as it was.
+	args = []string{"archive", "--db", db, "add", short}
+	r = cliExec(t, args...)
+	cliWantCode(t, r, exitFailure, args...)
+	if !strings.Contains(r.err, "a shorter journal of a run stored already") || !strings.Contains(r.err, fmt.Sprintf("keeps campaign %v ", l[0]["campaign"])) {
+		t.Errorf("add the shorter journal after the whole run: %s", r.err)
+	}
+	args = []string{"archive", "--db", db, "list", "--format", "jsonl"}
+	r = cliExec(t, args...)
+	if l2 := cliJSONLines(t, r.out); len(l2) != 1 || l2[0]["incomplete"] != false || l2[0]["results"] != 4.0 {
+		t.Errorf("after refusing the shorter journal: %s", r.out)
+	}
+}
+
+// A frequency point that could not be analysed has no frequency (its
+// problem names none): it is archived with a NULL frequency, its verdict
+// and its cause, with the rest of the campaign.
+func TestArchiveFrequencyProblemRow(t *testing.T) {
+	dir := t.TempDir()
+	j := cliWriteFile(t, dir, "journal.jsonl", "{\"type\":\"start\"}\n")
+	p := &plan.Plan{}
+	c := &report.Campaign{}
+	addFreq(c, p, nil, []analysis.Problem{{Unit: "N01", Test: "cmrr", Problem: "no stimulus-off record at 60 Hz"}}, 0.95)
+	a, err := toArchive(campaignRecord{Plan: p, JournalPath: j}, c, "bench-T")
+	if err != nil {
+		t.Fatal(err)
+	}
+	s, err := archive.Open(context.Background(), filepath.Join(dir, "a.db"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer s.Close()
+	if _, _, err := s.Add(context.Background(), a); err != nil {
+		t.Fatalf("archive a campaign with a frequency problem: %v", err)
+	}
+	rows, err := s.Query(context.Background(), archive.Filter{})
+	if err != nil || len(rows) != 1 {
+		t.Fatalf("query: %v, %v", rows, err)
+	}
+	if r := rows[0]; !math.IsNaN(r.FrequencyHz) || r.Verdict != VerdictNoResult || len(r.Flags) != 1 {
+		t.Errorf("stored problem row %+v", r.Result)
+	}
+	var buf strings.Builder
+	if err := writeResultRows(&buf, rows, "table"); err != nil {
+		t.Fatal(err)
+	}
+	if strings.Contains(buf.String(), "NaN") || strings.Contains(buf.String(), "≥-") {
+		t.Errorf("query table prints NaN:\n%s", buf.String())
+	}
+}
+
+func TestArchiveQueryTableRounding(t *testing.T) {
+	for _, tc := range []struct {
+		x, u         float64
+		wantX, wantU string
+	}{
+		// GUM 7.2.4 example 4: m_S = (100,021 47 ± 0,000 79) g.
+		{100.02147, 0.00079, "100.02147", "0.00079"},
+		// The reviewer's row: 111.1 dB beside U 0.02 dB was coarser than U.
+		{111.12345, 0.02, "111.123", "0.020"},
+		{111.12345, 0.9, "111.12", "0.90"},
+		{74.951, 12.3, "75", "12"},
+		{1.23456, math.NaN(), "1.235", "-"},
+	} {
+		if x, u := fmtWithU(tc.x, tc.u); x != tc.wantX || u != tc.wantU {
+			t.Errorf("fmtWithU(%g, %g) = %q, %q; want %q, %q", tc.x, tc.u, x, u, tc.wantX, tc.wantU)
+		}
+	}
+	for _, tc := range []struct {
+		hz   float64
+		want string
+	}{
+		{37.275937203149404, "37.276"}, {26830.4, "26830"}, {1000, "1000"}, {50, "50"}, {0.5, "0.5"}, {math.NaN(), "-"},
+	} {
+		if got := fmtHz(tc.hz); got != tc.want {
+			t.Errorf("fmtHz(%g) = %q, want %q", tc.hz, got, tc.want)
+		}
+	}
+}
+
+// The frequency-response records are archived as the journal holds them:
+// every one, with channel fits that read back to the journal's.
+func TestArchiveFrequencyRecords(t *testing.T) {
+	b := cliStartSim(t, "")
+	dir := t.TempDir()
+	section := strings.Replace(b.BenchSection(), "[bench.roles]\n", "[bench.roles]\n"+
+		"generator = { instrument = \"gen\", channel = \"1\" }\ndigitizer = { instrument = \"dig\" }\n", 1)
+	path := cliWriteFile(t, dir, "freq.toml", section+cliFreqPlan)
+	out := filepath.Join(dir, "run")
+	args := []string{"run", path, "--out", out, "--no-charts"}
+	r := cliExec(t, args...)
+	cliWantCode(t, r, exitOK, args...)
+	j := filepath.Join(out, runJournalName)
+	n := cliCount(t, j, "ac-reading")
+	if n == 0 {
+		t.Fatal("the run journalled no frequency records")
+	}
+	db := filepath.Join(dir, "a.db")
+	args = []string{"archive", "--db", db, "add", out}
+	r = cliExec(t, args...)
+	cliWantCode(t, r, exitOK, args...)
+	if !strings.Contains(r.out, fmt.Sprintf(", %d frequency records)", n)) {
+		t.Errorf("archive add: %s; want %d frequency records", r.out, n)
+	}
+	rec, err := loadJournalRecord(j, "")
+	if err != nil {
+		t.Fatal(err)
+	}
+	s, err := archive.Open(context.Background(), db)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer s.Close()
+	c, err := s.Load(context.Background(), 1)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(c.ACReadings) != len(rec.ACReadings) {
+		t.Fatalf("%d frequency records loaded, the journal has %d", len(c.ACReadings), len(rec.ACReadings))
+	}
+	for i, a := range c.ACReadings {
+		var fits []journal.ACChannelFit
+		if a.ChannelFits != "" {
+			if err := json.Unmarshal([]byte(a.ChannelFits), &fits); err != nil {
+				t.Fatal(err)
+			}
+		}
+		want := rec.ACReadings[i]
+		if !reflect.DeepEqual(fits, want.Channels) && !(len(fits) == 0 && len(want.Channels) == 0) {
+			t.Errorf("record %d: channel fits %+v, journal %+v", i, fits, want.Channels)
+		}
+		if a.FrequencyHz != want.FrequencyHz || a.Record != want.Record || a.Unit != want.Unit || a.Samples != want.Samples {
+			t.Errorf("record %d: %+v, journal %+v", i, a, want)
+		}
 	}
 }

@@ -115,7 +115,7 @@ func runArchiveTrend(ctx context.Context, std streams, db string, o archiveTrend
 	for _, c := range tr.Charts {
 		lots += len(c.Lots)
 	}
-	fmt.Fprintf(std.Out, "trend: %d results, %d charts (part × test × temperature), %d lot points, %d bench repeatability rows\nworkbook: %s\n",
+	fmt.Fprintf(std.Out, "trend: %d results, %d charts (part × test × temperature × frequency), %d lot points, %d bench repeatability rows\nworkbook: %s\n",
 		len(rows), len(tr.Charts), lots, len(tr.Repeatability), o.Out)
 	return nil
 }

@@ -146,7 +146,7 @@ func TestArchiveTrendWorkbook(t *testing.T) {
 	args := []string{"archive", "--db", db, "trend", "--out", out}
 	r := cliExec(t, args...)
 	cliWantCode(t, r, exitOK, args...)
-	if !strings.Contains(r.out, "131 results, 2 charts") || !strings.Contains(r.out, "1 bench repeatability rows") {
+	if !strings.Contains(r.out, "131 results, 2 charts (part × test × temperature × frequency)") || !strings.Contains(r.out, "1 bench repeatability rows") {
 		t.Errorf("summary: %s", r.out)
 	}
 	f, err := excelize.OpenFile(out)

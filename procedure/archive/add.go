@@ -24,6 +24,28 @@ const (
 	Replaced                 // a longer journal of the same run replaced the stored one
 )
 
+// ShorterJournalError refuses a journal of a stored run that is not
+// longer than the stored one: the archive keeps the longer journal.
+type ShorterJournalError struct {
+	Store    string // the store's name
+	Campaign int64  // the stored campaign's id
+	Part     string
+	Lot      string
+	// StoredBytes and Bytes are the two journals' lengths (0: not known,
+	// then StoredRows and Rows, the stored results and readings, decide).
+	StoredBytes, Bytes int64
+	StoredRows, Rows   int64
+}
+
+func (e *ShorterJournalError) Error() string {
+	size := fmt.Sprintf("%d results and readings, the stored one %d", e.Rows, e.StoredRows)
+	if e.StoredBytes > 0 && e.Bytes > 0 {
+		size = fmt.Sprintf("%d bytes, the stored one %d", e.Bytes, e.StoredBytes)
+	}
+	return fmt.Sprintf("a shorter journal of a run stored already (%s): archive %s keeps campaign %d (part %s, lot %s); nothing changed",
+		size, e.Store, e.Campaign, e.Part, e.Lot)
+}
+
 func (o Outcome) String() string {
 	switch o {
 	case Added:
@@ -38,7 +60,9 @@ func (o Outcome) String() string {
 
 // Add stores c with all its rows in one transaction. A campaign whose
 // journal hash is stored already changes nothing (Unchanged); one whose
-// run key is stored with another journal hash replaces it (Replaced).
+// run key is stored with another journal hash replaces it when its journal
+// is longer (Replaced) and is refused with a *ShorterJournalError when it
+// is not (the stored campaign stays).
 // It returns the campaign's id in the store.
 func (s *Store) Add(ctx context.Context, c *Campaign) (int64, Outcome, error) {
 	if c.JournalHash == "" {
@@ -84,8 +108,9 @@ func (s *Store) Add(ctx context.Context, c *Campaign) (int64, Outcome, error) {
 
 // addTx is what add needs of a transaction; sqlTx and pgxTx provide it.
 type addTx interface {
-	// idHashes runs q and returns its (id, text) rows.
-	idHashes(ctx context.Context, q string, args ...any) ([]idHash, error)
+	// storedRuns runs q and returns its (id, journal hash, journal
+	// bytes, rows, part, lot) rows.
+	storedRuns(ctx context.Context, q string, args ...any) ([]storedRun, error)
 	exec(ctx context.Context, q string, args ...any) error
 	// insertID runs an INSERT … RETURNING id; ok is false when it
 	// inserted nothing.
@@ -94,22 +119,49 @@ type addTx interface {
 	bulk(ctx context.Context, table string, cols []string, rows [][]any) error
 }
 
-type idHash struct {
-	id   int64
-	hash string
+// storedRun is a stored campaign of the run being added.
+type storedRun struct {
+	id        int64
+	hash      string
+	bytes     int64 // -1: not known (stored before schema version 3)
+	rows      int64 // its results and readings
+	part, lot string
+}
+
+func (f *storedRun) scan(sc func(...any) error) error {
+	return sc(&f.id, &f.hash, &f.bytes, &f.rows, &f.part, &f.lot)
+}
+
+// longer says whether c's journal is longer than the stored one f: by
+// bytes when both are known, else by results and readings.
+func longer(c *Campaign, f storedRun) bool {
+	if f.bytes > 0 && c.JournalBytes > 0 {
+		return c.JournalBytes > f.bytes
+	}
+	return int64(len(c.Results)+len(c.Readings)+len(c.ACReadings)) > f.rows
 }
 
 // add does Add's work inside tx, which the caller commits unless the
 // outcome is Unchanged.
 func (s *Store) add(ctx context.Context, tx addTx, c *Campaign, runKey string) (int64, Outcome, error) {
 	outcome := Added
-	found, err := tx.idHashes(ctx, `SELECT id, journal_hash FROM campaign WHERE journal_hash = $1 OR run_key = $2`, c.JournalHash, runKey)
+	found, err := tx.storedRuns(ctx, `SELECT c.id, c.journal_hash, COALESCE(c.journal_bytes, -1),
+		(SELECT COUNT(*) FROM result r WHERE r.campaign_id = c.id) + (SELECT COUNT(*) FROM reading g WHERE g.campaign_id = c.id)
+		+ (SELECT COUNT(*) FROM ac_reading a WHERE a.campaign_id = c.id),
+		c.part, c.lot
+		FROM campaign c WHERE c.journal_hash = $1 OR c.run_key = $2`, c.JournalHash, runKey)
 	if err != nil {
 		return 0, 0, s.wrap("look the campaign up", err)
 	}
 	for _, f := range found {
 		if f.hash == c.JournalHash {
 			return f.id, Unchanged, nil
+		}
+	}
+	for _, f := range found {
+		if !longer(c, f) {
+			return 0, 0, &ShorterJournalError{Store: s.name, Campaign: f.id, Part: f.part, Lot: f.lot,
+				StoredBytes: max(f.bytes, 0), Bytes: c.JournalBytes, StoredRows: f.rows, Rows: int64(len(c.Results) + len(c.Readings) + len(c.ACReadings))}
 		}
 	}
 	for _, f := range found {
@@ -120,12 +172,12 @@ func (s *Store) add(ctx context.Context, tx addTx, c *Campaign, runKey string) (
 	}
 
 	id, ok, err := tx.insertID(ctx, `INSERT INTO campaign (journal_hash, run_key, journal_path, plan_hash, plan_file, name, part, lot,
-		operator, notes, bench, started, finished, added, tool, decision_rule, temperatures_c, incomplete, missing_points, integrity)
-		VALUES ($1, $2, $3, $4, $5, $6, $7, $8, $9, $10, $11, $12, $13, $14, $15, $16, $17, $18, $19, $20)
+		operator, notes, bench, started, finished, added, tool, decision_rule, temperatures_c, incomplete, missing_points, integrity, journal_bytes)
+		VALUES ($1, $2, $3, $4, $5, $6, $7, $8, $9, $10, $11, $12, $13, $14, $15, $16, $17, $18, $19, $20, $21)
 		ON CONFLICT DO NOTHING RETURNING id`,
 		c.JournalHash, runKey, c.JournalPath, c.PlanHash, c.PlanFile, c.Name, c.Part, c.Lot,
 		c.Operator, c.Notes, c.Bench, timeText(c.Started), timeText(c.Finished), timeText(time.Now()), c.Tool, c.DecisionRule,
-		floatsText(c.TemperaturesC), c.Incomplete, c.MissingPoints, c.Integrity)
+		floatsText(c.TemperaturesC), c.Incomplete, c.MissingPoints, c.Integrity, bytesOrNull(c.JournalBytes))
 	if err != nil {
 		return 0, 0, s.wrap("insert the campaign", err)
 	}
@@ -150,7 +202,7 @@ type tableRows struct {
 
 // childRows are c's rows of every table but campaign, for campaign id.
 func childRows(c *Campaign, id int64) []tableRows {
-	var ins, units, results, budgets, readings [][]any
+	var ins, units, results, budgets, readings, acReadings [][]any
 	for _, in := range c.Instruments {
 		ins = append(ins, []any{id, in.Name, strings.Join(in.Roles, ","), in.Address, in.Identity, in.CalibrationDue})
 	}
@@ -158,11 +210,12 @@ func childRows(c *Campaign, id int64) []tableRows {
 		units = append(units, []any{id, u.ID, u.Serial, u.Channel, u.Notes, u.Skipped})
 	}
 	for i, r := range c.Results {
-		results = append(results, []any{id, i, r.Unit, r.Test, r.TemperatureC, r.FrequencyHz,
+		results = append(results, []any{id, i, r.Unit, r.Test, r.TemperatureC, num(r.FrequencyHz),
 			num(r.CoefficientUVPerV), num(r.CoefficientStdUUVPerV), num(r.CoefficientExpandedUUVPerV),
 			num(r.RatioDB), num(r.ExpandedUDB), num(r.CoverageK), num(r.DOFEffective), r.Resolved,
 			num(r.LowerBoundDB), num(r.LimitDB), num(r.PhaseDeg), r.Verdict, r.Rule,
-			strings.Join(r.Flags, ","), strings.Join(r.Notes, "\n")})
+			strings.Join(r.Flags, ","), strings.Join(r.Notes, "\n"),
+			num(r.PhaseExpandedUDeg), num(r.NoiseFloorDB), num(r.Coverage)})
 	}
 	for i, b := range c.Budgets {
 		budgets = append(budgets, []any{id, i, b.Unit, b.Test, b.TemperatureC, b.FrequencyHz, b.Quantity, b.Component, b.Kind,
@@ -173,24 +226,35 @@ func childRows(c *Campaign, id int64) []tableRows {
 			num(r.MeasuredC), r.Repeat, r.Step, num(r.SetVolts), num(r.ReadVolts), num(r.MeterVolts), num(r.MeterSDVolts),
 			r.N, num(r.SettleSeconds), strings.Join(r.Flags, ",")})
 	}
+	for i, r := range c.ACReadings {
+		acReadings = append(acReadings, []any{id, i, timeText(r.Time), num(r.BenchSeconds), r.Unit, r.Test, r.TempIndex,
+			r.TemperatureC, r.Session, r.FreqIndex, num(r.FrequencyHz), r.Record, r.Repeat, r.GeneratorChannel,
+			num(r.GeneratorPeakVolts), num(r.GeneratorOffsetVolts), r.GeneratorOn, num(r.RateHz), r.Samples, r.Cycles,
+			r.ChannelFits, floatsText(r.RMSVolts), strings.Join(r.Flags, ","), r.Problem})
+	}
 	return []tableRows{
 		{"instrument", []string{"campaign_id", "name", "roles", "address", "identity", "calibration_due"}, ins},
 		{"unit", []string{"campaign_id", "unit", "serial", "channel", "notes", "skipped"}, units},
 		{"result", resultColumns, results},
 		{"budget", budgetColumns, budgets},
 		{"reading", readingColumns, readings},
+		{"ac_reading", acReadingColumns, acReadings},
 	}
 }
 
 var (
 	resultColumns = []string{"campaign_id", "seq", "unit", "test", "temperature_c", "frequency_hz",
 		"coefficient_uv_per_v", "std_u_uv_per_v", "expanded_u_uv_per_v", "ratio_db", "expanded_u_db", "coverage_k",
-		"dof_effective", "resolved", "lower_bound_db", "limit_db", "phase_deg", "verdict", "rule", "flags", "notes"}
+		"dof_effective", "resolved", "lower_bound_db", "limit_db", "phase_deg", "verdict", "rule", "flags", "notes",
+		"phase_expanded_u_deg", "noise_floor_db", "coverage_probability"}
 	budgetColumns = []string{"campaign_id", "seq", "unit", "test", "temperature_c", "frequency_hz", "quantity", "component", "kind",
 		"distribution", "value", "value_unit", "std_uncertainty", "sensitivity", "contribution", "dof"}
 	readingColumns = []string{"campaign_id", "seq", "time", "bench_s", "unit", "test", "sweep", "temperature_c",
 		"measured_c", "repeat", "step", "set_volts", "read_volts", "meter_volts", "meter_sd_volts",
 		"n", "settle_s", "flags"}
+	acReadingColumns = []string{"campaign_id", "seq", "time", "bench_s", "unit", "test", "temp_index", "temperature_c",
+		"session", "freq_index", "frequency_hz", "record", "repeat", "generator_channel", "generator_peak_volts",
+		"generator_offset_volts", "generator_on", "rate_hz", "samples", "cycles", "channel_fits", "rms_volts", "flags", "problem"}
 )
 
 // sqlTx is a database/sql transaction (SQLite).
@@ -199,16 +263,16 @@ type sqlTx struct {
 	s  *Store
 }
 
-func (t sqlTx) idHashes(ctx context.Context, q string, args ...any) ([]idHash, error) {
+func (t sqlTx) storedRuns(ctx context.Context, q string, args ...any) ([]storedRun, error) {
 	rows, err := t.tx.QueryContext(ctx, q, args...)
 	if err != nil {
 		return nil, err
 	}
 	defer rows.Close()
-	var out []idHash
+	var out []storedRun
 	for rows.Next() {
-		var f idHash
-		if err := rows.Scan(&f.id, &f.hash); err != nil {
+		var f storedRun
+		if err := f.scan(rows.Scan); err != nil {
 			return nil, err
 		}
 		out = append(out, f)
@@ -302,6 +366,14 @@ func (t sqlTx) bulk(ctx context.Context, table string, cols []string, rows [][]a
 	return nil
 }
 
+// bytesOrNull maps an unknown journal length (0) to NULL.
+func bytesOrNull(n int64) any {
+	if n <= 0 {
+		return nil
+	}
+	return n
+}
+
 // num maps NaN ("not available") to NULL.
 func num(x float64) any {
 	if math.IsNaN(x) {
@@ -363,16 +435,16 @@ func splitList(s, sep string) []string {
 // pgxTx is a PostgreSQL transaction on pgx's own connection, for COPY.
 type pgxTx struct{ tx pgx.Tx }
 
-func (t pgxTx) idHashes(ctx context.Context, q string, args ...any) ([]idHash, error) {
+func (t pgxTx) storedRuns(ctx context.Context, q string, args ...any) ([]storedRun, error) {
 	rows, err := t.tx.Query(ctx, q, args...)
 	if err != nil {
 		return nil, err
 	}
 	defer rows.Close()
-	var out []idHash
+	var out []storedRun
 	for rows.Next() {
-		var f idHash
-		if err := rows.Scan(&f.id, &f.hash); err != nil {
+		var f storedRun
+		if err := f.scan(rows.Scan); err != nil {
 			return nil, err
 		}
 		out = append(out, f)

@@ -83,7 +83,8 @@ func sampleCampaign(seed int, lot, bench string, units, readingsPer int) *Campai
 				c.Results = append(c.Results, Result{Unit: unit, Test: test, TemperatureC: temp,
 					CoefficientUVPerV: coef, CoefficientStdUUVPerV: 0.05, CoefficientExpandedUUVPerV: 0.1,
 					RatioDB: ratio, ExpandedUDB: 0.9, CoverageK: 2, DOFEffective: math.Inf(1), Resolved: true,
-					LowerBoundDB: math.NaN(), LimitDB: 100, PhaseDeg: math.NaN(), Verdict: verdict, Rule: "guarded",
+					LowerBoundDB: math.NaN(), LimitDB: 100, PhaseDeg: math.NaN(), PhaseExpandedUDeg: math.NaN(),
+					NoiseFloorDB: math.NaN(), Coverage: 0.95, Verdict: verdict, Rule: "guarded",
 					Flags: nil, Notes: []string{"slope with drift term", "open-loop correction applied"}})
 				for i, comp := range []string{"slope (Type A)", "noise gain K", "meter gain"} {
 					c.Budgets = append(c.Budgets, BudgetRow{Unit: unit, Test: test, TemperatureC: temp, Component: comp,

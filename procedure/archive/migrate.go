@@ -131,6 +131,83 @@ var migrations = []migration{
 		`CREATE INDEX instrument_campaign ON instrument(campaign_id)`,
 		`CREATE INDEX unit_campaign ON unit(campaign_id)`,
 	}},
+	// 3: a frequency point that could not be analysed has no frequency
+	// (NULL); a frequency point keeps its phase U, noise floor and
+	// coverage probability; a campaign keeps its journal's length, so a
+	// shorter journal of a stored run is refused. SQLite cannot drop a NOT
+	// NULL constraint, so result is rebuilt (the same statements run on
+	// PostgreSQL).
+	{3, "nullable result frequency, frequency-point context, journal length", []string{
+		`CREATE TABLE result_v3 (
+			campaign_id BIGINT NOT NULL REFERENCES campaign(id) ON DELETE CASCADE,
+			seq INTEGER NOT NULL,
+			unit TEXT NOT NULL,
+			test TEXT NOT NULL,
+			temperature_c {{float}} NOT NULL,
+			frequency_hz {{float}},
+			coefficient_uv_per_v {{float}},
+			std_u_uv_per_v {{float}},
+			expanded_u_uv_per_v {{float}},
+			ratio_db {{float}},
+			expanded_u_db {{float}},
+			coverage_k {{float}},
+			dof_effective {{float}},
+			resolved BOOLEAN NOT NULL,
+			lower_bound_db {{float}},
+			limit_db {{float}},
+			phase_deg {{float}},
+			verdict TEXT NOT NULL,
+			rule TEXT NOT NULL,
+			flags TEXT NOT NULL,
+			notes TEXT NOT NULL,
+			phase_expanded_u_deg {{float}},
+			noise_floor_db {{float}},
+			coverage_probability {{float}}
+		)`,
+		`INSERT INTO result_v3 (campaign_id, seq, unit, test, temperature_c, frequency_hz, coefficient_uv_per_v,
+			std_u_uv_per_v, expanded_u_uv_per_v, ratio_db, expanded_u_db, coverage_k, dof_effective, resolved,
+			lower_bound_db, limit_db, phase_deg, verdict, rule, flags, notes)
+			SELECT campaign_id, seq, unit, test, temperature_c, frequency_hz, coefficient_uv_per_v,
+			std_u_uv_per_v, expanded_u_uv_per_v, ratio_db, expanded_u_db, coverage_k, dof_effective, resolved,
+			lower_bound_db, limit_db, phase_deg, verdict, rule, flags, notes FROM result`,
+		`DROP TABLE result`,
+		`ALTER TABLE result_v3 RENAME TO result`,
+		`CREATE INDEX result_campaign ON result(campaign_id)`,
+		`CREATE INDEX result_test ON result(test, temperature_c)`,
+		`ALTER TABLE campaign ADD COLUMN journal_bytes BIGINT`,
+	}},
+	// 4: the frequency-response records (sine fits or AC voltmeter
+	// readings) as the journal holds them, so a frequency result can be
+	// refitted from the archive too.
+	{4, "frequency-response records", []string{
+		`CREATE TABLE ac_reading (
+			campaign_id BIGINT NOT NULL REFERENCES campaign(id) ON DELETE CASCADE,
+			seq INTEGER NOT NULL,
+			time TEXT NOT NULL,
+			bench_s {{float}},
+			unit TEXT NOT NULL,
+			test TEXT NOT NULL,
+			temp_index INTEGER NOT NULL,
+			temperature_c {{float}} NOT NULL,
+			session INTEGER NOT NULL,
+			freq_index INTEGER NOT NULL,
+			frequency_hz {{float}},
+			record TEXT NOT NULL,
+			repeat INTEGER NOT NULL,
+			generator_channel TEXT NOT NULL,
+			generator_peak_volts {{float}},
+			generator_offset_volts {{float}},
+			generator_on BOOLEAN NOT NULL,
+			rate_hz {{float}},
+			samples INTEGER NOT NULL,
+			cycles INTEGER NOT NULL,
+			channel_fits TEXT NOT NULL,
+			rms_volts TEXT NOT NULL,
+			flags TEXT NOT NULL,
+			problem TEXT NOT NULL
+		)`,
+		`CREATE INDEX ac_reading_campaign ON ac_reading(campaign_id)`,
+	}},
 }
 
 // SchemaVersion is the version migrate brings a store to.

@@ -4,9 +4,11 @@ import (
 	"bytes"
 	"context"
 	"database/sql"
+	"net"
 	"os"
 	"path/filepath"
 	"strings"
+	"sync"
 	"testing"
 	"time"
 )
@@ -127,6 +129,11 @@ func TestBadDatabaseLocations(t *testing.T) {
 					t.Errorf("error %q: want %q", err, w)
 				}
 			}
+			// Cause first (the project's error style): the message does
+			// not open with the archive's name.
+			if strings.HasPrefix(err.Error(), "archive") {
+				t.Errorf("error %q: the cause does not come first", err)
+			}
 			if strings.Contains(err.Error(), "secret") {
 				t.Errorf("error %q shows the password", err)
 			}
@@ -134,5 +141,50 @@ func TestBadDatabaseLocations(t *testing.T) {
 				t.Errorf("took %v to fail", d)
 			}
 		})
+	}
+}
+
+// A server that accepts the connection and never answers: the store gives
+// up after its connect time-out, however long the URL's connect_timeout,
+// and not only when the caller's context ends.
+func TestPostgresConnectTimeoutApplies(t *testing.T) {
+	ln, err := net.Listen("tcp", "127.0.0.1:0")
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer ln.Close()
+	var conns []net.Conn
+	var mu sync.Mutex
+	go func() {
+		for {
+			c, err := ln.Accept()
+			if err != nil {
+				return
+			}
+			mu.Lock()
+			conns = append(conns, c) // held open, never answered
+			mu.Unlock()
+		}
+	}()
+	defer func() {
+		mu.Lock()
+		for _, c := range conns {
+			c.Close()
+		}
+		mu.Unlock()
+	}()
+	ctx, cancel := context.WithTimeout(context.Background(), 5*time.Second)
+	defer cancel()
+	loc := "postgres://user@" + ln.Addr().String() + "/archive?sslmode=disable&connect_timeout=3600"
+	s, err := openPostgres(ctx, loc, 200*time.Millisecond)
+	if err == nil {
+		s.Close()
+		t.Fatal("opened a server that never answers")
+	}
+	if ctx.Err() != nil {
+		t.Fatalf("gave up only when the caller's context ended: %v", err)
+	}
+	if !strings.Contains(err.Error(), "cannot reach the PostgreSQL server") {
+		t.Errorf("error %q", err)
 	}
 }

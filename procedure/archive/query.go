@@ -34,6 +34,7 @@ type CampaignInfo struct {
 	JournalHash   string
 	RunKey        string
 	JournalPath   string
+	JournalBytes  int64 // 0: not known
 	PlanHash      string
 	PlanFile      string
 	Name          string
@@ -53,6 +54,7 @@ type CampaignInfo struct {
 	Integrity     string
 	Results       int // stored results
 	Readings      int // stored readings
+	ACReadings    int // stored frequency-response records
 }
 
 // Row is one stored result with the campaign it belongs to.
@@ -142,9 +144,10 @@ func (s *Store) List(ctx context.Context, f Filter) ([]CampaignInfo, error) {
 	campaignWhere(&w, f)
 	q := `SELECT c.id, c.journal_hash, c.run_key, c.journal_path, c.plan_hash, c.plan_file, c.name, c.part, c.lot,
 		c.operator, c.notes, c.bench, c.started, c.finished, c.added, c.tool, c.decision_rule, c.temperatures_c,
-		c.incomplete, c.missing_points, c.integrity,
+		c.incomplete, c.missing_points, c.integrity, COALESCE(c.journal_bytes, 0),
 		(SELECT COUNT(*) FROM result r WHERE r.campaign_id = c.id),
-		(SELECT COUNT(*) FROM reading g WHERE g.campaign_id = c.id)
+		(SELECT COUNT(*) FROM reading g WHERE g.campaign_id = c.id),
+		(SELECT COUNT(*) FROM ac_reading a WHERE a.campaign_id = c.id)
 		FROM campaign c` + w.String() + ` ORDER BY c.started, c.id`
 	rows, err := s.db.QueryContext(ctx, q, w.args...)
 	if err != nil {
@@ -157,7 +160,7 @@ func (s *Store) List(ctx context.Context, f Filter) ([]CampaignInfo, error) {
 		var started, finished, added, temps string
 		if err := rows.Scan(&c.ID, &c.JournalHash, &c.RunKey, &c.JournalPath, &c.PlanHash, &c.PlanFile, &c.Name, &c.Part, &c.Lot,
 			&c.Operator, &c.Notes, &c.Bench, &started, &finished, &added, &c.Tool, &c.DecisionRule, &temps,
-			&c.Incomplete, &c.MissingPoints, &c.Integrity, &c.Results, &c.Readings); err != nil {
+			&c.Incomplete, &c.MissingPoints, &c.Integrity, &c.JournalBytes, &c.Results, &c.Readings, &c.ACReadings); err != nil {
 			return nil, s.wrap("list campaigns", err)
 		}
 		c.Started, c.Finished, c.Added = parseTime(started), parseTime(finished), parseTime(added)
@@ -178,7 +181,7 @@ func (s *Store) Query(ctx context.Context, f Filter) ([]Row, error) {
 	q := `SELECT c.id, c.part, c.lot, c.bench, c.started, c.plan_hash, c.journal_hash,
 		r.unit, r.test, r.temperature_c, r.frequency_hz, r.coefficient_uv_per_v, r.std_u_uv_per_v, r.expanded_u_uv_per_v,
 		r.ratio_db, r.expanded_u_db, r.coverage_k, r.dof_effective, r.resolved, r.lower_bound_db, r.limit_db, r.phase_deg,
-		r.verdict, r.rule, r.flags, r.notes, COALESCE(u.serial, '')
+		r.verdict, r.rule, r.flags, r.notes, COALESCE(u.serial, ''), r.phase_expanded_u_deg, r.noise_floor_db, r.coverage_probability
 		FROM result r JOIN campaign c ON c.id = r.campaign_id
 		LEFT JOIN unit u ON u.campaign_id = r.campaign_id AND u.unit = r.unit` + w.String() +
 		` ORDER BY c.started, c.id, r.seq`
@@ -191,17 +194,18 @@ func (s *Store) Query(ctx context.Context, f Filter) ([]Row, error) {
 	for rows.Next() {
 		var r Row
 		var started, flags, notes string
-		var coef, stdU, expU, ratio, uDB, k, dof, lower, limit, phase sql.NullFloat64
+		var fz, coef, stdU, expU, ratio, uDB, k, dof, lower, limit, phase, uPhase, floor, cov sql.NullFloat64
 		if err := rows.Scan(&r.Campaign, &r.Part, &r.Lot, &r.Bench, &started, &r.PlanHash, &r.JournalHash,
-			&r.Unit, &r.Test, &r.TemperatureC, &r.FrequencyHz, &coef, &stdU, &expU,
+			&r.Unit, &r.Test, &r.TemperatureC, &fz, &coef, &stdU, &expU,
 			&ratio, &uDB, &k, &dof, &r.Resolved, &lower, &limit, &phase,
-			&r.Verdict, &r.Rule, &flags, &notes, &r.Serial); err != nil {
+			&r.Verdict, &r.Rule, &flags, &notes, &r.Serial, &uPhase, &floor, &cov); err != nil {
 			return nil, s.wrap("query results", err)
 		}
 		r.Started = parseTime(started)
 		r.CoefficientUVPerV, r.CoefficientStdUUVPerV, r.CoefficientExpandedUUVPerV = val(coef), val(stdU), val(expU)
 		r.RatioDB, r.ExpandedUDB, r.CoverageK, r.DOFEffective = val(ratio), val(uDB), val(k), val(dof)
 		r.LowerBoundDB, r.LimitDB, r.PhaseDeg = val(lower), val(limit), val(phase)
+		r.FrequencyHz, r.PhaseExpandedUDeg, r.NoiseFloorDB, r.Coverage = val(fz), val(uPhase), val(floor), val(cov)
 		r.Flags, r.Notes = splitList(flags, ","), splitList(notes, "\n")
 		out = append(out, r)
 	}
@@ -230,7 +234,7 @@ func (s *Store) Load(ctx context.Context, id int64) (*Campaign, error) {
 		return nil, fmt.Errorf("archive %s: no campaign %d", s.name, id)
 	}
 	ci := list[0]
-	c := &Campaign{JournalHash: ci.JournalHash, RunKey: ci.RunKey, JournalPath: ci.JournalPath, PlanHash: ci.PlanHash,
+	c := &Campaign{JournalHash: ci.JournalHash, RunKey: ci.RunKey, JournalBytes: ci.JournalBytes, JournalPath: ci.JournalPath, PlanHash: ci.PlanHash,
 		PlanFile: ci.PlanFile, Name: ci.Name, Part: ci.Part, Lot: ci.Lot, Operator: ci.Operator, Notes: ci.Notes,
 		Bench: ci.Bench, Started: ci.Started, Finished: ci.Finished, Tool: ci.Tool, DecisionRule: ci.DecisionRule,
 		TemperaturesC: ci.TemperaturesC, Incomplete: ci.Incomplete, MissingPoints: ci.MissingPoints, Integrity: ci.Integrity}
@@ -296,6 +300,26 @@ func (s *Store) Load(ctx context.Context, id int64) (*Campaign, error) {
 			r.MeterVolts, r.MeterSDVolts, r.SettleSeconds = val(mv), val(msd), val(settle)
 			r.Flags = splitList(flags, ",")
 			c.Readings = append(c.Readings, r)
+			return nil
+		}); err != nil {
+		return nil, err
+	}
+	if err := s.each(ctx, `SELECT time, bench_s, unit, test, temp_index, temperature_c, session, freq_index, frequency_hz,
+		record, repeat, generator_channel, generator_peak_volts, generator_offset_volts, generator_on, rate_hz, samples, cycles,
+		channel_fits, rms_volts, flags, problem FROM ac_reading WHERE campaign_id = $1 ORDER BY seq`, id,
+		func(sc func(...any) error) error {
+			var r ACReading
+			var t, rms, flags string
+			var bs, fz, peak, off, rate sql.NullFloat64
+			if err := sc(&t, &bs, &r.Unit, &r.Test, &r.TempIndex, &r.TemperatureC, &r.Session, &r.FreqIndex, &fz,
+				&r.Record, &r.Repeat, &r.GeneratorChannel, &peak, &off, &r.GeneratorOn, &rate, &r.Samples, &r.Cycles,
+				&r.ChannelFits, &rms, &flags, &r.Problem); err != nil {
+				return err
+			}
+			r.Time = parseTime(t)
+			r.BenchSeconds, r.FrequencyHz, r.GeneratorPeakVolts, r.GeneratorOffsetVolts, r.RateHz = val(bs), val(fz), val(peak), val(off), val(rate)
+			r.RMSVolts, r.Flags = parseFloats(rms), splitList(flags, ",")
+			c.ACReadings = append(c.ACReadings, r)
 			return nil
 		}); err != nil {
 		return nil, err

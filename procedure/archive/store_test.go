@@ -3,6 +3,7 @@ package archive
 import (
 	"context"
 	"database/sql"
+	"errors"
 	"fmt"
 	"math"
 	"reflect"
@@ -70,6 +71,14 @@ func TestLoadRebuildsTheCampaign(t *testing.T) {
 		c.Readings[0].Flags = []string{"implausible"}
 		c.Readings[1].MeasuredC = 24.93
 		c.Units[1].Skipped = "socket empty"
+		c.JournalBytes = 123456
+		// A frequency point keeps its phase U, noise floor and coverage
+		// probability; a frequency point that could not be analysed has
+		// no frequency (NULL, read back as NaN).
+		c.Results[1].FrequencyHz, c.Results[1].PhaseDeg, c.Results[1].PhaseExpandedUDeg = 1000, -88.5, 0.7
+		c.Results[1].NoiseFloorDB = 142.25
+		c.Results[2].FrequencyHz, c.Results[2].Verdict = math.NaN(), "no result"
+		c.ACReadings = sampleACReadings()
 		id, _, err := s.Add(ctx, c)
 		if err != nil {
 			t.Fatal(err)
@@ -193,11 +202,13 @@ func TestLongerJournalOfTheSameRunReplacesTheShorter(t *testing.T) {
 		s := openStore(t, b.location(t))
 		short := sampleCampaign(3, "L5", "bench-A", 2, 2)
 		short.Incomplete, short.MissingPoints = true, 12
+		short.JournalBytes = 9000
 		if _, out, err := s.Add(ctx, short); err != nil || out != Added {
 			t.Fatal(out, err)
 		}
 		long := sampleCampaign(3, "L5", "bench-A", 4, 2)
 		long.JournalHash = hashOf("the resumed journal")
+		long.JournalBytes = 20000
 		_, out, err := s.Add(ctx, long)
 		if err != nil || out != Replaced {
 			t.Fatalf("add the resumed journal: %v, %v", out, err)
@@ -225,7 +236,7 @@ func TestMigrateFromEmpty(t *testing.T) {
 		if n := count(t, s, "schema_version"); n != len(migrations) {
 			t.Errorf("%d schema_version rows, want %d", n, len(migrations))
 		}
-		for _, tb := range []string{"campaign", "instrument", "unit", "result", "budget", "reading"} {
+		for _, tb := range []string{"campaign", "instrument", "unit", "result", "budget", "reading", "ac_reading"} {
 			if n := count(t, s, tb); n != 0 {
 				t.Errorf("%s has %d rows in a new store", tb, n)
 			}
@@ -250,47 +261,168 @@ func indexCount(t *testing.T, s *Store) int {
 	return n
 }
 
-func TestMigrateFromThePreviousVersion(t *testing.T) {
+func TestShorterJournalOfAStoredRunIsRefused(t *testing.T) {
 	forEachBackend(t, func(t *testing.T, b backend) {
 		ctx := context.Background()
-		loc := b.location(t)
-		// A store at version 1, with a campaign in it, as the previous
-		// release left it.
-		old := openAt(t, loc, SchemaVersion()-1)
-		c := sampleCampaign(4, "L7", "bench-A", 3, 2)
-		if _, _, err := old.Add(ctx, c); err != nil {
-			t.Fatal(err)
+		s := openStore(t, b.location(t))
+		long := sampleCampaign(3, "L6", "bench-A", 4, 2)
+		long.JournalBytes = 20000
+		id, out, err := s.Add(ctx, long)
+		if err != nil || out != Added {
+			t.Fatal(out, err)
 		}
-		if v, _ := old.Version(ctx); v != SchemaVersion()-1 {
-			t.Fatalf("old store at version %d", v)
-		}
-		if n := indexCount(t, old); n != 0 {
-			t.Fatalf("old store has %d of the new indexes", n)
-		}
-		old.Close()
-
-		s := openStore(t, loc)
-		if v, _ := s.Version(ctx); v != SchemaVersion() {
-			t.Fatalf("upgraded store at version %d, want %d", v, SchemaVersion())
-		}
-		if n := indexCount(t, s); n != len(migrations[1].SQL) {
-			t.Errorf("upgraded store has %d indexes, want %d", n, len(migrations[1].SQL))
-		}
-		list, err := s.List(ctx, Filter{})
-		if err != nil || len(list) != 1 {
-			t.Fatalf("list after upgrade: %v, %v", list, err)
-		}
-		got, err := s.Load(ctx, list[0].ID)
-		if err != nil {
-			t.Fatal(err)
-		}
-		if d := equalCampaign(got, c); d != "" {
-			t.Errorf("the campaign stored at the previous version changed in the upgrade:\n%s", d)
-		}
-		if _, out, err := s.Add(ctx, c); err != nil || out != Unchanged {
-			t.Errorf("re-add after upgrade: %v, %v", out, err)
+		for _, tc := range []struct {
+			name  string
+			bytes int64 // 0: not known, the stored rows decide
+		}{{"shorter by bytes", 9000}, {"as long", 20000}, {"fewer rows, length not known", 0}} {
+			short := sampleCampaign(3, "L6", "bench-A", 2, 2)
+			short.JournalHash = hashOf("the first half of the journal " + tc.name)
+			short.JournalBytes = tc.bytes
+			_, _, err := s.Add(ctx, short)
+			var se *ShorterJournalError
+			if !errors.As(err, &se) || se.Campaign != id || se.Lot != "L6" {
+				t.Fatalf("%s: add the shorter journal: %v; want a ShorterJournalError naming campaign %d", tc.name, err, id)
+			}
+			list, err := s.List(ctx, Filter{})
+			if err != nil {
+				t.Fatal(err)
+			}
+			if len(list) != 1 || list[0].JournalHash != long.JournalHash || list[0].Results != len(long.Results) {
+				t.Errorf("%s: the stored longer journal changed: %+v", tc.name, list)
+			}
 		}
 	})
+}
+
+func TestMigrateFromThePreviousVersion(t *testing.T) {
+	forEachBackend(t, func(t *testing.T, b backend) {
+		for from := 2; from < SchemaVersion(); from++ {
+			t.Run(fmt.Sprintf("from_%d", from), func(t *testing.T) { testMigrateFrom(t, b, from) })
+		}
+	})
+}
+
+func testMigrateFrom(t *testing.T, b backend, from int) {
+	ctx := context.Background()
+	loc := b.location(t)
+	// A store at an earlier version, with a campaign in it, as that
+	// release left it (version 2: result without the frequency-point
+	// columns, frequency_hz NOT NULL, no journal length; before 4: no
+	// frequency-response records).
+	old := openAt(t, loc, from)
+	c := sampleCampaign(4, "L7", "bench-A", 3, 2)
+	c.JournalBytes = 5000
+	if err := addAtVersion(old, c, from); err != nil {
+		t.Fatal(err)
+	}
+	if v, _ := old.Version(ctx); v != from {
+		t.Fatalf("old store at version %d", v)
+	}
+	nan := c.Results[0]
+	nan.FrequencyHz = math.NaN()
+	nanCampaign := sampleCampaign(5, "L8", "bench-A", 1, 1)
+	nanCampaign.Results = []Result{nan}
+	if err := addAtVersion(old, nanCampaign, from); (err == nil) != (from >= 3) {
+		t.Fatalf("version %d store adding a result without a frequency: %v", from, err)
+	}
+	old.Close()
+
+	s := openStore(t, loc)
+	if v, _ := s.Version(ctx); v != SchemaVersion() {
+		t.Fatalf("upgraded store at version %d, want %d", v, SchemaVersion())
+	}
+	if n := indexCount(t, s); n != len(migrations[1].SQL) {
+		t.Errorf("upgraded store has %d indexes, want %d", n, len(migrations[1].SQL))
+	}
+	list, err := s.List(ctx, Filter{Lot: "L7"})
+	if err != nil || len(list) != 1 {
+		t.Fatalf("list after upgrade: %v, %v", list, err)
+	}
+	got, err := s.Load(ctx, list[0].ID)
+	if err != nil {
+		t.Fatal(err)
+	}
+	want := *c
+	if from < 3 {
+		// Version 2 kept neither the coverage probability nor the
+		// journal's length.
+		want.Results = append([]Result(nil), c.Results...)
+		for i := range want.Results {
+			want.Results[i].Coverage = math.NaN()
+		}
+		want.JournalBytes = 0
+	}
+	if d := equalCampaign(got, &want); d != "" {
+		t.Errorf("the campaign stored at version %d changed in the upgrade:\n%s", from, d)
+	}
+	if _, out, err := s.Add(ctx, c); err != nil || out != Unchanged {
+		t.Errorf("re-add after upgrade: %v, %v", out, err)
+	}
+	if from < 3 {
+		if _, out, err := s.Add(ctx, nanCampaign); err != nil || out != Added {
+			t.Errorf("add a result without a frequency after upgrade: %v, %v", out, err)
+		}
+	}
+	ac := sampleCampaign(6, "L9", "bench-A", 1, 1)
+	ac.ACReadings = sampleACReadings()
+	if _, out, err := s.Add(ctx, ac); err != nil || out != Added {
+		t.Errorf("add frequency-response records after upgrade: %v, %v", out, err)
+	}
+}
+
+// addAtVersion stores c in a store at an earlier schema version with the
+// columns and tables that version had.
+func addAtVersion(s *Store, c *Campaign, version int) error {
+	ctx := context.Background()
+	tx, err := s.db.BeginTx(ctx, nil)
+	if err != nil {
+		return err
+	}
+	defer tx.Rollback()
+	var id int64
+	cols := `journal_hash, run_key, journal_path, plan_hash, plan_file, name, part, lot,
+		operator, notes, bench, started, finished, added, tool, decision_rule, temperatures_c, incomplete, missing_points, integrity`
+	params := "$1, $2, $3, $4, $5, $6, $7, $8, $9, $10, $11, $12, $13, $14, $15, $16, $17, $18, $19, $20"
+	args := []any{c.JournalHash, c.RunKey, c.JournalPath, c.PlanHash, c.PlanFile, c.Name, c.Part, c.Lot,
+		c.Operator, c.Notes, c.Bench, timeText(c.Started), timeText(c.Finished), timeText(time.Now()), c.Tool, c.DecisionRule,
+		floatsText(c.TemperaturesC), c.Incomplete, c.MissingPoints, c.Integrity}
+	if version >= 3 {
+		cols, params, args = cols+", journal_bytes", params+", $21", append(args, bytesOrNull(c.JournalBytes))
+	}
+	if err := tx.QueryRowContext(ctx, `INSERT INTO campaign (`+cols+`) VALUES (`+params+`) RETURNING id`, args...).Scan(&id); err != nil {
+		return err
+	}
+	for _, tr := range childRows(c, id) {
+		if tr.table == "ac_reading" && version < 4 {
+			continue
+		}
+		if tr.table == "result" && version < 3 {
+			// Version 3 added the last three columns.
+			n := len(tr.cols) - 3
+			tr.cols = tr.cols[:n]
+			for i := range tr.rows {
+				tr.rows[i] = tr.rows[i][:n]
+			}
+		}
+		if err := (sqlTx{tx, s}).bulk(ctx, tr.table, tr.cols, tr.rows); err != nil {
+			return fmt.Errorf("insert into %s: %w", tr.table, err)
+		}
+	}
+	return tx.Commit()
+}
+
+// sampleACReadings are two invented frequency-response records: a
+// digitizer record with its channel fits and an AC voltmeter record.
+func sampleACReadings() []ACReading {
+	at := time.Date(2026, 3, 9, 10, 0, 0, 0, time.UTC)
+	return []ACReading{
+		{Time: at, BenchSeconds: 12.5, Unit: "U01", Test: "cmrr", TempIndex: 1, TemperatureC: 85, Session: 1, FreqIndex: 2,
+			FrequencyHz: 1000, Record: "stimulus", Repeat: 0, GeneratorChannel: "1", GeneratorPeakVolts: 1, GeneratorOffsetVolts: math.NaN(),
+			GeneratorOn: true, RateHz: 100000, Samples: 4000, Cycles: 40,
+			ChannelFits: `[{"channel":1,"a":0.99,"b":0.01,"c":0}]`, Flags: []string{"clipped"}},
+		{Time: at.Add(time.Second), BenchSeconds: 13.5, Unit: "U01", Test: "psrr_pos", FrequencyHz: 60, Record: "floor",
+			GeneratorPeakVolts: 0.5, GeneratorOffsetVolts: 0, RateHz: math.NaN(), RMSVolts: []float64{1.25e-3, 3.5e-9}, Problem: "overload"},
+	}
 }
 
 // openAt opens location and migrates it only up to version.

@@ -13,6 +13,9 @@ type Campaign struct {
 	// run after a resume keeps it, so the longer journal replaces the
 	// shorter one. Empty: JournalHash.
 	RunKey string
+	// JournalBytes is the journal's length in bytes: of two journals of
+	// the same run the longer is kept (0: not known).
+	JournalBytes int64
 	// JournalPath is where the journal was read from (informative).
 	JournalPath string
 	PlanHash    string // SHA-256 of the plan file, hex
@@ -41,6 +44,7 @@ type Campaign struct {
 	Results     []Result
 	Budgets     []BudgetRow
 	Readings    []Reading
+	ACReadings  []ACReading
 }
 
 // Instrument is one instrument of the bench as the run saw it.
@@ -67,7 +71,9 @@ type Result struct {
 	Unit         string
 	Test         string
 	TemperatureC float64
-	FrequencyHz  float64 // 0: DC
+	// FrequencyHz is 0 at DC; NaN for a frequency-response result that
+	// could not be analysed (its problem names no frequency).
+	FrequencyHz float64
 	// CoefficientUVPerV is the input-referred coefficient (µV/V), with its
 	// standard uncertainty u and expanded uncertainty U = k·u.
 	CoefficientUVPerV          float64
@@ -81,10 +87,19 @@ type Result struct {
 	LowerBoundDB               float64
 	LimitDB                    float64 // NaN: not judged
 	PhaseDeg                   float64 // frequency response with phase; NaN otherwise
-	Verdict                    string  // "pass", "conditional pass", ...
-	Rule                       string  // decision rule applied, e.g. "guarded"
-	Flags                      []string
-	Notes                      []string
+	// PhaseExpandedUDeg is the phase's expanded uncertainty U = k·u (same
+	// CoverageK); NaN without phase.
+	PhaseExpandedUDeg float64
+	// NoiseFloorDB is the largest ratio the setup resolved at this
+	// frequency; NaN at DC or without a floor record.
+	NoiseFloorDB float64
+	// Coverage is the coverage probability of the expanded uncertainties
+	// (e.g. 0.95); NaN: not stated.
+	Coverage float64
+	Verdict  string // "pass", "conditional pass", ...
+	Rule     string // decision rule applied, e.g. "guarded"
+	Flags    []string
+	Notes    []string
 }
 
 // ReportedDB is the ratio when resolved, otherwise the lower bound.
@@ -131,4 +146,34 @@ type Reading struct {
 	N             int
 	SettleSeconds float64
 	Flags         []string
+}
+
+// ACReading is one frequency-response record as acquired: the sine fits
+// of a digitizer record or the RMS volts of an AC voltmeter record.
+type ACReading struct {
+	Time                 time.Time
+	BenchSeconds         float64
+	Unit                 string
+	Test                 string
+	TempIndex            int
+	TemperatureC         float64
+	Session              int
+	FreqIndex            int
+	FrequencyHz          float64
+	Record               string // "floor", "through" or "stimulus"
+	Repeat               int
+	GeneratorChannel     string
+	GeneratorPeakVolts   float64
+	GeneratorOffsetVolts float64
+	GeneratorOn          bool
+	RateHz               float64
+	Samples              int
+	Cycles               int
+	// ChannelFits is the record's per-channel sine fits (coefficients,
+	// covariance, residual) as JSON, verbatim from the journal ("" for an
+	// AC voltmeter record).
+	ChannelFits string
+	RMSVolts    []float64
+	Flags       []string
+	Problem     string
 }
