@@ -252,7 +252,8 @@ func runArchiveQuery(ctx context.Context, std streams, db string, o archiveQuery
 var resultRowHeader = []string{"campaign", "started", "part", "lot", "bench", "unit", "test", "temperature_c", "frequency_hz",
 	"coefficient_uv_per_v", "coefficient_std_u_uv_per_v", "coefficient_expanded_u_uv_per_v",
 	"ratio_db", "expanded_u_db", "coverage_k", "dof_effective", "resolved", "lower_bound_db", "reported_db", "limit_db",
-	"phase_deg", "verdict", "rule", "flags", "notes", "plan_hash", "journal_hash"}
+	"phase_deg", "phase_expanded_u_deg", "noise_floor_db", "coverage_probability",
+	"verdict", "rule", "flags", "notes", "plan_hash", "journal_hash"}
 
 func writeResultRows(w io.Writer, rows []archive.Row, format string) error {
 	switch format {
@@ -288,7 +289,7 @@ func writeResultRows(w io.Writer, rows []archive.Row, format string) error {
 				csvNum(r.TemperatureC), csvNum(r.FrequencyHz), csvNum(r.CoefficientUVPerV), csvNum(r.CoefficientStdUUVPerV),
 				csvNum(r.CoefficientExpandedUUVPerV), csvNum(r.RatioDB), csvNum(r.ExpandedUDB), csvNum(r.CoverageK),
 				csvNum(r.DOFEffective), strconv.FormatBool(r.Resolved), csvNum(r.LowerBoundDB), csvNum(r.ReportedDB()),
-				csvNum(r.LimitDB), csvNum(r.PhaseDeg), r.Verdict, r.Rule, strings.Join(r.Flags, ";"),
+				csvNum(r.LimitDB), csvNum(r.PhaseDeg), csvNum(r.PhaseExpandedUDeg), csvNum(r.NoiseFloorDB), csvNum(r.Coverage), r.Verdict, r.Rule, strings.Join(r.Flags, ";"),
 				strings.Join(r.Notes, " | "), r.PlanHash, r.JournalHash})
 		}
 		cw.Flush()
@@ -312,7 +313,8 @@ func writeResultRows(w io.Writer, rows []archive.Row, format string) error {
 			"coefficient_expanded_u_uv_per_v": jsonNum(r.CoefficientExpandedUUVPerV), "ratio_db": jsonNum(r.RatioDB),
 			"expanded_u_db": jsonNum(r.ExpandedUDB), "coverage_k": jsonNum(r.CoverageK), "dof_effective": jsonNum(r.DOFEffective),
 			"resolved": r.Resolved, "lower_bound_db": jsonNum(r.LowerBoundDB), "reported_db": jsonNum(r.ReportedDB()),
-			"limit_db": jsonNum(r.LimitDB), "phase_deg": jsonNum(r.PhaseDeg), "verdict": r.Verdict, "rule": r.Rule,
+			"limit_db": jsonNum(r.LimitDB), "phase_deg": jsonNum(r.PhaseDeg), "phase_expanded_u_deg": jsonNum(r.PhaseExpandedUDeg),
+			"noise_floor_db": jsonNum(r.NoiseFloorDB), "coverage_probability": jsonNum(r.Coverage), "verdict": r.Verdict, "rule": r.Rule,
 			"flags": flags, "notes": notes, "plan_hash": r.PlanHash, "journal_hash": r.JournalHash,
 		}); err != nil {
 			return err

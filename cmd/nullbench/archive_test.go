@@ -363,6 +363,24 @@ func TestArchiveFrequencyRecords(t *testing.T) {
 	if !strings.Contains(r.out, fmt.Sprintf(", %d frequency records)", n)) {
 		t.Errorf("archive add: %s; want %d frequency records", r.out, n)
 	}
+	// The frequency points keep their context (phase U, noise floor,
+	// coverage probability) in the query's exports.
+	args = []string{"archive", "--db", db, "query", "--test", "cmrr", "--format", "jsonl"}
+	r = cliExec(t, args...)
+	cliWantCode(t, r, exitOK, args...)
+	points := 0
+	for _, l := range cliJSONLines(t, r.out) {
+		if l["frequency_hz"] == 0.0 {
+			continue
+		}
+		points++
+		if l["coverage_probability"] != 0.95 || l["phase_expanded_u_deg"] == nil || l["noise_floor_db"] == nil {
+			t.Errorf("frequency row without its context: %v", l)
+		}
+	}
+	if points != 3 {
+		t.Errorf("%d cmrr frequency rows, want 3 (50, 60, 1000 Hz)", points)
+	}
 	rec, err := loadJournalRecord(j, "")
 	if err != nil {
 		t.Fatal(err)
