@@ -74,6 +74,21 @@ func openArchive(ctx context.Context, db string) (*archive.Store, error) {
 	return s, nil
 }
 
+// queryArchive opens the archive db, returns the results f selects and
+// the archive's name for messages, and closes it again.
+func queryArchive(ctx context.Context, db string, f archive.Filter) ([]archive.Row, string, error) {
+	s, err := openArchive(ctx, db)
+	if err != nil {
+		return nil, "", err
+	}
+	defer s.Close()
+	rows, err := s.Query(ctx, f)
+	if err != nil {
+		return nil, "", withCode(exitFailure, err)
+	}
+	return rows, s.Name(), nil
+}
+
 // addArchiveFlag adds --archive to run, resume and demo.
 func addArchiveFlag(cmd *cobra.Command, o *outputOptions) {
 	cmd.Flags().StringVar(&o.Archive, "archive", "", `add the finished campaign to this results archive (an SQLite file or a postgres:// URL; "default": the one "nullbench archive" uses)`)

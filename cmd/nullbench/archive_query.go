@@ -235,14 +235,9 @@ func runArchiveQuery(ctx context.Context, std streams, db string, o archiveQuery
 	if err != nil {
 		return err
 	}
-	s, err := openArchive(ctx, db)
+	rows, _, err := queryArchive(ctx, db, f)
 	if err != nil {
 		return err
-	}
-	defer s.Close()
-	rows, err := s.Query(ctx, f)
-	if err != nil {
-		return withCode(exitFailure, err)
 	}
 	return writeResultRows(std.Out, rows, o.Format)
 }

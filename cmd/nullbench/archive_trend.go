@@ -91,19 +91,14 @@ func runArchiveTrend(ctx context.Context, std streams, db string, o archiveTrend
 	if err != nil {
 		return err
 	}
-	s, err := openArchive(ctx, db)
+	rows, name, err := queryArchive(ctx, db, f)
 	if err != nil {
 		return err
 	}
-	defer s.Close()
-	rows, err := s.Query(ctx, f)
-	if err != nil {
-		return withCode(exitFailure, err)
-	}
 	if len(rows) == 0 {
-		return withCode(exitFailure, fmt.Errorf("no archived results in %s match the selection (%s)", s.Name(), o.describe()))
+		return withCode(exitFailure, fmt.Errorf("no archived results in %s match the selection (%s)", name, o.describe()))
 	}
-	opt.Selection = fmt.Sprintf("%s: %s; %d results", s.Name(), o.describe(), len(rows))
+	opt.Selection = fmt.Sprintf("%s: %s; %d results", name, o.describe(), len(rows))
 	tr, err := trend.Build(trendRows(rows, o.Value == "uv"), opt)
 	if err != nil {
 		return withCode(exitFailure, err)
