@@ -257,6 +257,26 @@ var (
 		"generator_offset_volts", "generator_on", "rate_hz", "samples", "cycles", "channel_fits", "rms_volts", "flags", "problem"}
 )
 
+// rowScanner is what *sql.Rows and pgx.Rows share.
+type rowScanner interface {
+	Next() bool
+	Scan(dest ...any) error
+	Err() error
+}
+
+// collectRuns reads every storedRun rows holds.
+func collectRuns(rows rowScanner) ([]storedRun, error) {
+	var out []storedRun
+	for rows.Next() {
+		var f storedRun
+		if err := f.scan(rows.Scan); err != nil {
+			return nil, err
+		}
+		out = append(out, f)
+	}
+	return out, rows.Err()
+}
+
 // sqlTx is a database/sql transaction (SQLite).
 type sqlTx struct {
 	tx *sql.Tx
@@ -269,15 +289,7 @@ func (t sqlTx) storedRuns(ctx context.Context, q string, args ...any) ([]storedR
 		return nil, err
 	}
 	defer rows.Close()
-	var out []storedRun
-	for rows.Next() {
-		var f storedRun
-		if err := f.scan(rows.Scan); err != nil {
-			return nil, err
-		}
-		out = append(out, f)
-	}
-	return out, rows.Err()
+	return collectRuns(rows)
 }
 
 func (t sqlTx) exec(ctx context.Context, q string, args ...any) error {
@@ -441,15 +453,7 @@ func (t pgxTx) storedRuns(ctx context.Context, q string, args ...any) ([]storedR
 		return nil, err
 	}
 	defer rows.Close()
-	var out []storedRun
-	for rows.Next() {
-		var f storedRun
-		if err := f.scan(rows.Scan); err != nil {
-			return nil, err
-		}
-		out = append(out, f)
-	}
-	return out, rows.Err()
+	return collectRuns(rows)
 }
 
 func (t pgxTx) exec(ctx context.Context, q string, args ...any) error {
