@@ -5,7 +5,6 @@ import (
 	"fmt"
 	"io"
 	"math"
-	"os"
 	"path/filepath"
 	"slices"
 	"strings"
@@ -39,42 +38,14 @@ type WorkbookOptions struct {
 	TmpDir string
 }
 
-// WriteWorkbook writes the campaign's workbook to path (.xlsx). It writes a
-// temporary file next to path and renames it, so path is either the old
-// file or the complete new one.
-func WriteWorkbook(path string, c *Campaign, opt WorkbookOptions) (err error) {
+// WriteWorkbook writes the campaign's workbook to path (.xlsx) through a
+// temporary file renamed into place (WriteFileAtomic), so path is either
+// the old file or the complete new one.
+func WriteWorkbook(path string, c *Campaign, opt WorkbookOptions) error {
 	if !strings.EqualFold(filepath.Ext(path), ".xlsx") {
 		return fmt.Errorf("report: workbook %q: the file name must end in .xlsx", path)
 	}
-	if err := RefuseSymlink(path); err != nil {
-		return fmt.Errorf("report: workbook: %w", err)
-	}
-	tmp, err := os.CreateTemp(filepath.Dir(path), tempPrefix+"*.xlsx")
-	if err != nil {
-		return fmt.Errorf("report: workbook %q: %w", path, err)
-	}
-	defer func() {
-		if err != nil {
-			tmp.Close()
-			os.Remove(tmp.Name())
-		}
-	}()
-	if err = WriteWorkbookTo(tmp, c, opt); err != nil {
-		return fmt.Errorf("report: workbook %q: %w", path, err)
-	}
-	// CreateTemp makes the file private; give it the mode of the file it
-	// replaces, or the usual 0644.
-	mode := os.FileMode(0o644)
-	if fi, serr := os.Stat(path); serr == nil {
-		mode = fi.Mode().Perm()
-	}
-	if err = tmp.Chmod(mode); err != nil {
-		return fmt.Errorf("report: workbook %q: %w", path, err)
-	}
-	if err = tmp.Close(); err != nil {
-		return fmt.Errorf("report: workbook %q: %w", path, err)
-	}
-	if err = os.Rename(tmp.Name(), path); err != nil {
+	if err := WriteFileAtomic(path, func(w io.Writer) error { return WriteWorkbookTo(w, c, opt) }); err != nil {
 		return fmt.Errorf("report: workbook %q: %w", path, err)
 	}
 	return nil
