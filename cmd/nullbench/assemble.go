@@ -3,6 +3,7 @@ package main
 import (
 	"fmt"
 	"math"
+	"slices"
 	"sort"
 	"strings"
 	"time"
@@ -49,6 +50,18 @@ const safetyNote = "Plans were checked before any instrument contact: supply spa
 	"Power-up: limits and voltages set with outputs off, supplies ramped on, then the input drive; power-down in reverse. " +
 	"See SAFETY.md; local codes and licensed practice take precedence."
 
+// appendDistinct adds item to the comma-separated list unless it is
+// empty or already there.
+func appendDistinct(list, item string) string {
+	if item == "" || slices.Contains(strings.Split(list, ", "), item) {
+		return list
+	}
+	if list == "" {
+		return item
+	}
+	return list + ", " + item
+}
+
 // toReport maps one or more measured plans into the report's flat model.
 // The first record names the campaign.
 func toReport(recs ...campaignRecord) *report.Campaign {
@@ -65,7 +78,8 @@ func toReport(recs ...campaignRecord) *report.Campaign {
 			c.Method = analysis.MethodText()
 			c.Started, c.Finished = r.Started, r.Finished
 		} else {
-			c.Part += ", " + p.Part.Number
+			c.Part = appendDistinct(c.Part, p.Part.Number)
+			c.Lot = appendDistinct(c.Lot, p.Campaign.Lot)
 			c.PlanFile += ", " + p.Source
 			c.PlanHash += ", sha256:" + p.Hash
 			if r.Finished.After(c.Finished) {
